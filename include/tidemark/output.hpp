@@ -1,0 +1,40 @@
+// Outputs: files written to a temporary name and renamed into place only on success, or stdout;
+// every write and the final close are checked.
+#pragma once
+
+#include <cstdio>
+#include <string>
+#include <string_view>
+
+namespace tidemark {
+
+/// An output file ("-" = stdout). Data goes to a temporary file in the target's folder;
+/// commit() flushes, closes and renames it over the target. If commit() is never reached
+/// (an exception, or SIGINT/SIGTERM with install_output_signal_handlers()), the temporary
+/// file is removed and an existing target is left untouched.
+class OutputFile {
+public:
+    explicit OutputFile(std::string path);
+    ~OutputFile();
+    OutputFile(const OutputFile&) = delete;
+    OutputFile& operator=(const OutputFile&) = delete;
+
+    /// Appends bytes; throws IoError on failure (disk full, closed pipe).
+    void write(std::string_view data);
+    /// Finishes the file; throws IoError. Further writes are errors.
+    void commit();
+    const std::string& path() const { return path_; }
+    bool is_stdout() const { return file_ == stdout; }
+
+private:
+    std::string path_, temp_;
+    std::FILE* file_ = nullptr;
+    int slot_ = -1;  ///< registration for signal-time removal
+    bool committed_ = false;
+};
+
+/// On SIGINT, SIGTERM or SIGHUP: remove every uncommitted temporary file, then die by the
+/// signal. SIGPIPE is ignored so that a closed pipe surfaces as a reported write error.
+void install_output_signal_handlers();
+
+}  // namespace tidemark

@@ -1,0 +1,103 @@
+// Sequence reading: FASTA streams (plain, gzip, bgzip, xz, bzip2, zstd, stdin) and faidx regions,
+// yielding one compactly stored contig at a time.
+#pragma once
+
+#include <cstdint>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "tidemark/intervals.hpp"
+
+namespace tidemark {
+
+/// Base codes used everywhere inside tidemark (A<C<G<T, as in profile context indices).
+enum BaseCode : uint8_t { base_a = 0, base_c = 1, base_g = 2, base_t = 3, base_unknown = 4 };
+
+/// A maximal run of unknown bases (N or another IUPAC ambiguity code), contig coordinates.
+struct UnknownRun {
+    int64_t begin = 0;
+    int64_t length = 0;
+};
+
+/// One FASTA record, or one region of it, held at 2 bits per base plus a list of unknown runs.
+///
+/// Storage is chunked (4 Mi bases per chunk) so that growing a chromosome never copies it and
+/// peak memory stays at about 0.25 bytes per base. Reusing one Contig for many records keeps
+/// its chunks allocated.
+struct Contig {
+    std::string name;        ///< record name: first word of the FASTA header
+    int64_t offset = 0;      ///< 0-based position of base 0 on the named sequence (regions)
+    int64_t length = 0;      ///< number of bases, known and unknown
+    int64_t soft_masked = 0; ///< lowercase bases seen (kept as their base)
+    std::vector<UnknownRun> unknown;  ///< sorted, disjoint, non-adjacent
+
+    /// Code 0..4 of base i (0 <= i < length).
+    uint8_t base(int64_t i) const;
+    /// Writes the codes of bases [begin, begin+n) to out (0..4).
+    void unpack(int64_t begin, int64_t n, uint8_t* out) const;
+    /// Total number of unknown bases.
+    int64_t unknown_count() const;
+    /// Forgets the bases (keeps allocated chunks for reuse).
+    void clear();
+    /// Appends one base code (0..4).
+    void push(uint8_t code);
+
+    static constexpr int chunk_shift = 22;  // bases per chunk = 4 Mi (1 MiB packed)
+
+private:
+    std::vector<std::unique_ptr<uint8_t[]>> chunks_;
+};
+
+/// Counts of bases and CpG dinucleotides over an interval.
+struct Composition {
+    int64_t a = 0, c = 0, g = 0, t = 0, unknown = 0;
+    int64_t cpg = 0;  ///< positions i with C at i and G at i+1, both inside the interval
+
+    int64_t known() const { return a + c + g + t; }
+    /// (C+G)/(A+C+G+T); 0 when no base is known.
+    double gc_fraction() const;
+    /// Observed/expected CpG ratio N(CpG)*L/(N(C)*N(G)) with L = known bases
+    /// (Gardiner-Garden & Frommer 1987, J. Mol. Biol. 196:261-282); NaN when N(C)*N(G) = 0.
+    double cpg_obs_exp() const;
+};
+
+/// Composition of bases [begin, end) of a contig.
+Composition composition(const Contig& contig, int64_t begin, int64_t end);
+
+/// A region to decode: 0-based half-open on the named sequence.
+struct Region {
+    std::string contig;
+    int64_t begin = 0;
+    int64_t end = 0;
+};
+
+/// A source of contigs, read one at a time.
+class SequenceSource {
+public:
+    virtual ~SequenceSource() = default;
+    /// Reads the next record into contig (reusing its storage); false at the end.
+    /// Throws InputError naming file, record and line on malformed input.
+    virtual bool next(Contig& contig) = 0;
+    /// The path as the user gave it ("-" for stdin).
+    virtual const std::string& path() const = 0;
+};
+
+/// Streams every record of a FASTA file. path "-" is stdin. Plain, gzip and bgzip are read
+/// through htslib; xz, bzip2 and zstd (by their magic bytes) through Boost.Iostreams.
+/// Record names must be unique within the file.
+std::unique_ptr<SequenceSource> open_fasta(const std::string& path);
+
+/// Resolves region strings ("chr", "chr:beg-end", 1-based inclusive as in samtools, "," allowed
+/// in numbers) and BED intervals against the faidx index of path (built when missing for plain
+/// and bgzip files). Regions are returned in index order, then by start; overlapping regions are
+/// an error. Throws InputError for unknown contigs, out-of-range or malformed regions, or a
+/// plain-gzip file (which cannot be indexed: suggest bgzip).
+std::vector<Region> resolve_regions(const std::string& path,
+                                    const std::vector<std::string>& region_strings,
+                                    const std::vector<Interval>& bed_regions);
+
+/// Reads the given (resolved) regions of path through faidx, one contig per region.
+std::unique_ptr<SequenceSource> open_regions(const std::string& path, std::vector<Region> regions);
+
+}  // namespace tidemark

@@ -1,0 +1,29 @@
+#!/usr/bin/env bash
+# Installs every Debian 12 package tidemark needs to build, test and benchmark; idempotent.
+set -euo pipefail
+
+packages=(
+  # build
+  build-essential cmake pkg-config git ca-certificates
+  # libraries (see README "Dependencies")
+  libhts-dev zlib1g-dev libeigen3-dev libboost-iostreams-dev libcli11-dev
+  nlohmann-json3-dev libfmt-dev catch2
+  # test oracles and open datasets
+  python3 python3-numpy python3-pomegranate tabix bedtools
+  bowtie2-examples smalt-examples
+)
+
+missing=()
+for p in "${packages[@]}"; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q 'install ok installed' || missing+=("$p")
+done
+if [ ${#missing[@]} -eq 0 ]; then
+  echo "install-deps: all ${#packages[@]} packages present" >&2
+  exit 0
+fi
+echo "install-deps: installing ${missing[*]}" >&2
+SUDO=""
+[ "$(id -u)" -eq 0 ] || SUDO="sudo"
+export DEBIAN_FRONTEND=noninteractive
+$SUDO apt-get update -qq
+$SUDO apt-get install -y -qq --no-install-recommends "${missing[@]}"

@@ -1,0 +1,22 @@
+// Subcommand registration: each src/cli/<name>.cpp adds one subcommand to the application.
+#pragma once
+
+#include <CLI/CLI.hpp>
+#include <functional>
+#include <string>
+
+namespace tidemark::cli {
+
+/// Work to run after parsing; returns the process exit code.
+using Action = std::function<int()>;
+
+/// Shared state of one invocation.
+struct Context {
+    std::string command_line;  ///< the words the user typed, for headers and reports
+    Action action;             ///< set by the chosen subcommand's callback
+};
+
+void add_scan(CLI::App& app, Context& ctx);
+void add_profiles(CLI::App& app, Context& ctx);
+
+}  // namespace tidemark::cli

@@ -1,0 +1,159 @@
+// Streaming FASTA parser: one record at a time into a reusable Contig, errors with file/record/line.
+#include <fmt/format.h>
+
+#include <unordered_set>
+#include <vector>
+
+#include "base_table.hpp"
+#include "byte_source.hpp"
+#include "tidemark/error.hpp"
+#include "tidemark/sequence.hpp"
+
+namespace tidemark {
+namespace {
+
+class FastaStream final : public SequenceSource {
+public:
+    explicit FastaStream(std::string path)
+        : path_(std::move(path)), display_(path_ == "-" ? "<stdin>" : path_),
+          source_(detail::open_byte_source(path_)), buf_(1 << 20) {}
+
+    const std::string& path() const override { return path_; }
+
+    bool next(Contig& contig) override {
+        if (!have_header_ && !find_first_header()) return false;
+        contig.clear();
+        contig.name = pending_name_;
+        if (!names_.insert(contig.name).second)
+            throw InputError(fmt::format("{}:{}: duplicate record name '{}'", display_,
+                                         header_line_, contig.name));
+        have_header_ = false;
+        read_sequence(contig);
+        return true;
+    }
+
+private:
+    bool refill() {
+        pos_ = 0;
+        end_ = source_->read(buf_.data(), buf_.size());
+        return end_ > 0;
+    }
+
+    // Consumes a line terminator at buf_[pos_]: "\n", "\r\n" or a lone "\r".
+    void end_line(char ch) {
+        ++pos_;
+        ++line_;
+        skip_lf_ = (ch == '\r');
+        at_line_start_ = true;
+    }
+
+    // Called at a line start; returns false at EOF.
+    bool skip_pending_lf() {
+        if (pos_ == end_ && !refill()) return false;
+        if (skip_lf_) {
+            skip_lf_ = false;
+            if (buf_[pos_] == '\n') {
+                ++pos_;
+                if (pos_ == end_ && !refill()) return false;
+            }
+        }
+        return true;
+    }
+
+    bool find_first_header() {
+        if (started_) return false;  // the previous record ended at EOF
+        started_ = true;
+        while (skip_pending_lf()) {
+            const char ch = buf_[pos_];
+            if (ch == '\n' || ch == '\r') {
+                end_line(ch);
+                continue;
+            }
+            if (ch != '>')
+                throw InputError(fmt::format(
+                    "{}:{}: expected a FASTA header line starting with '>' but found {} "
+                    "(is this a FASTA file?)",
+                    display_, line_, detail::describe_byte(static_cast<unsigned char>(ch))));
+            read_header();
+            return true;
+        }
+        return false;
+    }
+
+    // buf_[pos_] == '>' at a line start.
+    void read_header() {
+        header_line_ = line_;
+        std::string header;
+        ++pos_;
+        for (;;) {
+            if (pos_ == end_ && !refill()) break;
+            const char ch = buf_[pos_];
+            if (ch == '\n' || ch == '\r') {
+                end_line(ch);
+                break;
+            }
+            header.push_back(ch);
+            ++pos_;
+        }
+        const size_t stop = header.find_first_of(" \t");
+        pending_name_ = header.substr(0, stop);
+        if (pending_name_.empty())
+            throw InputError(fmt::format("{}:{}: header line has no record name after '>'",
+                                         display_, header_line_));
+        have_header_ = true;
+    }
+
+    void read_sequence(Contig& contig) {
+        const auto& classes = detail::byte_classes();
+        int64_t column = 0;
+        for (;;) {
+            if (at_line_start_) {
+                if (!skip_pending_lf()) return;
+                at_line_start_ = false;
+                column = 0;
+                if (buf_[pos_] == '>') {
+                    read_header();
+                    return;
+                }
+            }
+            if (pos_ == end_ && !refill()) return;
+            while (pos_ < end_) {
+                const unsigned char ch = static_cast<unsigned char>(buf_[pos_]);
+                const uint8_t cls = classes[ch];
+                ++column;
+                if (cls <= base_unknown) {
+                    contig.push(cls);
+                    contig.soft_masked += detail::is_lower_base(ch);
+                    ++pos_;
+                } else if (cls == detail::byte_space) {
+                    ++pos_;
+                } else if (ch == '\n' || ch == '\r') {
+                    end_line(static_cast<char>(ch));
+                    break;
+                } else {
+                    throw InputError(fmt::format(
+                        "{}:{}: record '{}': illegal character {} at column {} "
+                        "(expected A, C, G, T, N or an IUPAC ambiguity code)",
+                        display_, line_, contig.name, detail::describe_byte(ch), column));
+                }
+            }
+        }
+    }
+
+    std::string path_, display_;
+    std::unique_ptr<detail::ByteSource> source_;
+    std::vector<char> buf_;
+    size_t pos_ = 0, end_ = 0;
+    int64_t line_ = 1, header_line_ = 0;
+    bool at_line_start_ = true, skip_lf_ = false, started_ = false, have_header_ = false;
+    std::string pending_name_;
+    std::unordered_set<std::string> names_;
+};
+
+}  // namespace
+
+std::unique_ptr<SequenceSource> open_fasta(const std::string& path) {
+    return std::make_unique<FastaStream>(path);
+}
+
+}  // namespace tidemark

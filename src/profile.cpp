@@ -1,0 +1,377 @@
+// Profile JSON (tidemark-profile/1): parsing with field-level validation, canonical output,
+// lookup of built-ins, and compilation into a Model.
+#include "tidemark/profile.hpp"
+
+#include <fmt/format.h>
+#include <sys/stat.h>
+
+#include <algorithm>
+#include <cmath>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <set>
+#include <sstream>
+
+#include "tidemark/error.hpp"
+
+namespace tidemark {
+namespace {
+
+using json = nlohmann::json;
+using ordered_json = nlohmann::ordered_json;
+
+constexpr double sum_tolerance = 1e-6;
+
+// Edit distance, to suggest the intended field for a typo.
+size_t edit_distance(const std::string& a, const std::string& b) {
+    std::vector<size_t> prev(b.size() + 1), cur(b.size() + 1);
+    for (size_t j = 0; j <= b.size(); ++j) prev[j] = j;
+    for (size_t i = 1; i <= a.size(); ++i) {
+        cur[0] = i;
+        for (size_t j = 1; j <= b.size(); ++j)
+            cur[j] = std::min({prev[j] + 1, cur[j - 1] + 1,
+                               prev[j - 1] + (a[i - 1] == b[j - 1] ? 0 : 1)});
+        std::swap(prev, cur);
+    }
+    return prev[b.size()];
+}
+
+class Validator {
+public:
+    explicit Validator(std::string origin) : origin_(std::move(origin)) {}
+
+    [[noreturn]] void fail(const std::string& where, const std::string& what) const {
+        throw ProfileError(fmt::format("{}: {}: {}", origin_, where, what));
+    }
+
+    void only_fields(const json& obj, const std::string& where,
+                     std::initializer_list<const char*> allowed) const {
+        if (!obj.is_object()) fail(where, "must be a JSON object");
+        for (const auto& [key, value] : obj.items()) {
+            bool known = false;
+            std::string best;
+            size_t best_distance = 3;
+            for (const char* a : allowed) {
+                if (key == a) known = true;
+                const size_t d = edit_distance(key, a);
+                if (d < best_distance) {
+                    best_distance = d;
+                    best = a;
+                }
+            }
+            if (!known)
+                fail(where, fmt::format("unknown field '{}'{}", key,
+                                        best.empty() ? "" : " (did you mean '" + best + "'?)"));
+        }
+    }
+
+    const json& field(const json& obj, const char* key, const std::string& where) const {
+        auto it = obj.find(key);
+        if (it == obj.end()) fail(where, fmt::format("missing required field '{}'", key));
+        return *it;
+    }
+
+    std::string string_field(const json& obj, const char* key, const std::string& where) const {
+        const json& v = field(obj, key, where);
+        if (!v.is_string()) fail(where + "." + key, "must be a string");
+        return v.get<std::string>();
+    }
+
+    double probability(const json& v, const std::string& where) const {
+        if (!v.is_number()) fail(where, "must be a number");
+        const double p = v.get<double>();
+        if (!std::isfinite(p)) fail(where, "must be finite");
+        if (p < 0) fail(where, fmt::format("probability {} is negative", p));
+        if (p > 1 + sum_tolerance) fail(where, fmt::format("probability {} is above 1", p));
+        return p;
+    }
+
+    void sums_to_one(double sum, const std::string& where) const {
+        if (std::abs(sum - 1.0) > sum_tolerance)
+            fail(where, fmt::format("probabilities sum to {:.9g}, expected 1 (within {:g})", sum,
+                                    sum_tolerance));
+    }
+
+    int64_t nonnegative_integer(const json& v, const std::string& where) const {
+        if (!v.is_number_integer() || v.get<int64_t>() < 0)
+            fail(where, "must be a non-negative integer");
+        return v.get<int64_t>();
+    }
+
+private:
+    std::string origin_;
+};
+
+std::string read_file(const std::string& path) {
+    struct stat st{};
+    if (stat(path.c_str(), &st) == 0 && S_ISDIR(st.st_mode))
+        throw ProfileError(path + ": is a directory, not a profile file");
+    std::ifstream in(path, std::ios::binary);
+    if (!in) throw ProfileError(path + ": cannot open profile file");
+    std::ostringstream text;
+    text << in.rdbuf();
+    return text.str();
+}
+
+}  // namespace
+
+int Profile::state_index(std::string_view state) const {
+    for (size_t i = 0; i < states.size(); ++i)
+        if (states[i].name == state) return static_cast<int>(i);
+    return -1;
+}
+
+int Profile::region_index(std::string_view region) const {
+    for (size_t i = 0; i < regions.size(); ++i)
+        if (regions[i].name == region) return static_cast<int>(i);
+    return -1;
+}
+
+Profile parse_profile(std::string_view json_text, const std::string& origin) {
+    Validator v(origin);
+    json doc;
+    try {
+        doc = json::parse(json_text.begin(), json_text.end());
+    } catch (const json::parse_error& e) {
+        throw ProfileError(fmt::format("{}: invalid JSON: {}", origin, e.what()));
+    }
+    v.only_fields(doc, "top level",
+                  {"format", "name", "description", "sources", "regions", "states", "initial",
+                   "transitions", "calling", "provenance"});
+    Profile p;
+    const std::string format = v.string_field(doc, "format", "top level");
+    if (format != profile_format)
+        v.fail("format", fmt::format("'{}' is not supported (expected '{}')", format,
+                                     profile_format));
+    p.name = v.string_field(doc, "name", "top level");
+    if (p.name.empty()) v.fail("name", "must not be empty");
+    if (doc.contains("description")) p.description = v.string_field(doc, "description", "top level");
+    if (doc.contains("sources")) {
+        const json& s = doc["sources"];
+        if (!s.is_array()) v.fail("sources", "must be an array of strings");
+        for (size_t i = 0; i < s.size(); ++i) {
+            if (!s[i].is_string()) v.fail(fmt::format("sources[{}]", i), "must be a string");
+            p.sources.push_back(s[i].get<std::string>());
+        }
+    }
+    if (doc.contains("provenance")) {
+        if (!doc["provenance"].is_object()) v.fail("provenance", "must be a JSON object");
+        p.provenance_json = doc["provenance"].dump();
+    }
+
+    const json& regions = v.field(doc, "regions", "top level");
+    if (!regions.is_array() || regions.empty()) v.fail("regions", "must be a non-empty array");
+    for (size_t i = 0; i < regions.size(); ++i) {
+        const std::string where = fmt::format("regions[{}]", i);
+        v.only_fields(regions[i], where, {"name", "report", "description"});
+        RegionSpec r;
+        r.name = v.string_field(regions[i], "name", where);
+        if (r.name.empty()) v.fail(where + ".name", "must not be empty");
+        if (p.region_index(r.name) >= 0) v.fail(where, "duplicate region name '" + r.name + "'");
+        const json& report = v.field(regions[i], "report", where);
+        if (!report.is_boolean()) v.fail(where + ".report", "must be true or false");
+        r.report = report.get<bool>();
+        if (regions[i].contains("description"))
+            r.description = v.string_field(regions[i], "description", where);
+        p.regions.push_back(std::move(r));
+    }
+    if (std::none_of(p.regions.begin(), p.regions.end(), [](const RegionSpec& r) { return r.report; }))
+        v.fail("regions", "no region has \"report\": true, so nothing would be called");
+
+    const json& states = v.field(doc, "states", "top level");
+    if (!states.is_array() || states.empty()) v.fail("states", "must be a non-empty array");
+    for (size_t i = 0; i < states.size(); ++i) {
+        std::string where = fmt::format("states[{}]", i);
+        v.only_fields(states[i], where, {"name", "region", "order", "emissions", "description"});
+        StateSpec s;
+        s.name = v.string_field(states[i], "name", where);
+        if (s.name.empty()) v.fail(where + ".name", "must not be empty");
+        where += " ('" + s.name + "')";
+        if (p.state_index(s.name) >= 0) v.fail(where, "duplicate state name");
+        const std::string region = v.string_field(states[i], "region", where);
+        s.region = p.region_index(region);
+        if (s.region < 0) v.fail(where + ".region", "names unknown region '" + region + "'");
+        const json& order = v.field(states[i], "order", where);
+        if (!order.is_number_integer() || order.get<int64_t>() < 0 ||
+            order.get<int64_t>() > max_emission_order)
+            v.fail(where + ".order",
+                   fmt::format("must be an integer from 0 to {}", max_emission_order));
+        s.order = order.get<int>();
+        const json& rows = v.field(states[i], "emissions", where);
+        const size_t expected = size_t{1} << (2 * s.order);
+        if (!rows.is_array() || rows.size() != expected)
+            v.fail(where + ".emissions",
+                   fmt::format("must be an array of {} rows (4^order) of 4 probabilities",
+                               expected));
+        for (size_t r = 0; r < rows.size(); ++r) {
+            const std::string rw = fmt::format("{}.emissions[{}]", where, r);
+            if (!rows[r].is_array() || rows[r].size() != 4)
+                v.fail(rw, "must be 4 probabilities P(A), P(C), P(G), P(T)");
+            std::array<double, 4> row{};
+            double sum = 0;
+            for (int b = 0; b < 4; ++b) {
+                row[b] = v.probability(rows[r][b], fmt::format("{}[{}]", rw, b));
+                sum += row[b];
+            }
+            v.sums_to_one(sum, rw);
+            s.emissions.push_back(row);
+        }
+        p.states.push_back(std::move(s));
+    }
+    for (size_t r = 0; r < p.regions.size(); ++r)
+        if (std::none_of(p.states.begin(), p.states.end(),
+                         [&](const StateSpec& s) { return s.region == static_cast<int>(r); }))
+            v.fail(fmt::format("regions[{}] ('{}')", r, p.regions[r].name), "has no state");
+
+    const size_t S = p.states.size();
+    const json& initial = v.field(doc, "initial", "top level");
+    if (!initial.is_object()) v.fail("initial", "must be an object mapping state names to probabilities");
+    p.initial.assign(S, 0.0);
+    double isum = 0;
+    for (const auto& [name, value] : initial.items()) {
+        const int s = p.state_index(name);
+        if (s < 0) v.fail("initial", "names unknown state '" + name + "'");
+        p.initial[s] = v.probability(value, "initial." + name);
+        isum += p.initial[s];
+    }
+    v.sums_to_one(isum, "initial");
+
+    const json& trans = v.field(doc, "transitions", "top level");
+    if (!trans.is_object()) v.fail("transitions", "must be an object of objects");
+    p.transitions.assign(S, std::vector<double>(S, 0.0));
+    for (const auto& [from, row] : trans.items()) {
+        const int i = p.state_index(from);
+        if (i < 0) v.fail("transitions", "names unknown state '" + from + "'");
+        if (!row.is_object()) v.fail("transitions." + from, "must be an object");
+        for (const auto& [to, value] : row.items()) {
+            const int j = p.state_index(to);
+            if (j < 0) v.fail("transitions." + from, "names unknown target state '" + to + "'");
+            p.transitions[i][j] = v.probability(value, "transitions." + from + "." + to);
+        }
+    }
+    for (size_t i = 0; i < S; ++i) {
+        double sum = 0;
+        for (double x : p.transitions[i]) sum += x;
+        v.sums_to_one(sum, "transitions." + p.states[i].name);
+    }
+
+    if (doc.contains("calling")) {
+        const json& c = doc["calling"];
+        v.only_fields(c, "calling", {"min_posterior", "min_length", "merge_gap"});
+        if (c.contains("min_posterior")) {
+            p.calling.min_posterior = v.probability(c["min_posterior"], "calling.min_posterior");
+            if (p.calling.min_posterior <= 0) v.fail("calling.min_posterior", "must be above 0");
+        }
+        if (c.contains("min_length"))
+            p.calling.min_length = v.nonnegative_integer(c["min_length"], "calling.min_length");
+        if (c.contains("merge_gap"))
+            p.calling.merge_gap = v.nonnegative_integer(c["merge_gap"], "calling.merge_gap");
+    }
+    return p;
+}
+
+std::string to_json(const Profile& p) {
+    ordered_json doc;
+    doc["format"] = profile_format;
+    doc["name"] = p.name;
+    if (!p.description.empty()) doc["description"] = p.description;
+    doc["sources"] = p.sources;
+    doc["regions"] = ordered_json::array();
+    for (const auto& r : p.regions) {
+        ordered_json o;
+        o["name"] = r.name;
+        o["report"] = r.report;
+        if (!r.description.empty()) o["description"] = r.description;
+        doc["regions"].push_back(o);
+    }
+    doc["states"] = ordered_json::array();
+    for (const auto& s : p.states) {
+        ordered_json o;
+        o["name"] = s.name;
+        o["region"] = p.regions[s.region].name;
+        o["order"] = s.order;
+        o["emissions"] = s.emissions;
+        doc["states"].push_back(o);
+    }
+    ordered_json init = ordered_json::object();
+    for (size_t i = 0; i < p.states.size(); ++i)
+        if (p.initial[i] > 0) init[p.states[i].name] = p.initial[i];
+    doc["initial"] = init;
+    ordered_json trans = ordered_json::object();
+    for (size_t i = 0; i < p.states.size(); ++i) {
+        ordered_json row = ordered_json::object();
+        for (size_t j = 0; j < p.states.size(); ++j)
+            if (p.transitions[i][j] > 0) row[p.states[j].name] = p.transitions[i][j];
+        trans[p.states[i].name] = row;
+    }
+    doc["transitions"] = trans;
+    doc["calling"] = {{"min_posterior", p.calling.min_posterior},
+                      {"min_length", p.calling.min_length},
+                      {"merge_gap", p.calling.merge_gap}};
+    if (!p.provenance_json.empty()) doc["provenance"] = ordered_json::parse(p.provenance_json);
+    return doc.dump(2) + "\n";
+}
+
+Profile load_profile(const std::string& name_or_path) {
+    for (const auto& b : builtin_profiles())
+        if (b.name == name_or_path)
+            return parse_profile(b.json, "built-in profile '" + std::string(b.name) + "'");
+    struct stat st{};
+    if (stat(name_or_path.c_str(), &st) != 0) {
+        std::string names;
+        for (const auto& b : builtin_profiles()) names += (names.empty() ? "" : ", ") + std::string(b.name);
+        throw ProfileError(fmt::format(
+            "'{}' is neither a built-in profile ({}) nor a readable file", name_or_path, names));
+    }
+    return parse_profile(read_file(name_or_path), name_or_path);
+}
+
+Model compile(const Profile& p) {
+    Model m;
+    const int S = static_cast<int>(p.states.size());
+    m.states = S;
+    m.name = p.name;
+    for (const auto& r : p.regions) {
+        m.region_names.push_back(r.name);
+        m.region_report.push_back(r.report);
+    }
+    m.initial = p.initial;
+    m.transitions.assign(static_cast<size_t>(S) * S, 0.0);
+    for (int i = 0; i < S; ++i)
+        for (int j = 0; j < S; ++j) m.transitions[static_cast<size_t>(i) * S + j] = p.transitions[i][j];
+    m.in_begin.push_back(0);
+    m.out_begin.push_back(0);
+    for (int j = 0; j < S; ++j) {
+        for (int i = 0; i < S; ++i)
+            if (p.transitions[i][j] > 0) {
+                m.in_from.push_back(i);
+                m.in_prob.push_back(p.transitions[i][j]);
+            }
+        m.in_begin.push_back(static_cast<int>(m.in_from.size()));
+    }
+    for (int i = 0; i < S; ++i) {
+        for (int j = 0; j < S; ++j)
+            if (p.transitions[i][j] > 0) {
+                m.out_to.push_back(j);
+                m.out_prob.push_back(p.transitions[i][j]);
+            }
+        m.out_begin.push_back(static_cast<int>(m.out_to.size()));
+    }
+    for (const auto& s : p.states) {
+        m.state_names.push_back(s.name);
+        m.region_of_state.push_back(s.region);
+        m.order_of_state.push_back(s.order);
+        m.max_order = std::max(m.max_order, s.order);
+        m.emission_offset.push_back(m.emission.size());
+        std::array<double, 4> mean{};
+        for (const auto& row : s.emissions)
+            for (int b = 0; b < 4; ++b) {
+                m.emission.push_back(row[b]);
+                mean[b] += row[b] / static_cast<double>(s.emissions.size());
+            }
+        m.emission.insert(m.emission.end(), mean.begin(), mean.end());
+    }
+    return m;
+}
+
+}  // namespace tidemark

@@ -1,0 +1,194 @@
+// Random access through faidx: resolving region strings and BED intervals, reading regions.
+#include <fmt/format.h>
+#include <htslib/bgzf.h>
+#include <htslib/faidx.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <cstdlib>
+#include <cstring>
+#include <sys/stat.h>
+
+#include "base_table.hpp"
+#include "tidemark/error.hpp"
+#include "tidemark/sequence.hpp"
+
+namespace tidemark {
+namespace {
+
+struct FaiDeleter {
+    void operator()(faidx_t* f) const { fai_destroy(f); }
+};
+using FaiPtr = std::unique_ptr<faidx_t, FaiDeleter>;
+
+FaiPtr load_index(const std::string& path) {
+    if (path == "-")
+        throw InputError("--region needs a file: standard input cannot be read by region");
+    struct stat st{};
+    if (stat(path.c_str(), &st) != 0)
+        throw InputError(path + ": cannot open: " + std::strerror(errno));
+    if (S_ISDIR(st.st_mode)) throw InputError(path + ": is a directory, not a sequence file");
+    BGZF* fp = bgzf_open(path.c_str(), "r");
+    if (!fp) throw InputError(path + ": cannot open: " + std::strerror(errno));
+    const int compression = bgzf_compression(fp);
+    bgzf_close(fp);
+    if (compression == 1)
+        throw InputError(path +
+                         ": is plain gzip, which cannot be read by region; recompress it with "
+                         "'zcat " + path + " | bgzip > NEW.fa.gz' (bgzip is in Debian's tabix "
+                         "package) or drop --region to stream the whole file");
+    faidx_t* fai = fai_load3(path.c_str(), nullptr, nullptr, FAI_CREATE);
+    if (!fai)
+        throw InputError(path +
+                         ": cannot load or build the faidx index (.fai); is the file FASTA "
+                         "with equal line lengths within each record, and is its folder "
+                         "writable?");
+    return FaiPtr(fai);
+}
+
+int64_t parse_position(const std::string& text, const std::string& region) {
+    std::string digits;
+    for (char ch : text)
+        if (ch != ',') digits.push_back(ch);
+    if (digits.empty() || digits.size() > 15 ||
+        !std::all_of(digits.begin(), digits.end(), [](char c) { return c >= '0' && c <= '9'; }))
+        throw InputError(fmt::format(
+            "region '{}': '{}' is not a position (expected NAME, NAME:BEG or NAME:BEG-END, "
+            "1-based inclusive)",
+            region, text));
+    return std::strtoll(digits.c_str(), nullptr, 10);
+}
+
+Region parse_region(const faidx_t* fai, const std::string& text) {
+    if (text.empty()) throw InputError("empty region string");
+    Region r;
+    if (faidx_has_seq(fai, text.c_str())) {
+        r.contig = text;
+        r.begin = 0;
+        r.end = faidx_seq_len(fai, text.c_str());
+        return r;
+    }
+    const size_t colon = text.rfind(':');
+    if (colon == std::string::npos)
+        throw InputError(fmt::format("region '{}': no sequence of that name in the index",
+                                     text));
+    r.contig = text.substr(0, colon);
+    if (!faidx_has_seq(fai, r.contig.c_str()))
+        throw InputError(fmt::format("region '{}': no sequence named '{}' in the index", text,
+                                     r.contig));
+    const int64_t length = faidx_seq_len(fai, r.contig.c_str());
+    const std::string range = text.substr(colon + 1);
+    const size_t dash = range.find('-');
+    const int64_t first = parse_position(range.substr(0, dash), text);
+    int64_t last = length;
+    if (dash != std::string::npos && dash + 1 < range.size())
+        last = parse_position(range.substr(dash + 1), text);
+    if (first < 1)
+        throw InputError(fmt::format("region '{}': start must be at least 1 (1-based)", text));
+    if (last < first)
+        throw InputError(fmt::format("region '{}': end {} is before start {}", text, last,
+                                     first));
+    if (last > length)
+        throw InputError(fmt::format("region '{}': end {} is past the end of '{}' ({} bp)",
+                                     text, last, r.contig, length));
+    r.begin = first - 1;
+    r.end = last;
+    return r;
+}
+
+class FaidxSource final : public SequenceSource {
+public:
+    FaidxSource(std::string path, std::vector<Region> regions)
+        : path_(std::move(path)), fai_(load_index(path_)), regions_(std::move(regions)) {}
+
+    const std::string& path() const override { return path_; }
+
+    bool next(Contig& contig) override {
+        if (next_ == regions_.size()) return false;
+        const Region& r = regions_[next_++];
+        contig.clear();
+        contig.name = r.contig;
+        contig.offset = r.begin;
+        const auto& classes = detail::byte_classes();
+        constexpr int64_t piece = 1 << 20;  // bounded fetches keep memory flat on chromosomes
+        for (int64_t pos = r.begin; pos < r.end; pos += piece) {
+            const int64_t last = std::min(r.end, pos + piece) - 1;
+            hts_pos_t got = 0;
+            char* seq = faidx_fetch_seq64(fai_.get(), r.contig.c_str(), pos, last, &got);
+            if (!seq || got != last - pos + 1) {
+                std::free(seq);
+                throw InputError(fmt::format("{}: cannot read {}:{}-{} through the index",
+                                             path_, r.contig, pos + 1, last + 1));
+            }
+            for (hts_pos_t k = 0; k < got; ++k) {
+                const unsigned char ch = static_cast<unsigned char>(seq[k]);
+                const uint8_t cls = classes[ch];
+                if (cls > base_unknown) {
+                    std::free(seq);
+                    throw InputError(fmt::format(
+                        "{}: record '{}': illegal character {} at position {}", path_,
+                        r.contig, detail::describe_byte(ch), pos + k + 1));
+                }
+                contig.push(cls);
+                contig.soft_masked += detail::is_lower_base(ch);
+            }
+            std::free(seq);
+        }
+        return true;
+    }
+
+private:
+    std::string path_;
+    FaiPtr fai_;
+    std::vector<Region> regions_;
+    size_t next_ = 0;
+};
+
+}  // namespace
+
+std::vector<Region> resolve_regions(const std::string& path,
+                                    const std::vector<std::string>& region_strings,
+                                    const std::vector<Interval>& bed_regions) {
+    FaiPtr fai = load_index(path);
+    std::vector<Region> regions;
+    for (const auto& s : region_strings) regions.push_back(parse_region(fai.get(), s));
+    for (const auto& iv : bed_regions) {
+        if (!faidx_has_seq(fai.get(), iv.chrom.c_str()))
+            throw InputError(fmt::format("regions BED: no sequence named '{}' in {}", iv.chrom,
+                                         path));
+        const int64_t length = faidx_seq_len(fai.get(), iv.chrom.c_str());
+        if (iv.end > length)
+            throw InputError(fmt::format("regions BED: {}:{}-{} is past the end of '{}' ({} bp)",
+                                         iv.chrom, iv.begin, iv.end, iv.chrom, length));
+        if (iv.end > iv.begin) regions.push_back({iv.chrom, iv.begin, iv.end});
+    }
+    std::vector<int> rank(regions.size());
+    for (size_t i = 0; i < regions.size(); ++i) {
+        for (int t = 0; t < faidx_nseq(fai.get()); ++t)
+            if (regions[i].contig == faidx_iseq(fai.get(), t)) rank[i] = t;
+    }
+    std::vector<size_t> order(regions.size());
+    for (size_t i = 0; i < order.size(); ++i) order[i] = i;
+    std::stable_sort(order.begin(), order.end(), [&](size_t a, size_t b) {
+        if (rank[a] != rank[b]) return rank[a] < rank[b];
+        return regions[a].begin < regions[b].begin;
+    });
+    std::vector<Region> sorted;
+    for (size_t i : order) {
+        const Region& r = regions[i];
+        if (!sorted.empty() && sorted.back().contig == r.contig && r.begin < sorted.back().end)
+            throw InputError(fmt::format(
+                "regions {}:{}-{} and {}:{}-{} overlap; give disjoint regions (decoding each "
+                "region separately would report the overlap twice)",
+                sorted.back().contig, sorted.back().begin + 1, sorted.back().end, r.contig,
+                r.begin + 1, r.end));
+        sorted.push_back(r);
+    }
+    return sorted;
+}
+
+std::unique_ptr<SequenceSource> open_regions(const std::string& path, std::vector<Region> regions) {
+    return std::make_unique<FaidxSource>(path, std::move(regions));
+}
+
+}  // namespace tidemark
