@@ -9,7 +9,7 @@ packages=(
   libhts-dev zlib1g-dev libeigen3-dev libboost-iostreams-dev libcli11-dev
   nlohmann-json3-dev libfmt-dev catch2
   # test oracles and open datasets
-  python3 python3-numpy python3-pomegranate tabix bedtools
+  python3 python3-numpy python3-pomegranate tabix bedtools gzip xz-utils bzip2 zstd
   bowtie2-examples smalt-examples
 )
 

@@ -26,6 +26,13 @@ public:
             hclose_abruptly(hf);
             throw InputError(display_name(path_) + ": cannot open for reading");
         }
+        // A bgzip file normally ends with an empty EOF block; without it the file was most
+        // likely cut short (an interrupted copy or download).
+        if (path_ != "-" && bgzf_compression(fp_) == 2 && bgzf_check_EOF(fp_) == 0) {
+            bgzf_close(fp_);
+            throw InputError(path_ + ": bgzip file has no end-of-file marker: it is probably "
+                             "truncated");
+        }
     }
     ~BgzfSource() override { bgzf_close(fp_); }
     size_t read(char* buf, size_t n) override {

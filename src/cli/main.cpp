@@ -2,6 +2,7 @@
 // documented exit codes (0 ok, 1 input, 2 usage, 3 output, 4 internal).
 #include <cstdio>
 #include <exception>
+#include <htslib/hts.h>
 
 #include "commands.hpp"
 #include "tidemark/error.hpp"
@@ -21,6 +22,7 @@ std::string quote_word(const std::string& w) {
 int main(int argc, char** argv) {
     using namespace tidemark;
     install_output_signal_handlers();
+    hts_set_log_level(HTS_LOG_OFF);  // tidemark reports htslib failures in its own words
     cli::Context ctx;
     for (int i = 0; i < argc; ++i) ctx.command_line += (i ? " " : "") + quote_word(argv[i]);
 

@@ -1,0 +1,222 @@
+// FASTA reader, compression handling, faidx regions and composition, on hand-made inputs.
+#include <catch2/catch.hpp>
+
+#include <cstdlib>
+
+#include "test_util.hpp"
+#include "tidemark/error.hpp"
+#include "tidemark/sequence.hpp"
+
+using namespace tidemark;
+using test::TempFile;
+
+namespace {
+
+std::string decode(const Contig& c) {
+    std::string s;
+    for (int64_t i = 0; i < c.length; ++i) s += "ACGTN"[c.base(i)];
+    return s;
+}
+
+std::vector<std::pair<std::string, std::string>> read_all(const std::string& path) {
+    auto src = open_fasta(path);
+    Contig c;
+    std::vector<std::pair<std::string, std::string>> out;
+    while (src->next(c)) out.emplace_back(c.name, decode(c));
+    return out;
+}
+
+std::string error_of(const std::function<void()>& f) {
+    try {
+        f();
+    } catch (const InputError& e) {
+        return e.what();
+    }
+    return "";
+}
+
+using Records = std::vector<std::pair<std::string, std::string>>;
+
+}  // namespace
+
+TEST_CASE("FASTA basics: names, line ends, case, ambiguity codes, whitespace", "[sequence]") {
+    SECTION("LF, several records, name is the first word") {
+        TempFile f(">chr1 some description\nACGT\nacgt\n>chr2\tx\nNNRY\n");
+        CHECK(read_all(f.path()) == Records{{"chr1", "ACGTACGT"}, {"chr2", "NNNN"}});
+    }
+    SECTION("CRLF and no final newline") {
+        TempFile f(">a\r\nAC\r\nGT\r\n>b\r\nTT");
+        CHECK(read_all(f.path()) == Records{{"a", "ACGT"}, {"b", "TT"}});
+    }
+    SECTION("CR-only line ends") {
+        TempFile f(">a\rAC\rGT\r>b\rTT\r");
+        CHECK(read_all(f.path()) == Records{{"a", "ACGT"}, {"b", "TT"}});
+    }
+    SECTION("blank lines, spaces and tabs inside sequence lines are skipped") {
+        TempFile f("\n\n>a\nAC GT\n\n\tAC\n\n>b\n\nG\n");
+        CHECK(read_all(f.path()) == Records{{"a", "ACGTAC"}, {"b", "G"}});
+    }
+    SECTION("every IUPAC ambiguity code is unknown; lowercase is counted as soft-masked") {
+        TempFile f(">a\nNRYSWKMBDHVnryswkmbdhvAcGt\n");
+        auto src = open_fasta(f.path());
+        Contig c;
+        REQUIRE(src->next(c));
+        CHECK(decode(c) == std::string(22, 'N') + "ACGT");
+        CHECK(c.unknown_count() == 22);
+        CHECK(c.unknown.size() == 1);
+        CHECK(c.soft_masked == 11 + 2);
+    }
+    SECTION("a header with no sequence gives an empty record") {
+        TempFile f(">empty\n>full\nAC\n");
+        CHECK(read_all(f.path()) == Records{{"empty", ""}, {"full", "AC"}});
+    }
+    SECTION("an empty file has no records") {
+        TempFile f("");
+        CHECK(read_all(f.path()).empty());
+    }
+}
+
+TEST_CASE("FASTA errors name file, record and line", "[sequence]") {
+    SECTION("illegal character") {
+        TempFile f(">a\nACGT\nAC*T\n");
+        const std::string msg = error_of([&] { read_all(f.path()); });
+        CHECK(msg.find(f.path() + ":3:") != std::string::npos);
+        CHECK(msg.find("record 'a'") != std::string::npos);
+        CHECK(msg.find("'*'") != std::string::npos);
+        CHECK(msg.find("column 3") != std::string::npos);
+    }
+    SECTION("digits, dashes and NUL bytes are illegal") {
+        for (const std::string bad : {std::string("AC1T"), std::string("AC-T"), std::string("AC\0T", 4)}) {
+            TempFile f(">a\n" + bad + "\n");
+            CHECK(error_of([&] { read_all(f.path()); }).find(":2:") != std::string::npos);
+        }
+    }
+    SECTION("sequence before the first header") {
+        TempFile f("ACGT\n>a\nAC\n");
+        CHECK(error_of([&] { read_all(f.path()); }).find("expected a FASTA header") != std::string::npos);
+    }
+    SECTION("header without a name") {
+        TempFile f(">a\nAC\n> b\nAC\n");
+        const std::string msg = error_of([&] { read_all(f.path()); });
+        CHECK(msg.find(":3:") != std::string::npos);
+        CHECK(msg.find("no record name") != std::string::npos);
+    }
+    SECTION("duplicate record names") {
+        TempFile f(">a\nAC\n>b\nAC\n>a\nGG\n");
+        const std::string msg = error_of([&] { read_all(f.path()); });
+        CHECK(msg.find(":5:") != std::string::npos);
+        CHECK(msg.find("duplicate record name 'a'") != std::string::npos);
+    }
+    SECTION("missing file and directory") {
+        CHECK(error_of([] { open_fasta("/nonexistent/x.fa"); }).find("cannot open") != std::string::npos);
+        CHECK(error_of([] { open_fasta("/tmp"); }).find("is a directory") != std::string::npos);
+    }
+}
+
+TEST_CASE("compressed FASTA: gzip, bgzip, xz, bzip2, zstd and truncation", "[sequence]") {
+    // The compressors are the standard Debian command-line tools (gzip, bgzip from tabix,
+    // xz-utils, bzip2, zstd), independent of the reader under test.
+    TempFile plain(">a\nACGTNNacgt\n>b\nGGGG\n", ".fa");
+    const Records expected{{"a", "ACGTNNACGT"}, {"b", "GGGG"}};
+    for (const std::string tool : {"gzip", "bgzip", "xz", "bzip2", "zstd -q"}) {
+        const std::string out = plain.dir() + "/c.fa.x";
+        REQUIRE(std::system((tool + " -c " + plain.path() + " > " + out).c_str()) == 0);
+        INFO(tool);
+        CHECK(read_all(out) == expected);
+    }
+    SECTION("truncated gzip is an error, not a short record") {
+        // Random bases, so that a cut compressed stream really loses data.
+        std::mt19937_64 rng(5);
+        std::string big = ">a\n";
+        for (int i = 0; i < 5000; ++i) {
+            for (int j = 0; j < 60; ++j) big += "ACGT"[rng() % 4];
+            big += '\n';
+        }
+        TempFile f(big, ".fa");
+        for (const std::string tool : {"gzip", "bgzip"}) {
+            const std::string gz = f.dir() + "/t.fa.gz";
+            REQUIRE(std::system((tool + " -c " + f.path() + " | head -c 30000 > " + gz).c_str()) == 0);
+            INFO(tool);
+            CHECK(error_of([&] { read_all(gz); }).find("truncated") != std::string::npos);
+        }
+    }
+}
+
+TEST_CASE("regions through faidx", "[sequence]") {
+    TempFile f(">chr1 desc\nACGTACGTAC\nGTACG\n>chr2\nNNNNAAAA\n", ".fa");
+    SECTION("strings resolve 1-based inclusive; whole contigs; index order") {
+        const auto r = resolve_regions(f.path(), {"chr2", "chr1:3-12", "chr1:1-1"}, {});
+        REQUIRE(r.size() == 3);
+        CHECK((r[0].contig == "chr1" && r[0].begin == 0 && r[0].end == 1));
+        CHECK((r[1].contig == "chr1" && r[1].begin == 2 && r[1].end == 12));
+        CHECK((r[2].contig == "chr2" && r[2].begin == 0 && r[2].end == 8));
+        auto src = open_regions(f.path(), r);
+        Contig c;
+        REQUIRE(src->next(c));
+        CHECK(decode(c) == "A");
+        REQUIRE(src->next(c));
+        CHECK(decode(c) == "GTACGTACGT");
+        CHECK(c.offset == 2);
+        REQUIRE(src->next(c));
+        CHECK(decode(c) == "NNNNAAAA");
+        CHECK_FALSE(src->next(c));
+    }
+    SECTION("thousands separators and open ends") {
+        const auto r = resolve_regions(f.path(), {"chr1:1,0-1,5"}, {});
+        CHECK((r[0].begin == 9 && r[0].end == 15));
+        const auto open = resolve_regions(f.path(), {"chr1:12-"}, {});
+        CHECK((open[0].begin == 11 && open[0].end == 15));
+    }
+    SECTION("BED regions are 0-based half-open") {
+        const auto r = resolve_regions(f.path(), {}, {{"chr1", 0, 4, ""}});
+        CHECK((r[0].begin == 0 && r[0].end == 4));
+    }
+    SECTION("errors") {
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr3"}, {}); }).find("no sequence") != std::string::npos);
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:5-16"}, {}); }).find("past the end") != std::string::npos);
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:0-5"}, {}); }).find("at least 1") != std::string::npos);
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:9-5"}, {}); }).find("before start") != std::string::npos);
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:x-5"}, {}); }).find("not a position") != std::string::npos);
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:1-5", "chr1:5-8"}, {}); }).find("overlap") != std::string::npos);
+    }
+    SECTION("plain gzip cannot be read by region; bgzip can") {
+        const std::string gz = f.dir() + "/p.fa.gz";
+        REQUIRE(std::system(("gzip -c " + f.path() + " > " + gz).c_str()) == 0);
+        CHECK(error_of([&] { resolve_regions(gz, {"chr1"}, {}); }).find("bgzip") != std::string::npos);
+        const std::string bgz = f.dir() + "/b.fa.gz";
+        REQUIRE(std::system(("bgzip -c " + f.path() + " > " + bgz).c_str()) == 0);
+        const auto r = resolve_regions(bgz, {"chr1:2-4"}, {});
+        auto src = open_regions(bgz, r);
+        Contig c;
+        REQUIRE(src->next(c));
+        CHECK(decode(c) == "CGT");
+    }
+}
+
+TEST_CASE("contig storage round-trips across chunk boundaries and reuse", "[sequence]") {
+    Contig c;
+    const int64_t n = (int64_t{1} << Contig::chunk_shift) + 1000;
+    for (int64_t i = 0; i < n; ++i) c.push(static_cast<uint8_t>((i * 7 + i / 3) % 5));
+    std::vector<uint8_t> buf(2500);
+    const int64_t start = (int64_t{1} << Contig::chunk_shift) - 1500;
+    c.unpack(start, 2500, buf.data());
+    for (int64_t k = 0; k < 2500; ++k) REQUIRE(buf[k] == ((start + k) * 7 + (start + k) / 3) % 5);
+    c.clear();
+    for (int i = 0; i < 8; ++i) c.push(static_cast<uint8_t>(3 - i % 4));
+    CHECK(decode(c) == "TGCATGCA");  // reused chunk bits were cleared
+}
+
+TEST_CASE("composition and the observed/expected CpG ratio", "[sequence]") {
+    // Hand count of "CGCGAATTNCG": A2 C3 G3 T2, one N; CpG at 0-1, 2-3, 9-10 = 3 (none spans the
+    // N). Known length L = 10, o/e = N(CpG) L / (N(C) N(G)) = 3*10/(3*3) = 3.3333 (formula of
+    // Gardiner-Garden & Frommer 1987, J. Mol. Biol. 196:261-282); GC = 6/10.
+    const Contig c = test::contig_from("CGCGAATTNCG");
+    const Composition comp = composition(c, 0, c.length);
+    CHECK((comp.a == 2 && comp.c == 3 && comp.g == 3 && comp.t == 2 && comp.unknown == 1));
+    CHECK(comp.cpg == 3);
+    CHECK(comp.gc_fraction() == Approx(0.6));
+    CHECK(comp.cpg_obs_exp() == Approx(10.0 / 3.0));
+    // A sub-interval starting at a G does not count the CpG that starts before it.
+    CHECK(composition(c, 1, 4).cpg == 1);
+    CHECK(std::isnan(composition(test::contig_from("AATT"), 0, 4).cpg_obs_exp()));
+}
