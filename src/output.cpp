@@ -62,6 +62,16 @@ OutputFile::OutputFile(std::string path) : path_(std::move(path)) {
         file_ = stdout;
         return;
     }
+    struct stat st{};
+    if (stat(path_.c_str(), &st) == 0 && !S_ISREG(st.st_mode)) {
+        if (S_ISDIR(st.st_mode)) throw IoError(path_ + ": is a folder, not a file");
+        // A device or FIFO (/dev/stdout, /dev/full, a named pipe) cannot be replaced by
+        // renaming; write to it directly.
+        file_ = std::fopen(path_.c_str(), "wb");
+        if (!file_) throw IoError(path_ + ": cannot open output: " + error_text());
+        direct_ = true;
+        return;
+    }
     const size_t slash = path_.rfind('/');
     const std::string dir = slash == std::string::npos ? "" : path_.substr(0, slash + 1);
     const std::string base = slash == std::string::npos ? path_ : path_.substr(slash + 1);
@@ -82,7 +92,8 @@ OutputFile::OutputFile(std::string path) : path_(std::move(path)) {
 }
 
 OutputFile::~OutputFile() {
-    if (committed_ || is_stdout()) return;
+    if (direct_ && !committed_ && file_) std::fclose(file_);
+    if (committed_ || is_stdout() || direct_) return;
     if (file_) std::fclose(file_);
     unlink(temp_.c_str());
     release_temp(slot_);
@@ -103,12 +114,13 @@ void OutputFile::commit() {
         throw IoError(shown + ": write failed: " + error_text());
     committed_ = true;
     if (is_stdout()) return;
-    if (std::fclose(file_) != 0) {
-        file_ = nullptr;
+    const int closed = std::fclose(file_);
+    file_ = nullptr;
+    if (closed != 0) {
         committed_ = false;
         throw IoError(shown + ": write failed on close: " + error_text());
     }
-    file_ = nullptr;
+    if (direct_) return;
     // mkstemp creates 0600; give the file the permissions a normal create would have.
     const mode_t mask = umask(0);
     umask(mask);

@@ -11,7 +11,8 @@ namespace tidemark {
 /// An output file ("-" = stdout). Data goes to a temporary file in the target's folder;
 /// commit() flushes, closes and renames it over the target. If commit() is never reached
 /// (an exception, or SIGINT/SIGTERM with install_output_signal_handlers()), the temporary
-/// file is removed and an existing target is left untouched.
+/// file is removed and an existing target is left untouched. A target that is a device or a
+/// FIFO (e.g. /dev/stdout) is written in place.
 class OutputFile {
 public:
     explicit OutputFile(std::string path);
@@ -31,6 +32,7 @@ private:
     std::FILE* file_ = nullptr;
     int slot_ = -1;  ///< registration for signal-time removal
     bool committed_ = false;
+    bool direct_ = false;  ///< target is a device or FIFO: written in place
 };
 
 /// On SIGINT, SIGTERM or SIGHUP: remove every uncommitted temporary file, then die by the
