@@ -1,0 +1,140 @@
+"""Shared helpers for tidemark's oracle tests: run the binary, read its outputs, read and write FASTA, tally checks."""
+
+import gzip
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import traceback
+
+import numpy as np
+
+
+class Checks:
+    """A pass/fail tally; every check names the outside source it compares against."""
+
+    def __init__(self, title):
+        self.title = title
+        self.passed = 0
+        self.failed = 0
+
+    def check(self, ok, what, source, detail=""):
+        ok = bool(ok)
+        if ok:
+            self.passed += 1
+        else:
+            self.failed += 1
+        status = "ok  " if ok else "FAIL"
+        print(f"{status} {what} [{source}]" + (f": {detail}" if detail else ""), flush=True)
+        return ok
+
+    def equal(self, got, expected, what, source):
+        return self.check(got == expected, what, source, f"got {got!r}, expected {expected!r}")
+
+    def at_most(self, value, bound, what, source):
+        return self.check(value <= bound, what, source, f"{value:.3g} (limit {bound:.3g})")
+
+    def finish(self):
+        """Prints the final tally line and exits non-zero when anything failed."""
+        if self.passed + self.failed == 0:
+            self.failed += 1
+            print("FAIL no check ran", flush=True)
+        print(f"{self.passed} passed, {self.failed} failed", flush=True)
+        sys.exit(1 if self.failed else 0)
+
+
+def main(title, body):
+    """Runs body(checks, binary, workdir) in a temporary directory that is always removed; an
+    unexpected exception counts as one failure so that the final tally line is still printed."""
+    checks = Checks(title)
+    if len(sys.argv) != 2:
+        print(f"usage: {sys.argv[0]} PATH_TO_TIDEMARK_BINARY", file=sys.stderr)
+        sys.exit(2)
+    binary = os.path.abspath(sys.argv[1])
+    print(f"# {title}; binary {binary}", flush=True)
+    try:
+        with tempfile.TemporaryDirectory(prefix="tidemark-oracle-") as workdir:
+            body(checks, binary, workdir)
+    except Exception:  # report and count it; the tally must still be printed
+        traceback.print_exc()
+        checks.check(False, "test body ran to completion", "test harness")
+    checks.finish()
+
+
+class RunError(RuntimeError):
+    pass
+
+
+def run(binary, args, cwd=None):
+    """Runs tidemark with args; returns stdout. Raises RunError with stderr on a non-zero exit."""
+    proc = subprocess.run([binary] + list(args), cwd=cwd, capture_output=True, text=True)
+    if proc.returncode != 0:
+        raise RunError(f"tidemark {' '.join(args)} exited with {proc.returncode}:\n{proc.stderr}")
+    return proc.stdout
+
+
+def read_json(path):
+    with open(path, encoding="utf-8") as f:
+        return json.load(f)
+
+
+def read_fasta(path):
+    """Records of a plain or gzip FASTA file as a list of (name, sequence); the name is the first
+    word of the header and the sequence is upper-cased with whitespace removed."""
+    opener = gzip.open if path.endswith(".gz") else open
+    records = []
+    name, parts = None, []
+    with opener(path, "rt") as f:
+        for line in f:
+            line = line.rstrip("\r\n")
+            if line.startswith(">"):
+                if name is not None:
+                    records.append((name, "".join(parts).upper()))
+                header = line[1:].split()
+                name, parts = (header[0] if header else ""), []
+            elif name is not None:
+                parts.append("".join(line.split()))
+    if name is not None:
+        records.append((name, "".join(parts).upper()))
+    return records
+
+
+def write_fasta(path, records, width=60):
+    with open(path, "w", encoding="ascii") as f:
+        for name, seq in records:
+            f.write(f">{name}\n")
+            for i in range(0, len(seq), width):
+                f.write(seq[i:i + width] + "\n")
+
+
+def read_bedgraph(path, lengths):
+    """Expands a bedGraph into one per-base float array per contig (lengths: name -> length).
+    Bases that no interval covers stay NaN so that callers can check the tiling. Raises
+    ValueError for an unknown contig, an interval outside the contig or overlapping intervals."""
+    values = {name: np.full(n, np.nan) for name, n in lengths.items()}
+    with open(path, encoding="utf-8") as f:
+        for lineno, line in enumerate(f, 1):
+            if not line.strip() or line.startswith(("#", "track", "browser")):
+                continue
+            chrom, start, end, value = line.rstrip("\n").split("\t")
+            start, end = int(start), int(end)
+            if chrom not in values:
+                raise ValueError(f"{path}:{lineno}: unknown contig {chrom!r}")
+            if not 0 <= start < end <= lengths[chrom]:
+                raise ValueError(f"{path}:{lineno}: interval {start}-{end} outside {chrom}")
+            if not np.isnan(values[chrom][start:end]).all():
+                raise ValueError(f"{path}:{lineno}: interval {start}-{end} overlaps another")
+            values[chrom][start:end] = float(value)
+    return values
+
+
+def read_bed(path):
+    """Data lines of a BED file as lists of column strings (header lines starting with # skipped)."""
+    rows = []
+    with open(path, encoding="utf-8") as f:
+        for line in f:
+            if line.startswith("#") or not line.strip():
+                continue
+            rows.append(line.rstrip("\n").split("\t"))
+    return rows
