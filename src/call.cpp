@@ -49,6 +49,8 @@ void IntervalCaller::close(Open& open, int region) {
     call.region = region;
     call.mean_posterior = open.sum / static_cast<double>(length);
     call.min_posterior = open.min;
+    call.core_begin = open.core_begin < 0 ? open.begin : open.core_begin;
+    call.core_end = open.core_begin < 0 ? open.begin : open.core_end;
     call.composition = composition(*contig_, call.begin, call.end);
     if (!meets_island_criteria(options_.criteria, length, call.composition)) return;
     calls_.push_back(call);
@@ -56,40 +58,65 @@ void IntervalCaller::close(Open& open, int region) {
 
 void IntervalCaller::block(const BlockView& view) {
     const int S = view.states;
+    const double threshold = options_.min_posterior;
+    const int64_t gap_limit = std::max<int64_t>(options_.merge_gap, 1);
     for (size_t k = 0; k < reported_.size(); ++k) {
         const int region = reported_[k];
         Open& open = open_[k];
-        for (int64_t t = 0; t < view.size; ++t) {
-            const double* row = view.posterior + t * S;
-            double p = 0;
-            for (int s = 0; s < S; ++s)
-                if (model_.region_of_state[s] == region) p += row[s];
-            const int64_t pos = view.begin + t;
-            if (p >= options_.min_posterior) {
-                if (open.active && pos - open.end < std::max<int64_t>(options_.merge_gap, 1)) {
-                    // extend; after a short gap the gap's bases become part of the call
-                    open.sum += open.gap_sum;
-                    open.min = std::min(open.min, open.gap_min);
-                } else {
-                    close(open, region);
-                    open.active = true;
-                    open.begin = pos;
-                    open.sum = 0;
-                    open.min = 1;
+        // Instantiated twice: the usual one-state region reads its column directly; otherwise
+        // the region's states are summed in index order.
+        const auto scan = [&](auto posterior_at) {
+            for (int64_t t = 0; t < view.size; ++t) {
+                if (!open.active) {
+                    // Nothing open: only a base at or above the threshold changes anything.
+                    while (t < view.size && posterior_at(t) < threshold) ++t;
+                    if (t == view.size) break;
                 }
-                open.sum += p;
-                open.min = std::min(open.min, p);
-                open.end = pos + 1;
-                open.gap_sum = 0;
-                open.gap_min = 1;
-            } else if (open.active) {
-                if (pos - open.end + 1 >= options_.merge_gap) {
+                const double p = posterior_at(t);
+                const int64_t pos = view.begin + t;
+                if (p >= threshold) {
+                    if (open.active && pos - open.end < gap_limit) {
+                        // extend; after a short gap the gap's bases become part of the call
+                        open.sum += open.gap_sum;
+                        open.min = std::min(open.min, open.gap_min);
+                    } else {
+                        close(open, region);
+                        open.active = true;
+                        open.begin = pos;
+                        open.sum = 0;
+                        open.min = 1;
+                    }
+                    open.sum += p;
+                    open.min = std::min(open.min, p);
+                    open.end = pos + 1;
+                    open.gap_sum = 0;
+                    open.gap_min = 1;
+                } else if (pos - open.end + 1 >= options_.merge_gap) {
                     close(open, region);  // the gap is already too long to be merged
                 } else {
                     open.gap_sum += p;
                     open.gap_min = std::min(open.gap_min, p);
                 }
             }
+        };
+        int first = -1, count = 0;
+        for (int s = 0; s < S; ++s)
+            if (model_.region_of_state[s] == region) {
+                if (first < 0) first = s;
+                ++count;
+            }
+        const double* post = view.posterior;
+        if (count == 1) {
+            scan([post, S, first](int64_t t) { return post[t * S + first]; });
+        } else {
+            const std::vector<int>& of_state = model_.region_of_state;
+            scan([post, S, region, &of_state](int64_t t) {
+                const double* row = post + t * S;
+                double p = 0;
+                for (int s = 0; s < S; ++s)
+                    if (of_state[s] == region) p += row[s];
+                return p;
+            });
         }
     }
 }

@@ -1,13 +1,18 @@
-// Atomic output files (temporary name + rename) with signal-safe clean-up, and checked writes.
+// Atomic output files (temporary name + rename) with signal-safe clean-up, checked writes,
+// optional BGZF compression and tabix indexing (htslib).
 #include "tidemark/output.hpp"
+
+#include <fcntl.h>
+#include <htslib/bgzf.h>
+#include <htslib/tbx.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 #include <atomic>
 #include <cerrno>
 #include <csignal>
 #include <cstdlib>
 #include <cstring>
-#include <sys/stat.h>
-#include <unistd.h>
 
 #include "tidemark/error.hpp"
 
@@ -47,6 +52,25 @@ extern "C" void remove_temps_and_die(int sig) {
 
 std::string error_text() { return std::strerror(errno); }
 
+// A unique temporary path beside target; returns the open descriptor.
+int make_temp(const std::string& target, std::string& temp) {
+    const size_t slash = target.rfind('/');
+    const std::string dir = slash == std::string::npos ? "" : target.substr(0, slash + 1);
+    const std::string base = slash == std::string::npos ? target : target.substr(slash + 1);
+    if (base.empty()) throw IoError(target + ": output path names a folder, not a file");
+    temp = dir + "." + base + ".tidemark-XXXXXX";
+    const int fd = mkstemp(temp.data());
+    if (fd < 0) throw IoError(target + ": cannot create output file: " + error_text());
+    return fd;
+}
+
+// mkstemp creates 0600; give finished files the permissions a normal create would have.
+void set_default_mode(const std::string& path) {
+    const mode_t mask = umask(0);
+    umask(mask);
+    chmod(path.c_str(), 0666 & ~mask);
+}
+
 }  // namespace
 
 void install_output_signal_handlers() {
@@ -56,80 +80,105 @@ void install_output_signal_handlers() {
     std::signal(SIGPIPE, SIG_IGN);
 }
 
-OutputFile::OutputFile(std::string path) : path_(std::move(path)) {
+OutputFile::OutputFile(std::string path, OutputFormat format)
+    : path_(std::move(path)), format_(format) {
+    int fd = -1;
     if (path_.empty() || path_ == "-") {
         path_ = "-";
-        file_ = stdout;
+        stdout_ = true;
+        format_.tabix = false;
+        fd = format_.bgzip ? dup(STDOUT_FILENO) : -1;
+    } else {
+        struct stat st{};
+        if (stat(path_.c_str(), &st) == 0 && !S_ISREG(st.st_mode)) {
+            if (S_ISDIR(st.st_mode)) throw IoError(path_ + ": is a folder, not a file");
+            // A device or FIFO (/dev/stdout, /dev/full, a named pipe) cannot be replaced by
+            // renaming; write to it directly.
+            fd = open(path_.c_str(), O_WRONLY);
+            if (fd < 0) throw IoError(path_ + ": cannot open output: " + error_text());
+            direct_ = true;
+            format_.tabix = false;
+        } else {
+            fd = make_temp(path_, temp_);
+            slot_ = register_temp(temp_);
+        }
+    }
+    if (format_.tabix && !format_.bgzip) throw InternalError("tabix index without bgzip");
+    if (format_.bgzip) {
+        bgzf_ = bgzf_dopen(fd, "w");
+        if (!bgzf_) {
+            close(fd);
+            throw IoError(path_ + ": cannot open compressed output");
+        }
         return;
     }
-    struct stat st{};
-    if (stat(path_.c_str(), &st) == 0 && !S_ISREG(st.st_mode)) {
-        if (S_ISDIR(st.st_mode)) throw IoError(path_ + ": is a folder, not a file");
-        // A device or FIFO (/dev/stdout, /dev/full, a named pipe) cannot be replaced by
-        // renaming; write to it directly.
-        file_ = std::fopen(path_.c_str(), "wb");
-        if (!file_) throw IoError(path_ + ": cannot open output: " + error_text());
-        direct_ = true;
-        return;
-    }
-    const size_t slash = path_.rfind('/');
-    const std::string dir = slash == std::string::npos ? "" : path_.substr(0, slash + 1);
-    const std::string base = slash == std::string::npos ? path_ : path_.substr(slash + 1);
-    if (base.empty()) throw IoError(path_ + ": output path names a folder, not a file");
-    std::string pattern = dir + "." + base + ".tidemark-XXXXXX";
-    const int fd = mkstemp(pattern.data());
-    if (fd < 0) throw IoError(path_ + ": cannot create output file: " + error_text());
-    temp_ = pattern;
-    slot_ = register_temp(temp_);
-    file_ = fdopen(fd, "wb");
+    file_ = stdout_ ? stdout : fdopen(fd, "wb");
     if (!file_) {
         close(fd);
-        unlink(temp_.c_str());
-        release_temp(slot_);
         throw IoError(path_ + ": cannot open output file: " + error_text());
     }
-    std::setvbuf(file_, nullptr, _IOFBF, 1 << 20);
+    if (!stdout_) std::setvbuf(file_, nullptr, _IOFBF, 1 << 20);
 }
 
 OutputFile::~OutputFile() {
-    if (direct_ && !committed_ && file_) std::fclose(file_);
-    if (committed_ || is_stdout() || direct_) return;
-    if (file_) std::fclose(file_);
-    unlink(temp_.c_str());
+    if (!committed_) {
+        if (bgzf_) bgzf_close(bgzf_);
+        if (file_ && !stdout_) std::fclose(file_);
+    }
+    if (!temp_.empty() && !committed_) unlink(temp_.c_str());
     release_temp(slot_);
 }
 
 void OutputFile::write(std::string_view data) {
     if (committed_) throw InternalError(path_ + ": write after commit");
     if (data.empty()) return;
-    if (std::fwrite(data.data(), 1, data.size(), file_) != data.size())
-        throw IoError((is_stdout() ? std::string("standard output") : path_) +
-                      ": write failed: " + error_text());
+    const bool ok = bgzf_ ? bgzf_write(bgzf_, data.data(), data.size()) == static_cast<ssize_t>(data.size())
+                          : std::fwrite(data.data(), 1, data.size(), file_) == data.size();
+    if (!ok)
+        throw IoError((stdout_ ? std::string("standard output") : path_) + ": write failed: " +
+                      error_text());
 }
 
 void OutputFile::commit() {
     if (committed_) return;
-    const std::string shown = is_stdout() ? std::string("standard output") : path_;
-    if (std::fflush(file_) != 0 || std::ferror(file_))
-        throw IoError(shown + ": write failed: " + error_text());
-    committed_ = true;
-    if (is_stdout()) return;
-    const int closed = std::fclose(file_);
-    file_ = nullptr;
-    if (closed != 0) {
-        committed_ = false;
-        throw IoError(shown + ": write failed on close: " + error_text());
+    const std::string shown = stdout_ ? std::string("standard output") : path_;
+    int failed = 0;
+    if (bgzf_) {
+        failed = bgzf_close(bgzf_);  // writes the EOF block and closes the descriptor
+        bgzf_ = nullptr;
+    } else if (stdout_) {
+        failed = std::fflush(file_) != 0 || std::ferror(file_);
+    } else {
+        failed = std::fflush(file_) != 0 || std::ferror(file_);
+        failed |= std::fclose(file_) != 0;
+        file_ = nullptr;
     }
-    if (direct_) return;
-    // mkstemp creates 0600; give the file the permissions a normal create would have.
-    const mode_t mask = umask(0);
-    umask(mask);
-    chmod(temp_.c_str(), 0666 & ~mask);
-    if (std::rename(temp_.c_str(), path_.c_str()) != 0) {
-        committed_ = false;
+    if (failed) throw IoError(shown + ": write failed: " + error_text());
+    if (stdout_ || direct_) {
+        committed_ = true;
+        return;
+    }
+    set_default_mode(temp_);
+    if (std::rename(temp_.c_str(), path_.c_str()) != 0)
         throw IoError(shown + ": cannot move the finished file into place: " + error_text());
+    committed_ = true;
+    if (format_.tabix) build_index();
+}
+
+void OutputFile::build_index() {
+    std::string temp;
+    close(make_temp(path_ + ".tbi", temp));
+    const int slot = register_temp(temp);
+    tbx_conf_t conf = tbx_conf_bed;
+    conf.line_skip = format_.skip_lines;
+    const int rc = tbx_index_build3(path_.c_str(), temp.c_str(), 0, 1, &conf);
+    if (rc != 0 || std::rename(temp.c_str(), (path_ + ".tbi").c_str()) != 0) {
+        unlink(temp.c_str());
+        release_temp(slot);
+        throw IoError(path_ + ": cannot write the tabix index " + path_ + ".tbi");
     }
-    release_temp(slot_);
+    set_default_mode(path_ + ".tbi");
+    release_temp(slot);
 }
 
 }  // namespace tidemark

@@ -109,6 +109,7 @@ public:
         contig.clear();
         contig.name = r.contig;
         contig.offset = r.begin;
+        contig.sequence_length = faidx_seq_len(fai_.get(), r.contig.c_str());
         const auto& classes = detail::byte_classes();
         constexpr int64_t piece = 1 << 20;  // bounded fetches keep memory flat on chromosomes
         for (int64_t pos = r.begin; pos < r.end; pos += piece) {

@@ -29,6 +29,8 @@ struct CallOptions {
     double min_posterior = 0.5;  ///< a base belongs to a run when P(region) >= this
     int64_t merge_gap = 0;       ///< runs separated by fewer than this many bases are merged
     int64_t min_length = 1;      ///< calls shorter than this are dropped (after merging)
+    double high_posterior = 0.95;  ///< a call's core (BED thickStart/thickEnd) spans its bases
+                                   ///< with P(region) >= this (tidemark's choice)
     IslandCriteria criteria = IslandCriteria::none;
 };
 
@@ -39,6 +41,8 @@ struct Call {
     int region = 0;             ///< index into Model::region_names
     double mean_posterior = 0;  ///< mean P(region) over the interval (merged gaps included)
     double min_posterior = 0;   ///< lowest P(region) inside the interval
+    int64_t core_begin = 0;     ///< first base with P >= high_posterior (= begin when none)
+    int64_t core_end = 0;       ///< one past the last such base (= begin when none)
     Composition composition;
 };
 
@@ -59,6 +63,7 @@ private:
         double sum = 0;              ///< posterior sum over [begin, end)
         double min = 1;
         double gap_sum = 0, gap_min = 1;  ///< over [end, current position)
+        int64_t core_begin = -1, core_end = -1;
     };
     void close(Open& open, int region);
 

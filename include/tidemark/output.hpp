@@ -6,7 +6,16 @@
 #include <string>
 #include <string_view>
 
+struct BGZF;
+
 namespace tidemark {
+
+/// How an output is encoded.
+struct OutputFormat {
+    bool bgzip = false;   ///< BGZF-compress (htslib), readable by gzip and indexable by tabix
+    bool tabix = false;   ///< also write PATH.tbi (BED coordinates); needs bgzip, a regular file
+    int skip_lines = 0;   ///< leading lines the index must skip (a browser `track` line)
+};
 
 /// An output file ("-" = stdout). Data goes to a temporary file in the target's folder;
 /// commit() flushes, closes and renames it over the target. If commit() is never reached
@@ -15,7 +24,7 @@ namespace tidemark {
 /// FIFO (e.g. /dev/stdout) is written in place.
 class OutputFile {
 public:
-    explicit OutputFile(std::string path);
+    explicit OutputFile(std::string path, OutputFormat format = {});
     ~OutputFile();
     OutputFile(const OutputFile&) = delete;
     OutputFile& operator=(const OutputFile&) = delete;
@@ -25,11 +34,16 @@ public:
     /// Finishes the file; throws IoError. Further writes are errors.
     void commit();
     const std::string& path() const { return path_; }
-    bool is_stdout() const { return file_ == stdout; }
+    bool is_stdout() const { return stdout_; }
 
 private:
+    void build_index();
+
     std::string path_, temp_;
+    OutputFormat format_;
     std::FILE* file_ = nullptr;
+    BGZF* bgzf_ = nullptr;
+    bool stdout_ = false;
     int slot_ = -1;  ///< registration for signal-time removal
     bool committed_ = false;
     bool direct_ = false;  ///< target is a device or FIFO: written in place

@@ -20,6 +20,8 @@ struct UnknownRun {
     int64_t length = 0;
 };
 
+struct Composition;
+
 /// One FASTA record, or one region of it, held at 2 bits per base plus a list of unknown runs.
 ///
 /// Storage is chunked (4 Mi bases per chunk) so that growing a chromosome never copies it and
@@ -29,6 +31,10 @@ struct Contig {
     std::string name;        ///< record name: first word of the FASTA header
     int64_t offset = 0;      ///< 0-based position of base 0 on the named sequence (regions)
     int64_t length = 0;      ///< number of bases, known and unknown
+    int64_t sequence_length = 0;  ///< length of the whole named sequence when this contig is a
+                                  ///< region of it (faidx); 0 for streamed records
+    /// Length of the whole named sequence (for chrom-sizes files and track headers).
+    int64_t full_length() const { return sequence_length > 0 ? sequence_length : offset + length; }
     int64_t soft_masked = 0; ///< lowercase bases seen (kept as their base)
     std::vector<UnknownRun> unknown;  ///< sorted, disjoint, non-adjacent
 
@@ -42,10 +48,13 @@ struct Contig {
     void clear();
     /// Appends one base code (0..4).
     void push(uint8_t code);
+    /// Appends n base codes (0..4); the bulk form of push used by the readers.
+    void append(const uint8_t* codes, int64_t n);
 
     static constexpr int chunk_shift = 22;  // bases per chunk = 4 Mi (1 MiB packed)
 
 private:
+    friend Composition composition(const Contig& contig, int64_t begin, int64_t end);  // reads chunks_
     std::vector<std::unique_ptr<uint8_t[]>> chunks_;
 };
 
