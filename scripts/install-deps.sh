@@ -7,9 +7,10 @@ packages=(
   build-essential cmake pkg-config git ca-certificates
   # libraries (see README "Dependencies")
   libhts-dev zlib1g-dev libeigen3-dev libboost-iostreams-dev libcli11-dev
-  nlohmann-json3-dev libfmt-dev catch2
+  nlohmann-json3-dev libfmt-dev catch2 libbigwig-dev libcurl4-gnutls-dev
   # test oracles and open datasets
-  python3 python3-numpy python3-pomegranate tabix bedtools gzip xz-utils bzip2 zstd
+  python3 python3-numpy python3-pomegranate python3-pybigwig python3-matplotlib
+  tabix bedtools genometools gzip xz-utils bzip2 zstd
   bowtie2-examples smalt-examples
 )
 

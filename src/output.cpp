@@ -52,18 +52,6 @@ extern "C" void remove_temps_and_die(int sig) {
 
 std::string error_text() { return std::strerror(errno); }
 
-// A unique temporary path beside target; returns the open descriptor.
-int make_temp(const std::string& target, std::string& temp) {
-    const size_t slash = target.rfind('/');
-    const std::string dir = slash == std::string::npos ? "" : target.substr(0, slash + 1);
-    const std::string base = slash == std::string::npos ? target : target.substr(slash + 1);
-    if (base.empty()) throw IoError(target + ": output path names a folder, not a file");
-    temp = dir + "." + base + ".tidemark-XXXXXX";
-    const int fd = mkstemp(temp.data());
-    if (fd < 0) throw IoError(target + ": cannot create output file: " + error_text());
-    return fd;
-}
-
 // mkstemp creates 0600; give finished files the permissions a normal create would have.
 void set_default_mode(const std::string& path) {
     const mode_t mask = umask(0);
@@ -78,6 +66,42 @@ void install_output_signal_handlers() {
     std::signal(SIGTERM, remove_temps_and_die);
     std::signal(SIGHUP, remove_temps_and_die);
     std::signal(SIGPIPE, SIG_IGN);
+}
+
+StagedPath::StagedPath(std::string target) : target_(std::move(target)) {
+    const size_t slash = target_.rfind('/');
+    const std::string dir = slash == std::string::npos ? "" : target_.substr(0, slash + 1);
+    const std::string base = slash == std::string::npos ? target_ : target_.substr(slash + 1);
+    if (base.empty()) throw IoError(target_ + ": output path names a folder, not a file");
+    temp_ = dir + "." + base + ".tidemark-XXXXXX";
+    fd_ = mkstemp(temp_.data());
+    if (fd_ < 0) throw IoError(target_ + ": cannot create output file: " + error_text());
+    slot_ = register_temp(temp_);
+}
+
+StagedPath::~StagedPath() {
+    if (fd_ >= 0) close(fd_);
+    if (!committed_) unlink(temp_.c_str());
+    release_temp(slot_);
+}
+
+int StagedPath::release_fd() {
+    const int fd = fd_;
+    fd_ = -1;
+    return fd;
+}
+
+void StagedPath::commit() {
+    if (fd_ >= 0) {
+        close(fd_);
+        fd_ = -1;
+    }
+    set_default_mode(temp_);
+    if (std::rename(temp_.c_str(), target_.c_str()) != 0)
+        throw IoError(target_ + ": cannot move the finished file into place: " + error_text());
+    committed_ = true;
+    release_temp(slot_);
+    slot_ = -1;
 }
 
 OutputFile::OutputFile(std::string path, OutputFormat format)
@@ -99,8 +123,8 @@ OutputFile::OutputFile(std::string path, OutputFormat format)
             direct_ = true;
             format_.tabix = false;
         } else {
-            fd = make_temp(path_, temp_);
-            slot_ = register_temp(temp_);
+            staged_ = std::make_unique<StagedPath>(path_);
+            fd = staged_->release_fd();
         }
     }
     if (format_.tabix && !format_.bgzip) throw InternalError("tabix index without bgzip");
@@ -125,8 +149,6 @@ OutputFile::~OutputFile() {
         if (bgzf_) bgzf_close(bgzf_);
         if (file_ && !stdout_) std::fclose(file_);
     }
-    if (!temp_.empty() && !committed_) unlink(temp_.c_str());
-    release_temp(slot_);
 }
 
 void OutputFile::write(std::string_view data) {
@@ -158,27 +180,19 @@ void OutputFile::commit() {
         committed_ = true;
         return;
     }
-    set_default_mode(temp_);
-    if (std::rename(temp_.c_str(), path_.c_str()) != 0)
-        throw IoError(shown + ": cannot move the finished file into place: " + error_text());
+    staged_->commit();
     committed_ = true;
     if (format_.tabix) build_index();
 }
 
 void OutputFile::build_index() {
-    std::string temp;
-    close(make_temp(path_ + ".tbi", temp));
-    const int slot = register_temp(temp);
+    StagedPath index(path_ + ".tbi");
     tbx_conf_t conf = tbx_conf_bed;
     conf.line_skip = format_.skip_lines;
-    const int rc = tbx_index_build3(path_.c_str(), temp.c_str(), 0, 1, &conf);
-    if (rc != 0 || std::rename(temp.c_str(), (path_ + ".tbi").c_str()) != 0) {
-        unlink(temp.c_str());
-        release_temp(slot);
-        throw IoError(path_ + ": cannot write the tabix index " + path_ + ".tbi");
-    }
-    set_default_mode(path_ + ".tbi");
-    release_temp(slot);
+    if (tbx_index_build3(path_.c_str(), index.temp().c_str(), 0, 1, &conf) != 0)
+        throw IoError(path_ + ": cannot write the tabix index " + index.target() +
+                      " (are the lines sorted by position within each sequence?)");
+    index.commit();
 }
 
 }  // namespace tidemark

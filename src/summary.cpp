@@ -1,8 +1,9 @@
-// Scan summary: region totals while decoding, then JSON and table rendering.
+// Scan summary and run report: region totals while decoding, then JSON and table rendering.
 #include "tidemark/summary.hpp"
 
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <cmath>
 #include <nlohmann/json.hpp>
 
@@ -12,11 +13,15 @@ namespace {
 using ordered_json = nlohmann::ordered_json;
 
 ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs) {
+    const size_t R = model.region_names.size();
     ContigSummary total;
-    total.name = "*";
-    total.expected_bases.assign(model.region_names.size(), 0.0);
-    total.called_bases.assign(model.region_names.size(), 0);
-    total.calls.assign(model.region_names.size(), 0);
+    total.name = "(all)";
+    total.expected_bases.assign(R, 0.0);
+    total.called_bases.assign(R, 0);
+    total.calls.assign(R, 0);
+    total.call_lengths.assign(R, {});
+    total.confidence_sum.assign(R, 0.0);
+    total.call_confidences.assign(R, {});
     for (const auto& c : contigs) {
         total.length += c.length;
         total.unknown += c.unknown;
@@ -28,10 +33,17 @@ ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>&
         total.composition.t += c.composition.t;
         total.composition.unknown += c.composition.unknown;
         total.composition.cpg += c.composition.cpg;
-        for (size_t r = 0; r < total.calls.size() && r < c.calls.size(); ++r) {
-            total.expected_bases[r] += c.expected_bases[r];
-            total.called_bases[r] += c.called_bases[r];
-            total.calls[r] += c.calls[r];
+        for (size_t r = 0; r < R; ++r) {
+            if (r < c.expected_bases.size()) total.expected_bases[r] += c.expected_bases[r];
+            if (r < c.calls.size()) {
+                total.called_bases[r] += c.called_bases[r];
+                total.calls[r] += c.calls[r];
+                total.confidence_sum[r] += c.confidence_sum[r];
+                total.call_lengths[r].insert(total.call_lengths[r].end(), c.call_lengths[r].begin(),
+                                             c.call_lengths[r].end());
+                total.call_confidences[r].insert(total.call_confidences[r].end(), c.call_confidences[r].begin(),
+                                                 c.call_confidences[r].end());
+            }
         }
     }
     return total;
@@ -39,7 +51,55 @@ ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>&
 
 ordered_json number_or_null(double x) { return std::isfinite(x) ? ordered_json(x) : ordered_json(nullptr); }
 
-ordered_json contig_json(const Model& model, const ContigSummary& c) {
+struct LengthStats {
+    int64_t min = 0, max = 0;
+    double median = 0;
+};
+
+LengthStats length_stats(std::vector<int64_t> lengths) {
+    LengthStats s;
+    if (lengths.empty()) return s;
+    std::sort(lengths.begin(), lengths.end());
+    const size_t n = lengths.size();
+    s.min = lengths.front();
+    s.max = lengths.back();
+    // Median of an even count: mean of the two middle values (common practice).
+    s.median = n % 2 ? static_cast<double>(lengths[n / 2]) : 0.5 * static_cast<double>(lengths[n / 2 - 1] + lengths[n / 2]);
+    return s;
+}
+
+ordered_json length_distribution(const std::vector<int64_t>& lengths) {
+    if (lengths.empty()) return nullptr;
+    const LengthStats s = length_stats(lengths);
+    return {{"min", s.min}, {"median", s.median}, {"max", s.max}};
+}
+
+// Counts of values v with edges[i] <= v < edges[i+1] (the last bin includes its upper edge).
+template <typename T>
+ordered_json histogram(const std::vector<double>& edges, const std::vector<T>& values) {
+    std::vector<int64_t> counts(edges.size() - 1, 0);
+    for (const T v : values) {
+        const auto x = static_cast<double>(v);
+        auto it = std::upper_bound(edges.begin(), edges.end(), x);
+        size_t bin = it == edges.begin() ? 0 : static_cast<size_t>(it - edges.begin()) - 1;
+        counts[std::min(bin, counts.size() - 1)]++;
+    }
+    return {{"edges", edges}, {"counts", counts}};
+}
+
+ordered_json call_histograms(const ContigSummary& g, size_t r) {
+    std::vector<double> length_edges = {1};
+    int64_t longest = 1;
+    for (const int64_t l : g.call_lengths[r]) longest = std::max(longest, l);
+    for (double decade = 1; length_edges.back() <= static_cast<double>(longest); decade *= 10)
+        for (const double step : {2.0, 5.0, 10.0}) length_edges.push_back(decade * step);
+    std::vector<double> confidence_edges;
+    for (int i = 0; i <= 20; ++i) confidence_edges.push_back(i / 20.0);
+    return {{"call_length_histogram", histogram(length_edges, g.call_lengths[r])},
+            {"confidence_histogram", histogram(confidence_edges, g.call_confidences[r])}};
+}
+
+ordered_json contig_json(const Model& model, const ContigSummary& c, bool report) {
     ordered_json o;
     o["name"] = c.name;
     if (c.offset) o["offset"] = c.offset;
@@ -51,14 +111,20 @@ ordered_json contig_json(const Model& model, const ContigSummary& c) {
     o["log_likelihood"] = c.log_likelihood;
     ordered_json regions = ordered_json::object();
     for (size_t r = 0; r < model.region_names.size(); ++r) {
+        const double expected = r < c.expected_bases.size() ? c.expected_bases[r] : 0.0;
         ordered_json x;
-        x["expected_bases"] = c.expected_bases.empty() ? 0.0 : c.expected_bases[r];
-        x["expected_fraction"] =
-            c.length > 0 && !c.expected_bases.empty() ? c.expected_bases[r] / static_cast<double>(c.length) : 0.0;
+        x["expected_bases"] = expected;
+        x["expected_fraction"] = c.length > 0 ? expected / static_cast<double>(c.length) : 0.0;
         x["reported"] = static_cast<bool>(model.region_report[r]);
         if (model.region_report[r]) {
-            x["calls"] = c.calls.empty() ? 0 : c.calls[r];
-            x["called_bases"] = c.called_bases.empty() ? 0 : c.called_bases[r];
+            const int64_t calls = r < c.calls.size() ? c.calls[r] : 0;
+            x["calls"] = calls;
+            x["called_bases"] = r < c.called_bases.size() ? c.called_bases[r] : 0;
+            if (report) {
+                x["call_length"] = r < c.call_lengths.size() ? length_distribution(c.call_lengths[r]) : nullptr;
+                x["mean_call_confidence"] =
+                    calls > 0 ? ordered_json(c.confidence_sum[r] / static_cast<double>(calls)) : ordered_json(nullptr);
+            }
         }
         regions[model.region_names[r]] = x;
     }
@@ -66,11 +132,52 @@ ordered_json contig_json(const Model& model, const ContigSummary& c) {
     return o;
 }
 
+ordered_json document(const char* format, const RunInfo& info, const Model& model,
+                      const std::vector<ContigSummary>& contigs, bool report) {
+    ordered_json doc;
+    doc["format"] = format;
+    doc["tool_version"] = TIDEMARK_VERSION;
+    doc["command"] = info.command_line;
+    doc["inputs"] = info.inputs;
+    doc["profile"] = info.profile_name;
+    if (report) {
+        doc["profile_crc32"] = info.profile_checksum;
+        doc["options"] = info.options_json.empty() ? ordered_json::object() : ordered_json::parse(info.options_json);
+    }
+    doc["decode"] = info.decode_mode;
+    const ContigSummary total = genome_total(model, contigs);
+    doc["genome"] = contig_json(model, total, report);
+    doc["genome"].erase("name");
+    if (report)
+        for (size_t r = 0; r < model.region_names.size(); ++r)
+            if (model.region_report[r])
+                doc["genome"]["regions"][model.region_names[r]].update(call_histograms(total, r));
+    doc["genome"]["contigs"] = contigs.size();
+    ordered_json list = ordered_json::array();
+    for (const auto& c : contigs) list.push_back(contig_json(model, c, report));
+    doc["contigs"] = list;
+    return doc;
+}
+
 }  // namespace
 
-void RegionTotals::begin_contig(const Contig&) {
-    expected_.assign(model_.region_names.size(), 0.0);
+void ContigSummary::add_call(const Call& call, size_t regions) {
+    if (calls.size() < regions) {
+        called_bases.resize(regions, 0);
+        calls.resize(regions, 0);
+        call_lengths.resize(regions);
+        confidence_sum.resize(regions, 0.0);
+        call_confidences.resize(regions);
+    }
+    const auto r = static_cast<size_t>(call.region);
+    called_bases[r] += call.end - call.begin;
+    ++calls[r];
+    call_lengths[r].push_back(call.end - call.begin);
+    confidence_sum[r] += call.mean_posterior;
+    call_confidences[r].push_back(call.mean_posterior);
 }
+
+void RegionTotals::begin_contig(const Contig&) { expected_.assign(model_.region_names.size(), 0.0); }
 
 void RegionTotals::block(const BlockView& view) {
     const int S = view.states;
@@ -81,46 +188,67 @@ void RegionTotals::block(const BlockView& view) {
     for (int s = 0; s < S; ++s) expected_[model_.region_of_state[s]] += by_state[s];
 }
 
-std::string summary_json(const RunInfo& info, const Model& model,
-                         const std::vector<ContigSummary>& contigs) {
-    ordered_json doc;
-    doc["format"] = "tidemark-summary/1";
-    doc["tool_version"] = TIDEMARK_VERSION;
-    doc["command"] = info.command_line;
-    doc["inputs"] = info.inputs;
-    doc["profile"] = info.profile_name;
-    doc["decode"] = info.decode_mode;
-    doc["genome"] = contig_json(model, genome_total(model, contigs));
-    doc["genome"].erase("name");
-    doc["genome"]["contigs"] = contigs.size();
-    ordered_json list = ordered_json::array();
-    for (const auto& c : contigs) list.push_back(contig_json(model, c));
-    doc["contigs"] = list;
+std::string summary_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs) {
+    return document("tidemark-summary/1", info, model, contigs, false).dump(2) + "\n";
+}
+
+std::string report_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs,
+                        const ResourceUsage& usage) {
+    ordered_json doc = document("tidemark-report/1", info, model, contigs, true);
+    int64_t bases = 0;
+    for (const auto& c : contigs) bases += c.length;
+    // Times differ between runs; keeping them in one object leaves the rest comparable.
+    doc["resources"] = {{"wall_seconds", usage.wall_seconds},
+                        {"cpu_seconds", usage.cpu_seconds},
+                        {"mbp_per_second", usage.wall_seconds > 0 ? static_cast<double>(bases) / 1e6 / usage.wall_seconds : 0.0},
+                        {"peak_rss_bytes", usage.peak_rss_bytes}};
     return doc.dump(2) + "\n";
 }
 
 std::string summary_table(const Model& model, const std::vector<ContigSummary>& contigs) {
-    std::string out = fmt::format("{:<24} {:>12} {:>10} {:>7} {:>16}", "contig", "length", "unknown",
-                                  "GC", "log_likelihood");
+    std::string out = fmt::format("{:<24} {:>12} {:>10} {:>7} {:>16}", "contig", "length", "unknown", "GC",
+                                  "log_likelihood");
     for (size_t r = 0; r < model.region_names.size(); ++r)
-        if (model.region_report[r])
-            out += fmt::format(" {:>14} {:>7}", model.region_names[r] + "%", "calls");
+        if (model.region_report[r]) out += fmt::format(" {:>14} {:>7}", model.region_names[r] + "%", "calls");
     out += '\n';
     std::vector<ContigSummary> rows = contigs;
     rows.push_back(genome_total(model, contigs));
-    rows.back().name = "(all)";
     for (const auto& c : rows) {
         out += fmt::format("{:<24} {:>12} {:>10} {:>7.4f} {:>16.4f}", c.name, c.length, c.unknown,
                            c.composition.gc_fraction(), c.log_likelihood);
         for (size_t r = 0; r < model.region_names.size(); ++r)
             if (model.region_report[r]) {
-                const double frac = c.length > 0 && !c.expected_bases.empty()
+                const double frac = c.length > 0 && r < c.expected_bases.size()
                                         ? 100.0 * c.expected_bases[r] / static_cast<double>(c.length)
                                         : 0.0;
-                out += fmt::format(" {:>14.4f} {:>7}", frac, c.calls.empty() ? 0 : c.calls[r]);
+                out += fmt::format(" {:>14.4f} {:>7}", frac, r < c.calls.size() ? c.calls[r] : 0);
             }
         out += '\n';
     }
+    return out;
+}
+
+std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs, const ResourceUsage& usage) {
+    const ContigSummary g = genome_total(model, contigs);
+    std::string out = fmt::format(
+        "tidemark: {} contigs, {} bp ({} unknown), GC {:.4f}, CpG o/e {:.4f}, log-likelihood {:.4f}\n",
+        contigs.size(), g.length, g.unknown, g.composition.gc_fraction(), g.composition.cpg_obs_exp(),
+        g.log_likelihood);
+    out += fmt::format("tidemark: {:<16} {:>10} {:>9} {:>14} {:>8} {:>8} {:>8} {:>10}\n", "region", "calls",
+                       "called%", "expected%", "min_len", "med_len", "max_len", "mean_conf");
+    for (size_t r = 0; r < model.region_names.size(); ++r) {
+        if (!model.region_report[r]) continue;
+        const LengthStats ls = length_stats(g.call_lengths[r]);
+        const double len = g.length > 0 ? static_cast<double>(g.length) : 1.0;
+        out += fmt::format("tidemark: {:<16} {:>10} {:>9.4f} {:>14.4f} {:>8} {:>8.1f} {:>8} {:>10.4f}\n",
+                           model.region_names[r], g.calls[r], 100.0 * static_cast<double>(g.called_bases[r]) / len,
+                           100.0 * g.expected_bases[r] / len, ls.min, ls.median, ls.max,
+                           g.calls[r] > 0 ? g.confidence_sum[r] / static_cast<double>(g.calls[r]) : 0.0);
+    }
+    out += fmt::format("tidemark: {:.2f} s wall, {:.2f} s CPU, {:.2f} Mbp/s, peak memory {:.1f} MiB\n",
+                       usage.wall_seconds, usage.cpu_seconds,
+                       usage.wall_seconds > 0 ? static_cast<double>(g.length) / 1e6 / usage.wall_seconds : 0.0,
+                       static_cast<double>(usage.peak_rss_bytes) / (1 << 20));
     return out;
 }
 

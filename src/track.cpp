@@ -1,4 +1,4 @@
-// BED lines for calls and bedGraph posterior tracks.
+// BED and GFF3 lines for calls; bedGraph and bigWig posterior tracks.
 #include "tidemark/track.hpp"
 
 #include <fmt/format.h>
@@ -9,92 +9,219 @@
 #include "tidemark/error.hpp"
 
 namespace tidemark {
+namespace {
 
-std::string format_bed_header(const std::string& profile_name, const std::string& command_line) {
-    std::string out = fmt::format("#tidemark {} calls, profile {}\n", TIDEMARK_VERSION, profile_name);
-    out += "#command: " + command_line + "\n#";
-    for (size_t i = 0; i < std::size(bed_columns); ++i) {
-        if (i) out += '\t';
-        out += bed_columns[i];
+std::string format_oe(const Composition& comp) {
+    const double oe = comp.cpg_obs_exp();
+    return std::isnan(oe) ? std::string("NA") : fmt::format("{:.4f}", oe);
+}
+
+long call_score(const Call& call) { return std::lround(std::clamp(call.mean_posterior, 0.0, 1.0) * 1000.0); }
+
+// GFF3 (Sequence Ontology GFF3 specification 1.26): percent-encode characters with a meaning in
+// the column or attribute syntax, and controls.
+std::string gff3_escape(const std::string& text, bool seqid) {
+    std::string out;
+    for (unsigned char ch : text) {
+        const bool reserved = ch < 0x20 || ch == 0x7F || ch == '%' || ch == '\t' || ch == ';' ||
+                              ch == '=' || ch == '&' || ch == ',' || (seqid && (ch == ' ' || ch == '>'));
+        if (reserved)
+            out += fmt::format("%{:02X}", ch);
+        else
+            out += static_cast<char>(ch);
     }
+    return out;
+}
+
+}  // namespace
+
+std::string region_color(const Model& model, int region) {
+    // tidemark's palette: distinguishable on white and dark browser backgrounds.
+    static const char* palette[] = {"0,110,120", "200,110,0", "110,50,160", "40,140,70", "190,30,80",
+                                    "90,90,90", "20,80,190", "150,120,0"};
+    (void)model;
+    return palette[static_cast<size_t>(region) % std::size(palette)];
+}
+
+std::string format_bed_header(BedStyle style, const Model& model, const std::string& command_line) {
+    std::string out;
+    if (style == BedStyle::browser)
+        out += fmt::format("track name=\"tidemark {0}\" description=\"tidemark calls, profile {0}\" "
+                           "itemRgb=\"On\"\n",
+                           model.name);
+    out += fmt::format("#tidemark {} calls, profile {}\n", TIDEMARK_VERSION, model.name);
+    out += "#command: " + command_line + "\n#chrom\tstart\tend\tname\tscore\tstrand";
+    if (style == BedStyle::browser) out += "\tthickStart\tthickEnd\titemRgb";
+    for (const char* c : bed_extra_columns) out += std::string("\t") + c;
     out += '\n';
     return out;
 }
 
-std::string format_bed_line(const Contig& contig, const Call& call, const std::string& region_name) {
-    const double oe = call.composition.cpg_obs_exp();
-    const long score = std::lround(std::clamp(call.mean_posterior, 0.0, 1.0) * 1000.0);
-    return fmt::format("{}\t{}\t{}\t{}\t{}\t.\t{:.4f}\t{:.4f}\t{:.4f}\t{}\n", contig.name,
-                       contig.offset + call.begin, contig.offset + call.end, region_name, score,
-                       call.mean_posterior, call.min_posterior, call.composition.gc_fraction(),
-                       std::isnan(oe) ? std::string("NA") : fmt::format("{:.4f}", oe));
+std::string format_bed_line(BedStyle style, const Model& model, const Contig& contig, const Call& call) {
+    const int64_t off = contig.offset;
+    std::string browser;
+    if (style == BedStyle::browser)
+        browser = fmt::format("\t{}\t{}\t{}", off + call.core_begin, off + call.core_end,
+                              region_color(model, call.region));
+    return fmt::format("{}\t{}\t{}\t{}\t{}\t.{}\t{:.4f}\t{:.4f}\t{:.4f}\t{}\n", contig.name,
+                       off + call.begin, off + call.end, model.region_names[call.region],
+                       call_score(call), browser, call.mean_posterior, call.min_posterior,
+                       call.composition.gc_fraction(), format_oe(call.composition));
 }
 
-PosteriorTracks::PosteriorTracks(const Model& model, const std::string& prefix, int digits)
-    : model_(model), digits_(digits), scale_(std::pow(10.0, digits)) {
-    if (digits < 0 || digits > 12) throw UsageError("--posterior-digits must be from 0 to 12");
+std::string format_gff3_header() { return "##gff-version 3\n"; }
+
+std::string format_gff3_sequence_region(const Contig& contig) {
+    return fmt::format("##sequence-region {} 1 {}\n", gff3_escape(contig.name, true), contig.full_length());
+}
+
+std::string format_gff3_feature(const Model& model, const Contig& contig, const Call& call, int64_t serial) {
+    const std::string& region = model.region_names[call.region];
+    const bool island = region == "cpg_island";
+    const double oe = call.composition.cpg_obs_exp();
+    std::string attributes = fmt::format(
+        "ID={0}_{1};Name={0};Ontology_term={2};mean_posterior={3:.4f};min_posterior={4:.4f};"
+        "gc_fraction={5:.4f}",
+        gff3_escape(region, false), serial, island ? "SO:0000307" : "SO:0000001", call.mean_posterior,
+        call.min_posterior, call.composition.gc_fraction());
+    if (!std::isnan(oe)) attributes += fmt::format(";cpg_obs_exp={:.4f}", oe);
+    if (call.core_end > call.core_begin)
+        attributes += fmt::format(";core_start={};core_end={}", contig.offset + call.core_begin + 1,
+                                  contig.offset + call.core_end);
+    return fmt::format("{}\ttidemark\t{}\t{}\t{}\t{:.4f}\t.\t.\t{}\n", gff3_escape(contig.name, true),
+                       island ? "CpG_island" : "region", contig.offset + call.begin + 1,
+                       contig.offset + call.end, call.mean_posterior, attributes);
+}
+
+struct PosteriorTracks::Track {
+    int region = 0;
+    std::unique_ptr<OutputFile> file;
+    std::unique_ptr<BigWigWriter> bigwig;
+    std::string path;
+    std::string buffer;
+    int64_t run_begin = 0, run_end = 0;
+    int64_t run_value = -1;  ///< quantised value of the open run, -1 = none
+    double bin_sum = 0;      ///< posterior sum of the open bin
+    int64_t bin_begin = 0, bin_fill = 0;
+};
+
+PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options)
+    : model_(model), options_(std::move(options)), scale_(std::pow(10.0, options_.digits)) {
+    if (options_.digits < 0 || options_.digits > 12) throw UsageError("--posterior-digits must be from 0 to 12");
+    if (options_.bin < 1) throw UsageError("--bin must be at least 1");
     for (size_t r = 0; r < model.region_names.size(); ++r) {
         if (!model.region_report[r]) continue;
-        Track t;
-        t.region = static_cast<int>(r);
-        t.file = std::make_unique<OutputFile>(prefix + "." + model.region_names[r] + ".bedgraph");
+        auto t = std::make_unique<Track>();
+        t->region = static_cast<int>(r);
+        const std::string base = options_.prefix + "." + model.region_names[r];
+        if (options_.format == TrackFormat::bigwig) {
+            t->path = base + ".bw";
+            t->bigwig = std::make_unique<BigWigWriter>(t->path);
+        } else {
+            t->path = base + (options_.bgzip ? ".bedgraph.gz" : ".bedgraph");
+            OutputFormat format;
+            format.bgzip = options_.bgzip;
+            format.tabix = options_.bgzip;
+            format.skip_lines = options_.track_line ? 1 : 0;
+            t->file = std::make_unique<OutputFile>(t->path, format);
+            if (options_.track_line)
+                t->buffer = fmt::format("track type=bedGraph name=\"tidemark {0}\" description=\"P({0}), "
+                                        "profile {1}\" visibility=full viewLimits=0:1 autoScale=off\n",
+                                        model.region_names[r], model.name);
+        }
         tracks_.push_back(std::move(t));
     }
 }
 
+PosteriorTracks::~PosteriorTracks() = default;
+
 std::vector<std::string> PosteriorTracks::paths() const {
     std::vector<std::string> out;
-    for (const auto& t : tracks_) out.push_back(t.file->path());
+    for (const auto& t : tracks_) out.push_back(t->path);
     return out;
 }
 
 void PosteriorTracks::begin_contig(const Contig& contig) {
     contig_ = &contig;
-    for (auto& t : tracks_) t.run_value = -1;
+    for (auto& t : tracks_) {
+        t->run_value = -1;
+        t->bin_fill = 0;
+        t->bin_sum = 0;
+        if (t->bigwig) sequence_ = t->bigwig->add_sequence(contig.name, contig.full_length());
+    }
 }
 
 void PosteriorTracks::flush_run(Track& t) {
     if (t.run_value < 0) return;
-    t.buffer += fmt::format("{}\t{}\t{}\t{:.{}f}\n", contig_->name, contig_->offset + t.run_begin,
-                            contig_->offset + t.run_end, static_cast<double>(t.run_value) / scale_,
-                            digits_);
-    t.run_value = -1;
-    if (t.buffer.size() > (1 << 20)) {
-        t.file->write(t.buffer);
-        t.buffer.clear();
+    const double value = static_cast<double>(t.run_value) / scale_;
+    if (t.bigwig) {
+        t.bigwig->add(sequence_, contig_->offset + t.run_begin, contig_->offset + t.run_end, value);
+    } else {
+        t.buffer += fmt::format("{}\t{}\t{}\t{:.{}f}\n", contig_->name, contig_->offset + t.run_begin,
+                                contig_->offset + t.run_end, value, options_.digits);
+        if (t.buffer.size() > (1 << 20)) {
+            t.file->write(t.buffer);
+            t.buffer.clear();
+        }
     }
+    t.run_value = -1;
+}
+
+void PosteriorTracks::add_value(Track& t, int64_t begin, int64_t end, double p) {
+    const int64_t q = std::llround(std::clamp(p, 0.0, 1.0) * scale_);
+    if (q == t.run_value) {
+        t.run_end = end;
+        return;
+    }
+    flush_run(t);
+    t.run_value = q;
+    t.run_begin = begin;
+    t.run_end = end;
 }
 
 void PosteriorTracks::block(const BlockView& view) {
     const int S = view.states;
-    for (auto& t : tracks_) {
+    for (auto& tp : tracks_) {
+        Track& t = *tp;
         for (int64_t i = 0; i < view.size; ++i) {
             double p = 0;
             for (int s = 0; s < S; ++s)
                 if (model_.region_of_state[s] == t.region) p += view.posterior[i * S + s];
-            const int64_t q = std::llround(std::clamp(p, 0.0, 1.0) * scale_);
             const int64_t pos = view.begin + i;
-            if (q == t.run_value) {
-                t.run_end = pos + 1;
-            } else {
-                flush_run(t);
-                t.run_value = q;
-                t.run_begin = pos;
-                t.run_end = pos + 1;
+            if (options_.bin == 1) {
+                add_value(t, pos, pos + 1, p);
+                continue;
+            }
+            if (t.bin_fill == 0) t.bin_begin = pos;
+            t.bin_sum += p;
+            if (++t.bin_fill == options_.bin) {
+                add_value(t, t.bin_begin, pos + 1, t.bin_sum / static_cast<double>(t.bin_fill));
+                t.bin_fill = 0;
+                t.bin_sum = 0;
             }
         }
     }
 }
 
 void PosteriorTracks::end_contig(const Contig&, const DecodeResult&) {
-    for (auto& t : tracks_) flush_run(t);
+    for (auto& t : tracks_) {
+        if (t->bin_fill > 0)  // the last, shorter bin
+            add_value(*t, t->bin_begin, t->bin_begin + t->bin_fill, t->bin_sum / static_cast<double>(t->bin_fill));
+        t->bin_fill = 0;
+        t->bin_sum = 0;
+        flush_run(*t);
+    }
 }
 
 void PosteriorTracks::close() {
     for (auto& t : tracks_) {
-        t.file->write(t.buffer);
-        t.buffer.clear();
-        t.file->commit();
+        if (t->bigwig) {
+            t->bigwig->close();
+            continue;
+        }
+        t->file->write(t->buffer);
+        t->buffer.clear();
+        t->file->commit();
     }
 }
 

@@ -148,11 +148,12 @@ TEST_CASE("BED line layout", "[call]") {
     k.mean_posterior = 0.8765;
     k.min_posterior = 0.51;
     k.composition = composition(c, 2, 6);  // G T A C: GC 0.5, no CpG -> o/e 0
-    CHECK(format_bed_line(c, k, "isle") ==
+    const Model m = two_region_model();
+    CHECK(format_bed_line(BedStyle::plain, m, c, k) ==
           "chr7\t1002\t1006\tisle\t877\t.\t0.8765\t0.5100\t0.5000\t0.0000\n");
     k.composition = composition(test::contig_from("AATT"), 0, 4);
-    const std::string line = format_bed_line(c, k, "isle");
+    const std::string line = format_bed_line(BedStyle::plain, m, c, k);
     CHECK(line.substr(line.size() - 10) == "0.0000\tNA\n");
-    const std::string header = format_bed_header("cpg-island", "tidemark scan x.fa");
+    const std::string header = format_bed_header(BedStyle::plain, m, "tidemark scan x.fa");
     CHECK(header.find("#chrom\tstart\tend\tname\tscore\tstrand\tmean_posterior\tmin_posterior\tgc_fraction\tcpg_obs_exp\n") != std::string::npos);
 }

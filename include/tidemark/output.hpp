@@ -3,6 +3,7 @@
 #pragma once
 
 #include <cstdio>
+#include <memory>
 #include <string>
 #include <string_view>
 
@@ -15,6 +16,30 @@ struct OutputFormat {
     bool bgzip = false;   ///< BGZF-compress (htslib), readable by gzip and indexable by tabix
     bool tabix = false;   ///< also write PATH.tbi (BED coordinates); needs bgzip, a regular file
     int skip_lines = 0;   ///< leading lines the index must skip (a browser `track` line)
+};
+
+/// A temporary path beside a target file, registered for removal on SIGINT/SIGTERM/SIGHUP.
+/// commit() renames it over the target; otherwise the destructor removes it. For writers that
+/// open files by name themselves (libBigWig, tabix).
+class StagedPath {
+public:
+    explicit StagedPath(std::string target);
+    ~StagedPath();
+    StagedPath(const StagedPath&) = delete;
+    StagedPath& operator=(const StagedPath&) = delete;
+
+    const std::string& temp() const { return temp_; }
+    const std::string& target() const { return target_; }
+    /// The descriptor of the created temporary file (caller takes ownership), or -1 once taken.
+    int release_fd();
+    /// Renames the temporary file over the target; throws IoError.
+    void commit();
+
+private:
+    std::string target_, temp_;
+    int fd_ = -1;
+    int slot_ = -1;
+    bool committed_ = false;
 };
 
 /// An output file ("-" = stdout). Data goes to a temporary file in the target's folder;
@@ -39,12 +64,12 @@ public:
 private:
     void build_index();
 
-    std::string path_, temp_;
+    std::string path_;
+    std::unique_ptr<StagedPath> staged_;
     OutputFormat format_;
     std::FILE* file_ = nullptr;
     BGZF* bgzf_ = nullptr;
     bool stdout_ = false;
-    int slot_ = -1;  ///< registration for signal-time removal
     bool committed_ = false;
     bool direct_ = false;  ///< target is a device or FIFO: written in place
 };

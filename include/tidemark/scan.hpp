@@ -1,4 +1,4 @@
-// The scan job: sequences -> decoding -> calls, tracks and summary, as one library call.
+// The scan job: sequences -> decoding -> calls, tracks, summary and report, as one library call.
 #pragma once
 
 #include <optional>
@@ -7,6 +7,7 @@
 
 #include "tidemark/log.hpp"
 #include "tidemark/summary.hpp"
+#include "tidemark/track.hpp"
 
 namespace tidemark {
 
@@ -15,25 +16,31 @@ enum class DecodeMode { posterior, viterbi };
 struct ScanOptions {
     std::vector<std::string> inputs;        ///< FASTA paths, "-" = stdin
     std::string profile = "cpg-island";     ///< built-in name or file path
-    std::string output = "-";               ///< BED of calls, "-" = stdout
+    std::string output = "-";               ///< calls as BED, "-" = stdout
     std::vector<std::string> regions;       ///< region strings (faidx)
     std::string regions_bed;                ///< BED of regions (faidx)
     DecodeMode decode = DecodeMode::posterior;
     std::optional<double> min_posterior;    ///< unset: the profile's calling default
     std::optional<int64_t> merge_gap;       ///< unset: the profile's calling default
     std::optional<int64_t> min_length;      ///< unset: the profile's calling default
+    double high_posterior = 0.95;           ///< core (thickStart/thickEnd) threshold
     IslandCriteria criteria = IslandCriteria::none;
-    std::string posteriors_prefix;          ///< bedGraph tracks PREFIX.REGION.bedgraph; "" = none
-    int posterior_digits = 3;               ///< decimals kept in bedGraph values
-    std::string summary_path;               ///< JSON summary; "" = none
+    BedStyle bed_style = BedStyle::plain;
+    bool bgzip = false;                     ///< BGZF + tabix for BED and bedGraph outputs
+    std::string gff3_path;                  ///< calls as GFF3; "" = none
+    std::string chrom_sizes_path;           ///< "name<TAB>length" per sequence; "" = none
+    TrackOptions tracks;                    ///< posterior tracks; prefix "" = none
+    std::string summary_path;               ///< deterministic JSON summary; "" = none
+    std::string report_path;                ///< JSON run report with resources; "" = none
     int64_t block_size = 0;                 ///< decoder block (0 = automatic)
+    bool progress = false;                  ///< draw a progress line on stderr
     std::string command_line;               ///< recorded in headers and the summary
 };
 
 /// Validates option combinations; throws UsageError naming the conflict.
 void validate(const ScanOptions& options);
 
-/// Runs the whole scan. Outputs appear only when the whole run succeeds.
+/// Runs the whole scan. File outputs appear only when the whole run succeeds.
 std::vector<ContigSummary> run_scan(const ScanOptions& options, const Logger& log);
 
 }  // namespace tidemark

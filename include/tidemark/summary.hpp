@@ -1,15 +1,17 @@
-// Summary of a scan: per-contig and genome-wide composition, likelihood and region totals,
-// as JSON (--summary) and as a readable table (--verbose).
+// Summary and run report of a scan: per-contig and genome-wide composition, likelihood, region
+// totals and call statistics, as JSON (--summary, --report) and as readable tables.
 #pragma once
 
+#include <cstdint>
 #include <string>
 #include <vector>
 
 #include "tidemark/call.hpp"
+#include "tidemark/progress.hpp"
 
 namespace tidemark {
 
-/// Per-contig totals for the summary.
+/// Per-contig totals.
 struct ContigSummary {
     std::string name;
     int64_t offset = 0;
@@ -21,9 +23,15 @@ struct ContigSummary {
     std::vector<double> expected_bases;  ///< per region: sum of posteriors (Viterbi: path bases)
     std::vector<int64_t> called_bases;   ///< per region: bases inside calls
     std::vector<int64_t> calls;          ///< per region: number of calls
+    std::vector<std::vector<int64_t>> call_lengths;  ///< per region: length of every call
+    std::vector<double> confidence_sum;  ///< per region: sum of the calls' mean posteriors
+    std::vector<std::vector<double>> call_confidences;  ///< per region: every call's mean posterior
+
+    /// Adds a call to the counts above (sizes the vectors for `regions` region types).
+    void add_call(const Call& call, size_t regions);
 };
 
-/// Accumulates the expected bases per region over a contig.
+/// Sums posteriors into expected bases per region over a contig.
 class RegionTotals final : public DecodeSink {
 public:
     explicit RegionTotals(const Model& model) : model_(model) {}
@@ -39,16 +47,28 @@ private:
 /// What the summary says about the run as a whole.
 struct RunInfo {
     std::string profile_name;
-    std::string decode_mode;  ///< "posterior" or "viterbi"
+    std::string profile_checksum;  ///< CRC-32 of the profile's canonical JSON, 8 hex digits
+    std::string decode_mode;       ///< "posterior" or "viterbi"
     std::string command_line;
     std::vector<std::string> inputs;
+    std::string options_json;      ///< the effective options as a JSON object
 };
 
-/// The summary as JSON (tidemark-summary/1): run info, genome-wide totals, one entry per contig.
-std::string summary_json(const RunInfo& info, const Model& model,
-                         const std::vector<ContigSummary>& contigs);
+/// The summary as JSON (tidemark-summary/1): run info, genome-wide totals, one entry per
+/// contig. Deterministic: the same input gives the same text.
+std::string summary_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs);
 
-/// One human-readable line per contig plus a total line, for stderr.
+/// The run report (tidemark-report/1): the summary plus call length distributions (min, median,
+/// max, and genome-wide histograms of length on a 1-2-5 scale and of confidence in steps of
+/// 0.05) and mean confidence, and, kept apart under "resources", wall and CPU time, Mbp/s and
+/// peak memory.
+std::string report_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs,
+                        const ResourceUsage& usage);
+
+/// One line per contig plus a total line.
 std::string summary_table(const Model& model, const std::vector<ContigSummary>& contigs);
+
+/// The genome-wide part only, for the end of a run.
+std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs, const ResourceUsage& usage);
 
 }  // namespace tidemark

@@ -1,4 +1,5 @@
-// Tracks: BED formatting of calls and bedGraph posterior tracks (run-length merged, quantised).
+// Tracks: calls as BED (plain BED6+4 or browser BED9+4) and GFF3, and posterior tracks as
+// bedGraph (run-length merged, quantised, optionally binned, bgzip+tabix) or bigWig.
 #pragma once
 
 #include <memory>
@@ -10,24 +11,66 @@
 
 namespace tidemark {
 
-/// The BED columns tidemark writes, in order (BED6+4).
-inline constexpr const char* bed_columns[] = {
-    "chrom", "start", "end", "name", "score", "strand",
-    "mean_posterior", "min_posterior", "gc_fraction", "cpg_obs_exp"};
+/// The extra BED columns tidemark writes after the standard ones, in order.
+inline constexpr const char* bed_extra_columns[] = {"mean_posterior", "min_posterior", "gc_fraction",
+                                                   "cpg_obs_exp"};
 
-/// `#` header lines: tool version, profile, command line, column names.
-std::string format_bed_header(const std::string& profile_name, const std::string& command_line);
+enum class BedStyle {
+    plain,    ///< BED6+4: chrom start end name score strand + extra columns
+    browser,  ///< BED9+4: adds thickStart thickEnd itemRgb (colour per region), a `track` line
+};
+
+/// Colour of a region type as "R,G,B": tidemark's own palette by region index.
+std::string region_color(const Model& model, int region);
+
+/// Header lines: for browser style a `track` line first, then `#` lines with the tool version,
+/// profile, command line and column names.
+std::string format_bed_header(BedStyle style, const Model& model, const std::string& command_line);
 
 /// One BED line for a call on `contig` (adds contig.offset to the coordinates).
 /// score = round(1000 * mean posterior); strand "."; o/e "NA" when N(C)*N(G) = 0.
-std::string format_bed_line(const Contig& contig, const Call& call, const std::string& region_name);
+std::string format_bed_line(BedStyle style, const Model& model, const Contig& contig, const Call& call);
 
-/// Writes one bedGraph per reportable region: PREFIX.REGION.bedgraph with P(region) per base,
-/// rounded to `digits` decimals (0..12) and run-length merged; intervals tile each decoded
-/// contig. Files are committed by close().
+/// GFF3: version pragma; a sequence-region pragma per contig; one feature per call (type
+/// CpG_island, SO:0000307, for a region named cpg_island, otherwise region, SO:0000001;
+/// score = mean posterior; the BED extra columns as attributes). IDs number calls from 1.
+std::string format_gff3_header();
+std::string format_gff3_sequence_region(const Contig& contig);
+std::string format_gff3_feature(const Model& model, const Contig& contig, const Call& call, int64_t serial);
+
+/// Collects bedGraph-like intervals and writes a bigWig file with libBigWig at close(); the
+/// sequence list (needed by the bigWig header) grows as sequences are added.
+class BigWigWriter {
+public:
+    explicit BigWigWriter(std::string path);
+    ~BigWigWriter();
+    int add_sequence(const std::string& name, int64_t length);  ///< returns its index
+    void add(int sequence, int64_t start, int64_t end, double value);
+    void close();  ///< throws IoError
+
+private:
+    struct Impl;
+    std::unique_ptr<Impl> impl_;
+};
+
+enum class TrackFormat { bedgraph, bigwig };
+
+struct TrackOptions {
+    std::string prefix;          ///< files are PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw
+    int digits = 3;              ///< decimals kept (0..12)
+    int64_t bin = 1;             ///< average the posterior over bins of this many bases
+    TrackFormat format = TrackFormat::bedgraph;
+    bool bgzip = false;          ///< bedGraph only: BGZF-compress and tabix-index
+    bool track_line = false;     ///< bedGraph only: start with a browser `track` line
+};
+
+/// Writes one posterior track per reportable region: P(region) per base (or bin mean), rounded
+/// to `digits` decimals, consecutive equal values merged; intervals tile each decoded contig.
+/// Files appear at close().
 class PosteriorTracks final : public DecodeSink {
 public:
-    PosteriorTracks(const Model& model, const std::string& prefix, int digits);
+    PosteriorTracks(const Model& model, TrackOptions options);
+    ~PosteriorTracks() override;
     void begin_contig(const Contig& contig) override;
     void block(const BlockView& view) override;
     void end_contig(const Contig& contig, const DecodeResult& result) override;
@@ -35,20 +78,16 @@ public:
     std::vector<std::string> paths() const;
 
 private:
-    struct Track {
-        int region = 0;
-        std::unique_ptr<OutputFile> file;
-        std::string buffer;
-        int64_t run_begin = 0, run_end = 0;
-        int64_t run_value = -1;  ///< quantised value of the open run, -1 = none
-    };
+    struct Track;
+    void add_value(Track& track, int64_t begin, int64_t end, double p);
     void flush_run(Track& track);
 
     const Model& model_;
-    int digits_;
+    TrackOptions options_;
     double scale_;
     const Contig* contig_ = nullptr;
-    std::vector<Track> tracks_;
+    int sequence_ = -1;  ///< bigWig sequence index of the current contig
+    std::vector<std::unique_ptr<Track>> tracks_;
 };
 
 }  // namespace tidemark

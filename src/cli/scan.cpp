@@ -8,8 +8,11 @@ void add_scan(CLI::App& app, Context& ctx) {
     auto opts = std::make_shared<ScanOptions>();
     auto decode = std::make_shared<std::string>("posterior");
     auto criteria = std::make_shared<std::string>("none");
+    auto bed_style = std::make_shared<std::string>("plain");
+    auto track_format = std::make_shared<std::string>("bedgraph");
     auto verbose = std::make_shared<bool>(false);
     auto quiet = std::make_shared<bool>(false);
+    auto no_progress = std::make_shared<bool>(false);
     auto min_posterior = std::make_shared<double>(0);
     auto merge_gap = std::make_shared<int64_t>(0);
     auto min_length = std::make_shared<int64_t>(0);
@@ -18,36 +21,80 @@ void add_scan(CLI::App& app, Context& ctx) {
         "scan", "Decode FASTA sequences with a profile: per-base region posteriors and BED calls");
     cmd->add_option("fasta", opts->inputs, "FASTA files (plain, gzip, bgzip, xz, bzip2, zstd); - for stdin")
         ->required();
+
+    const char* input = "Input";
     cmd->add_option("-p,--profile", opts->profile, "built-in profile name or profile JSON file")
-        ->capture_default_str();
-    cmd->add_option("-o,--output", opts->output, "BED file of calls (- for stdout)")->capture_default_str();
+        ->capture_default_str()
+        ->group(input);
     cmd->add_option("-r,--region", opts->regions,
-                    "decode only this region: NAME or NAME:BEG-END, 1-based inclusive (repeatable; "
-                    "uses the .fai index, built when missing)");
-    cmd->add_option("--regions-bed", opts->regions_bed, "decode only the intervals of this BED file");
+                    "decode only this region: NAME or NAME:BEG-END, 1-based inclusive (repeatable; uses "
+                    "the .fai index, built when missing)")
+        ->group(input);
+    cmd->add_option("--regions-bed", opts->regions_bed, "decode only the intervals of this BED file")->group(input);
+
+    const char* decoding = "Decoding and calling";
     cmd->add_option("--decode", *decode, "posterior (exact per-base posteriors) or viterbi (best path)")
         ->check(CLI::IsMember({"posterior", "viterbi"}))
-        ->capture_default_str();
+        ->capture_default_str()
+        ->group(decoding);
     auto* mp = cmd->add_option("--min-posterior", *min_posterior,
-                               "call bases with P(region) >= this [profile default, 0.5 for cpg-island]");
+                               "call bases with P(region) >= this [profile default; 0.5 for cpg-island]")
+                   ->group(decoding);
     auto* mg = cmd->add_option("--merge-gap", *merge_gap,
-                               "merge runs separated by fewer bases than this [profile default]");
+                               "merge runs separated by fewer bases than this [profile default; 50 for cpg-island]")
+                   ->group(decoding);
     auto* ml = cmd->add_option("--min-length", *min_length,
-                               "drop calls shorter than this [profile default, 200 for cpg-island]");
+                               "drop calls shorter than this [profile default; 200 for cpg-island]")
+                   ->group(decoding);
+    cmd->add_option("--core-posterior", opts->high_posterior,
+                    "a call's core (browser BED thickStart/thickEnd) spans its bases with P(region) >= this")
+        ->capture_default_str()
+        ->group(decoding);
     cmd->add_option("--island-criteria", *criteria,
-                    "post-filter calls: ggf1987 (>=200 bp, GC>0.5, o/e>0.6), tj2002 (>500 bp, "
-                    "GC>=0.55, o/e>=0.65) or none")
+                    "post-filter calls: ggf1987 (>=200 bp, GC>0.5, o/e>0.6), tj2002 (>500 bp, GC>=0.55, "
+                    "o/e>=0.65) or none")
         ->check(CLI::IsMember({"none", "ggf1987", "tj2002"}))
-        ->capture_default_str();
-    cmd->add_option("--posteriors", opts->posteriors_prefix,
-                    "write per-base posteriors as bedGraph PREFIX.REGION.bedgraph");
-    cmd->add_option("--posterior-digits", opts->posterior_digits, "decimals kept in bedGraph values (0-12)")
-        ->capture_default_str();
-    cmd->add_option("--summary", opts->summary_path, "write a JSON summary of the run");
+        ->capture_default_str()
+        ->group(decoding);
     cmd->add_option("--block", opts->block_size, "decoder block size in bases (0 = automatic)")
-        ->capture_default_str();
-    cmd->add_flag("-v,--verbose", *verbose, "per-contig details and a summary table on stderr");
-    cmd->add_flag("-q,--quiet", *quiet, "only errors and warnings on stderr");
+        ->capture_default_str()
+        ->group(decoding);
+
+    const char* output = "Output";
+    cmd->add_option("-o,--output", opts->output, "calls as BED (- for stdout)")->capture_default_str()->group(output);
+    cmd->add_option("--bed-style", *bed_style,
+                    "plain (BED6+4) or browser (BED9+4: thickStart/thickEnd = core, itemRgb, track line)")
+        ->check(CLI::IsMember({"plain", "browser"}))
+        ->capture_default_str()
+        ->group(output);
+    cmd->add_flag("--bgzip", opts->bgzip, "bgzip-compress BED and bedGraph outputs and write tabix indexes (.tbi)")
+        ->group(output);
+    cmd->add_option("--gff3", opts->gff3_path, "also write the calls as GFF3")->group(output);
+    cmd->add_option("--chrom-sizes", opts->chrom_sizes_path, "write 'name<TAB>length' for every sequence decoded")
+        ->group(output);
+    cmd->add_option("--posteriors", opts->tracks.prefix,
+                    "write per-base posteriors as PREFIX.REGION.bedgraph (or .bw), one per reported region")
+        ->group(output);
+    cmd->add_option("--track-format", *track_format, "posterior tracks as bedgraph or bigwig")
+        ->check(CLI::IsMember({"bedgraph", "bigwig"}))
+        ->capture_default_str()
+        ->group(output);
+    cmd->add_option("--posterior-digits", opts->tracks.digits, "decimals kept in track values (0-12)")
+        ->capture_default_str()
+        ->group(output);
+    cmd->add_option("--bin", opts->tracks.bin, "average posteriors over bins of this many bases")
+        ->capture_default_str()
+        ->group(output);
+    cmd->add_flag("--track-line", opts->tracks.track_line, "start bedGraph tracks with a browser track line")
+        ->group(output);
+    cmd->add_option("--summary", opts->summary_path, "JSON summary (deterministic)")->group(output);
+    cmd->add_option("--report", opts->report_path, "JSON run report: summary, call statistics, time and memory")
+        ->group(output);
+
+    const char* talk = "Messages";
+    cmd->add_flag("-v,--verbose", *verbose, "per-contig details and a summary table on stderr")->group(talk);
+    cmd->add_flag("-q,--quiet", *quiet, "only errors and warnings on stderr")->group(talk);
+    cmd->add_flag("--no-progress", *no_progress, "no progress line even when stderr is a terminal")->group(talk);
 
     cmd->callback([=, &ctx] {
         if (mp->count()) opts->min_posterior = *min_posterior;
@@ -55,8 +102,11 @@ void add_scan(CLI::App& app, Context& ctx) {
         if (ml->count()) opts->min_length = *min_length;
         opts->decode = *decode == "viterbi" ? DecodeMode::viterbi : DecodeMode::posterior;
         opts->criteria = parse_island_criteria(*criteria);
+        opts->bed_style = *bed_style == "browser" ? BedStyle::browser : BedStyle::plain;
+        opts->tracks.format = *track_format == "bigwig" ? TrackFormat::bigwig : TrackFormat::bedgraph;
         opts->command_line = ctx.command_line;
         const LogLevel level = *quiet ? LogLevel::quiet : *verbose ? LogLevel::verbose : LogLevel::normal;
+        opts->progress = !*quiet && !*no_progress && ProgressMeter::stderr_is_terminal();
         ctx.action = [opts, level] {
             run_scan(*opts, Logger(level));
             return 0;
