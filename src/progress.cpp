@@ -72,8 +72,8 @@ void ProgressMeter::draw(bool force) {
     const double elapsed = std::chrono::duration<double>(now - start_).count();
     const int64_t done = done_before_ + contig_done_;
     const double rate = elapsed > 0 ? static_cast<double>(done) / elapsed : 0;  // bases/s
-    std::string line = fmt::format("tidemark: {}  {:.1f}/{:.1f} Mbp", contig_name_, contig_done_ / 1e6,
-                                   contig_length_ / 1e6);
+    std::string line = fmt::format("tidemark: {}  {:.1f}/{:.1f} Mbp", contig_name_,
+                                   static_cast<double>(contig_done_) / 1e6, static_cast<double>(contig_length_) / 1e6);
     if (total_ > 0) line += fmt::format("  (run {:.1f}%)", 100.0 * static_cast<double>(done) / static_cast<double>(total_));
     line += fmt::format("  {:.1f} Mbp/s", rate / 1e6);
     const int64_t remaining = total_ > 0 ? total_ - done : contig_length_ - contig_done_;
