@@ -8,10 +8,14 @@ packages=(
   # libraries (see README "Dependencies")
   libhts-dev zlib1g-dev libeigen3-dev libboost-iostreams-dev libcli11-dev
   nlohmann-json3-dev libfmt-dev catch2 libbigwig-dev libcurl4-gnutls-dev
+  # sanitizer and fuzzing builds
+  clang libclang-rt-14-dev
   # test oracles and open datasets
   python3 python3-numpy python3-pomegranate python3-pybigwig python3-matplotlib
   tabix bedtools genometools gzip xz-utils bzip2 zstd
   bowtie2-examples smalt-examples
+  # benchmarks (scripts/bench.sh, scripts/bench-fit.sh: wall time and peak RSS)
+  time
 )
 
 missing=()

@@ -1,10 +1,25 @@
 #!/usr/bin/env bash
-# Installs the dependencies, builds tidemark and runs the whole test suite (unit, oracle and
-# command-line tests). Used by CI (.ci/run) and by developers; run from anywhere.
+# Installs the dependencies, builds tidemark and runs the whole test suite (unit, oracle,
+# command-line and fuzz-corpus tests); then the same suite again built with AddressSanitizer and
+# UndefinedBehaviorSanitizer, and each libFuzzer target for a short fixed time.
+# Used by CI (.ci/run). TIDEMARK_QUICK=1 runs only the first pass; TIDEMARK_FUZZ_SECONDS sets the
+# fuzzing time per target (default 30).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 bash scripts/install-deps.sh
-build=${TIDEMARK_BUILD_DIR:-build}
-cmake -S . -B "$build" -DCMAKE_BUILD_TYPE=Release -DTIDEMARK_WERROR=ON
-cmake --build "$build" -j"$(nproc)"
-ctest --test-dir "$build" --output-on-failure --no-tests=error -j"$(nproc)"
+jobs=$(nproc)
+
+echo "== test: release build" >&2
+cmake -S . -B build -DCMAKE_BUILD_TYPE=Release -DTIDEMARK_WERROR=ON
+cmake --build build -j"$jobs"
+ctest --test-dir build --output-on-failure --no-tests=error -j"$jobs"
+[ "${TIDEMARK_QUICK:-0}" = 1 ] && exit 0
+
+echo "== test: AddressSanitizer + UndefinedBehaviorSanitizer build" >&2
+cmake -S . -B build-asan -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTIDEMARK_SANITIZE=ON -DTIDEMARK_WERROR=ON
+cmake --build build-asan -j"$jobs"
+ASAN_OPTIONS=detect_leaks=1:abort_on_error=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
+  ctest --test-dir build-asan --output-on-failure --no-tests=error -j"$jobs"
+
+echo "== test: fuzzing each target for ${TIDEMARK_FUZZ_SECONDS:-30} s" >&2
+bash scripts/fuzz.sh "${TIDEMARK_FUZZ_SECONDS:-30}"
