@@ -29,6 +29,7 @@ void add_scan(CLI::App& app, Context& ctx) {
     cmd->add_option("-r,--region", opts->regions,
                     "decode only this region: NAME or NAME:BEG-END, 1-based inclusive (repeatable; uses "
                     "the .fai index, built when missing)")
+        ->allow_extra_args(false)  // -r A genome.fa: genome.fa is the input, not a second region
         ->group(input);
     cmd->add_option("--regions-bed", opts->regions_bed, "decode only the intervals of this BED file")->group(input);
 

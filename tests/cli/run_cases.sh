@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# Table-driven command-line cases: runs every row of tests/cli/cases.tsv in a scratch copy of
+# Table-driven command-line cases: runs every row of every tests/cli/*.tsv in a scratch copy of
 # tests/data and checks the exit code and a fragment of stdout or stderr.
 # Usage: run_cases.sh TIDEMARK_BINARY TESTS_SOURCE_DIR
 set -u
@@ -12,6 +12,7 @@ cd "$work" || exit 1
 
 pass=0
 fail=0
+for table in "$src"/cli/*.tsv; do
 while IFS=$'\t' read -r name expect stream fragment command; do
   [ -z "$name" ] && continue
   case "$name" in \#*) continue ;; esac
@@ -32,6 +33,7 @@ while IFS=$'\t' read -r name expect stream fragment command; do
   else
     pass=$((pass + 1))
   fi
-done < "$src/cli/cases.tsv"
+done < "$table"
+done
 echo "$pass passed, $fail failed"
 [ "$fail" -eq 0 ]
