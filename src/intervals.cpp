@@ -4,6 +4,7 @@
 #include <fmt/format.h>
 
 #include <charconv>
+#include <string_view>
 
 #include "byte_source.hpp"
 #include "tidemark/error.hpp"
@@ -16,16 +17,27 @@ int64_t parse_coordinate(const std::string& field, const std::string& where, con
     const char* first = field.data();
     const char* last = field.data() + field.size();
     const auto [ptr, ec] = std::from_chars(first, last, value);
-    if (ec != std::errc() || ptr != last || field.empty())
-        throw InputError(fmt::format("{}: {} '{}' is not an integer", where, what, field));
+    if (ec != std::errc() || ptr != last || field.empty()) {
+        // A word where a number belongs is usually a header line of another tool.
+        const bool word = field.find_first_of("0123456789") == std::string::npos;
+        throw InputError(fmt::format("{}: {} '{}' is not an integer{}", where, what, field,
+                                     word ? " (header lines must start with '#', 'track' or "
+                                            "'browser')"
+                                          : ""));
+    }
     if (value < 0) throw InputError(fmt::format("{}: {} {} is negative", where, what, value));
     return value;
 }
 
+bool first_word_is(const std::string& line, std::string_view word) {
+    return line.rfind(word, 0) == 0 &&
+           (line.size() == word.size() || line[word.size()] == ' ' || line[word.size()] == '\t');
+}
+
 void parse_line(const std::string& line, const std::string& display, int64_t number,
                 std::vector<Interval>& out) {
-    if (line.empty() || line[0] == '#' || line.rfind("track", 0) == 0 ||
-        line.rfind("browser", 0) == 0)
+    if (line.empty() || line[0] == '#' || first_word_is(line, "track") ||
+        first_word_is(line, "browser"))
         return;
     std::vector<std::string> fields;
     size_t start = 0;
@@ -49,6 +61,7 @@ void parse_line(const std::string& line, const std::string& display, int64_t num
         throw InputError(fmt::format("{}: start {} is greater than end {}", where, iv.begin,
                                      iv.end));
     if (fields.size() > 3) iv.name = fields[3];
+    iv.line = number;
     out.push_back(std::move(iv));
 }
 
