@@ -6,6 +6,7 @@
 #include <sys/stat.h>
 
 #include <algorithm>
+#include <cstdio>
 #include <cmath>
 #include <fstream>
 #include <nlohmann/json.hpp>
@@ -102,6 +103,56 @@ private:
     std::string origin_;
 };
 
+// Tied states share one table, so the file must not give them different ones.
+void check_ties(const Profile& p, const Validator& v) {
+    constexpr double tie_tolerance = 1e-9;
+    for (size_t i = 0; i < p.states.size(); ++i) {
+        const StateSpec& a = p.states[i];
+        if (a.tie.empty()) continue;
+        for (size_t j = 0; j < i; ++j) {
+            const StateSpec& b = p.states[j];
+            if (b.tie != a.tie) continue;
+            const std::string where = fmt::format("states[{}] ('{}')", i, a.name);
+            if (a.order != b.order)
+                v.fail(where + ".tie", fmt::format("tie group '{}' joins states of order {} ('{}') "
+                                                   "and {}; tied states need the same order",
+                                                   a.tie, b.order, b.name, a.order));
+            for (size_t r = 0; r < a.emissions.size(); ++r)
+                for (int c = 0; c < 4; ++c)
+                    if (std::abs(a.emissions[r][c] - b.emissions[r][c]) > tie_tolerance)
+                        v.fail(where + ".tie",
+                               fmt::format("tie group '{}': emissions[{}][{}] is {} here but {} in "
+                                           "'{}'; tied states must carry identical emissions",
+                                           a.tie, r, c, a.emissions[r][c], b.emissions[r][c], b.name));
+            break;  // equal to the first member found, hence to all of them
+        }
+    }
+}
+
+// A min_length chain needs a way to stay inside the region, and the expanded model must fit
+// the decoders' dense transition matrix.
+void check_chains(const Profile& p, const Validator& v) {
+    int64_t compiled = 0;
+    for (size_t i = 0; i < p.states.size(); ++i) {
+        const StateSpec& s = p.states[i];
+        const RegionSpec& r = p.regions[s.region];
+        compiled += r.min_length;
+        if (r.min_length <= 1) continue;
+        double stay = 0;
+        for (size_t j = 0; j < p.states.size(); ++j)
+            if (p.states[j].region == s.region) stay += p.transitions[i][j];
+        if (!(stay > 0))
+            v.fail("transitions." + s.name,
+                   fmt::format("region '{}' has min_length {} but state '{}' has no transition to "
+                               "a state of that region, so no segment could reach that length",
+                               r.name, r.min_length, s.name));
+    }
+    if (compiled > max_compiled_states)
+        v.fail("regions", fmt::format("the min_length chains expand the model to {} states; at most {} "
+                                      "are supported (lower min_length)",
+                                      compiled, max_compiled_states));
+}
+
 std::string read_file(const std::string& path) {
     struct stat st{};
     if (stat(path.c_str(), &st) == 0 && S_ISDIR(st.st_mode))
@@ -163,7 +214,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     if (!regions.is_array() || regions.empty()) v.fail("regions", "must be a non-empty array");
     for (size_t i = 0; i < regions.size(); ++i) {
         const std::string where = fmt::format("regions[{}]", i);
-        v.only_fields(regions[i], where, {"name", "report", "description"});
+        v.only_fields(regions[i], where, {"name", "report", "description", "min_length", "color"});
         RegionSpec r;
         r.name = v.string_field(regions[i], "name", where);
         if (r.name.empty()) v.fail(where + ".name", "must not be empty");
@@ -173,6 +224,21 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         r.report = report.get<bool>();
         if (regions[i].contains("description"))
             r.description = v.string_field(regions[i], "description", where);
+        if (regions[i].contains("color")) {
+            r.color = v.string_field(regions[i], "color", where);
+            int rgb[3] = {-1, -1, -1};
+            char extra = 0;
+            if (std::sscanf(r.color.c_str(), "%d,%d,%d%c", &rgb[0], &rgb[1], &rgb[2], &extra) != 3 ||
+                std::any_of(rgb, rgb + 3, [](int x) { return x < 0 || x > 255; }))
+                v.fail(where + ".color", "must be \"R,G,B\" with three integers from 0 to 255, not '" + r.color + "'");
+        }
+        if (regions[i].contains("min_length")) {
+            r.min_length = v.nonnegative_integer(regions[i]["min_length"], where + ".min_length");
+            if (r.min_length < 1 || r.min_length > max_compiled_states)
+                v.fail(where + ".min_length",
+                       fmt::format("must be from 1 to {} (each base of the minimum is one "
+                                   "compiled state)", max_compiled_states));
+        }
         p.regions.push_back(std::move(r));
     }
     if (std::none_of(p.regions.begin(), p.regions.end(), [](const RegionSpec& r) { return r.report; }))
@@ -182,7 +248,8 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     if (!states.is_array() || states.empty()) v.fail("states", "must be a non-empty array");
     for (size_t i = 0; i < states.size(); ++i) {
         std::string where = fmt::format("states[{}]", i);
-        v.only_fields(states[i], where, {"name", "region", "order", "emissions", "description"});
+        v.only_fields(states[i], where,
+                      {"name", "region", "order", "emissions", "description", "tie"});
         StateSpec s;
         s.name = v.string_field(states[i], "name", where);
         if (s.name.empty()) v.fail(where + ".name", "must not be empty");
@@ -216,8 +283,13 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
             v.sums_to_one(sum, rw);
             s.emissions.push_back(row);
         }
+        if (states[i].contains("tie")) {
+            s.tie = v.string_field(states[i], "tie", where);
+            if (s.tie.empty()) v.fail(where + ".tie", "must not be empty (omit the field instead)");
+        }
         p.states.push_back(std::move(s));
     }
+    check_ties(p, v);
     for (size_t r = 0; r < p.regions.size(); ++r)
         if (std::none_of(p.states.begin(), p.states.end(),
                          [&](const StateSpec& s) { return s.region == static_cast<int>(r); }))
@@ -254,6 +326,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         for (double x : p.transitions[i]) sum += x;
         v.sums_to_one(sum, "transitions." + p.states[i].name);
     }
+    check_chains(p, v);
 
     if (doc.contains("calling")) {
         const json& c = doc["calling"];
@@ -282,6 +355,8 @@ std::string to_json(const Profile& p) {
         o["name"] = r.name;
         o["report"] = r.report;
         if (!r.description.empty()) o["description"] = r.description;
+        if (!r.color.empty()) o["color"] = r.color;
+        if (r.min_length > 1) o["min_length"] = r.min_length;
         doc["regions"].push_back(o);
     }
     doc["states"] = ordered_json::array();
@@ -290,6 +365,7 @@ std::string to_json(const Profile& p) {
         o["name"] = s.name;
         o["region"] = p.regions[s.region].name;
         o["order"] = s.order;
+        if (!s.tie.empty()) o["tie"] = s.tie;
         o["emissions"] = s.emissions;
         doc["states"].push_back(o);
     }
@@ -328,48 +404,84 @@ Profile load_profile(const std::string& name_or_path) {
 
 Model compile(const Profile& p) {
     Model m;
-    const int S = static_cast<int>(p.states.size());
-    m.states = S;
+    const int P = static_cast<int>(p.states.size());
     m.name = p.name;
     for (const auto& r : p.regions) {
         m.region_names.push_back(r.name);
         m.region_report.push_back(r.report);
+        m.region_colors.push_back(r.color);
     }
-    m.initial = p.initial;
+    // Compiled state of copy c (1-based) of profile state s: states are laid out state by
+    // state, the copies of one state consecutive.
+    std::vector<int> first(P + 1, 0);
+    for (int s = 0; s < P; ++s)
+        first[s + 1] = first[s] + static_cast<int>(p.regions[p.states[s].region].min_length);
+    const int S = first[P];
+    m.states = S;
     m.transitions.assign(static_cast<size_t>(S) * S, 0.0);
-    for (int i = 0; i < S; ++i)
-        for (int j = 0; j < S; ++j) m.transitions[static_cast<size_t>(i) * S + j] = p.transitions[i][j];
+    m.initial.assign(S, 0.0);
+    std::vector<size_t> table_offset;
+    std::vector<double> tables;
+    for (const auto& s : p.states) {
+        table_offset.push_back(tables.size());
+        std::array<double, 4> mean{};
+        for (const auto& row : s.emissions)
+            for (int b = 0; b < 4; ++b) {
+                tables.push_back(row[b]);
+                mean[b] += row[b] / static_cast<double>(s.emissions.size());
+            }
+        tables.insert(tables.end(), mean.begin(), mean.end());
+    }
+    m.emission = std::move(tables);
+    for (int s = 0; s < P; ++s) {
+        const StateSpec& st = p.states[s];
+        const int L = first[s + 1] - first[s];
+        double stay = 0;  // in-region transition mass, the chain's normaliser
+        for (int u = 0; u < P; ++u)
+            if (p.states[u].region == st.region) stay += p.transitions[s][u];
+        m.initial[first[s]] = p.initial[s];
+        for (int c = 1; c <= L; ++c) {
+            const int from = first[s] + c - 1;
+            m.state_names.push_back(L == 1 ? st.name : fmt::format("{}[{}/{}]", st.name, c, L));
+            m.region_of_state.push_back(st.region);
+            m.order_of_state.push_back(st.order);
+            m.profile_state.push_back(s);
+            m.chain_copy.push_back(c);
+            m.chain_length.push_back(L);
+            m.emission_offset.push_back(table_offset[s]);
+            double* row = m.transitions.data() + static_cast<size_t>(from) * S;
+            for (int u = 0; u < P; ++u) {
+                const double a = p.transitions[s][u];
+                if (!(a > 0)) continue;
+                const bool same = p.states[u].region == st.region;
+                if (c < L) {
+                    if (same) row[first[u] + c] = a / stay;  // forced step to copy c+1
+                } else {
+                    // the tail: stay in the tail copies, or enter another region at its copy 1
+                    const int Lu = first[u + 1] - first[u];
+                    row[same ? first[u] + Lu - 1 : first[u]] += a;
+                }
+            }
+        }
+        m.max_order = std::max(m.max_order, st.order);
+    }
     m.in_begin.push_back(0);
     m.out_begin.push_back(0);
     for (int j = 0; j < S; ++j) {
         for (int i = 0; i < S; ++i)
-            if (p.transitions[i][j] > 0) {
+            if (m.transitions[static_cast<size_t>(i) * S + j] > 0) {
                 m.in_from.push_back(i);
-                m.in_prob.push_back(p.transitions[i][j]);
+                m.in_prob.push_back(m.transitions[static_cast<size_t>(i) * S + j]);
             }
         m.in_begin.push_back(static_cast<int>(m.in_from.size()));
     }
     for (int i = 0; i < S; ++i) {
         for (int j = 0; j < S; ++j)
-            if (p.transitions[i][j] > 0) {
+            if (m.transitions[static_cast<size_t>(i) * S + j] > 0) {
                 m.out_to.push_back(j);
-                m.out_prob.push_back(p.transitions[i][j]);
+                m.out_prob.push_back(m.transitions[static_cast<size_t>(i) * S + j]);
             }
         m.out_begin.push_back(static_cast<int>(m.out_to.size()));
-    }
-    for (const auto& s : p.states) {
-        m.state_names.push_back(s.name);
-        m.region_of_state.push_back(s.region);
-        m.order_of_state.push_back(s.order);
-        m.max_order = std::max(m.max_order, s.order);
-        m.emission_offset.push_back(m.emission.size());
-        std::array<double, 4> mean{};
-        for (const auto& row : s.emissions)
-            for (int b = 0; b < 4; ++b) {
-                m.emission.push_back(row[b]);
-                mean[b] += row[b] / static_cast<double>(s.emissions.size());
-            }
-        m.emission.insert(m.emission.end(), mean.begin(), mean.end());
     }
     return m;
 }

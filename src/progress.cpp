@@ -19,6 +19,19 @@ double cpu_seconds() {
            static_cast<double>(ru.ru_utime.tv_usec + ru.ru_stime.tv_usec) * 1e-6;
 }
 
+// VmHWM from /proc/self/status rather than getrusage's ru_maxrss, which Linux carries over
+// from the parent process across exec (a tool started by a big process would report its size).
+int64_t peak_rss_bytes() {
+    std::FILE* f = std::fopen("/proc/self/status", "r");
+    if (!f) return 0;
+    char line[256];
+    long long kib = 0;
+    while (std::fgets(line, sizeof line, f))
+        if (std::sscanf(line, "VmHWM: %lld kB", &kib) == 1) break;
+    std::fclose(f);
+    return static_cast<int64_t>(kib) * 1024;
+}
+
 std::string clock_text(double seconds) {
     const auto s = static_cast<int64_t>(seconds + 0.5);
     return fmt::format("{}:{:02}:{:02}", s / 3600, (s / 60) % 60, s % 60);
@@ -32,9 +45,7 @@ ResourceUsage Stopwatch::now() const {
     ResourceUsage u;
     u.wall_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start_).count();
     u.cpu_seconds = cpu_seconds() - cpu_start_;
-    rusage ru{};
-    getrusage(RUSAGE_SELF, &ru);
-    u.peak_rss_bytes = static_cast<int64_t>(ru.ru_maxrss) * 1024;  // Linux reports KiB
+    u.peak_rss_bytes = peak_rss_bytes();
     return u;
 }
 

@@ -39,8 +39,9 @@ std::string region_color(const Model& model, int region) {
     // tidemark's palette: distinguishable on white and dark browser backgrounds.
     static const char* palette[] = {"0,110,120", "200,110,0", "110,50,160", "40,140,70", "190,30,80",
                                     "90,90,90", "20,80,190", "150,120,0"};
-    (void)model;
-    return palette[static_cast<size_t>(region) % std::size(palette)];
+    const auto r = static_cast<size_t>(region);
+    if (r < model.region_colors.size() && !model.region_colors[r].empty()) return model.region_colors[r];
+    return palette[r % std::size(palette)];
 }
 
 std::string format_bed_header(BedStyle style, const Model& model, const std::string& command_line) {

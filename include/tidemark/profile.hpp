@@ -12,12 +12,22 @@ namespace tidemark {
 
 inline constexpr const char* profile_format = "tidemark-profile/1";
 inline constexpr int max_emission_order = 5;
+/// Upper bound on the number of compiled states (duration chains included): the decoders also
+/// keep a dense S x S transition matrix, 32 MiB at this size.
+inline constexpr int max_compiled_states = 2048;
 
 /// A region type: what a call is named after. Several states may belong to one region.
 struct RegionSpec {
     std::string name;
     bool report = false;      ///< calls and tracks are made for reportable regions only
     std::string description;  ///< optional free text
+    std::string color;        ///< optional "R,G,B" for browser tracks ("" = tidemark's palette)
+    /// Shortest possible segment (a maximal run of this region's states), in bases. L > 1 is
+    /// compiled into a chain of L copies of each of the region's states: copies 1..L-1 can only
+    /// step to the next copy (of any state of the region, with the in-region transitions
+    /// renormalised), copy L has the state's own transitions, so after the chain the length is
+    /// geometric. A segment cut by the end of a contig may be shorter.
+    int64_t min_length = 1;
 };
 
 /// A hidden state with an order-k context model: emissions[ctx][base] = P(base | k preceding
@@ -27,6 +37,9 @@ struct StateSpec {
     int region = 0;  ///< index into Profile::regions
     int order = 0;   ///< 0..max_emission_order
     std::vector<std::array<double, 4>> emissions;  ///< 4^order rows, each summing to 1
+    /// Tie group: states that name the same non-empty group share one emission table (same
+    /// order, identical rows), and training estimates it from their pooled counts.
+    std::string tie;
 };
 
 /// Interval-calling defaults a profile may carry (overridden by command-line options).
@@ -55,7 +68,10 @@ struct Profile {
 /// Parses and validates profile JSON. origin names the source in error messages.
 /// Throws ProfileError naming the offending field: unknown or missing fields, rows that do not
 /// sum to 1 within 1e-6, negative or non-finite values, unresolved names, an order outside
-/// 0..5, no reportable region.
+/// 0..5, no reportable region; a region min_length below 1, a chain region whose state cannot
+/// stay in the region, more than max_compiled_states compiled states; tied states that differ
+/// in order or emissions.
+/// Optional fields: regions[].min_length (default 1) and states[].tie (default none).
 Profile parse_profile(std::string_view json_text, const std::string& origin);
 
 /// Canonical JSON text of a profile (stable key order; parse_profile(to_json(p)) == p).
@@ -77,11 +93,17 @@ struct Model {
     int states = 0;
     int max_order = 0;
     std::string name;
-    std::vector<std::string> state_names;
+    std::vector<std::string> state_names;  ///< chain copies are named "state[c/L]"
     std::vector<std::string> region_names;
     std::vector<bool> region_report;
+    std::vector<std::string> region_colors;  ///< "R,G,B" or "" (use tidemark's palette)
     std::vector<int> region_of_state;
     std::vector<int> order_of_state;
+    /// Per compiled state: the profile state it copies, its place c (1..L) in its region's
+    /// min_length chain and the chain length L (1 for regions without a chain).
+    std::vector<int> profile_state;
+    std::vector<int> chain_copy;
+    std::vector<int> chain_length;
     std::vector<double> initial;      ///< S
     std::vector<double> transitions;  ///< S*S row-major, [from*S + to]
 
@@ -92,7 +114,8 @@ struct Model {
     std::vector<int> out_begin, out_to;
     std::vector<double> out_prob;
 
-    /// Per state, 4^k + 1 rows of 4 probabilities; row 4^k is the mean row.
+    /// Per state, 4^k + 1 rows of 4 probabilities; row 4^k is the mean row. Chain copies share
+    /// the table of the profile state they copy.
     std::vector<size_t> emission_offset;
     std::vector<double> emission;
 
@@ -105,7 +128,9 @@ struct Model {
     }
 };
 
-/// Compiles a validated profile.
+/// Compiles a validated profile: expands min_length chains (a region with L > 1 turns each of
+/// its n states into L compiled states, so S grows to sum of L per state and the non-zero
+/// transitions by about n x L; the posterior decoder's work per base is linear in those).
 Model compile(const Profile& profile);
 
 }  // namespace tidemark

@@ -20,7 +20,7 @@ enum class BedStyle {
     browser,  ///< BED9+4: adds thickStart thickEnd itemRgb (colour per region), a `track` line
 };
 
-/// Colour of a region type as "R,G,B": tidemark's own palette by region index.
+/// Colour of a region type as "R,G,B": the profile's `color`, else tidemark's palette by index.
 std::string region_color(const Model& model, int region);
 
 /// Header lines: for browser style a `track` line first, then `#` lines with the tool version,

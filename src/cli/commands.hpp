@@ -18,5 +18,8 @@ struct Context {
 
 void add_scan(CLI::App& app, Context& ctx);
 void add_profiles(CLI::App& app, Context& ctx);
+void add_fit(CLI::App& app, Context& ctx);
+void add_simulate(CLI::App& app, Context& ctx);
+void add_compare(CLI::App& app, Context& ctx);
 
 }  // namespace tidemark::cli

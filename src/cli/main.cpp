@@ -33,8 +33,13 @@ int main(int argc, char** argv) {
     app.require_subcommand(1);
     cli::add_scan(app, ctx);
     cli::add_profiles(app, ctx);
+    cli::add_fit(app, ctx);
+    cli::add_simulate(app, ctx);
+    cli::add_compare(app, ctx);
+    // One handler for everything: option callbacks may throw tidemark errors while parsing.
     try {
         app.parse(argc, argv);
+        return ctx.action ? ctx.action() : 0;
     } catch (const CLI::CallForHelp& e) {
         return app.exit(e);
     } catch (const CLI::CallForAllHelp& e) {
@@ -45,9 +50,6 @@ int main(int argc, char** argv) {
         std::fprintf(stderr, "tidemark: usage error: %s\n(run 'tidemark --help' or 'tidemark SUBCOMMAND --help')\n",
                      e.what());
         return static_cast<int>(ExitCode::usage);
-    }
-    try {
-        return ctx.action ? ctx.action() : 0;
     } catch (const Error& e) {
         std::fflush(stdout);
         std::fprintf(stderr, "tidemark: error: %s\n", e.what());

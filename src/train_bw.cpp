@@ -1,0 +1,175 @@
+// Baum-Welch driver: E-step, M-step and convergence per run, perturbed restarts, progress on
+// stderr, and the guard that the EM objective never decreases.
+#include <fmt/format.h>
+
+#include <chrono>
+#include <cmath>
+#include <limits>
+
+#include "tidemark/error.hpp"
+#include "tidemark/train.hpp"
+
+namespace tidemark {
+namespace {
+
+// splitmix64 (Steele, Lea & Flood 2014, "Fast splittable pseudorandom number generators",
+// OOPSLA) seeds xoshiro256** (Blackman & Vigna 2021, "Scrambled linear pseudorandom number
+// generators", ACM TOMS 47:36): fixed algorithms, so restarts are the same on every platform,
+// unlike the std distributions.
+class Random {
+public:
+    explicit Random(uint64_t seed) {
+        for (auto& x : s_) {
+            seed += 0x9e3779b97f4a7c15ULL;
+            uint64_t z = seed;
+            z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
+            z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
+            x = z ^ (z >> 31);
+        }
+    }
+    uint64_t next() {
+        const uint64_t result = rotl(s_[1] * 5, 7) * 9;
+        const uint64_t t = s_[1] << 17;
+        s_[2] ^= s_[0];
+        s_[3] ^= s_[1];
+        s_[1] ^= s_[2];
+        s_[0] ^= s_[3];
+        s_[2] ^= t;
+        s_[3] = rotl(s_[3], 45);
+        return result;
+    }
+    double uniform() { return static_cast<double>(next() >> 11) * 0x1.0p-53; }
+
+private:
+    static uint64_t rotl(uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
+    uint64_t s_[4];
+};
+
+template <class It>
+void jitter(It begin, It end, Random& rng, double amount) {
+    double total = 0;
+    for (It it = begin; it != end; ++it) {
+        if (*it > 0) *it *= std::exp(amount * (2 * rng.uniform() - 1));
+        total += *it;
+    }
+    if (total > 0)
+        for (It it = begin; it != end; ++it) *it /= total;
+}
+
+struct Run {
+    Profile profile;
+    double log_likelihood = 0;
+    int iterations = 0;
+    bool converged = false;
+    TrainingCounts last;
+};
+
+double seconds_since(std::chrono::steady_clock::time_point t0) {
+    return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+}
+
+Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions& o,
+       const FreezeMask& freeze, int restart, std::vector<IterationRecord>& history, const Logger& log) {
+    const MStepOptions mo{o.pseudocount};
+    const std::string who = o.restarts > 1 ? fmt::format("restart {}/{}, ", restart + 1, o.restarts) : "";
+    Run run;
+    double prev_ll = 0, prev_obj = 0;
+    for (int it = 0;; ++it) {
+        const auto t0 = std::chrono::steady_clock::now();
+        TrainingCounts c = expected_counts(p, data, o.block_size);
+        if (c.known == 0)
+            throw InputError("the training sequences contain no known base (A, C, G or T)");
+        const double ll = c.log_likelihood;
+        const double obj = ll + log_prior(structure, p, freeze, o.pseudocount);
+        const double secs = seconds_since(t0);
+        history.push_back({restart, it, ll, obj, secs});
+        double rel = std::numeric_limits<double>::quiet_NaN();
+        if (it > 0) {
+            // EM (MAP-EM with pseudocounts) cannot decrease its objective; a decrease beyond
+            // rounding means the counts or the update are wrong.
+            if (obj < prev_obj - 1e-9 * std::max(1.0, std::abs(prev_obj)))
+                throw InternalError(fmt::format(
+                    "fit: the EM objective decreased from {:.10g} to {:.10g} at iteration {} "
+                    "(log-likelihood {:.10g} -> {:.10g}); this is a bug in tidemark, please report it",
+                    prev_obj, obj, it, prev_ll, ll));
+            rel = (ll - prev_ll) / std::max(std::abs(prev_ll), std::numeric_limits<double>::min());
+        }
+        log.info(fmt::format("fit: {}iteration {}: log-likelihood {:.6f}, change {}, {:.2f} s", who, it, ll,
+                             it > 0 ? fmt::format("{:+.3e}", rel) : std::string("-"), secs));
+        run.profile = p;
+        run.log_likelihood = ll;
+        run.iterations = it;
+        run.last = std::move(c);
+        if (it > 0 && std::abs(rel) < o.tol) {
+            run.converged = true;
+            break;
+        }
+        if (it >= o.max_iter) break;
+        p = maximise(structure, p, run.last, freeze, mo);
+        prev_ll = ll;
+        prev_obj = obj;
+    }
+    return run;
+}
+
+}  // namespace
+
+Profile perturb(const Profile& start, const FreezeMask& freeze, uint64_t seed, int restart, double amount) {
+    Random rng(seed ^ (0xd1b54a32d192ed03ULL * static_cast<uint64_t>(restart + 1)));
+    Profile p = start;
+    if (!freeze.initial) jitter(p.initial.begin(), p.initial.end(), rng, amount);
+    for (size_t s = 0; s < p.states.size(); ++s)
+        if (!freeze.transitions[s]) jitter(p.transitions[s].begin(), p.transitions[s].end(), rng, amount);
+    for (size_t s = 0; s < p.states.size(); ++s) {
+        if (freeze.emissions[s]) continue;
+        size_t leader = s;
+        if (!p.states[s].tie.empty())
+            for (size_t u = 0; u < s; ++u)
+                if (p.states[u].tie == p.states[s].tie) {
+                    leader = u;
+                    break;
+                }
+        if (leader != s) {
+            p.states[s].emissions = p.states[leader].emissions;
+            continue;
+        }
+        for (auto& row : p.states[s].emissions) jitter(row.begin(), row.end(), rng, amount);
+    }
+    return p;
+}
+
+FitResult baum_welch(const Profile& start, TrainingData& data, const FitOptions& o, const Logger& log) {
+    if (o.restarts < 1) throw UsageError("--restarts must be at least 1");
+    if (o.max_iter < 0) throw UsageError("--max-iter must be >= 0");
+    if (!(o.tol >= 0)) throw UsageError("--tol must be >= 0");
+    if (!(o.pseudocount >= 0) || !std::isfinite(o.pseudocount)) throw UsageError("--pseudocount must be >= 0");
+    const FreezeMask freeze = resolve_freeze(o.freeze, start);
+    FitResult best;
+    bool have = false;
+    std::vector<double> lls;
+    std::vector<IterationRecord> history;
+    for (int r = 0; r < o.restarts; ++r) {
+        const Profile p0 = r == 0 ? start : perturb(start, freeze, o.seed, r, o.perturbation);
+        Run run = em(start, p0, data, o, freeze, r, history, log);
+        lls.push_back(run.log_likelihood);
+        if (!have || run.log_likelihood > best.log_likelihood) {
+            have = true;
+            best.profile = o.order_by_gc ? order_states_by_gc(run.profile, true) : run.profile;
+            best.log_likelihood = run.log_likelihood;
+            best.iterations = run.iterations;
+            best.converged = run.converged;
+            best.best_restart = r;
+            best.known_bases = run.last.known;
+            best.positions = run.last.positions;
+            best.contigs = run.last.contigs;
+        }
+    }
+    if (o.restarts > 1)
+        log.info(fmt::format("fit: kept restart {} of {} (log-likelihood {:.6f})", best.best_restart + 1,
+                             o.restarts, best.log_likelihood));
+    best.restart_log_likelihoods = std::move(lls);
+    best.history = std::move(history);
+    return best;
+}
+
+}  // namespace tidemark

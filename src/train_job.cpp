@@ -1,0 +1,263 @@
+// The fit job: options -> training data -> Baum-Welch, labelled counting or class selection ->
+// a profile with provenance, written only when everything succeeded.
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <cmath>
+#include <nlohmann/json.hpp>
+#include <numeric>
+
+#include "tidemark/error.hpp"
+#include "tidemark/output.hpp"
+#include "tidemark/train.hpp"
+
+namespace tidemark {
+namespace {
+
+using ordered_json = nlohmann::ordered_json;
+
+constexpr int max_classes = 64;
+constexpr size_t max_listed_sequences = 1000;
+
+std::vector<std::string> freeze_words(const Freeze& f) {
+    std::vector<std::string> w;
+    if (f.initial) w.push_back("initial");
+    if (f.transitions) w.push_back("transitions");
+    if (f.emissions) w.push_back("emissions");
+    for (const auto& s : f.transition_states) w.push_back("transitions:" + s);
+    for (const auto& s : f.emission_states) w.push_back("emissions:" + s);
+    return w;
+}
+
+std::string default_region_of(const Profile& p) {
+    std::vector<std::string> quiet;
+    for (const auto& r : p.regions)
+        if (!r.report) quiet.push_back(r.name);
+    if (quiet.size() == 1) return quiet[0];
+    std::string names;
+    for (const auto& r : p.regions) names += (names.empty() ? "" : ", ") + r.name;
+    throw UsageError(fmt::format("--labels: say which region unlabelled bases belong to with --default-region "
+                                 "(profile '{}' has regions {})",
+                                 p.name, names));
+}
+
+// Warns when training changed the GC order of the states, since their names then may no
+// longer describe them (e.g. 'typical' ending up GC-richer than 'gc_shifted').
+void warn_on_swaps(const Profile& before, const Profile& after, const Logger& log) {
+    const size_t P = before.states.size();
+    for (size_t a = 0; a < P; ++a)
+        for (size_t b = a + 1; b < P; ++b) {
+            const double x0 = state_gc(before.states[a]), y0 = state_gc(before.states[b]);
+            const double x1 = state_gc(after.states[a]), y1 = state_gc(after.states[b]);
+            if ((x0 < y0 && x1 > y1) || (x0 > y0 && x1 < y1))
+                log.warn(fmt::format("fit: states '{}' and '{}' swapped their GC order during training "
+                                     "(GC {:.3f}/{:.3f} at the start, {:.3f}/{:.3f} fitted); their names may "
+                                     "no longer describe them (try --init-from-data)",
+                                     before.states[a].name, before.states[b].name, x0, y0, x1, y1));
+        }
+}
+
+ordered_json input_json(const FastaTrainingData& data) {
+    ordered_json files = ordered_json::array();
+    for (const auto& r : data.records()) {
+        if (files.empty() || files.back()["path"] != r.input)
+            files.push_back({{"path", r.input}, {"records", 0}, {"bases", 0}, {"unknown_bases", 0}});
+        auto& f = files.back();
+        f["records"] = f["records"].get<int64_t>() + 1;
+        f["bases"] = f["bases"].get<int64_t>() + r.length;
+        f["unknown_bases"] = f["unknown_bases"].get<int64_t>() + r.unknown;
+    }
+    return files;
+}
+
+ordered_json sequences_json(const FastaTrainingData& data) {
+    ordered_json list = ordered_json::array();
+    for (const auto& r : data.records()) {
+        if (list.size() == max_listed_sequences) break;
+        ordered_json o = {{"name", r.name}, {"length", r.length}};
+        if (r.offset > 0) o["offset"] = r.offset;
+        list.push_back(o);
+    }
+    return list;
+}
+
+}  // namespace
+
+void parse_class_range(const std::string& text, int& lo, int& hi) {
+    const auto bad = [&] {
+        return UsageError(fmt::format("--classes '{}': expected a count K or a range A..B with 1 <= A <= B <= {}",
+                                      text, max_classes));
+    };
+    const auto number = [&](const std::string& s) {
+        if (s.empty() || s.size() > 3 || !std::all_of(s.begin(), s.end(), [](char c) { return c >= '0' && c <= '9'; }))
+            throw bad();
+        return std::stoi(s);
+    };
+    const auto dots = text.find("..");
+    lo = number(text.substr(0, dots));
+    hi = dots == std::string::npos ? lo : number(text.substr(dots + 2));
+    if (lo < 1 || hi < lo || hi > max_classes) throw bad();
+}
+
+void validate(const FitJobOptions& o) {
+    if (o.inputs.empty()) throw UsageError("fit needs at least one FASTA file");
+    const bool from_template = o.classes_min > 0;
+    if (from_template && !o.profile.empty())
+        throw UsageError("--classes builds its own starting profile; give either --classes or --profile, not both");
+    if (!from_template && o.profile.empty())
+        throw UsageError("fit needs a starting point: a profile (-p NAME|FILE) or a template (--classes K)");
+    if (!o.select.empty() && o.select != "bic") throw UsageError("--select: only 'bic' is supported");
+    if (!o.select.empty() && !from_template) throw UsageError("--select chooses among --classes A..B");
+    if (from_template && o.classes_max > o.classes_min && o.select.empty())
+        throw UsageError("--classes A..B fits several class counts: add --select bic to choose one");
+    if (from_template && (o.order < 0 || o.order > max_emission_order))
+        throw UsageError(fmt::format("--order must be from 0 to {}", max_emission_order));
+    if (o.init_from_data && from_template)
+        throw UsageError("--init-from-data reseeds a --profile; --classes templates are always seeded from the data");
+    if (!o.labels.empty()) {
+        if (from_template) throw UsageError("--labels needs a profile (-p) whose regions the labels name");
+        if (o.fit.restarts != 1) throw UsageError("--restarts applies to Baum-Welch, not to --labels counting");
+        if (o.init_from_data) throw UsageError("--init-from-data applies to Baum-Welch, not to --labels counting");
+    } else if (!o.default_region.empty()) {
+        throw UsageError("--default-region applies only with --labels");
+    }
+    if (o.fit.restarts < 1) throw UsageError("--restarts must be at least 1");
+    if (o.fit.max_iter < 0) throw UsageError("--max-iter must be >= 0");
+    if (!(o.fit.tol >= 0)) throw UsageError("--tol must be >= 0");
+    if (!(o.fit.pseudocount >= 0) || !std::isfinite(o.fit.pseudocount))
+        throw UsageError("--pseudocount must be a finite number >= 0");
+    if (o.seed.window < 10) throw UsageError("--init-window must be at least 10 bases");
+    if (o.fit.block_size < 0) throw UsageError("--block must be >= 0");
+}
+
+FitResult run_fit(const FitJobOptions& o, const Logger& log) {
+    validate(o);
+    FastaTrainingData data(o.inputs, o.regions, o.regions_bed);
+    // Open the output before the long work so that an unwritable path fails at once; it is
+    // committed only at the end.
+    OutputFile out(o.output);
+
+    FitResult result;
+    Selection selection;
+    std::string method = "baum-welch", start_name;
+    std::vector<std::string> start_sources;
+    if (!o.labels.empty()) {
+        method = "labelled";
+        const Profile start = load_profile(o.profile);
+        start_name = start.name;
+        start_sources = start.sources;
+        const std::string fallback = o.default_region.empty() ? default_region_of(start) : o.default_region;
+        const std::vector<Interval> labels = read_bed(o.labels);
+        const TrainingCounts counts = labelled_counts(start, data, labels, fallback, log);
+        if (counts.known == 0) throw InputError("the training sequences contain no known base (A, C, G or T)");
+        const FreezeMask freeze = resolve_freeze(o.fit.freeze, start);
+        result.profile = maximise(start, start, counts, freeze, MStepOptions{o.fit.pseudocount});
+        const TrainingCounts check = expected_counts(result.profile, data, o.fit.block_size);
+        result.log_likelihood = check.log_likelihood;
+        result.known_bases = check.known;
+        result.positions = check.positions;
+        result.contigs = check.contigs;
+        log.info(fmt::format("fit: labelled counts over {} bases; log-likelihood of the result {:.6f}",
+                             counts.positions, result.log_likelihood));
+    } else if (o.classes_min > 0) {
+        start_name = fmt::format("template of {} class(es), order {}", o.classes_min, o.order);
+        if (o.select.empty()) {
+            const Profile start = class_template(data, o.classes_min, o.order, o.seed);
+            FitOptions f = o.fit;
+            f.order_by_gc = true;
+            result = baum_welch(start, data, f, log);
+        } else {
+            start_name = fmt::format("templates of {}..{} classes, order {}", o.classes_min, o.classes_max, o.order);
+            selection = select_classes(data, o.classes_min, o.classes_max, o.order, o.seed, o.fit, log);
+            log.info("fit: model selection by BIC\n" + selection_table(selection));
+            result = selection.candidates[selection.chosen].fit;
+        }
+    } else {
+        Profile start = load_profile(o.profile);
+        start_name = start.name;
+        start_sources = start.sources;
+        if (o.init_from_data) start = seed_from_data(start, data, o.seed);
+        result = baum_welch(start, data, o.fit, log);
+        warn_on_swaps(start, result.profile, log);
+    }
+
+    Profile& p = result.profile;
+    if (!o.name.empty()) p.name = o.name;
+    else if (o.classes_min == 0) p.name = start_name + "-fit";
+    std::vector<std::string> sources;
+    sources.push_back(fmt::format("Parameters fitted by tidemark {} fit ({}) to the sequences listed under "
+                                  "provenance, starting from {}.",
+                                  TIDEMARK_VERSION, method, o.classes_min > 0 ? start_name : "profile '" + start_name + "'"));
+    for (const auto& s : p.sources)
+        if (std::find(start_sources.begin(), start_sources.end(), s) == start_sources.end()) sources.push_back(s);
+    for (const auto& s : start_sources) sources.push_back("Starting profile '" + start_name + "': " + s);
+    p.sources = sources;
+
+    ordered_json prov;
+    prov["tool"] = std::string("tidemark ") + TIDEMARK_VERSION;
+    prov["command_line"] = o.command_line;
+    prov["method"] = method;
+    prov["start"] = start_name;
+    prov["inputs"] = input_json(data);
+    prov["sequences"] = sequences_json(data);
+    prov["sequences_total"] = data.records().size();
+    ordered_json opts;
+    opts["pseudocount"] = o.fit.pseudocount;
+    if (method == "baum-welch") {
+        opts["max_iter"] = o.fit.max_iter;
+        opts["tol"] = o.fit.tol;
+        opts["restarts"] = o.fit.restarts;
+        opts["seed"] = o.fit.seed;
+        if (o.init_from_data || o.classes_min > 0) opts["init_window"] = o.seed.window;
+        if (o.init_from_data) opts["init_from_data"] = true;
+    } else {
+        opts["labels"] = o.labels;
+        opts["default_region"] = o.default_region.empty() ? "(the only unreported region)" : o.default_region;
+    }
+    if (o.classes_min > 0) {
+        opts["classes"] = o.classes_min == o.classes_max ? fmt::format("{}", o.classes_min)
+                                                          : fmt::format("{}..{}", o.classes_min, o.classes_max);
+        opts["order"] = o.order;
+        if (!o.select.empty()) opts["select"] = o.select;
+    }
+    opts["freeze"] = freeze_words(o.fit.freeze);
+    if (!o.regions.empty()) opts["regions"] = o.regions;
+    if (!o.regions_bed.empty()) opts["regions_bed"] = o.regions_bed;
+    prov["options"] = opts;
+    prov["known_bases"] = result.known_bases;
+    prov["log_likelihood"] = result.log_likelihood;
+    if (method == "baum-welch") {
+        prov["iterations"] = result.iterations;
+        prov["converged"] = result.converged;
+        if (o.fit.restarts > 1) {
+            prov["restart_log_likelihoods"] = result.restart_log_likelihoods;
+            prov["best_restart"] = result.best_restart + 1;
+        }
+        // Seconds are left out on purpose: the same run must give the same file.
+        ordered_json hist = ordered_json::array();
+        for (const auto& h : result.history)
+            if (h.restart == result.best_restart)
+                hist.push_back({{"iteration", h.iteration}, {"log_likelihood", h.log_likelihood}, {"objective", h.objective}});
+        prov["history"] = hist;
+    }
+    if (!selection.candidates.empty()) {
+        ordered_json table = ordered_json::array();
+        for (const auto& c : selection.candidates)
+            table.push_back({{"classes", c.classes}, {"log_likelihood", c.log_likelihood}, {"parameters", c.parameters},
+                             {"bic", c.bic}, {"iterations", c.fit.iterations}, {"converged", c.fit.converged}});
+        prov["selection"] = {{"criterion", "bic"},
+                             {"formula", "-2 ln L + parameters * ln(known bases) (Schwarz 1978, Ann. Statist. 6:461-464)"},
+                             {"candidates", table},
+                             {"chosen_classes", selection.candidates[selection.chosen].classes}};
+    }
+    p.provenance_json = prov.dump();
+
+    // The written text must be a valid profile like any other.
+    const std::string text = to_json(p);
+    parse_profile(text, "fitted profile");
+    out.write(text);
+    out.commit();
+    return result;
+}
+
+}  // namespace tidemark
