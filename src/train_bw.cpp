@@ -7,42 +7,21 @@
 #include <limits>
 
 #include "tidemark/error.hpp"
+#include "rng.hpp"
 #include "tidemark/train.hpp"
 
 namespace tidemark {
 namespace {
 
-// splitmix64 (Steele, Lea & Flood 2014, "Fast splittable pseudorandom number generators",
-// OOPSLA) seeds xoshiro256** (Blackman & Vigna 2021, "Scrambled linear pseudorandom number
-// generators", ACM TOMS 47:36): fixed algorithms, so restarts are the same on every platform,
-// unlike the std distributions.
+// Restarts draw from the simulator's generator (xoshiro256** seeded by splitmix64, src/rng.hpp):
+// fixed algorithms, so restarts are the same on every platform, unlike the std distributions.
 class Random {
 public:
-    explicit Random(uint64_t seed) {
-        for (auto& x : s_) {
-            seed += 0x9e3779b97f4a7c15ULL;
-            uint64_t z = seed;
-            z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
-            z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
-            x = z ^ (z >> 31);
-        }
-    }
-    uint64_t next() {
-        const uint64_t result = rotl(s_[1] * 5, 7) * 9;
-        const uint64_t t = s_[1] << 17;
-        s_[2] ^= s_[0];
-        s_[3] ^= s_[1];
-        s_[1] ^= s_[2];
-        s_[0] ^= s_[3];
-        s_[2] ^= t;
-        s_[3] = rotl(s_[3], 45);
-        return result;
-    }
-    double uniform() { return static_cast<double>(next() >> 11) * 0x1.0p-53; }
+    explicit Random(uint64_t seed) : gen_(seed) {}
+    double uniform() { return static_cast<double>(gen_.next53()) * 0x1.0p-53; }
 
 private:
-    static uint64_t rotl(uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
-    uint64_t s_[4];
+    detail::Xoshiro256ss gen_;
 };
 
 template <class It>
