@@ -16,7 +16,8 @@ void add_compare(CLI::App& app, Context& ctx) {
     cmd->add_option("--name", job->options.name, "score every interval of both files as this one type");
     cmd->add_option("--type", job->options.types,
                     "report only these region types, in this order (repeatable or comma-separated)")
-        ->delimiter(',');
+        ->delimiter(',')
+        ->allow_extra_args(false);
     cmd->add_option("-g,--genome", job->genome,
                     "sequence lengths for true negatives and accuracy: NAME<tab>LENGTH lines "
                     "(chrom sizes, .fai) or a FASTA file");

@@ -18,7 +18,8 @@ void add_simulate(CLI::App& app, Context& ctx) {
         ->capture_default_str();
     auto* lengths = cmd->add_option("--lengths", job->simulation.lengths,
                                     "contig lengths in bases, comma-separated (one contig each)")
-                        ->delimiter(',');
+                        ->delimiter(',')
+                        ->allow_extra_args(false);
     auto* n = cmd->add_option("--contigs", *contigs, "number of contigs of --length bases");
     auto* l = cmd->add_option("--length", *length, "length of each of the --contigs contigs");
     n->excludes(lengths)->needs(l);
