@@ -183,7 +183,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     json doc;
     try {
         doc = json::parse(json_text.begin(), json_text.end());
-    } catch (const json::parse_error& e) {
+    } catch (const json::exception& e) {  // parse_error, and out_of_range for numbers like 1e999
         throw ProfileError(fmt::format("{}: invalid JSON: {}", origin, e.what()));
     }
     v.only_fields(doc, "top level",
