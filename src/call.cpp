@@ -85,10 +85,15 @@ void IntervalCaller::block(const BlockView& view) {
                         open.begin = pos;
                         open.sum = 0;
                         open.min = 1;
+                        open.core_begin = open.core_end = -1;
                     }
                     open.sum += p;
                     open.min = std::min(open.min, p);
                     open.end = pos + 1;
+                    if (p >= options_.high_posterior) {
+                        if (open.core_begin < 0) open.core_begin = pos;
+                        open.core_end = pos + 1;
+                    }
                     open.gap_sum = 0;
                     open.gap_min = 1;
                 } else if (pos - open.end + 1 >= options_.merge_gap) {

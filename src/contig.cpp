@@ -2,6 +2,7 @@
 #include "tidemark/sequence.hpp"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <limits>
 
@@ -10,6 +11,44 @@ namespace tidemark {
 namespace {
 constexpr int64_t chunk_bases = int64_t{1} << Contig::chunk_shift;
 constexpr int64_t chunk_bytes = chunk_bases / 4;
+static_assert(chunk_bytes % 8 == 0, "composition() reads chunks as whole 64-bit words");
+
+// Unpacking a byte through a table (4 codes at once) instead of shifting per base: the decoder
+// unpacks every base twice per run.
+using Four = std::array<uint8_t, 4>;
+const std::array<Four, 256>& expand_table() {
+    static const std::array<Four, 256> table = [] {
+        std::array<Four, 256> t{};
+        for (int b = 0; b < 256; ++b)
+            for (int j = 0; j < 4; ++j) t[b][j] = static_cast<uint8_t>((b >> (2 * j)) & 3);
+        return t;
+    }();
+    return table;
+}
+
+// Little-endian assembly whatever the host order (compiles to one load on x86).
+inline uint64_t load_word(const uint8_t* p) {
+    uint64_t w = 0;
+    for (int j = 7; j >= 0; --j) w = (w << 8) | p[j];
+    return w;
+}
+
+// Population count by bit slicing: the builtin is a library call without -mpopcnt.
+inline int64_t ones(uint64_t x) {
+    x = x - ((x >> 1) & 0x5555555555555555ull);
+    x = (x & 0x3333333333333333ull) + ((x >> 2) & 0x3333333333333333ull);
+    x = (x + (x >> 4)) & 0x0F0F0F0F0F0F0F0Full;
+    return static_cast<int64_t>((x * 0x0101010101010101ull) >> 56);
+}
+
+// First unknown run that ends after pos.
+std::vector<UnknownRun>::const_iterator first_run_after(const std::vector<UnknownRun>& runs,
+                                                        int64_t pos) {
+    auto it = std::upper_bound(runs.begin(), runs.end(), pos,
+                               [](int64_t p, const UnknownRun& r) { return p < r.begin; });
+    if (it != runs.begin() && std::prev(it)->begin + std::prev(it)->length > pos) --it;
+    return it;
+}
 }  // namespace
 
 uint8_t Contig::base(int64_t i) const {
@@ -24,23 +63,30 @@ uint8_t Contig::base(int64_t i) const {
 }
 
 void Contig::unpack(int64_t begin, int64_t n, uint8_t* out) const {
+    const auto& expand = expand_table();
     for (int64_t k = 0; k < n;) {
         const int64_t i = begin + k;
         const uint8_t* chunk = chunks_[i >> chunk_shift].get();
         const int64_t in_chunk = std::min(n - k, chunk_bases - (i & (chunk_bases - 1)));
-        for (int64_t j = 0; j < in_chunk; ++j) {
-            const int64_t p = (i + j) & (chunk_bases - 1);
-            out[k + j] = (chunk[p >> 2] >> ((p & 3) * 2)) & 3;
+        int64_t p = i & (chunk_bases - 1);
+        const int64_t stop = p + in_chunk;
+        uint8_t* o = out + k;
+        for (; p < stop && (p & 3); ++p) *o++ = (chunk[p >> 2] >> ((p & 3) * 2)) & 3;
+        for (; p + 4 <= stop; p += 4, o += 4) {
+            const Four& f = expand[chunk[p >> 2]];
+            o[0] = f[0];
+            o[1] = f[1];
+            o[2] = f[2];
+            o[3] = f[3];
         }
+        for (; p < stop; ++p) *o++ = (chunk[p >> 2] >> ((p & 3) * 2)) & 3;
         k += in_chunk;
     }
-    auto it = std::upper_bound(unknown.begin(), unknown.end(), begin,
-                               [](int64_t pos, const UnknownRun& r) { return pos < r.begin; });
-    if (it != unknown.begin()) --it;
-    for (; it != unknown.end() && it->begin < begin + n; ++it) {
+    const int64_t end = begin + n;
+    for (auto it = first_run_after(unknown, begin); it != unknown.end() && it->begin < end; ++it) {
         const int64_t lo = std::max(it->begin, begin);
         const int64_t hi = std::min(it->begin + it->length, begin + n);
-        for (int64_t p = lo; p < hi; ++p) out[p - begin] = base_unknown;
+        std::fill(out + (lo - begin), out + (hi - begin), uint8_t{base_unknown});
     }
 }
 
@@ -54,6 +100,7 @@ void Contig::clear() {
     name.clear();
     offset = 0;
     length = 0;
+    sequence_length = 0;
     soft_masked = 0;
     unknown.clear();
 }
@@ -76,6 +123,36 @@ void Contig::push(uint8_t code) {
     ++length;
 }
 
+void Contig::append(const uint8_t* codes, int64_t n) {
+    int64_t k = 0;
+    while (k < n && (length & 3)) push(codes[k++]);
+    while (n - k >= 4) {
+        const int64_t i = length;
+        const size_t chunk = static_cast<size_t>(i >> chunk_shift);
+        if (chunk == chunks_.size()) chunks_.push_back(std::make_unique<uint8_t[]>(chunk_bytes));
+        const int64_t room = chunk_bases - (i & (chunk_bases - 1));
+        const int64_t groups = std::min(n - k, room) / 4;
+        uint8_t* dst = chunks_[chunk].get() + ((i & (chunk_bases - 1)) >> 2);
+        // Whole bytes are overwritten, so reused chunks need no clearing; unknown (4) packs as 0.
+        for (int64_t g = 0; g < groups; ++g, k += 4) {
+            const uint8_t c0 = codes[k], c1 = codes[k + 1], c2 = codes[k + 2], c3 = codes[k + 3];
+            dst[g] = static_cast<uint8_t>((c0 & 3) | (c1 & 3) << 2 | (c2 & 3) << 4 | (c3 & 3) << 6);
+            if ((c0 | c1 | c2 | c3) & base_unknown) {
+                for (int j = 0; j < 4; ++j) {
+                    if (codes[k + j] != base_unknown) continue;
+                    const int64_t pos = length + 4 * g + j;
+                    if (!unknown.empty() && unknown.back().begin + unknown.back().length == pos)
+                        ++unknown.back().length;
+                    else
+                        unknown.push_back({pos, 1});
+                }
+            }
+        }
+        length += 4 * groups;
+    }
+    while (k < n) push(codes[k++]);
+}
+
 double Composition::gc_fraction() const {
     const int64_t n = known();
     return n == 0 ? 0.0 : static_cast<double>(c + g) / static_cast<double>(n);
@@ -87,25 +164,37 @@ double Composition::cpg_obs_exp() const {
            (static_cast<double>(c) * static_cast<double>(g));
 }
 
+// Counts 32 bases per 64-bit word of the packed storage with bit masks and popcounts, treating
+// every stored base as known, then moves the unknown bases (stored as A) out of the A count.
+// An unknown base never forms a CpG because it is stored as A.
 Composition composition(const Contig& contig, int64_t begin, int64_t end) {
     Composition comp;
-    constexpr int64_t step = 1 << 16;
-    uint8_t buf[step];
-    uint8_t prev = base_unknown;
-    for (int64_t pos = begin; pos < end; pos += step) {
-        const int64_t n = std::min(step, end - pos);
-        contig.unpack(pos, n, buf);
-        for (int64_t k = 0; k < n; ++k) {
-            const uint8_t b = buf[k];
-            switch (b) {
-                case base_a: ++comp.a; break;
-                case base_c: ++comp.c; break;
-                case base_g: ++comp.g; comp.cpg += (prev == base_c); break;
-                case base_t: ++comp.t; break;
-                default: ++comp.unknown; break;
-            }
-            prev = b;
-        }
+    if (end <= begin) return comp;
+    constexpr uint64_t low = 0x5555555555555555ull;  // bit 0 of every base
+    uint64_t carry_c = 0;  // 1 when the base just before the current word is C (inside the range)
+    // Bases 4b..4b+3 live in byte b of a chunk, base (i & 3) at bit 2*(i & 3); a chunk holds a
+    // whole number of words, so no word straddles two chunks.
+    for (int64_t pos = begin & ~int64_t{31}; pos < end; pos += 32) {
+        const uint8_t* chunk = contig.chunks_[pos >> Contig::chunk_shift].get();
+        const uint64_t x = load_word(chunk + ((pos & (chunk_bases - 1)) >> 2));
+        const int64_t lo = std::max<int64_t>(begin - pos, 0), hi = std::min<int64_t>(end - pos, 32);
+        uint64_t m = low;
+        if (hi < 32) m &= (uint64_t{1} << (2 * hi)) - 1;
+        if (lo > 0) m &= ~((uint64_t{1} << (2 * lo)) - 1);
+        const uint64_t b0 = x & low, b1 = (x >> 1) & low;
+        const uint64_t a = ~b1 & ~b0 & m, c = ~b1 & b0 & m, g = b1 & ~b0 & m, t = b1 & b0 & m;
+        comp.a += ones(a);
+        comp.c += ones(c);
+        comp.g += ones(g);
+        comp.t += ones(t);
+        comp.cpg += ones((c << 2) & g) + static_cast<int64_t>(carry_c & g & 1);
+        carry_c = c >> 62;
+    }
+    const auto& runs = contig.unknown;
+    for (auto it = first_run_after(runs, begin); it != runs.end() && it->begin < end; ++it) {
+        const int64_t n = std::min(it->begin + it->length, end) - std::max(it->begin, begin);
+        comp.a -= n;
+        comp.unknown += n;
     }
     return comp;
 }

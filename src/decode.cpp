@@ -4,6 +4,8 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <array>
+#include <bit>
 #include <cmath>
 #include <cstring>
 #include <limits>
@@ -25,12 +27,30 @@ int64_t choose_block(const Model& m, int64_t requested) {
     return std::clamp<int64_t>(b, 256, int64_t{1} << 16);
 }
 
+// Exponent e with x = m * 2^e, m in [0.5, 1), as std::frexp gives it; read from the bits for
+// normal numbers because the library call showed up in profiles.
+inline int exponent_of(double x) {
+    const int biased = static_cast<int>((std::bit_cast<uint64_t>(x) >> 52) & 0x7ff);
+    if (biased == 0 || biased == 0x7ff) {
+        int e = 0;
+        std::frexp(x, &e);
+        return e;
+    }
+    return biased - 1022;
+}
+
+// Exactly 2^k.
+inline double pow2(int k) {
+    if (k >= -1022 && k <= 1023)
+        return std::bit_cast<double>(static_cast<uint64_t>(k + 1023) << 52);
+    return std::ldexp(1.0, k);
+}
+
 // Multiplies v by the power of two that brings its sum into [0.5, 1); returns the exponent
 // removed. Exact in binary floating point, so it adds no rounding error.
 inline int rescale(double* v, int S, double sum) {
-    int e = 0;
-    std::frexp(sum, &e);
-    const double f = std::ldexp(1.0, -e);
+    const int e = exponent_of(sum);
+    const double f = pow2(-e);
     for (int i = 0; i < S; ++i) v[i] *= f;
     return e;
 }
@@ -49,9 +69,9 @@ bool use_sparse(const Model& m) {
 
 // out_j = sum_i prev_i A_ij
 template <int Fixed>
-inline void step_forward(const Model& m, bool sparse, const double* prev, double* out) {
+inline void step_forward(const Model& m, const double* A, bool sparse, const double* prev,
+                         double* out) {
     const int S = Fixed > 0 ? Fixed : m.states;
-    const double* A = m.transitions.data();
     if (Fixed == 0 && sparse) {
         for (int j = 0; j < S; ++j) {
             double acc = 0;
@@ -60,8 +80,10 @@ inline void step_forward(const Model& m, bool sparse, const double* prev, double
         }
         return;
     }
-    for (int j = 0; j < S; ++j) out[j] = 0;
-    for (int i = 0; i < S; ++i) {
+    // Sums here start from their first term instead of 0: the same value for the non-negative
+    // numbers of a recursion, and one dependent addition less on its critical path.
+    for (int j = 0; j < S; ++j) out[j] = prev[0] * A[j];
+    for (int i = 1; i < S; ++i) {
         const double p = prev[i];
         const double* row = A + static_cast<size_t>(i) * S;
         for (int j = 0; j < S; ++j) out[j] += p * row[j];
@@ -70,9 +92,9 @@ inline void step_forward(const Model& m, bool sparse, const double* prev, double
 
 // out_i = sum_j A_ij g_j
 template <int Fixed>
-inline void step_backward(const Model& m, bool sparse, const double* g, double* out) {
+inline void step_backward(const Model& m, const double* A, bool sparse, const double* g,
+                          double* out) {
     const int S = Fixed > 0 ? Fixed : m.states;
-    const double* A = m.transitions.data();
     if (Fixed == 0 && sparse) {
         for (int i = 0; i < S; ++i) {
             double acc = 0;
@@ -83,15 +105,28 @@ inline void step_backward(const Model& m, bool sparse, const double* g, double* 
     }
     for (int i = 0; i < S; ++i) {
         const double* row = A + static_cast<size_t>(i) * S;
-        double acc = 0;
-        for (int j = 0; j < S; ++j) acc += row[j] * g[j];
+        double acc = row[0] * g[0];
+        for (int j = 1; j < S; ++j) acc += row[j] * g[j];
         out[i] = acc;
     }
 }
 
+// True when a base of [begin, end) is unknown.
+bool has_unknown(const Contig& c, int64_t begin, int64_t end) {
+    const auto ends_after = [](int64_t pos, const UnknownRun& r) { return pos < r.begin + r.length; };
+    const auto it = std::upper_bound(c.unknown.begin(), c.unknown.end(), begin, ends_after);
+    return it != c.unknown.end() && it->begin < end;
+}
+
+// Element by element on purpose: std::copy becomes a memmove call, and passing a local vector's
+// address to a call keeps the compiler from holding that vector in registers.
+inline void copy_vec(const double* from, int S, double* to) {
+    for (int i = 0; i < S; ++i) to[i] = from[i];
+}
+
 inline double sum_of(const double* v, int S) {
-    double s = 0;
-    for (int i = 0; i < S; ++i) s += v[i];
+    double s = v[0];
+    for (int i = 1; i < S; ++i) s += v[i];
     return s;
 }
 
@@ -156,9 +191,86 @@ void fill_emissions(const Model& m, const Contig& contig, int64_t begin, int64_t
     }
 }
 
+namespace {
+
+// Row layout of the decoder's emission table (PosteriorDecoder::fast_emission_), S doubles per
+// row. The first rows are build_fast_emission_table's (full contexts, row ctx*4 + base); after
+// them one row of ones for unknown bases, then for each v < max_order the rows of positions
+// with only v known bases before them (row partial(v) + ctx*4 + base). Every position of a
+// contig is then one table row, found without branching on the state.
+struct TableLayout {
+    uint32_t unknown = 0;
+    std::array<uint32_t, max_emission_order> partial{};
+    uint32_t rows = 0;
+    explicit TableLayout(int max_order) {
+        uint32_t r = 4u << (2 * max_order);
+        unknown = r++;
+        for (int v = 0; v < max_order; ++v) {
+            partial[v] = r;
+            r += 4u << (2 * v);
+        }
+        rows = r;
+    }
+};
+
+std::vector<double> build_decoder_table(const Model& m) {
+    std::vector<double> table = build_fast_emission_table(m);
+    if (table.empty()) return table;
+    const TableLayout layout(m.max_order);
+    const size_t S = static_cast<size_t>(m.states);
+    if (layout.rows * S * sizeof(double) > (size_t{40} << 20)) return {};
+    table.resize(layout.rows * S, 1.0);  // the unknown row stays all ones
+    for (int v = 0; v < m.max_order; ++v)
+        for (uint32_t c = 0; c < (1u << (2 * v)); ++c)
+            for (uint8_t b = 0; b < 4; ++b)
+                for (size_t s = 0; s < S; ++s)
+                    table[(layout.partial[v] + c * 4 + b) * S + s] =
+                        m.emission_prob(static_cast<int>(s), c, v, b);
+    return table;
+}
+
+// Models with up to this many states get a decoder compiled for their size (PosteriorDecoder::run).
+constexpr int max_fixed_states = 6;
+
+// For every emission row r, the matrix F_r[i][j] = A[i][j] * e_r[j]. One recursion step is
+// then a single matrix-vector product, f(t) = f(t-1) F_r(t) and b(t) = F_r(t+1) b(t+1), one
+// multiplication shorter on the chain of dependent operations that bounds the speed for
+// small models. Rounding differs from (f A) * e by about one unit in the last place per step,
+// which the rescaled recursions do not accumulate.
+std::vector<double> fold_transitions(const Model& m, const std::vector<double>& table) {
+    const size_t S = static_cast<size_t>(m.states);
+    if (table.empty()) return {};
+    const size_t rows = table.size() / S;
+    std::vector<double> folded(rows * S * S);
+    for (size_t r = 0; r < rows; ++r)
+        for (size_t i = 0; i < S; ++i)
+            for (size_t j = 0; j < S; ++j)
+                folded[(r * S + i) * S + j] = m.transitions[i * S + j] * table[r * S + j];
+    return folded;
+}
+
+// The S-vectors of the recursions: a fixed-size array the compiler keeps in registers for the
+// common small models, a heap vector otherwise.
+template <int Fixed>
+struct Vec {
+    explicit Vec(int) {}
+    std::array<double, Fixed> v{};
+    double* data() { return v.data(); }
+};
+template <>
+struct Vec<0> {
+    explicit Vec(int S) : v(S) {}
+    std::vector<double> v;
+    double* data() { return v.data(); }
+};
+
+}  // namespace
+
 PosteriorDecoder::PosteriorDecoder(const Model& model, DecoderOptions options)
     : model_(model), block_(choose_block(model, options.block_size)),
-      fast_emission_(build_fast_emission_table(model)) {}
+      fast_emission_(build_decoder_table(model)),
+      folded_(model.states <= max_fixed_states ? fold_transitions(model, fast_emission_)
+                                               : std::vector<double>{}) {}
 
 DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink) {
     switch (model_.states) {
@@ -168,7 +280,7 @@ DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink) {
         case 4: return run_fixed<4>(contig, sink);
         case 5: return run_fixed<5>(contig, sink);
         case 6: return run_fixed<6>(contig, sink);
-        default: return run_fixed<0>(contig, sink);
+        default: return run_fixed<0>(contig, sink);  // beyond max_fixed_states
     }
 }
 
@@ -184,85 +296,232 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
         sink.end_contig(contig, result);
         return result;
     }
-    const int64_t B = block_;
+    // A contig shorter than a block is one block either way; sizing the buffers to it keeps
+    // short runs from allocating (and faulting in) megabytes they never use.
+    const int64_t B = std::min(block_, N);
     const int64_t blocks = (N + B - 1) / B;
     const size_t BS = static_cast<size_t>(B) * S;
     bases_.resize(B);
+    rows_.resize(B);
     emission_.resize(BS);
     forward_.resize(BS);
     backward_.resize(BS);
     posterior_.resize(BS);
     checkpoints_.resize(static_cast<size_t>(blocks) * S);
     before_.resize(S);
-    std::vector<double> g(S), cur(S);
+    Vec<Fixed> g(S), cur(S), fprev(S), fx(S), bnext(S);
+    // A local copy of the transitions: the compiler can then keep them in registers, knowing
+    // that stores to the block buffers cannot change them.
+    std::array<double, Fixed * Fixed> fixed_a{};
+    if constexpr (Fixed > 0)
+        for (int i = 0; i < Fixed * Fixed; ++i) fixed_a[i] = m.transitions[i];
+    const double* A = Fixed > 0 ? fixed_a.data() : m.transitions.data();
+
+    // Fixed-size models run on the folded matrices (folded_) and need each position's emission
+    // row (rows_); the generic path multiplies by emission_ after each transition step.
+    const double* table = fast_emission_.empty() ? nullptr : fast_emission_.data();
+    const double* folded = folded_.empty() ? nullptr : folded_.data();
+    if (Fixed > 0 && (!table || !folded))
+        throw InternalError("decoder: emission table missing for a small model");
+    const TableLayout layout(m.max_order);
+    const int K = m.max_order;
+    const uint32_t mask = (1u << (2 * K)) - 1;
+
+    // Rows of block [start, start+n) into rows_, bases into bases_: one table row per position
+    // from the rolling context.
+    const auto fill_rows = [&](int64_t start, int64_t n) {
+        uint32_t ctx = 0;
+        int valid = 0;
+        const auto roll = [&](uint8_t b) {
+            if (b == base_unknown) {
+                ctx = 0;
+                valid = 0;
+            } else {
+                ctx = ((ctx << 2) | b) & mask;
+                valid += valid < K;
+            }
+        };
+        const int64_t look = std::min<int64_t>(K, start);
+        uint8_t before[max_emission_order];
+        contig.unpack(start - look, look, before);
+        for (int64_t k = 0; k < look; ++k) roll(before[k]);
+        contig.unpack(start, n, bases_.data());
+        const uint8_t* bases = bases_.data();
+        uint32_t* rows = rows_.data();
+        if (valid == K && !has_unknown(contig, start, start + n)) {
+            // The usual block: every context is full, and the row is the last K+1 bases.
+            const uint32_t window = (4u << (2 * K)) - 1;
+            uint32_t row = ctx;
+            for (int64_t t = 0; t < n; ++t) rows[t] = row = ((row << 2) | bases[t]) & window;
+            return;
+        }
+        for (int64_t t = 0; t < n; ++t) {
+            const uint8_t b = bases[t];
+            if (b != base_unknown && valid >= K) {
+                rows[t] = (ctx << 2) | b;
+                ctx = rows[t] & mask;
+            } else {
+                rows[t] = b == base_unknown ? layout.unknown : layout.partial[valid] + ctx * 4 + b;
+                roll(b);
+            }
+        }
+    };
+    // Emissions of the block (for the generic recursions and for the sinks).
+    const auto fill_block = [&](int64_t start, int64_t n) {
+        if (!table) {
+            fill_emissions(m, contig, start, n, bases_.data(), emission_.data());
+            return;
+        }
+        fill_rows(start, n);
+        double* out = emission_.data();
+        for (int64_t t = 0; t < n; ++t, out += S) {
+            const double* src = table + static_cast<size_t>(rows_[t]) * S;
+            for (int s = 0; s < S; ++s) out[s] = src[s];
+        }
+    };
+    // out = F_row v (backward step), and out = v F_row (forward step); sums in index order.
+    const auto folded_back = [&](uint32_t row, const double* v, double* out) {
+        const double* F = folded + static_cast<size_t>(row) * S * S;
+        for (int i = 0; i < S; ++i) {
+            double acc = F[i * S] * v[0];
+            for (int j = 1; j < S; ++j) acc += F[i * S + j] * v[j];
+            out[i] = acc;
+        }
+    };
+    const auto folded_fore = [&](uint32_t row, const double* v, double* out) {
+        const double* F = folded + static_cast<size_t>(row) * S * S;
+        for (int j = 0; j < S; ++j) out[j] = v[0] * F[j];
+        for (int i = 1; i < S; ++i)
+            for (int j = 0; j < S; ++j) out[j] += v[i] * F[i * S + j];
+    };
 
     // Sweep 1, backward over the whole contig: keep the scaled backward vector at the last
-    // position of every block. g carries e(t+1) * b(t+1) across positions and blocks.
+    // position of every block. cur carries b(t+1) across positions and blocks (the generic
+    // path carries g = e(t+1) * b(t+1) instead).
     for (int64_t k = blocks - 1; k >= 0; --k) {
         const int64_t start = k * B;
         const int64_t n = std::min(B, N - start);
-        fill_emissions(m, contig, start, n, bases_.data(), emission_.data(), &fast_emission_);
-        for (int64_t t = n - 1; t >= 0; --t) {
-            const int64_t pos = start + t;
-            if (pos == N - 1) {
-                std::fill(cur.begin(), cur.end(), 1.0);
+        double* c = cur.data();
+        double* gg = g.data();
+        if constexpr (Fixed > 0) {
+            const uint32_t next_row = rows_[0];  // row of position start + n, from block k + 1
+            fill_rows(start, n);
+            if (start + n == N) {
+                for (int i = 0; i < S; ++i) c[i] = 1.0;
             } else {
-                step_backward<Fixed>(m, sparse, g.data(), cur.data());
-                const double s = sum_of(cur.data(), S);
-                if (!(s > 0)) impossible(m, contig, pos + 1);
-                if (s < rescale_below) rescale(cur.data(), S, s);
+                folded_back(next_row, c, gg);
+                const double s = sum_of(gg, S);
+                if (!(s > 0)) impossible(m, contig, start + n);
+                if (s < rescale_below) rescale(gg, S, s);
+                copy_vec(gg, S, c);
             }
-            if (t == n - 1) std::copy(cur.begin(), cur.end(), checkpoints_.begin() + k * S);
-            const double* e = emission_.data() + t * S;
-            for (int i = 0; i < S; ++i) g[i] = e[i] * cur[i];
+            copy_vec(c, S, checkpoints_.data() + k * S);
+            for (int64_t t = n - 2; t >= 0; --t) {
+                folded_back(rows_[t + 1], c, gg);
+                const double s = sum_of(gg, S);
+                if (!(s > 0)) impossible(m, contig, start + t + 1);
+                if (s < rescale_below) rescale(gg, S, s);
+                copy_vec(gg, S, c);
+            }
+        } else {
+            fill_block(start, n);
+            const double* em = emission_.data();
+            for (int64_t t = n - 1; t >= 0; --t) {
+                const int64_t pos = start + t;
+                if (pos == N - 1) {
+                    for (int i = 0; i < S; ++i) c[i] = 1.0;
+                } else {
+                    step_backward<Fixed>(m, A, sparse, gg, c);
+                    const double s = sum_of(c, S);
+                    if (!(s > 0)) impossible(m, contig, pos + 1);
+                    if (s < rescale_below) rescale(c, S, s);
+                }
+                if (t == n - 1) copy_vec(c, S, checkpoints_.data() + k * S);
+                const double* e = em + t * S;
+                for (int i = 0; i < S; ++i) gg[i] = e[i] * c[i];
+            }
         }
     }
 
-    // Sweep 2, forward block by block: rebuild the block's backward vectors from its
-    // checkpoint, run the forward recursion, combine, hand the block to the sink.
+    // Sweep 2, forward block by block. Inside a block the backward vectors are rebuilt from the
+    // block's checkpoint while the forward recursion runs: the two chains are independent, and
+    // interleaving them lets the processor overlap their latencies.
     int64_t exponent = 0;
     double last_sum = 0;
     for (int64_t k = 0; k < blocks; ++k) {
         const int64_t start = k * B;
         const int64_t n = std::min(B, N - start);
-        fill_emissions(m, contig, start, n, bases_.data(), emission_.data(), &fast_emission_);
+        fill_block(start, n);
         double* bw = backward_.data();
         double* fw = forward_.data();
         const double* em = emission_.data();
-        std::copy(checkpoints_.begin() + k * S, checkpoints_.begin() + (k + 1) * S, bw + (n - 1) * S);
-        for (int64_t t = n - 2; t >= 0; --t) {
-            const double* e = em + (t + 1) * S;
-            const double* next = bw + (t + 1) * S;
-            for (int i = 0; i < S; ++i) g[i] = e[i] * next[i];
-            double* b = bw + t * S;
-            step_backward<Fixed>(m, sparse, g.data(), b);
-            const double s = sum_of(b, S);
-            if (s < rescale_below) rescale(b, S, s);
-        }
-        for (int64_t t = 0; t < n; ++t) {
+        const uint32_t* rows = rows_.data();
+        copy_vec(checkpoints_.data() + k * S, S, bw + (n - 1) * S);
+        double* fp = fprev.data();
+        double* x = fx.data();
+        double* bn = bnext.data();
+        double* gg = g.data();
+        if (k > 0) copy_vec(before_.data(), S, fp);
+        copy_vec(bw + (n - 1) * S, S, bn);
+        const auto forward_at = [&](int64_t t) {
             const int64_t pos = start + t;
-            double* f = fw + t * S;
-            const double* e = em + t * S;
             if (pos == 0) {
-                for (int i = 0; i < S; ++i) f[i] = m.initial[i];
+                const double* e = em + t * S;
+                for (int i = 0; i < S; ++i) x[i] = m.initial[i] * e[i];
+            } else if constexpr (Fixed > 0) {
+                folded_fore(rows[t], fp, x);
             } else {
-                step_forward<Fixed>(m, sparse, t == 0 ? before_.data() : f - S, f);
+                step_forward<Fixed>(m, A, sparse, fp, x);
+                const double* e = em + t * S;
+                for (int i = 0; i < S; ++i) x[i] *= e[i];
             }
-            for (int i = 0; i < S; ++i) f[i] *= e[i];
-            double s = sum_of(f, S);
+            double s = sum_of(x, S);
             if (!(s > 0)) impossible(m, contig, pos);
             if (s < rescale_below) {
-                exponent += rescale(f, S, s);
-                s = sum_of(f, S);
+                exponent += rescale(x, S, s);
+                s = sum_of(x, S);
             }
             last_sum = s;
+            double* f = fw + t * S;
+            for (int i = 0; i < S; ++i) f[i] = fp[i] = x[i];
+        };
+        const auto backward_at = [&](int64_t u) {  // from bn = backward at u + 1
+            if constexpr (Fixed > 0) {
+                folded_back(rows[u + 1], bn, gg);
+                copy_vec(gg, S, bn);
+            } else {
+                const double* e = em + (u + 1) * S;
+                for (int i = 0; i < S; ++i) gg[i] = e[i] * bn[i];
+                step_backward<Fixed>(m, A, sparse, gg, bn);
+            }
+            const double s = sum_of(bn, S);
+            if (s < rescale_below) rescale(bn, S, s);
+            copy_vec(bn, S, bw + u * S);
+        };
+        const auto posterior_at = [&](int64_t t) {
+            const double* f = fw + t * S;
             const double* b = bw + t * S;
             double* p = posterior_.data() + t * S;
-            double dot = 0;
-            for (int i = 0; i < S; ++i) dot += f[i] * b[i];
-            if (!(dot > 0)) impossible(m, contig, pos);
+            double dot = f[0] * b[0];
+            for (int i = 1; i < S; ++i) dot += f[i] * b[i];
+            if (!(dot > 0)) impossible(m, contig, start + t);
             const double inv = 1.0 / dot;
             for (int i = 0; i < S; ++i) p[i] = f[i] * b[i] * inv;
+        };
+        // Iteration i computes forward(i) and backward(n-2-i). Position t has both once
+        // i = max(t, n-2-t), so the second half of the iterations also finishes two
+        // posteriors each, filling the gaps that the two recursions leave.
+        int64_t i = 0;
+        for (; i < n && 2 * i < n - 2; ++i) {
+            forward_at(i);
+            backward_at(n - 2 - i);
+        }
+        for (; i < n; ++i) {
+            forward_at(i);
+            const int64_t u = n - 2 - i;
+            if (u >= 0) backward_at(u);
+            posterior_at(i);
+            if (u >= 0 && u != i) posterior_at(u);
         }
         BlockView view;
         view.begin = start;
@@ -275,7 +534,7 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
         view.emission = em;
         view.forward_before = k == 0 ? nullptr : before_.data();
         sink.block(view);
-        std::copy(fw + (n - 1) * S, fw + n * S, before_.begin());
+        copy_vec(fw + (n - 1) * S, S, before_.data());
     }
     result.log_likelihood = std::log(last_sum) + static_cast<double>(exponent) * ln2;
     sink.end_contig(contig, result);

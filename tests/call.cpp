@@ -157,3 +157,19 @@ TEST_CASE("BED line layout", "[call]") {
     const std::string header = format_bed_header(BedStyle::plain, m, "tidemark scan x.fa");
     CHECK(header.find("#chrom\tstart\tend\tname\tscore\tstrand\tmean_posterior\tmin_posterior\tgc_fraction\tcpg_obs_exp\n") != std::string::npos);
 }
+
+TEST_CASE("a call's core spans its bases at or above the high-confidence level", "[call]") {
+    // Hand computation: the run [0,6) has bases >= 0.95 at 1, 2 and 4 -> core [1, 5); the run
+    // [8,9) has none -> core collapses to its start.
+    const std::vector<double> p = {0.6, 0.97, 0.99, 0.7, 0.96, 0.5, 0.1, 0.2, 0.8};
+    CallOptions opt;
+    opt.high_posterior = 0.95;
+    const auto calls = call(p, opt, 2);
+    REQUIRE(calls.size() == 2);
+    CHECK((calls[0].core_begin == 1 && calls[0].core_end == 5));
+    CHECK((calls[1].core_begin == 8 && calls[1].core_end == 8));
+    opt.merge_gap = 3;  // merged across the gap 6-7: the core still ends at the last high base
+    const auto merged = call(p, opt, 4);
+    REQUIRE(merged.size() == 1);
+    CHECK((merged[0].core_begin == 1 && merged[0].core_end == 5));
+}

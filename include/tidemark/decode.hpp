@@ -79,7 +79,10 @@ private:
 
     const Model& model_;
     int64_t block_ = 0;
-    std::vector<double> fast_emission_;  ///< [(ctx * 4 + base) * S + s] for full contexts
+    std::vector<double> fast_emission_;  ///< emission rows: full contexts, [(ctx * 4 + base) * S
+                                         ///< + s], then unknown bases and short contexts
+    std::vector<double> folded_;         ///< per emission row r: A[i][j] * e_r[j], S x S (S <= 6)
+    std::vector<uint32_t> rows_;         ///< emission row of each position of the current block
     std::vector<uint8_t> bases_;
     std::vector<double> emission_, forward_, backward_, posterior_, checkpoints_, before_;
 };

@@ -1,0 +1,208 @@
+#!/usr/bin/env bash
+# Benchmark: `tidemark scan -p cpg-island` to BED against a deliberately simple baseline decoder
+# (scripts/bench/baseline.cpp), both on one thread, on seeded synthetic genomes and on real
+# human chrX; prints a Markdown table and writes it to BUILD_DIR/bench-results.md.
+set -euo pipefail
+
+usage() {
+    cat <<'EOF'
+usage: scripts/bench.sh [--quick] [--repeats N] [--build-dir DIR] [--no-real]
+
+Builds tidemark (Release) and the benchmark helpers in DIR (default: build-bench at the top of
+the repository), checks on a small input that tidemark and the baseline agree (posteriors to
+1e-9, log-likelihoods, calls), then times both on synthetic genomes of 1, 10, 50 and 200 Mbp
+(one contig each; --quick stops at 50 Mbp) and on human chrX from Debian's smalt-examples
+(--no-real skips it). Each input runs N times (default 3, 2 with --quick; at least 5 below
+50 Mbp), tidemark and baseline alternating; the fastest run of each is reported.
+EOF
+}
+
+ROOT=$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)
+BUILD=$ROOT/build-bench
+QUICK=0
+REPEATS=""
+REAL=1
+while [ $# -gt 0 ]; do
+    case "$1" in
+        --quick) QUICK=1 ;;
+        --repeats) REPEATS=${2:?--repeats needs a number}; shift ;;
+        --build-dir) BUILD=${2:?--build-dir needs a directory}; shift ;;
+        --no-real) REAL=0 ;;
+        -h|--help) usage; exit 0 ;;
+        *) echo "bench: unknown argument '$1'" >&2; usage >&2; exit 2 ;;
+    esac
+    shift
+done
+if [ -z "$REPEATS" ]; then REPEATS=$([ $QUICK -eq 1 ] && echo 2 || echo 3); fi
+case "$REPEATS" in ''|*[!0-9]*|0) echo "bench: --repeats must be a positive integer" >&2; exit 2 ;; esac
+SIZES_MBP=(1 10 50 200)
+[ $QUICK -eq 1 ] && SIZES_MBP=(1 10 50)
+CHRX=/usr/share/doc/smalt/test/data/hs37chrXtrunc.fa.gz
+PROFILE_JSON=$ROOT/data/profiles/cpg-island.json
+DATA=$BUILD/bench-data
+RESULTS=$BUILD/bench-results.md
+log() { echo "bench: $*" >&2; }
+
+# --- tools and builds ---------------------------------------------------------------------
+if [ ! -x /usr/bin/time ] || [ ! -x /usr/bin/python3 ]; then
+    log "installing missing packages (GNU time, python3) with scripts/install-deps.sh"
+    "$ROOT/scripts/install-deps.sh"
+fi
+log "building tidemark (Release) in $BUILD"
+cmake -S "$ROOT" -B "$BUILD" -DCMAKE_BUILD_TYPE=Release >/dev/null
+cmake --build "$BUILD" -j2 --target tidemark_cli >/dev/null
+log "building the generator and the baseline in $BUILD/bench-tools"
+cmake -S "$ROOT/scripts/bench" -B "$BUILD/bench-tools" -DCMAKE_BUILD_TYPE=Release >/dev/null
+cmake --build "$BUILD/bench-tools" -j2 >/dev/null
+TM=$BUILD/tidemark
+BL=$BUILD/bench-tools/bench-baseline
+GEN=$BUILD/bench-tools/bench-genome
+mkdir -p "$DATA"
+
+# --- correctness first: the speed comparison means nothing if the answers differ -------------
+check() {  # name fasta
+    local name=$1 fasta=$2 out=$DATA/check.$1
+    "$TM" scan -q -p cpg-island "$fasta" -o "$out.tm.bed" --posteriors "$out.tm" \
+        --posterior-digits 12 --summary "$out.tm.json"
+    "$BL" --profile "$PROFILE_JSON" "$fasta" -o "$out.bl.bed" --posteriors "$out.bl.tsv" 2>"$out.bl.log"
+    printf 'agreement on %s: ' "$name" >&2
+    /usr/bin/python3 "$ROOT/scripts/bench/check_agreement.py" --tidemark-bedgraph "$out.tm.cpg_island.bedgraph" \
+        --tidemark-summary "$out.tm.json" --tidemark-bed "$out.tm.bed" \
+        --baseline-posteriors "$out.bl.tsv" --baseline-log "$out.bl.log" --baseline-bed "$out.bl.bed" \
+        --tolerance 1e-9 | tee -a "$DATA/agreement.txt" >&2
+}
+: >"$DATA/agreement.txt"
+# Three 100 kbp contigs with islands every ~20 kb and runs of N every ~40 kb, so that unknown
+# bases, contig starts and contexts broken by N are all exercised.
+"$GEN" --length 100000 --contigs 3 --seed 11 --island-spacing 20000 --gap-spacing 40000 \
+    --gap-max 2000 -o "$DATA/check-synthetic.fa"
+check synthetic "$DATA/check-synthetic.fa"
+LAMBDA=/usr/share/doc/bowtie2/examples/reference/lambda_virus.fa.gz
+[ -r "$LAMBDA" ] && check lambda "$LAMBDA"
+
+# --- timing ----------------------------------------------------------------------------------
+# run_timed OUT_PREFIX CMD...: writes "wall_seconds peak_rss_bytes cpu_seconds" to
+# OUT_PREFIX.result. Wall time comes from the shell clock (/usr/bin/time -v prints only
+# centiseconds), peak RSS and user+system time from /usr/bin/time -v.
+run_timed() {
+    local prefix=$1; shift
+    local t0 t1
+    t0=$(date +%s%N)
+    if ! /usr/bin/time -v -o "$prefix.time" "$@" >/dev/null 2>"$prefix.err"; then
+        log "command failed: $*"
+        cat "$prefix.err" >&2
+        return 1
+    fi
+    t1=$(date +%s%N)
+    awk -v ns=$((t1 - t0)) -F': ' '
+        /Maximum resident set size/ { rss = $2 }
+        /User time/ { user = $2 } /System time/ { sys = $2 }
+        END { printf "%.6f %.0f %.2f\n", ns / 1e9, rss * 1024, user + sys }' "$prefix.time" >"$prefix.result"
+}
+
+# Fixed cost of a run (process start, shared libraries, profile): tidemark on a one-base input,
+# timed next to every tidemark run so that it sees the same load; the fastest run counts.
+printf '>one\nA\n' >"$DATA/one-base.fa"
+STARTUP=""
+time_startup() {
+    run_timed "$DATA/run.one" "$TM" scan -q -p cpg-island "$DATA/one-base.fa" -o "$DATA/run.one.bed" || exit 1
+    local wall rss cpu
+    read -r wall rss cpu <"$DATA/run.one.result"
+    if [ -z "$STARTUP" ] || awk "BEGIN{exit !($wall < $STARTUP)}"; then STARTUP=$wall; fi
+}
+
+declare -a RAW=()
+FAILED=0
+bench_input() {  # label fasta bases(or empty: from the baseline's report)
+    local label=$1 fasta=$2 bases=${3:-} reps=$REPEATS
+    local best_tm="" best_bl="" rss_tm=0 rss_bl=0 cpu_tm="" cpu_bl="" largest=0
+    if [ -n "$bases" ] && [ "$bases" -lt 50000000 ] && [ "$reps" -lt 5 ]; then reps=5; fi
+    log "timing $label ($reps runs each)"
+    for ((r = 1; r <= reps; r++)); do
+        time_startup
+        run_timed "$DATA/run.tm" "$TM" scan -q -p cpg-island "$fasta" -o "$DATA/run.tm.bed" || exit 1
+        read -r wall rss cpu <"$DATA/run.tm.result"
+        if [ -z "$best_tm" ] || awk "BEGIN{exit !($wall < $best_tm)}"; then best_tm=$wall; cpu_tm=$cpu; fi
+        if [ "$rss" -gt "$rss_tm" ]; then rss_tm=$rss; fi
+        run_timed "$DATA/run.bl" "$BL" --profile "$PROFILE_JSON" "$fasta" -o "$DATA/run.bl.bed" || exit 1
+        read -r wall rss cpu <"$DATA/run.bl.result"
+        if [ -z "$best_bl" ] || awk "BEGIN{exit !($wall < $best_bl)}"; then best_bl=$wall; cpu_bl=$cpu; fi
+        if [ "$rss" -gt "$rss_bl" ]; then rss_bl=$rss; fi
+    done
+    # The baseline reports every contig's length on stderr: total and largest.
+    local total
+    read -r total largest < <(awk -F'\t' '/^baseline: / { n = $2 + 0; t += n; if (n > m) m = n }
+                                          END { printf "%d %d\n", t, m }' "$DATA/run.bl.err")
+    [ -n "$bases" ] || bases=$total
+    local same="yes"
+    cmp -s <(grep -v '^#' "$DATA/run.tm.bed" | cut -f1-3) <(cut -f1-3 "$DATA/run.bl.bed") || same="NO"
+    # Formatted at the end, once the start-up time has seen every run.
+    RAW+=("$label|$bases|$largest|$best_tm|$best_bl|$rss_tm|$rss_bl|$cpu_tm|$cpu_bl|$same")
+    # Targets of the benchmark issue, checked on every input.
+    awk -v label="$label" -v tt="$best_tm" -v tb="$best_bl" -v rt="$rss_tm" -v rb="$rss_bl" -v L="$largest" 'BEGIN {
+        ok = 1
+        if (tb / tt < 1.5) { printf "bench: TARGET MISSED on %s: speed-up %.2fx < 1.5x\n", label, tb / tt; ok = 0 }
+        if (rt > 0.3 * L + 64e6) { printf "bench: TARGET MISSED on %s: tidemark peak RSS %.0f B > 0.3 B/base x %d + 64 MB\n", label, rt, L; ok = 0 }
+        if (rb < 8 * L) { printf "bench: NOTE on %s: baseline used %.1f B/base, less than the expected 8\n", label, rb / L }
+        exit !ok }' >&2 || FAILED=1
+    [ "$same" = yes ] || { log "calls differ between tidemark and the baseline on $label"; FAILED=1; }
+}
+
+for mbp in "${SIZES_MBP[@]}"; do
+    fasta=$DATA/synthetic-${mbp}M.fa
+    if [ ! -s "$fasta" ]; then
+        log "generating $fasta"
+        "$GEN" --length $((mbp * 1000000)) --seed "$mbp" -o "$fasta.tmp" && mv "$fasta.tmp" "$fasta"
+    fi
+    bench_input "synthetic ${mbp} Mbp" "$fasta" $((mbp * 1000000))
+done
+if [ $REAL -eq 1 ]; then
+    if [ -r "$CHRX" ]; then
+        bench_input "human chrX (GRCh37, gz)" "$CHRX"
+    else
+        log "skipping human chrX: $CHRX missing (scripts/install-deps.sh installs smalt-examples)"
+    fi
+fi
+
+# --- report ------------------------------------------------------------------------------
+declare -a ROWS=()
+for raw in "${RAW[@]}"; do
+    IFS='|' read -r label n L tt tb rt rb ct cb same <<<"$raw"
+    ROWS+=("$(awk -v label="$label" -v n="$n" -v L="$L" -v tt="$tt" -v tb="$tb" -v rt="$rt" -v rb="$rb" \
+                  -v ct="$ct" -v cb="$cb" -v same="$same" -v t0="$STARTUP" 'BEGIN {
+        printf "| %s | %.1f | %.2f | %.1f | %.1f | %.1f | %.0f | %.2f | %.2f | %.1f | %.1f | %.0f | %.1f | **%.2fx** | %s | %s |",
+            label, n / 1e6, tt, n / 1e6 / tt, tt / n * 1e9, (tt - t0) / n * 1e9, rt / 1048576, rt / L,
+            tb, n / 1e6 / tb, tb / n * 1e9, rb / 1048576, rb / L, tb / tt,
+            (ct > 0 ? sprintf("%.2fx", cb / ct) : "-"), same }')")
+done
+# Per-base time over the synthetic sizes, end to end and net of the start-up.
+flat=$(printf '%s\n' "${RAW[@]}" | awk -F'|' -v t0="$STARTUP" '$1 ~ /^synthetic/ {
+            r = $4 / $2 * 1e9; q = ($4 - t0) / $2 * 1e9
+            if (!k++) { lo = hi = r; nlo = nhi = q }
+            if (r < lo) lo = r; if (r > hi) hi = r; if (q < nlo) nlo = q; if (q > nhi) nhi = q }
+        END { printf "%.1f to %.1f ns/base end to end (max/min %.2f); %.1f to %.1f ns/base (max/min %.2f) net of the %.1f ms start-up",
+              lo, hi, hi / lo, nlo, nhi, nhi / nlo, t0 * 1e3 }')
+{
+    echo "### tidemark scan -p cpg-island vs. simple baseline (one thread)"
+    echo
+    echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//'),"\
+         "$(nproc) cores shared with other work; $(c++ --version | head -1);"\
+         "tidemark $("$TM" --version | awk '{print $2}') at $(git -C "$ROOT" describe --always --dirty 2>/dev/null || echo '?')."
+    echo "Fastest of $REPEATS runs (at least 5 below 50 Mbp), tidemark and baseline alternating;"\
+         "wall time end to end (read FASTA, decode, call, write BED)."
+    echo "'net ns/base' subtracts tidemark's start-up time (a one-base input timed beside every run, fastest)."\
+         "Peak RSS from GNU time; B/base = peak RSS / longest contig. 'CPU ratio' = baseline"\
+         "over tidemark user+system time (10 ms resolution), less sensitive to other load."
+    echo
+    echo "| input | Mbp | tidemark s | Mbp/s | ns/base | net ns/base | RSS MiB | B/base | baseline s | Mbp/s | ns/base | RSS MiB | B/base | speed-up | CPU ratio | same calls |"
+    echo "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|:-:|"
+    printf '%s\n' "${ROWS[@]}"
+    echo
+    echo "tidemark time per base over the synthetic sizes: $flat."
+    echo "Agreement with the baseline before timing:"
+    sed 's/^/- /' "$DATA/agreement.txt"
+    echo
+    echo "Command: scripts/bench.sh$([ $QUICK -eq 1 ] && echo ' --quick') --repeats $REPEATS$([ $REAL -eq 1 ] || echo ' --no-real')"
+} | tee "$RESULTS"
+log "table written to $RESULTS"
+[ $FAILED -eq 0 ] || { log "some targets were missed (see above)"; exit 1; }
