@@ -121,6 +121,7 @@ public:
                 throw InputError(fmt::format("{}: cannot read {}:{}-{} through the index",
                                              path_, r.contig, pos + 1, last + 1));
             }
+            codes_.resize(static_cast<size_t>(got));
             for (hts_pos_t k = 0; k < got; ++k) {
                 const unsigned char ch = static_cast<unsigned char>(seq[k]);
                 const uint8_t cls = classes[ch];
@@ -130,10 +131,11 @@ public:
                         "{}: record '{}': illegal character {} at position {}", path_,
                         r.contig, detail::describe_byte(ch), pos + k + 1));
                 }
-                contig.push(cls);
+                codes_[k] = cls;
                 contig.soft_masked += detail::is_lower_base(ch);
             }
             std::free(seq);
+            contig.append(codes_.data(), got);
         }
         return true;
     }
@@ -142,6 +144,7 @@ private:
     std::string path_;
     FaiPtr fai_;
     std::vector<Region> regions_;
+    std::vector<uint8_t> codes_;  ///< one fetched piece as base codes
     size_t next_ = 0;
 };
 
