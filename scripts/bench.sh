@@ -1,12 +1,13 @@
 #!/usr/bin/env bash
 # Benchmark: `tidemark scan -p cpg-island` to BED against a deliberately simple baseline decoder
 # (scripts/bench/baseline.cpp), both on one thread, on seeded synthetic genomes and on real
-# human chrX; prints a Markdown table and writes it to BUILD_DIR/bench-results.md.
+# human chrX; then tidemark's speed-up with 2 threads over 1 on many contigs and on one 100 Mbp
+# contig; prints Markdown tables and writes them to BUILD_DIR/bench-results.md.
 set -euo pipefail
 
 usage() {
     cat <<'EOF'
-usage: scripts/bench.sh [--quick] [--repeats N] [--build-dir DIR] [--no-real]
+usage: scripts/bench.sh [--quick] [--repeats N] [--build-dir DIR] [--no-real] [--threads-only]
 
 Builds tidemark (Release) and the benchmark helpers in DIR (default: build-bench at the top of
 the repository), checks on a small input that tidemark and the baseline agree (posteriors to
@@ -14,6 +15,10 @@ the repository), checks on a small input that tidemark and the baseline agree (p
 (one contig each; --quick stops at 50 Mbp) and on human chrX from Debian's smalt-examples
 (--no-real skips it). Each input runs N times (default 3, 2 with --quick; at least 5 below
 50 Mbp), tidemark and baseline alternating; the fastest run of each is reported.
+
+Threads: tidemark with --threads 1 and --threads 2 (alternating, N runs each, fastest kept) on
+100 contigs of 1 Mbp (decoded in parallel, one contig per thread) and on one contig of 100 Mbp
+(decoded in parallel segments); targets 1.8x and 1.5x. --threads-only runs only this part.
 EOF
 }
 
@@ -22,12 +27,14 @@ BUILD=$ROOT/build-bench
 QUICK=0
 REPEATS=""
 REAL=1
+THREADS_ONLY=0
 while [ $# -gt 0 ]; do
     case "$1" in
         --quick) QUICK=1 ;;
         --repeats) REPEATS=${2:?--repeats needs a number}; shift ;;
         --build-dir) BUILD=${2:?--build-dir needs a directory}; shift ;;
         --no-real) REAL=0 ;;
+        --threads-only) THREADS_ONLY=1 ;;
         -h|--help) usage; exit 0 ;;
         *) echo "bench: unknown argument '$1'" >&2; usage >&2; exit 2 ;;
     esac
@@ -62,7 +69,7 @@ mkdir -p "$DATA"
 # --- correctness first: the speed comparison means nothing if the answers differ -------------
 check() {  # name fasta
     local name=$1 fasta=$2 out=$DATA/check.$1
-    "$TM" scan -q -p cpg-island "$fasta" -o "$out.tm.bed" --posteriors "$out.tm" \
+    "$TM" scan -q -t 1 -p cpg-island "$fasta" -o "$out.tm.bed" --posteriors "$out.tm" \
         --posterior-digits 12 --summary "$out.tm.json"
     "$BL" --profile "$PROFILE_JSON" "$fasta" -o "$out.bl.bed" --posteriors "$out.bl.tsv" 2>"$out.bl.log"
     printf 'agreement on %s: ' "$name" >&2
@@ -72,6 +79,7 @@ check() {  # name fasta
         --tolerance 1e-9 | tee -a "$DATA/agreement.txt" >&2
 }
 : >"$DATA/agreement.txt"
+if [ $THREADS_ONLY -eq 0 ]; then
 # Three 100 kbp contigs with islands every ~20 kb and runs of N every ~40 kb, so that unknown
 # bases, contig starts and contexts broken by N are all exercised.
 "$GEN" --length 100000 --contigs 3 --seed 11 --island-spacing 20000 --gap-spacing 40000 \
@@ -79,6 +87,7 @@ check() {  # name fasta
 check synthetic "$DATA/check-synthetic.fa"
 LAMBDA=/usr/share/doc/bowtie2/examples/reference/lambda_virus.fa.gz
 [ -r "$LAMBDA" ] && check lambda "$LAMBDA"
+fi
 
 # --- timing ----------------------------------------------------------------------------------
 # run_timed OUT_PREFIX CMD...: writes "wall_seconds peak_rss_bytes cpu_seconds" to
@@ -105,7 +114,7 @@ run_timed() {
 printf '>one\nA\n' >"$DATA/one-base.fa"
 STARTUP=""
 time_startup() {
-    run_timed "$DATA/run.one" "$TM" scan -q -p cpg-island "$DATA/one-base.fa" -o "$DATA/run.one.bed" || exit 1
+    run_timed "$DATA/run.one" "$TM" scan -q -t 1 -p cpg-island "$DATA/one-base.fa" -o "$DATA/run.one.bed" || exit 1
     local wall rss cpu
     read -r wall rss cpu <"$DATA/run.one.result"
     if [ -z "$STARTUP" ] || awk "BEGIN{exit !($wall < $STARTUP)}"; then STARTUP=$wall; fi
@@ -120,7 +129,7 @@ bench_input() {  # label fasta bases(or empty: from the baseline's report)
     log "timing $label ($reps runs each)"
     for ((r = 1; r <= reps; r++)); do
         time_startup
-        run_timed "$DATA/run.tm" "$TM" scan -q -p cpg-island "$fasta" -o "$DATA/run.tm.bed" || exit 1
+        run_timed "$DATA/run.tm" "$TM" scan -q -t 1 -p cpg-island "$fasta" -o "$DATA/run.tm.bed" || exit 1
         read -r wall rss cpu <"$DATA/run.tm.result"
         if [ -z "$best_tm" ] || awk "BEGIN{exit !($wall < $best_tm)}"; then best_tm=$wall; cpu_tm=$cpu; fi
         if [ "$rss" -gt "$rss_tm" ]; then rss_tm=$rss; fi
@@ -148,6 +157,7 @@ bench_input() {  # label fasta bases(or empty: from the baseline's report)
     [ "$same" = yes ] || { log "calls differ between tidemark and the baseline on $label"; FAILED=1; }
 }
 
+[ $THREADS_ONLY -eq 1 ] && SIZES_MBP=() && REAL=0
 for mbp in "${SIZES_MBP[@]}"; do
     fasta=$DATA/synthetic-${mbp}M.fa
     if [ ! -s "$fasta" ]; then
@@ -164,6 +174,53 @@ if [ $REAL -eq 1 ]; then
     fi
 fi
 
+
+# --- threads: speed-up with 2 threads over 1, same outputs -------------------------------------
+declare -a TROWS=()
+bench_threads() {  # label fasta bases
+    local label=$1 fasta=$2 bases=$3 best1="" best2="" cpu1="" cpu2="" rss1=0 rss2=0
+    log "timing $label with 1 and 2 threads ($REPEATS runs each)"
+    for ((r = 1; r <= REPEATS; r++)); do
+        for t in 1 2; do
+            run_timed "$DATA/run.t$t" "$TM" scan -q -t $t -p cpg-island "$fasta" -o "$DATA/run.t$t.bed" \
+                --summary "$DATA/run.t$t.json" || exit 1
+            read -r wall rss cpu <"$DATA/run.t$t.result"
+            if [ $t = 1 ]; then
+                if [ -z "$best1" ] || awk "BEGIN{exit !($wall < $best1)}"; then best1=$wall; cpu1=$cpu; fi
+                [ "$rss" -gt "$rss1" ] && rss1=$rss
+            else
+                if [ -z "$best2" ] || awk "BEGIN{exit !($wall < $best2)}"; then best2=$wall; cpu2=$cpu; fi
+                [ "$rss" -gt "$rss2" ] && rss2=$rss
+            fi
+        done
+    done
+    local same=yes
+    # The recorded command lines name different output files; everything else must be equal.
+    local f
+    for f in bed json; do
+        cmp -s <(grep -v 'command' "$DATA/run.t1.$f") <(grep -v 'command' "$DATA/run.t2.$f") || same=NO
+    done
+    [ "$same" = yes ] || { log "outputs differ between 1 and 2 threads on $label"; FAILED=1; }
+    TROWS+=("$(awk -v label="$label" -v n="$bases" -v t1="$best1" -v t2="$best2" -v c1="$cpu1" -v c2="$cpu2" \
+                  -v r1="$rss1" -v r2="$rss2" -v same="$same" 'BEGIN {
+        printf "| %s | %.0f | %.2f | %.1f | %.2f | %.1f | %.0f | %.0f | %.2f | %.2f | **%.2fx** | %s |",
+            label, n / 1e6, t1, n / 1e6 / t1, t2, n / 1e6 / t2, r1 / 1048576, r2 / 1048576, c1, c2, t1 / t2, same }')")
+    awk -v label="$label" -v t1="$best1" -v t2="$best2" -v want="$4" 'BEGIN {
+        if (t1 / t2 < want) { printf "bench: TARGET MISSED on %s: 2-thread speed-up %.2fx < %.1fx\n", label, t1 / t2, want; exit 1 } }' >&2 || FAILED=1
+}
+MANY=$DATA/synthetic-100x1M.fa
+if [ ! -s "$MANY" ]; then
+    log "generating $MANY"
+    "$GEN" --length 1000000 --contigs 100 --seed 100 -o "$MANY.tmp" && mv "$MANY.tmp" "$MANY"
+fi
+ONE=$DATA/synthetic-100M.fa
+if [ ! -s "$ONE" ]; then
+    log "generating $ONE"
+    "$GEN" --length 100000000 --seed 101 -o "$ONE.tmp" && mv "$ONE.tmp" "$ONE"
+fi
+bench_threads "100 contigs x 1 Mbp" "$MANY" 100000000 1.8
+bench_threads "one contig, 100 Mbp" "$ONE" 100000000 1.5
+
 # --- report ------------------------------------------------------------------------------
 declare -a ROWS=()
 for raw in "${RAW[@]}"; do
@@ -176,13 +233,15 @@ for raw in "${RAW[@]}"; do
             (ct > 0 ? sprintf("%.2fx", cb / ct) : "-"), same }')")
 done
 # Per-base time over the synthetic sizes, end to end and net of the start-up.
-flat=$(printf '%s\n' "${RAW[@]}" | awk -F'|' -v t0="$STARTUP" '$1 ~ /^synthetic/ {
+flat=""
+[ ${#RAW[@]} -gt 0 ] && flat=$(printf '%s\n' "${RAW[@]}" | awk -F'|' -v t0="$STARTUP" '$1 ~ /^synthetic/ {
             r = $4 / $2 * 1e9; q = ($4 - t0) / $2 * 1e9
             if (!k++) { lo = hi = r; nlo = nhi = q }
             if (r < lo) lo = r; if (r > hi) hi = r; if (q < nlo) nlo = q; if (q > nhi) nhi = q }
         END { printf "%.1f to %.1f ns/base end to end (max/min %.2f); %.1f to %.1f ns/base (max/min %.2f) net of the %.1f ms start-up",
               lo, hi, hi / lo, nlo, nhi, nhi / nlo, t0 * 1e3 }')
 {
+if [ $THREADS_ONLY -eq 0 ]; then
     echo "### tidemark scan -p cpg-island vs. simple baseline (one thread)"
     echo
     echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//'),"\
@@ -202,7 +261,18 @@ flat=$(printf '%s\n' "${RAW[@]}" | awk -F'|' -v t0="$STARTUP" '$1 ~ /^synthetic/
     echo "Agreement with the baseline before timing:"
     sed 's/^/- /' "$DATA/agreement.txt"
     echo
-    echo "Command: scripts/bench.sh$([ $QUICK -eq 1 ] && echo ' --quick') --repeats $REPEATS$([ $REAL -eq 1 ] || echo ' --no-real')"
+    echo
+fi
+    echo "### tidemark scan -p cpg-island with 1 and 2 threads"
+    echo
+    echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(nproc) cores shared with other work. Fastest of $REPEATS runs each,"\
+         "1 and 2 threads alternating; BED and summary compared byte for byte ('same')."
+    echo
+    echo "| input | Mbp | 1 thread s | Mbp/s | 2 threads s | Mbp/s | RSS MiB (1) | RSS MiB (2) | CPU s (1) | CPU s (2) | speed-up | same |"
+    echo "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|:-:|"
+    printf '%s\n' "${TROWS[@]}"
+    echo
+    echo "Command: scripts/bench.sh$([ $QUICK -eq 1 ] && echo ' --quick') --repeats $REPEATS$([ $REAL -eq 1 ] || echo ' --no-real')$([ $THREADS_ONLY -eq 1 ] && echo ' --threads-only')"
 } | tee "$RESULTS"
 log "table written to $RESULTS"
 [ $FAILED -eq 0 ] || { log "some targets were missed (see above)"; exit 1; }

@@ -16,6 +16,8 @@ packages=(
   bowtie2-examples smalt-examples
   # benchmarks (scripts/bench.sh, scripts/bench-fit.sh: wall time and peak RSS)
   time
+  # scale-out workflow (scripts/workflow/Snakefile) and its test (CTest label workflow)
+  snakemake
 )
 
 missing=()

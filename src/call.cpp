@@ -34,26 +34,103 @@ IntervalCaller::IntervalCaller(const Model& model, CallOptions options)
 
 void IntervalCaller::begin_contig(const Contig& contig) {
     contig_ = &contig;
+    ended_ = false;
     calls_.clear();
-    open_.assign(reported_.size(), Open{});
+    lanes_.assign(reported_.size(), Lane{});
 }
 
-void IntervalCaller::close(Open& open, int region) {
-    if (!open.active) return;
-    open.active = false;
-    const int64_t length = open.end - open.begin;
+std::unique_ptr<DecodeSink> IntervalCaller::fork() const {
+    return std::make_unique<IntervalCaller>(model_, options_);
+}
+
+void IntervalCaller::finish(const Group& g, int region) {
+    const int64_t length = g.end - g.begin;
     if (length < options_.min_length) return;
     Call call;
-    call.begin = open.begin;
-    call.end = open.end;
+    call.begin = g.begin;
+    call.end = g.end;
     call.region = region;
-    call.mean_posterior = open.sum / static_cast<double>(length);
-    call.min_posterior = open.min;
-    call.core_begin = open.core_begin < 0 ? open.begin : open.core_begin;
-    call.core_end = open.core_begin < 0 ? open.begin : open.core_end;
+    call.mean_posterior = g.sum / static_cast<double>(length);
+    call.min_posterior = g.min;
+    call.core_begin = g.core_begin < 0 ? g.begin : g.core_begin;
+    call.core_end = g.core_begin < 0 ? g.begin : g.core_end;
     call.composition = composition(*contig_, call.begin, call.end);
     if (!meets_island_criteria(options_.criteria, length, call.composition)) return;
     calls_.push_back(call);
+}
+
+void IntervalCaller::close(Lane& lane, int region) {
+    if (!lane.active) return;
+    lane.active = false;
+    if (!lane.has_first) {  // the span's first group may still merge with an earlier span
+        lane.has_first = true;
+        lane.first = lane.open;
+        return;
+    }
+    finish(lane.open, region);
+}
+
+void IntervalCaller::join(DecodeSink& later) {
+    auto* other = dynamic_cast<IntervalCaller*>(&later);
+    if (!other) throw InternalError("IntervalCaller::join: not a fork of an IntervalCaller");
+    if (other->ended_ || !contig_ || ended_) {  // a whole later contig
+        calls_ = std::move(other->calls_);
+        lanes_ = std::move(other->lanes_);
+        contig_ = other->contig_;
+        ended_ = other->ended_;
+        return;
+    }
+    const int64_t gap_limit = std::max<int64_t>(options_.merge_gap, 1);
+    for (size_t k = 0; k < reported_.size(); ++k) {
+        const int region = reported_[k];
+        Lane& a = lanes_[k];
+        Lane& b = other->lanes_[k];
+        if (!b.seen) {  // the later span is all gap
+            if (!a.seen) {
+                a.lead_sum += b.lead_sum;
+                a.lead_min = std::min(a.lead_min, b.lead_min);
+            } else if (a.active) {
+                a.gap_sum += b.lead_sum;
+                a.gap_min = std::min(a.gap_min, b.lead_min);
+            }
+            continue;
+        }
+        if (!a.seen) {
+            b.lead_sum += a.lead_sum;
+            b.lead_min = std::min(a.lead_min, b.lead_min);
+            a = b;
+            continue;
+        }
+        // b's first group: closed and kept, or still open.
+        Group first = b.has_first ? b.first : b.open;
+        if (a.active && first.begin - a.open.end < gap_limit) {
+            Group& g = a.open;
+            g.sum += a.gap_sum + b.lead_sum;
+            g.sum += first.sum;
+            g.min = std::min({g.min, a.gap_min, b.lead_min, first.min});
+            if (g.core_begin < 0) g.core_begin = first.core_begin;
+            if (first.core_begin >= 0) g.core_end = first.core_end;
+            g.end = first.end;
+            if (b.has_first) {  // more groups follow in b: the merged one is closed
+                close(a, region);
+                a.active = b.active;
+                a.open = b.open;
+                a.gap_sum = b.gap_sum;
+                a.gap_min = b.gap_min;
+            } else {
+                a.gap_sum = b.gap_sum;
+                a.gap_min = b.gap_min;
+            }
+        } else {
+            close(a, region);
+            if (b.has_first) finish(b.first, region);
+            a.active = b.active;
+            a.open = b.open;
+            a.gap_sum = b.gap_sum;
+            a.gap_min = b.gap_min;
+        }
+    }
+    calls_.insert(calls_.end(), other->calls_.begin(), other->calls_.end());
 }
 
 void IntervalCaller::block(const BlockView& view) {
@@ -62,12 +139,24 @@ void IntervalCaller::block(const BlockView& view) {
     const int64_t gap_limit = std::max<int64_t>(options_.merge_gap, 1);
     for (size_t k = 0; k < reported_.size(); ++k) {
         const int region = reported_[k];
-        Open& open = open_[k];
+        Lane& lane = lanes_[k];
+        Group& open = lane.open;
         // Instantiated twice: the usual one-state region reads its column directly; otherwise
         // the region's states are summed in index order.
         const auto scan = [&](auto posterior_at) {
-            for (int64_t t = 0; t < view.size; ++t) {
-                if (!open.active) {
+            int64_t t = 0;
+            if (!lane.seen) {  // before the span's first run: only the lead's sum and minimum
+                for (; t < view.size; ++t) {
+                    const double p = posterior_at(t);
+                    if (p >= threshold) break;
+                    lane.lead_sum += p;
+                    lane.lead_min = std::min(lane.lead_min, p);
+                }
+                if (t == view.size) return;
+                lane.seen = true;
+            }
+            for (; t < view.size; ++t) {
+                if (!lane.active) {
                     // Nothing open: only a base at or above the threshold changes anything.
                     while (t < view.size && posterior_at(t) < threshold) ++t;
                     if (t == view.size) break;
@@ -75,13 +164,13 @@ void IntervalCaller::block(const BlockView& view) {
                 const double p = posterior_at(t);
                 const int64_t pos = view.begin + t;
                 if (p >= threshold) {
-                    if (open.active && pos - open.end < gap_limit) {
+                    if (lane.active && pos - open.end < gap_limit) {
                         // extend; after a short gap the gap's bases become part of the call
-                        open.sum += open.gap_sum;
-                        open.min = std::min(open.min, open.gap_min);
+                        open.sum += lane.gap_sum;
+                        open.min = std::min(open.min, lane.gap_min);
                     } else {
-                        close(open, region);
-                        open.active = true;
+                        close(lane, region);
+                        lane.active = true;
                         open.begin = pos;
                         open.sum = 0;
                         open.min = 1;
@@ -94,13 +183,13 @@ void IntervalCaller::block(const BlockView& view) {
                         if (open.core_begin < 0) open.core_begin = pos;
                         open.core_end = pos + 1;
                     }
-                    open.gap_sum = 0;
-                    open.gap_min = 1;
+                    lane.gap_sum = 0;
+                    lane.gap_min = 1;
                 } else if (pos - open.end + 1 >= options_.merge_gap) {
-                    close(open, region);  // the gap is already too long to be merged
+                    close(lane, region);  // the gap is already too long to be merged
                 } else {
-                    open.gap_sum += p;
-                    open.gap_min = std::min(open.gap_min, p);
+                    lane.gap_sum += p;
+                    lane.gap_min = std::min(lane.gap_min, p);
                 }
             }
         };
@@ -127,7 +216,13 @@ void IntervalCaller::block(const BlockView& view) {
 }
 
 void IntervalCaller::end_contig(const Contig&, const DecodeResult&) {
-    for (size_t k = 0; k < reported_.size(); ++k) close(open_[k], reported_[k]);
+    for (size_t k = 0; k < reported_.size(); ++k) {
+        Lane& lane = lanes_[k];
+        close(lane, reported_[k]);
+        if (lane.has_first) finish(lane.first, reported_[k]);
+        lane = Lane{};
+    }
+    ended_ = true;
     std::sort(calls_.begin(), calls_.end(), [](const Call& a, const Call& b) {
         if (a.begin != b.begin) return a.begin < b.begin;
         if (a.end != b.end) return a.end < b.end;

@@ -8,8 +8,12 @@
 #include <bit>
 #include <cmath>
 #include <cstring>
+#include <deque>
+#include <functional>
+#include <future>
 #include <limits>
 
+#include "thread_pool.hpp"
 #include "tidemark/error.hpp"
 
 namespace tidemark {
@@ -141,6 +145,23 @@ void SinkFanout::block(const BlockView& v) {
 void SinkFanout::end_contig(const Contig& c, const DecodeResult& r) {
     for (auto* s : sinks_) s->end_contig(c, r);
 }
+std::unique_ptr<DecodeSink> SinkFanout::fork() const {
+    std::vector<std::unique_ptr<DecodeSink>> forks;
+    std::vector<DecodeSink*> raw;
+    for (auto* s : sinks_) {
+        forks.push_back(s->fork());
+        if (!forks.back()) return nullptr;
+        raw.push_back(forks.back().get());
+    }
+    auto out = std::make_unique<SinkFanout>(std::move(raw));
+    out->owned_ = std::move(forks);
+    return out;
+}
+void SinkFanout::join(DecodeSink& later) {
+    auto* other = dynamic_cast<SinkFanout*>(&later);
+    if (!other || other->sinks_.size() != sinks_.size()) throw InternalError("SinkFanout::join: not a fork of this fanout");
+    for (size_t i = 0; i < sinks_.size(); ++i) sinks_[i]->join(*other->sinks_[i]);
+}
 
 std::vector<double> build_fast_emission_table(const Model& m) {
     const size_t contexts = size_t{1} << (2 * m.max_order);
@@ -229,6 +250,46 @@ std::vector<double> build_decoder_table(const Model& m) {
     return table;
 }
 
+// Table rows (TableLayout) and base codes of positions [start, start+n): one table row per
+// position from the rolling context. Inlined so that each sweep keeps its own tight copy.
+[[gnu::always_inline]] inline void fill_rows_of(const Model& m, const Contig& contig, const TableLayout& layout,
+                                                int64_t start, int64_t n, uint8_t* bases, uint32_t* rows) {
+    const int K = m.max_order;
+    const uint32_t mask = (1u << (2 * K)) - 1;
+    uint32_t ctx = 0;
+    int valid = 0;
+    const auto roll = [&](uint8_t b) {
+        if (b == base_unknown) {
+            ctx = 0;
+            valid = 0;
+        } else {
+            ctx = ((ctx << 2) | b) & mask;
+            valid += valid < K;
+        }
+    };
+    const int64_t look = std::min<int64_t>(K, start);
+    uint8_t before[max_emission_order];
+    contig.unpack(start - look, look, before);
+    for (int64_t k = 0; k < look; ++k) roll(before[k]);
+    contig.unpack(start, n, bases);
+    if (valid == K && !has_unknown(contig, start, start + n)) {
+        const uint32_t window = (4u << (2 * K)) - 1;
+        uint32_t row = ctx;
+        for (int64_t t = 0; t < n; ++t) rows[t] = row = ((row << 2) | bases[t]) & window;
+        return;
+    }
+    for (int64_t t = 0; t < n; ++t) {
+        const uint8_t b = bases[t];
+        if (b != base_unknown && valid >= K) {
+            rows[t] = (ctx << 2) | b;
+            ctx = rows[t] & mask;
+        } else {
+            rows[t] = b == base_unknown ? layout.unknown : layout.partial[valid] + ctx * 4 + b;
+            roll(b);
+        }
+    }
+}
+
 // Models with up to this many states get a decoder compiled for their size (PosteriorDecoder::run).
 constexpr int max_fixed_states = 6;
 
@@ -266,13 +327,44 @@ struct Vec<0> {
 
 }  // namespace
 
+// Segments hold whole blocks except at their ends; 16 blocks make the matrix checkpoints and
+// the per-segment scheduling negligible next to the work.
+constexpr int64_t blocks_per_segment = 16;
+
+namespace {
+int64_t choose_segment(const Model& m, int64_t block, const DecoderOptions& o) {
+    if (o.segment_size < 0 || m.states > max_fixed_states) return 0;
+    const int64_t multiple = std::max<int64_t>(1, o.segment_multiple);
+    // At least 64 Ki positions: tiny --block values must not make millions of segments (each
+    // has its own sink forks).
+    const int64_t want = o.segment_size > 0 ? o.segment_size
+                                            : std::max<int64_t>(blocks_per_segment * block, int64_t{1} << 16);
+    return (want + multiple - 1) / multiple * multiple;
+}
+
+}  // namespace
+
 PosteriorDecoder::PosteriorDecoder(const Model& model, DecoderOptions options)
     : model_(model), block_(choose_block(model, options.block_size)),
+      segment_(choose_segment(model, block_, options)),
       fast_emission_(build_decoder_table(model)),
       folded_(model.states <= max_fixed_states ? fold_transitions(model, fast_emission_)
-                                               : std::vector<double>{}) {}
+                                               : std::vector<double>{}) {
+    if (fast_emission_.empty() || folded_.empty()) segment_ = 0;
+}
 
-DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink) {
+DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink, TaskPool* pool) {
+    if (splits(contig.length) && sink.fork()) {
+        switch (model_.states) {
+            case 1: return run_segmented<1>(contig, sink, pool);
+            case 2: return run_segmented<2>(contig, sink, pool);
+            case 3: return run_segmented<3>(contig, sink, pool);
+            case 4: return run_segmented<4>(contig, sink, pool);
+            case 5: return run_segmented<5>(contig, sink, pool);
+            case 6: return run_segmented<6>(contig, sink, pool);
+            default: break;
+        }
+    }
     switch (model_.states) {
         case 1: return run_fixed<1>(contig, sink);
         case 2: return run_fixed<2>(contig, sink);
@@ -324,47 +416,10 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     if (Fixed > 0 && (!table || !folded))
         throw InternalError("decoder: emission table missing for a small model");
     const TableLayout layout(m.max_order);
-    const int K = m.max_order;
-    const uint32_t mask = (1u << (2 * K)) - 1;
 
-    // Rows of block [start, start+n) into rows_, bases into bases_: one table row per position
-    // from the rolling context.
-    const auto fill_rows = [&](int64_t start, int64_t n) {
-        uint32_t ctx = 0;
-        int valid = 0;
-        const auto roll = [&](uint8_t b) {
-            if (b == base_unknown) {
-                ctx = 0;
-                valid = 0;
-            } else {
-                ctx = ((ctx << 2) | b) & mask;
-                valid += valid < K;
-            }
-        };
-        const int64_t look = std::min<int64_t>(K, start);
-        uint8_t before[max_emission_order];
-        contig.unpack(start - look, look, before);
-        for (int64_t k = 0; k < look; ++k) roll(before[k]);
-        contig.unpack(start, n, bases_.data());
-        const uint8_t* bases = bases_.data();
-        uint32_t* rows = rows_.data();
-        if (valid == K && !has_unknown(contig, start, start + n)) {
-            // The usual block: every context is full, and the row is the last K+1 bases.
-            const uint32_t window = (4u << (2 * K)) - 1;
-            uint32_t row = ctx;
-            for (int64_t t = 0; t < n; ++t) rows[t] = row = ((row << 2) | bases[t]) & window;
-            return;
-        }
-        for (int64_t t = 0; t < n; ++t) {
-            const uint8_t b = bases[t];
-            if (b != base_unknown && valid >= K) {
-                rows[t] = (ctx << 2) | b;
-                ctx = rows[t] & mask;
-            } else {
-                rows[t] = b == base_unknown ? layout.unknown : layout.partial[valid] + ctx * 4 + b;
-                roll(b);
-            }
-        }
+    // Rows of block [start, start+n) into rows_, bases into bases_ (a shared function).
+    const auto fill_rows = [this, &m, &contig, &layout](int64_t start, int64_t n) {
+        fill_rows_of(m, contig, layout, start, n, bases_.data(), rows_.data());
     };
     // Emissions of the block (for the generic recursions and for the sinks).
     const auto fill_block = [&](int64_t start, int64_t n) {
@@ -541,6 +596,414 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     return result;
 }
 
+// ---------------------------------------------------------------------------------------------
+// Segmented decoding of long contigs (see decode.hpp): matrix sweeps per segment, a sequential
+// chaining of boundary vectors, then independent forward sweeps per segment into sink forks.
+
+struct PosteriorDecoder::Workspace {
+    std::vector<uint8_t> bases;
+    std::vector<uint32_t> rows;
+    std::vector<double> emission, forward, backward, posterior;
+    void size(int64_t B, int S) {
+        const size_t BS = static_cast<size_t>(B) * S;
+        bases.resize(B);
+        rows.resize(B);
+        emission.resize(BS);
+        forward.resize(BS);
+        backward.resize(BS);
+        posterior.resize(BS);
+    }
+};
+
+PosteriorDecoder::~PosteriorDecoder() = default;
+
+namespace {
+
+// What the matrix sweep and the chaining know about one segment [begin, end).
+struct Segment {
+    int64_t begin = 0, end = 0;
+    std::vector<double> marks;  ///< per block: the S x S matrix at the block's last position
+    std::vector<double> product;  ///< F_begin M_begin (segment 0: the row (pi * e_0) M_0)
+    int64_t product_exponent = 0;  ///< product's true value is product * 2^exponent
+    std::vector<double> end_vector;  ///< scaled backward vector at end - 1
+    std::vector<double> before;      ///< scaled forward vector at begin - 1 (segments > 0)
+    int64_t before_exponent = 0;
+    double last_sum = 0;             ///< the forward sweep's last sum and exponent
+    int64_t exponent = 0;
+};
+
+// Multiplies a matrix (or vector, n entries) by the power of two that brings `sum` into
+// [0.5, 1); returns the exponent removed.
+inline int rescale_n(double* v, int n, double sum) {
+    const int e = exponent_of(sum);
+    const double f = pow2(-e);
+    for (int i = 0; i < n; ++i) v[i] *= f;
+    return e;
+}
+
+
+// M = F_row M for each row of rows[0..count) in turn (the matrix sweep's step); returns the
+// exponent removed by rescaling. M is row-major S x S; its columns are independent vector
+// recursions, so a step costs about as much time as one vector step of the sequential sweep.
+// Sets failed = 0 when the matrix becomes all zero (the contig is impossible).
+template <int S>
+inline int64_t matrix_steps(const double* folded, const uint32_t* rows, int64_t count, double* M,
+                            int64_t& failed) {
+    constexpr int SS = S * S;
+    double W[SS];
+    for (int q = 0; q < SS; ++q) W[q] = M[q];
+    int64_t exponent = 0;
+    for (int64_t k = 0; k < count; ++k) {
+        const double* F = folded + static_cast<size_t>(rows[k]) * SS;
+        double T[SS];
+        for (int i = 0; i < S; ++i)
+            for (int c = 0; c < S; ++c) {
+                double acc = F[i * S] * W[c];
+                for (int j = 1; j < S; ++j) acc += F[i * S + j] * W[j * S + c];
+                T[i * S + c] = acc;
+            }
+        double s = T[0];
+        for (int q = 1; q < SS; ++q) s += T[q];
+        if (!(s > 0)) {
+            failed = 0;
+            break;
+        }
+        if (s < rescale_below) {
+            const int e = exponent_of(s);
+            const double f = pow2(-e);
+            for (int q = 0; q < SS; ++q) T[q] *= f;
+            exponent += e;
+        }
+        for (int q = 0; q < SS; ++q) W[q] = T[q];
+    }
+    for (int q = 0; q < SS; ++q) M[q] = W[q];
+    return exponent;
+}
+
+// The steps of one block: M_t = F_{rows[t+1]} M_{t+1} for t = n-2 down to 0. On failure,
+// failed = the position (in the block) whose row made the matrix zero.
+template <int S>
+inline int64_t matrix_steps_back(const double* folded, const uint32_t* rows, int64_t n, double* M,
+                                 int64_t& failed) {
+    constexpr int SS = S * S;
+    double W[SS];
+    for (int q = 0; q < SS; ++q) W[q] = M[q];
+    int64_t exponent = 0;
+    for (int64_t t = n - 2; t >= 0; --t) {
+        const double* F = folded + static_cast<size_t>(rows[t + 1]) * SS;
+        double T[SS];
+        for (int i = 0; i < S; ++i)
+            for (int c = 0; c < S; ++c) {
+                double acc = F[i * S] * W[c];
+                for (int j = 1; j < S; ++j) acc += F[i * S + j] * W[j * S + c];
+                T[i * S + c] = acc;
+            }
+        double s = T[0];
+        for (int q = 1; q < SS; ++q) s += T[q];
+        if (!(s > 0)) {
+            failed = t + 1;
+            break;
+        }
+        if (s < rescale_below) {
+            const int e = exponent_of(s);
+            const double f = pow2(-e);
+            for (int q = 0; q < SS; ++q) T[q] *= f;
+            exponent += e;
+        }
+        for (int q = 0; q < SS; ++q) W[q] = T[q];
+    }
+    for (int q = 0; q < SS; ++q) M[q] = W[q];
+    return exponent;
+}
+
+}  // namespace
+
+bool PosteriorDecoder::splits(int64_t length) const { return segment_ > 0 && length > segment_; }
+
+template <int Fixed>
+DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool) {
+    static_assert(Fixed > 0, "segmented decoding needs a compile-time state count");
+    constexpr int S = Fixed;
+    constexpr int SS = S * S;
+    const Model& m = model_;
+    const int64_t N = contig.length;
+    const int64_t B = std::min(block_, segment_);
+    const TableLayout layout(m.max_order);
+    const double* table = fast_emission_.data();
+    const double* folded = folded_.data();
+    if (fast_emission_.empty() || folded_.empty())
+        throw InternalError("decoder: emission table missing for a small model");
+    DecodeResult result;
+    sink.begin_contig(contig);
+
+    const int workers = pool ? pool->threads() : 1;
+    while (static_cast<int>(workspaces_.size()) < workers) workspaces_.push_back(std::make_unique<Workspace>());
+    for (auto& w : workspaces_) w->size(B, S);
+    std::vector<Segment> segs(static_cast<size_t>((N + segment_ - 1) / segment_));
+    for (size_t k = 0; k < segs.size(); ++k) {
+        segs[k].begin = static_cast<int64_t>(k) * segment_;
+        segs[k].end = std::min(N, segs[k].begin + segment_);
+    }
+    // Runs task(k, workspace) for every segment, in parallel when there is a pool; waits for
+    // all of them, then rethrows the first failure in segment order.
+    const auto for_segments = [&](const std::function<void(size_t, Workspace&)>& task) {
+        if (!pool) {
+            for (size_t k = 0; k < segs.size(); ++k) task(k, *workspaces_[0]);
+            return;
+        }
+        std::vector<std::future<void>> done;
+        for (size_t k = 0; k < segs.size(); ++k)
+            done.push_back(pool->submit([&, k](int w) { task(k, *workspaces_[static_cast<size_t>(w)]); }));
+        for (auto& f : done) f.wait();
+        for (auto& f : done) f.get();
+    };
+
+    // (a) Matrix sweep per segment: M = I at the segment's last position, M_t = F_{t+1} M_{t+1}.
+    for_segments([&](size_t k, Workspace& ws) {
+        Segment& sg = segs[k];
+        const int64_t n_seg = sg.end - sg.begin;
+        const int64_t nb = (n_seg + B - 1) / B;
+        sg.marks.assign(static_cast<size_t>(nb) * SS, 0.0);
+        double M[SS];
+        int64_t mexp = 0;
+        uint32_t next_row = 0;
+        for (int64_t j = nb - 1; j >= 0; --j) {
+            const int64_t start = sg.begin + j * B;
+            const int64_t n = std::min(B, sg.end - start);
+            fill_rows_of(m, contig, layout, start, n, ws.bases.data(), ws.rows.data());
+            const uint32_t* rows = ws.rows.data();
+            if (j == nb - 1) {
+                for (int q = 0; q < SS; ++q) M[q] = 0.0;
+                for (int i = 0; i < S; ++i) M[i * S + i] = 1.0;
+            } else {
+                int64_t failed = -1;
+                mexp += matrix_steps<S>(folded, &next_row, 1, M, failed);
+                if (failed >= 0) impossible(m, contig, start + n);
+            }
+            std::copy(M, M + SS, sg.marks.begin() + j * SS);
+            if (n >= 2) {
+                int64_t failed = -1;
+                // rows[n-1], ..., rows[1]: the steps to positions n-2, ..., 0
+                mexp += matrix_steps_back<S>(folded, rows, n, M, failed);
+                if (failed >= 0) impossible(m, contig, start + failed);
+            }
+            next_row = rows[0];
+        }
+        const auto step = [&](uint32_t row, int64_t pos) {
+            int64_t failed = -1;
+            mexp += matrix_steps<S>(folded, &row, 1, M, failed);
+            if (failed >= 0) impossible(m, contig, pos);
+        };
+        if (sg.begin == 0) {  // the row vector (pi * e_0) M_0
+            const double* e = table + static_cast<size_t>(next_row) * S;
+            sg.product.assign(S, 0.0);
+            for (int c = 0; c < S; ++c) {
+                double acc = m.initial[0] * e[0] * M[c];
+                for (int i = 1; i < S; ++i) acc += m.initial[i] * e[i] * M[i * S + c];
+                sg.product[c] = acc;
+            }
+            sg.product_exponent = mexp;
+        } else {  // F_begin M_begin
+            step(next_row, sg.begin);
+            sg.product.assign(M, M + SS);
+            sg.product_exponent = mexp;
+        }
+    });
+
+    // (b) Chaining: backward vectors at segment ends from the contig end, forward vectors before
+    // segment starts from the initial distribution.
+    const size_t K = segs.size();
+    segs[K - 1].end_vector.assign(S, 1.0);
+    for (size_t k = K - 1; k-- > 0;) {
+        const std::vector<double>& P = segs[k + 1].product;
+        const std::vector<double>& b = segs[k + 1].end_vector;
+        std::vector<double> v(S);
+        double s = 0;
+        for (int i = 0; i < S; ++i) {
+            double acc = P[i * S] * b[0];
+            for (int c = 1; c < S; ++c) acc += P[i * S + c] * b[c];
+            v[i] = acc;
+            s += acc;
+        }
+        if (!(s > 0)) impossible(m, contig, segs[k + 1].begin);
+        if (s < rescale_below) rescale_n(v.data(), S, s);
+        segs[k].end_vector = std::move(v);
+    }
+    {
+        std::vector<double> a = segs[0].product;
+        int64_t aexp = segs[0].product_exponent;
+        for (size_t k = 1; k < K; ++k) {
+            if (k > 1) {
+                const std::vector<double>& P = segs[k - 1].product;
+                std::vector<double> v(S);
+                for (int c = 0; c < S; ++c) {
+                    double acc = a[0] * P[c];
+                    for (int i = 1; i < S; ++i) acc += a[i] * P[i * S + c];
+                    v[c] = acc;
+                }
+                a = std::move(v);
+                aexp += segs[k - 1].product_exponent;
+            }
+            const double s = sum_of(a.data(), S);
+            if (!(s > 0)) impossible(m, contig, segs[k].begin - 1);
+            if (s < rescale_below) aexp += rescale_n(a.data(), S, s);
+            segs[k].before = a;
+            segs[k].before_exponent = aexp;
+        }
+    }
+
+    // (c) Forward sweep per segment with backward recomputation inside each block, into a fork.
+    const auto sweep = [&](size_t k, Workspace& ws, DecodeSink& out) {
+        Segment& sg = segs[k];
+        const int64_t nb = (sg.end - sg.begin + B - 1) / B;
+        std::array<double, S> fp{}, x{}, bn{}, gg{}, before{};
+        int64_t exponent = sg.before_exponent;
+        double last_sum = 0;
+        if (k > 0) std::copy(sg.before.begin(), sg.before.end(), fp.begin());
+        for (int64_t j = 0; j < nb; ++j) {
+            const int64_t start = sg.begin + j * B;
+            const int64_t n = std::min(B, sg.end - start);
+            fill_rows_of(m, contig, layout, start, n, ws.bases.data(), ws.rows.data());
+            const uint32_t* rows = ws.rows.data();
+            double* em = ws.emission.data();
+            for (int64_t t = 0; t < n; ++t) {
+                const double* src = table + static_cast<size_t>(rows[t]) * S;
+                for (int s2 = 0; s2 < S; ++s2) em[t * S + s2] = src[s2];
+            }
+            double* bw = ws.backward.data();
+            double* fw = ws.forward.data();
+            {  // checkpoint: the block-end matrix times the segment's end vector
+                const double* Mj = sg.marks.data() + j * SS;
+                const double* e = sg.end_vector.data();
+                double* c = bw + (n - 1) * S;
+                for (int i = 0; i < S; ++i) {
+                    double acc = Mj[i * S] * e[0];
+                    for (int c2 = 1; c2 < S; ++c2) acc += Mj[i * S + c2] * e[c2];
+                    c[i] = acc;
+                }
+                const double s = sum_of(c, S);
+                if (!(s > 0)) impossible(m, contig, start + n - 1);
+                if (s < rescale_below) rescale(c, S, s);
+                copy_vec(c, S, bn.data());
+            }
+            copy_vec(fp.data(), S, before.data());
+            const auto forward_at = [&](int64_t t) {
+                const int64_t pos = start + t;
+                if (pos == 0) {
+                    const double* e = em + t * S;
+                    for (int i = 0; i < S; ++i) x[i] = m.initial[i] * e[i];
+                } else {
+                    const double* F = folded + static_cast<size_t>(rows[t]) * SS;
+                    for (int c = 0; c < S; ++c) x[c] = fp[0] * F[c];
+                    for (int i = 1; i < S; ++i)
+                        for (int c = 0; c < S; ++c) x[c] += fp[i] * F[i * S + c];
+                }
+                double s = sum_of(x.data(), S);
+                if (!(s > 0)) impossible(m, contig, pos);
+                if (s < rescale_below) {
+                    exponent += rescale(x.data(), S, s);
+                    s = sum_of(x.data(), S);
+                }
+                last_sum = s;
+                double* f = fw + t * S;
+                for (int i = 0; i < S; ++i) f[i] = fp[i] = x[i];
+            };
+            const auto backward_at = [&](int64_t u) {  // from bn = backward at u + 1
+                const double* F = folded + static_cast<size_t>(rows[u + 1]) * SS;
+                for (int i = 0; i < S; ++i) {
+                    double acc = F[i * S] * bn[0];
+                    for (int c = 1; c < S; ++c) acc += F[i * S + c] * bn[c];
+                    gg[i] = acc;
+                }
+                copy_vec(gg.data(), S, bn.data());
+                const double s = sum_of(bn.data(), S);
+                if (s < rescale_below) rescale(bn.data(), S, s);
+                copy_vec(bn.data(), S, bw + u * S);
+            };
+            const auto posterior_at = [&](int64_t t) {
+                const double* f = fw + t * S;
+                const double* b = bw + t * S;
+                double* p = ws.posterior.data() + t * S;
+                double dot = f[0] * b[0];
+                for (int i = 1; i < S; ++i) dot += f[i] * b[i];
+                if (!(dot > 0)) impossible(m, contig, start + t);
+                const double inv = 1.0 / dot;
+                for (int i = 0; i < S; ++i) p[i] = f[i] * b[i] * inv;
+            };
+            int64_t i = 0;
+            for (; i < n && 2 * i < n - 2; ++i) {
+                forward_at(i);
+                backward_at(n - 2 - i);
+            }
+            for (; i < n; ++i) {
+                forward_at(i);
+                const int64_t u = n - 2 - i;
+                if (u >= 0) backward_at(u);
+                posterior_at(i);
+                if (u >= 0 && u != i) posterior_at(u);
+            }
+            BlockView view;
+            view.begin = start;
+            view.size = n;
+            view.states = S;
+            view.bases = ws.bases.data();
+            view.posterior = ws.posterior.data();
+            view.forward = fw;
+            view.backward = bw;
+            view.emission = em;
+            view.forward_before = start == 0 ? nullptr : before.data();
+            out.block(view);
+        }
+        sg.last_sum = last_sum;
+        sg.exponent = exponent;
+    };
+    // At most workers + 1 forks hold results at once; they are joined in order.
+    struct Pending {
+        std::unique_ptr<DecodeSink> fork;
+        std::future<void> done;
+    };
+    std::deque<Pending> window;
+    const auto wait_all = [&] {
+        for (auto& p : window)
+            if (p.done.valid()) p.done.wait();
+    };
+    try {
+        for (size_t k = 0; k < K; ++k) {
+            while (window.size() > static_cast<size_t>(workers)) {
+                window.front().done.get();
+                sink.join(*window.front().fork);
+                window.pop_front();
+            }
+            Pending p;
+            p.fork = sink.fork();
+            if (!p.fork) throw InternalError("decoder: a sink stopped being forkable");
+            p.fork->begin_contig(contig);
+            DecodeSink* out = p.fork.get();
+            if (pool) {
+                p.done = pool->submit([&, k, out](int w) { sweep(k, *workspaces_[static_cast<size_t>(w)], *out); });
+            } else {
+                std::promise<void> ready;
+                sweep(k, *workspaces_[0], *out);
+                ready.set_value();
+                p.done = ready.get_future();
+            }
+            window.push_back(std::move(p));
+        }
+        while (!window.empty()) {
+            window.front().done.get();
+            sink.join(*window.front().fork);
+            window.pop_front();
+        }
+    } catch (...) {
+        wait_all();  // tasks still running use this frame's data
+        throw;
+    }
+    const Segment& last = segs[K - 1];
+    result.log_likelihood = std::log(last.last_sum) + static_cast<double>(last.exponent) * ln2;
+    sink.end_contig(contig, result);
+    return result;
+}
+
 ViterbiDecoder::ViterbiDecoder(const Model& model, DecoderOptions options)
     : model_(model), block_(choose_block(model, options.block_size)),
       fast_emission_(build_fast_emission_table(model)) {}
@@ -559,6 +1022,12 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
     std::vector<double> log_a(m.transitions.size()), log_pi(S);
     for (size_t i = 0; i < log_a.size(); ++i) log_a[i] = m.transitions[i] > 0 ? std::log(m.transitions[i]) : neg_inf;
     for (int i = 0; i < S; ++i) log_pi[i] = m.initial[i] > 0 ? std::log(m.initial[i]) : neg_inf;
+    // Sparse models (duration chains) read only the non-zero incoming transitions: linear
+    // instead of quadratic in the chain length. The lists are in increasing source order, so
+    // ties still go to the lower state index.
+    const bool sparse = use_sparse(m);
+    std::vector<double> log_in(m.in_prob.size());
+    for (size_t e = 0; e < log_in.size(); ++e) log_in[e] = std::log(m.in_prob[e]);
 
     const int64_t B = block_;
     const int64_t blocks = (N + B - 1) / B;
@@ -584,6 +1053,14 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
                 int arg = 0;
                 if (pos == 0) {
                     best = log_pi[j];
+                } else if (sparse) {
+                    for (int e2 = m.in_begin[j]; e2 < m.in_begin[j + 1]; ++e2) {
+                        const double v = prev[m.in_from[e2]] + log_in[e2];
+                        if (v > best) {
+                            best = v;
+                            arg = m.in_from[e2];
+                        }
+                    }
                 } else {
                     for (int i = 0; i < S; ++i) {
                         const double v = prev[i] + log_a[static_cast<size_t>(i) * S + j];

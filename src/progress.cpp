@@ -5,7 +5,9 @@
 #include <sys/resource.h>
 #include <unistd.h>
 
+#include <atomic>
 #include <cstdio>
+#include <mutex>
 #include <cstdlib>
 #include <cstring>
 
@@ -54,51 +56,75 @@ bool ProgressMeter::stderr_is_terminal() {
     return isatty(STDERR_FILENO) == 1 && !(term && std::strcmp(term, "dumb") == 0);
 }
 
-ProgressMeter::ProgressMeter(bool enabled, int64_t total_bases)
-    : enabled_(enabled), total_(total_bases), start_(std::chrono::steady_clock::now()) {}
+struct ProgressMeter::Shared {
+    bool enabled = false;
+    int64_t total = 0;
+    std::atomic<int64_t> done{0};  ///< bases decoded so far, all threads
+    std::chrono::steady_clock::time_point start;
+    std::mutex mutex;  ///< guards the fields below and the drawing
+    std::string contig_name;
+    int64_t contig_length = 0;
+    std::chrono::steady_clock::time_point last_draw;
+    bool drawn = false;
+};
+
+ProgressMeter::ProgressMeter(bool enabled, int64_t total_bases) : shared_(std::make_shared<Shared>()) {
+    shared_->enabled = enabled;
+    shared_->total = total_bases;
+    shared_->start = std::chrono::steady_clock::now();
+}
+
+ProgressMeter::ProgressMeter(std::shared_ptr<Shared> shared) : shared_(std::move(shared)) {}
+
+std::unique_ptr<DecodeSink> ProgressMeter::fork() const {
+    return std::unique_ptr<DecodeSink>(new ProgressMeter(shared_));
+}
 
 void ProgressMeter::begin_contig(const Contig& contig) {
-    contig_name_ = contig.name;
-    contig_length_ = contig.length;
-    contig_done_ = 0;
+    if (!shared_->enabled) return;
+    {
+        std::lock_guard<std::mutex> lock(shared_->mutex);
+        shared_->contig_name = contig.name;
+        shared_->contig_length = contig.length;
+    }
     draw(true);
 }
 
 void ProgressMeter::block(const BlockView& view) {
-    contig_done_ = view.begin + view.size;
+    shared_->done.fetch_add(view.size, std::memory_order_relaxed);
     draw(false);
 }
 
-void ProgressMeter::end_contig(const Contig& contig, const DecodeResult&) {
-    done_before_ += contig.length;
-    contig_done_ = 0;
-    contig_length_ = 0;
-}
-
 void ProgressMeter::draw(bool force) {
-    if (!enabled_) return;
+    Shared& sh = *shared_;
+    if (!sh.enabled) return;
+    // Another thread drawing right now is as good as drawing.
+    std::unique_lock<std::mutex> lock(sh.mutex, std::try_to_lock);
+    if (!lock.owns_lock()) return;
     const auto now = std::chrono::steady_clock::now();
-    if (!force && now - last_draw_ < std::chrono::milliseconds(250)) return;
-    last_draw_ = now;
-    const double elapsed = std::chrono::duration<double>(now - start_).count();
-    const int64_t done = done_before_ + contig_done_;
+    if (!force && now - sh.last_draw < std::chrono::milliseconds(250)) return;
+    sh.last_draw = now;
+    const double elapsed = std::chrono::duration<double>(now - sh.start).count();
+    const int64_t done = sh.done.load(std::memory_order_relaxed);
     const double rate = elapsed > 0 ? static_cast<double>(done) / elapsed : 0;  // bases/s
-    std::string line = fmt::format("tidemark: {}  {:.1f}/{:.1f} Mbp", contig_name_,
-                                   static_cast<double>(contig_done_) / 1e6, static_cast<double>(contig_length_) / 1e6);
-    if (total_ > 0) line += fmt::format("  (run {:.1f}%)", 100.0 * static_cast<double>(done) / static_cast<double>(total_));
+    std::string line = fmt::format("tidemark: {} ({:.1f} Mbp)  {:.1f} Mbp done", sh.contig_name,
+                                   static_cast<double>(sh.contig_length) / 1e6, static_cast<double>(done) / 1e6);
+    if (sh.total > 0)
+        line += fmt::format("  (run {:.1f}%)", 100.0 * static_cast<double>(done) / static_cast<double>(sh.total));
     line += fmt::format("  {:.1f} Mbp/s", rate / 1e6);
-    const int64_t remaining = total_ > 0 ? total_ - done : contig_length_ - contig_done_;
-    if (rate > 0 && remaining > 0) line += "  ETA " + clock_text(static_cast<double>(remaining) / rate);
+    const int64_t remaining = sh.total - done;
+    if (sh.total > 0 && rate > 0 && remaining > 0) line += "  ETA " + clock_text(static_cast<double>(remaining) / rate);
     std::fprintf(stderr, "\r%-100s", line.c_str());
     std::fflush(stderr);
-    drawn_ = true;
+    sh.drawn = true;
 }
 
 void ProgressMeter::finish() {
-    if (!drawn_) return;
+    std::lock_guard<std::mutex> lock(shared_->mutex);
+    if (!shared_->drawn) return;
     std::fprintf(stderr, "\r%-100s\r", "");
     std::fflush(stderr);
-    drawn_ = false;
+    shared_->drawn = false;
 }
 
 }  // namespace tidemark

@@ -4,14 +4,47 @@
 #include <fmt/format.h>
 #include <zlib.h>
 
+#include <deque>
+#include <future>
 #include <memory>
 #include <nlohmann/json.hpp>
 
 #include "tidemark/error.hpp"
 #include "tidemark/intervals.hpp"
 #include "tidemark/output.hpp"
+#include "thread_pool.hpp"
 
 namespace tidemark {
+
+std::string remove_thread_words(const std::string& command_line) {
+    // Words split at spaces outside single quotes, as the command line was quoted.
+    std::vector<std::string> words;
+    std::string word;
+    bool quoted = false;
+    for (char c : command_line) {
+        if (c == '\'') quoted = !quoted;
+        if (c == ' ' && !quoted) {
+            words.push_back(word);
+            word.clear();
+        } else {
+            word += c;
+        }
+    }
+    words.push_back(word);
+    std::string out;
+    for (size_t i = 0; i < words.size(); ++i) {
+        const std::string& w = words[i];
+        if ((w == "-t" || w == "--threads") && i + 1 < words.size()) {
+            ++i;
+            continue;
+        }
+        if (w.rfind("--threads=", 0) == 0 || (w.size() > 2 && w.rfind("-t", 0) == 0 &&
+                                               w.find_first_not_of("0123456789", 2) == std::string::npos))
+            continue;
+        out += (out.empty() ? "" : " ") + w;
+    }
+    return out;
+}
 
 void validate(const ScanOptions& o) {
     if (o.inputs.empty()) throw UsageError("scan needs at least one FASTA file (or - for stdin)");
@@ -33,6 +66,7 @@ void validate(const ScanOptions& o) {
     if (o.tracks.format == TrackFormat::bigwig && o.tracks.track_line)
         throw UsageError("--track-line applies to bedGraph, not bigWig");
     if (o.block_size < 0) throw UsageError("--block must be >= 0");
+    if (o.threads < 0) throw UsageError("--threads must be >= 0 (0 = every core)");
 }
 
 namespace {
@@ -40,9 +74,10 @@ namespace {
 struct Decoder {
     std::unique_ptr<PosteriorDecoder> posterior;
     std::unique_ptr<ViterbiDecoder> viterbi;
-    DecodeResult run(const Contig& c, DecodeSink& sink) {
-        return posterior ? posterior->run(c, sink) : viterbi->run(c, sink);
+    DecodeResult run(const Contig& c, DecodeSink& sink, TaskPool* pool = nullptr) {
+        return posterior ? posterior->run(c, sink, pool) : viterbi->run(c, sink);
     }
+    bool splits(int64_t length) const { return posterior && posterior->splits(length); }
 };
 
 std::string crc32_hex(const std::string& text) {
@@ -96,11 +131,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
 
     DecoderOptions decoder_options;
     decoder_options.block_size = o.block_size;
-    Decoder decoder;
-    if (o.decode == DecodeMode::posterior)
-        decoder.posterior = std::make_unique<PosteriorDecoder>(model, decoder_options);
-    else
-        decoder.viterbi = std::make_unique<ViterbiDecoder>(model, decoder_options);
+    // Segments of long contigs end on bin boundaries, so no track bin straddles a seam.
+    decoder_options.segment_multiple = o.tracks.bin;
 
     // Resolve regions before creating any output, so a bad region leaves no file behind.
     std::vector<Region> regions;
@@ -110,6 +142,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         regions = resolve_regions(o.inputs[0], o.regions, bed);
         for (const auto& r : regions) total_bases += r.end - r.begin;
     }
+    // Planned before any output exists, like the regions; every shard makes the same plan.
+    ShardFilter shard(o.shard, o.inputs, regions);
 
     OutputFormat bed_format;
     bed_format.bgzip = o.bgzip;
@@ -133,67 +167,148 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     IntervalCaller caller(model, call_options);
     RegionTotals totals(model);
     ProgressMeter progress(o.progress, total_bases);
-    std::vector<DecodeSink*> sinks = {&caller, &totals};
-    if (tracks) sinks.push_back(tracks.get());
-    sinks.push_back(&progress);
-    SinkFanout fanout(sinks);
+
+    // Contigs are decoded in a pool, each into forks of the sinks above, and joined back in
+    // input order; at most threads + 1 contigs are held at once. One decoder per worker.
+    const int threads = resolve_threads(o.threads);
+    std::vector<Decoder> decoders(static_cast<size_t>(threads));
+    for (auto& d : decoders) {
+        if (o.decode == DecodeMode::posterior)
+            d.posterior = std::make_unique<PosteriorDecoder>(model, decoder_options);
+        else
+            d.viterbi = std::make_unique<ViterbiDecoder>(model, decoder_options);
+    }
+    struct Job {
+        Contig contig;
+        std::string input;
+        int64_t input_index = 0;
+        std::unique_ptr<DecodeSink> caller, totals, tracks, progress;
+        DecodeResult result;
+        std::future<void> done;
+    };
+    std::deque<std::unique_ptr<Job>> jobs;
+    std::vector<Contig> spare;
+    TaskPool pool(threads);  // after jobs and decoders: destroyed first, while they still exist
 
     std::vector<ContigSummary> summaries;
-    Contig contig;
     std::string lines, gff_lines;
     int64_t serial = 0;
     std::string last_sized;
+    // Joins the oldest job's sinks and writes its outputs.
+    const auto finish_oldest = [&] {
+        Job& job = *jobs.front();
+        job.done.get();  // rethrows the worker's error, in input order
+        const Contig& contig = job.contig;
+        caller.join(*job.caller);
+        totals.join(*job.totals);
+        if (tracks) tracks->join(*job.tracks);
+        if (contig.length == 0) {
+            progress.finish();
+            log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(job.input), contig.name));
+        }
+        ContigSummary s;
+        s.name = contig.name;
+        s.input_index = job.input_index;
+        s.offset = contig.offset;
+        s.length = contig.length;
+        s.unknown = contig.unknown_count();
+        s.soft_masked = contig.soft_masked;
+        s.composition = composition(contig, 0, contig.length);
+        s.log_likelihood = job.result.log_likelihood;
+        s.expected_bases = totals.expected_bases();
+        s.expected_bases.resize(model.region_names.size(), 0.0);
+        s.calls.assign(model.region_names.size(), 0);
+        s.called_bases.assign(model.region_names.size(), 0);
+        s.call_lengths.assign(model.region_names.size(), {});
+        s.confidence_sum.assign(model.region_names.size(), 0.0);
+        s.call_confidences.assign(model.region_names.size(), {});
+        lines.clear();
+        gff_lines.clear();
+        if (gff3) gff_lines = format_gff3_sequence_region(contig);
+        for (const Call& call : caller.calls()) {
+            lines += format_bed_line(o.bed_style, model, contig, call);
+            if (gff3) gff_lines += format_gff3_feature(model, contig, call, ++serial);
+            s.add_call(call, model.region_names.size());
+        }
+        bed.write(lines);
+        if (gff3) gff3->write(gff_lines);
+        if (sizes && contig.name != last_sized) {  // several regions of one sequence: once
+            sizes->write(fmt::format("{}\t{}\n", contig.name, contig.full_length()));
+            last_sized = contig.name;
+        }
+        if (log.level() >= LogLevel::verbose) progress.finish();
+        log.detail(fmt::format("{}: {} bp, {} unknown, GC {:.4f}, log-likelihood {:.4f}, {} calls", s.name,
+                               s.length, s.unknown, s.composition.gc_fraction(), s.log_likelihood,
+                               caller.calls().size()));
+        summaries.push_back(std::move(s));
+        spare.push_back(std::move(job.contig));  // its chunks serve a later record
+        jobs.pop_front();
+    };
+
     for (const auto& input : o.inputs) {
         std::unique_ptr<SequenceSource> source = regions.empty() ? open_fasta(input) : open_regions(input, regions);
         int64_t records = 0;
-        while (source->next(contig)) {
+        for (;;) {
+            auto job = std::make_unique<Job>();
+            if (!spare.empty()) {
+                job->contig = std::move(spare.back());
+                spare.pop_back();
+            }
+            bool more = false;
+            try {
+                more = source->next(job->contig);
+            } catch (...) {
+                // An earlier record's error comes first, as in a run with one thread.
+                while (!jobs.empty()) finish_oldest();
+                throw;
+            }
+            if (!more) break;
             ++records;
-            if (contig.length == 0) {
-                progress.finish();
-                log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(input), contig.name));
+            if (!shard.take(job->contig)) continue;  // another shard's record
+            job->input = input;
+            job->input_index = shard.index();
+            job->caller = caller.fork();
+            job->totals = totals.fork();
+            if (tracks) job->tracks = tracks->fork();
+            job->progress = progress.fork();
+            Job* j = job.get();
+            const auto decode = [j, &decoders](int worker, TaskPool* segment_pool) {
+                std::vector<DecodeSink*> sinks = {j->caller.get(), j->totals.get()};
+                if (j->tracks) sinks.push_back(j->tracks.get());
+                sinks.push_back(j->progress.get());
+                SinkFanout fanout(sinks);
+                j->result = decoders[static_cast<size_t>(worker)].run(j->contig, fanout, segment_pool);
+            };
+            if (threads > 1 && decoders[0].splits(j->contig.length)) {
+                // A long contig: its segments take the whole pool, which must be idle first.
+                while (!jobs.empty()) finish_oldest();
+                jobs.push_back(std::move(job));
+                std::promise<void> ran;
+                try {
+                    decode(0, &pool);
+                    ran.set_value();
+                } catch (...) {
+                    ran.set_exception(std::current_exception());
+                }
+                j->done = ran.get_future();
+                finish_oldest();
+                continue;
             }
-            const DecodeResult result = decoder.run(contig, fanout);
-            ContigSummary s;
-            s.name = contig.name;
-            s.offset = contig.offset;
-            s.length = contig.length;
-            s.unknown = contig.unknown_count();
-            s.soft_masked = contig.soft_masked;
-            s.composition = composition(contig, 0, contig.length);
-            s.log_likelihood = result.log_likelihood;
-            s.expected_bases = totals.expected_bases();
-            s.expected_bases.resize(model.region_names.size(), 0.0);
-            s.calls.assign(model.region_names.size(), 0);
-            s.called_bases.assign(model.region_names.size(), 0);
-            s.call_lengths.assign(model.region_names.size(), {});
-            s.confidence_sum.assign(model.region_names.size(), 0.0);
-            s.call_confidences.assign(model.region_names.size(), {});
-            lines.clear();
-            gff_lines.clear();
-            if (gff3) gff_lines = format_gff3_sequence_region(contig);
-            for (const Call& call : caller.calls()) {
-                lines += format_bed_line(o.bed_style, model, contig, call);
-                if (gff3) gff_lines += format_gff3_feature(model, contig, call, ++serial);
-                s.add_call(call, model.region_names.size());
-            }
-            bed.write(lines);
-            if (gff3) gff3->write(gff_lines);
-            if (sizes && contig.name != last_sized) {  // several regions of one sequence: once
-                sizes->write(fmt::format("{}\t{}\n", contig.name, contig.full_length()));
-                last_sized = contig.name;
-            }
-            if (log.level() >= LogLevel::verbose) progress.finish();
-            log.detail(fmt::format("{}: {} bp, {} unknown, GC {:.4f}, log-likelihood {:.4f}, {} calls", s.name,
-                                   s.length, s.unknown, s.composition.gc_fraction(), s.log_likelihood,
-                                   caller.calls().size()));
-            summaries.push_back(std::move(s));
+            while (jobs.size() > static_cast<size_t>(threads)) finish_oldest();
+            jobs.push_back(std::move(job));
+            j->done = pool.submit([decode](int worker) { decode(worker, nullptr); });
+            // One thread: the job has run; write it now, so nothing waits in memory.
+            if (threads == 1) finish_oldest();
         }
         if (records == 0) {
+            while (!jobs.empty()) finish_oldest();  // keep messages in input order
             progress.finish();
             log.warn(fmt::format("{}: no FASTA records", display(input)));
         }
     }
+    while (!jobs.empty()) finish_oldest();
     progress.finish();
+    shard.finish();
 
     RunInfo info;
     info.profile_name = model.name;
@@ -202,6 +317,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     info.command_line = o.command_line;
     info.inputs = o.inputs;
     info.options_json = options_json(o, call_options);
+    if (o.shard.active()) info.shard_json = shard_json(shard, info.options_json, summaries);
     std::unique_ptr<OutputFile> summary, report;
     if (!o.summary_path.empty()) {
         summary = std::make_unique<OutputFile>(o.summary_path);

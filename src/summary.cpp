@@ -4,8 +4,11 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <nlohmann/json.hpp>
+
+#include "tidemark/error.hpp"
 
 namespace tidemark {
 namespace {
@@ -102,6 +105,7 @@ ordered_json call_histograms(const ContigSummary& g, size_t r) {
 ordered_json contig_json(const Model& model, const ContigSummary& c, bool report) {
     ordered_json o;
     o["name"] = c.name;
+    o["input_index"] = c.input_index;  // lets merge restore input order from shard outputs
     if (c.offset) o["offset"] = c.offset;
     o["length"] = c.length;
     o["unknown_bases"] = c.unknown;
@@ -148,6 +152,7 @@ ordered_json document(const char* format, const RunInfo& info, const Model& mode
     const ContigSummary total = genome_total(model, contigs);
     doc["genome"] = contig_json(model, total, report);
     doc["genome"].erase("name");
+    doc["genome"].erase("input_index");
     if (report)
         for (size_t r = 0; r < model.region_names.size(); ++r)
             if (model.region_report[r])
@@ -156,6 +161,7 @@ ordered_json document(const char* format, const RunInfo& info, const Model& mode
     ordered_json list = ordered_json::array();
     for (const auto& c : contigs) list.push_back(contig_json(model, c, report));
     doc["contigs"] = list;
+    if (!info.shard_json.empty()) doc["shard"] = ordered_json::parse(info.shard_json);
     return doc;
 }
 
@@ -177,15 +183,59 @@ void ContigSummary::add_call(const Call& call, size_t regions) {
     call_confidences[r].push_back(call.mean_posterior);
 }
 
-void RegionTotals::begin_contig(const Contig&) { expected_.assign(model_.region_names.size(), 0.0); }
+void RegionTotals::begin_contig(const Contig&) {
+    expected_.assign(model_.region_names.size(), 0.0);
+    begun_ = true;
+    ended_ = false;
+}
+
+void RegionTotals::join(DecodeSink& later) {
+    auto* other = dynamic_cast<RegionTotals*>(&later);
+    if (!other) throw InternalError("RegionTotals::join: not a fork of a RegionTotals");
+    if (other->ended_ || !begun_ || ended_) {
+        expected_ = std::move(other->expected_);
+        begun_ = other->begun_;
+        ended_ = other->ended_;
+        return;
+    }
+    for (size_t r = 0; r < expected_.size() && r < other->expected_.size(); ++r) expected_[r] += other->expected_[r];
+}
+
+namespace {
+
+// Per-state column sums of a block, each in position order. Small state counts keep the sums in
+// local variables: a heap vector could alias the posteriors, and the compiler would store and
+// reload every sum at every position.
+template <int Fixed>
+void column_sums(const BlockView& view, double* out) {
+    const int S = Fixed > 0 ? Fixed : view.states;
+    if constexpr (Fixed > 0) {
+        std::array<double, Fixed> sum{};
+        const double* p = view.posterior;
+        for (int64_t t = 0; t < view.size; ++t, p += Fixed)
+            for (int s = 0; s < Fixed; ++s) sum[s] += p[s];
+        for (int s = 0; s < Fixed; ++s) out[s] = sum[s];
+    } else {
+        for (int s = 0; s < S; ++s) out[s] = 0.0;
+        for (int64_t t = 0; t < view.size; ++t)
+            for (int s = 0; s < S; ++s) out[s] += view.posterior[t * S + s];
+    }
+}
+
+}  // namespace
 
 void RegionTotals::block(const BlockView& view) {
     const int S = view.states;
     // Per-state column sums first, then regions: fewer indirections in the loop.
-    std::vector<double> by_state(S, 0.0);
-    for (int64_t t = 0; t < view.size; ++t)
-        for (int s = 0; s < S; ++s) by_state[s] += view.posterior[t * S + s];
-    for (int s = 0; s < S; ++s) expected_[model_.region_of_state[s]] += by_state[s];
+    by_state_.resize(S);
+    switch (S) {
+        case 1: column_sums<1>(view, by_state_.data()); break;
+        case 2: column_sums<2>(view, by_state_.data()); break;
+        case 3: column_sums<3>(view, by_state_.data()); break;
+        case 4: column_sums<4>(view, by_state_.data()); break;
+        default: column_sums<0>(view, by_state_.data()); break;
+    }
+    for (int s = 0; s < S; ++s) expected_[model_.region_of_state[s]] += by_state_[s];
 }
 
 std::string summary_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs) {

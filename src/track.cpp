@@ -5,6 +5,10 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
+#include <cstring>
+#include <iterator>
+#include <string_view>
 
 #include "tidemark/error.hpp"
 
@@ -94,20 +98,79 @@ std::string format_gff3_feature(const Model& model, const Contig& contig, const 
                        contig.offset + call.end, call.mean_posterior, attributes);
 }
 
+namespace {
+
+// A fork's output bytes, in order: in memory up to spill_at, then in an unnamed temporary file
+// (a long contig's per-base track can be gigabytes).
+class Spool {
+public:
+    static constexpr size_t spill_at = size_t{8} << 20;
+    Spool() = default;
+    Spool(const Spool&) = delete;
+    Spool& operator=(const Spool&) = delete;
+    ~Spool() {
+        if (file_) std::fclose(file_);
+    }
+    void append(std::string_view bytes) {
+        memory_.append(bytes);
+        if (memory_.size() >= spill_at) spill();
+    }
+    /// Calls f on the bytes in order, in pieces whose sizes are multiples of unit.
+    template <class F>
+    void replay(size_t unit, F&& f) {
+        if (!file_) {
+            if (!memory_.empty()) f(std::string_view(memory_));
+            return;
+        }
+        spill();
+        std::rewind(file_);
+        std::string chunk(((size_t{1} << 20) / unit) * unit, '\0');
+        size_t got = 0;
+        while ((got = std::fread(chunk.data(), 1, chunk.size(), file_)) > 0) f(std::string_view(chunk.data(), got));
+        if (std::ferror(file_)) throw IoError("cannot read back a temporary track spool file");
+    }
+
+private:
+    void spill() {
+        if (!file_ && !(file_ = std::tmpfile()))
+            throw IoError("cannot create a temporary file for posterior tracks (is TMPDIR writable?)");
+        if (!memory_.empty() && std::fwrite(memory_.data(), 1, memory_.size(), file_) != memory_.size())
+            throw IoError("cannot write a temporary track spool file (disk full?)");
+        memory_.clear();
+    }
+    std::string memory_;
+    std::FILE* file_ = nullptr;
+};
+
+// One bigWig interval as a fork keeps it; sequence indexes the fork's own sequence list.
+struct SpooledInterval {
+    int64_t sequence, start, end;
+    double value;
+};
+
+}  // namespace
+
 struct PosteriorTracks::Track {
     int region = 0;
     std::unique_ptr<OutputFile> file;
     std::unique_ptr<BigWigWriter> bigwig;
+    std::unique_ptr<Spool> spool;  ///< a fork's output
     std::string path;
     std::string buffer;
     int64_t run_begin = 0, run_end = 0;
     int64_t run_value = -1;  ///< quantised value of the open run, -1 = none
     double bin_sum = 0;      ///< posterior sum of the open bin
     int64_t bin_begin = 0, bin_fill = 0;
+    bool holding = false;    ///< the next flushed run is the span's first: keep it back
+    bool held = false;       ///< held_* is the span's first run, not yet written
+    int64_t held_begin = 0, held_end = 0, held_value = -1;
 };
 
 PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options)
-    : model_(model), options_(std::move(options)), scale_(std::pow(10.0, options_.digits)) {
+    : PosteriorTracks(model, std::move(options), false) {}
+
+PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options, bool forked)
+    : model_(model), options_(std::move(options)), scale_(std::pow(10.0, options_.digits)), forked_(forked) {
     if (options_.digits < 0 || options_.digits > 12) throw UsageError("--posterior-digits must be from 0 to 12");
     if (options_.bin < 1) throw UsageError("--bin must be at least 1");
     for (size_t r = 0; r < model.region_names.size(); ++r) {
@@ -115,11 +178,14 @@ PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options)
         auto t = std::make_unique<Track>();
         t->region = static_cast<int>(r);
         const std::string base = options_.prefix + "." + model.region_names[r];
-        if (options_.format == TrackFormat::bigwig) {
-            t->path = base + ".bw";
+        t->path = base + (options_.format == TrackFormat::bigwig ? ".bw"
+                          : options_.bgzip                       ? ".bedgraph.gz"
+                                                                 : ".bedgraph");
+        if (forked_) {
+            t->spool = std::make_unique<Spool>();
+        } else if (options_.format == TrackFormat::bigwig) {
             t->bigwig = std::make_unique<BigWigWriter>(t->path);
         } else {
-            t->path = base + (options_.bgzip ? ".bedgraph.gz" : ".bedgraph");
             OutputFormat format;
             format.bgzip = options_.bgzip;
             format.tabix = options_.bgzip;
@@ -142,8 +208,104 @@ std::vector<std::string> PosteriorTracks::paths() const {
     return out;
 }
 
+std::unique_ptr<DecodeSink> PosteriorTracks::fork() const {
+    return std::unique_ptr<DecodeSink>(new PosteriorTracks(model_, options_, true));
+}
+
+// Writes theirs' output (spool, then buffer) after mine's, wherever mine's goes. `sequence`
+// replaces their bigWig sequence indexes (a segment of my contig), or -1 to map their own
+// sequence list (a whole contig).
+void PosteriorTracks::append_output(Track& mine, Track& theirs, const PosteriorTracks& other, int64_t sequence) {
+    if (mine.spool)
+        mine.spool->append(mine.buffer);
+    else if (mine.file)
+        mine.file->write(mine.buffer);
+    mine.buffer.clear();
+    theirs.spool->append(theirs.buffer);
+    theirs.buffer.clear();
+    if (options_.format != TrackFormat::bigwig) {
+        theirs.spool->replay(1, [&](std::string_view bytes) {
+            if (mine.spool)
+                mine.spool->append(bytes);
+            else
+                mine.file->write(bytes);
+        });
+        return;
+    }
+    std::vector<int64_t> index;
+    if (sequence < 0)
+        for (const auto& s : other.sequences_)
+            index.push_back(mine.bigwig ? mine.bigwig->add_sequence(s.name, s.length)
+                                        : static_cast<int64_t>(sequences_.size() + index.size()));
+    theirs.spool->replay(sizeof(SpooledInterval), [&](std::string_view bytes) {
+        const size_t n = bytes.size() / sizeof(SpooledInterval);
+        for (size_t i = 0; i < n; ++i) {
+            SpooledInterval r;
+            std::memcpy(&r, bytes.data() + i * sizeof r, sizeof r);
+            r.sequence = sequence >= 0 ? sequence : index[static_cast<size_t>(r.sequence)];
+            if (mine.bigwig)
+                mine.bigwig->add(static_cast<int>(r.sequence), r.start, r.end, r.value);
+            else
+                mine.spool->append(std::string_view(reinterpret_cast<const char*>(&r), sizeof r));
+        }
+    });
+}
+
+void PosteriorTracks::join(DecodeSink& later) {
+    auto* other = dynamic_cast<PosteriorTracks*>(&later);
+    if (!other || !other->forked_ || other->tracks_.size() != tracks_.size())
+        throw InternalError("PosteriorTracks::join: not a fork of these tracks");
+    const bool whole = other->ended_ || !begun_ || ended_;  // a later contig, else a segment
+    for (size_t k = 0; k < tracks_.size(); ++k) {
+        Track& mine = *tracks_[k];
+        Track& theirs = *other->tracks_[k];
+        if (whole) {
+            append_output(mine, theirs, *other, -1);
+            continue;
+        }
+        if (mine.bin_fill != 0) throw InternalError("PosteriorTracks::join: a segment starts inside a bin");
+        // Continues my open run when equal and adjacent, else closes it and opens this one.
+        const auto continue_with = [&](int64_t value, int64_t begin, int64_t end) {
+            if (mine.run_value == value && mine.run_end == begin) {
+                mine.run_end = end;
+                return;
+            }
+            flush_run(mine);
+            mine.run_value = value;
+            mine.run_begin = begin;
+            mine.run_end = end;
+        };
+        if (theirs.holding) {  // they wrote nothing: at most one run, still open
+            if (theirs.run_value >= 0) continue_with(theirs.run_value, theirs.run_begin, theirs.run_end);
+        } else {
+            if (theirs.held) continue_with(theirs.held_value, theirs.held_begin, theirs.held_end);
+            flush_run(mine);  // their written runs and open run differ from the one before
+            append_output(mine, theirs, *other, sequence_);
+            mine.run_value = theirs.run_value;
+            mine.run_begin = theirs.run_begin;
+            mine.run_end = theirs.run_end;
+        }
+        mine.bin_sum = theirs.bin_sum;
+        mine.bin_begin = theirs.bin_begin;
+        mine.bin_fill = theirs.bin_fill;
+    }
+    if (whole) {
+        if (forked_)
+            for (const auto& s : other->sequences_) sequences_.push_back(s);
+        begun_ = other->begun_;
+        ended_ = other->ended_;
+    }
+}
+
 void PosteriorTracks::begin_contig(const Contig& contig) {
     contig_ = &contig;
+    begun_ = true;
+    ended_ = false;
+    started_ = false;
+    if (forked_ && options_.format == TrackFormat::bigwig) {
+        sequences_.push_back({contig.name, contig.full_length()});
+        sequence_ = static_cast<int>(sequences_.size() - 1);
+    }
     for (auto& t : tracks_) {
         t->run_value = -1;
         t->bin_fill = 0;
@@ -154,16 +316,32 @@ void PosteriorTracks::begin_contig(const Contig& contig) {
 
 void PosteriorTracks::flush_run(Track& t) {
     if (t.run_value < 0) return;
+    if (t.holding) {  // a later segment's first run: the join decides where it goes
+        t.holding = false;
+        t.held = true;
+        t.held_begin = t.run_begin;
+        t.held_end = t.run_end;
+        t.held_value = t.run_value;
+        t.run_value = -1;
+        return;
+    }
     const double value = static_cast<double>(t.run_value) / scale_;
+    const int64_t begin = contig_->offset + t.run_begin, end = contig_->offset + t.run_end;
     if (t.bigwig) {
-        t.bigwig->add(sequence_, contig_->offset + t.run_begin, contig_->offset + t.run_end, value);
+        t.bigwig->add(sequence_, begin, end, value);
+    } else if (forked_ && options_.format == TrackFormat::bigwig) {
+        const SpooledInterval r{sequence_, begin, end, value};
+        t.buffer.append(reinterpret_cast<const char*>(&r), sizeof r);
     } else {
-        t.buffer += fmt::format("{}\t{}\t{}\t{:.{}f}\n", contig_->name, contig_->offset + t.run_begin,
-                                contig_->offset + t.run_end, value, options_.digits);
-        if (t.buffer.size() > (1 << 20)) {
+        fmt::format_to(std::back_inserter(t.buffer), "{}\t{}\t{}\t{:.{}f}\n", contig_->name, begin, end, value,
+                       options_.digits);
+    }
+    if (t.buffer.size() > (1 << 20)) {
+        if (t.spool)
+            t.spool->append(t.buffer);
+        else
             t.file->write(t.buffer);
-            t.buffer.clear();
-        }
+        t.buffer.clear();
     }
     t.run_value = -1;
 }
@@ -182,6 +360,14 @@ void PosteriorTracks::add_value(Track& t, int64_t begin, int64_t end, double p) 
 
 void PosteriorTracks::block(const BlockView& view) {
     const int S = view.states;
+    if (!started_) {
+        started_ = true;
+        if (forked_ && view.begin > 0)
+            for (auto& t : tracks_) {
+                t->holding = true;
+                t->held = false;
+            }
+    }
     for (auto& tp : tracks_) {
         Track& t = *tp;
         for (int64_t i = 0; i < view.size; ++i) {
@@ -205,6 +391,7 @@ void PosteriorTracks::block(const BlockView& view) {
 }
 
 void PosteriorTracks::end_contig(const Contig&, const DecodeResult&) {
+    ended_ = true;
     for (auto& t : tracks_) {
         if (t->bin_fill > 0)  // the last, shorter bin
             add_value(*t, t->bin_begin, t->bin_begin + t->bin_fill, t->bin_sum / static_cast<double>(t->bin_fill));
@@ -216,6 +403,7 @@ void PosteriorTracks::end_contig(const Contig&, const DecodeResult&) {
 
 void PosteriorTracks::close() {
     for (auto& t : tracks_) {
+        if (forked_) throw InternalError("PosteriorTracks::close on a fork; join it instead");
         if (t->bigwig) {
             t->bigwig->close();
             continue;

@@ -55,7 +55,7 @@ Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions
     double prev_ll = 0, prev_obj = 0;
     for (int it = 0;; ++it) {
         const auto t0 = std::chrono::steady_clock::now();
-        TrainingCounts c = expected_counts(p, data, o.block_size);
+        TrainingCounts c = expected_counts(p, data, o.block_size, o.threads);
         if (c.known == 0)
             throw InputError("the training sequences contain no known base (A, C, G or T)");
         const double ll = c.log_likelihood;

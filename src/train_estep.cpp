@@ -4,9 +4,13 @@
 
 #include <algorithm>
 #include <cmath>
+#include <deque>
+#include <future>
+#include <memory>
 
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
+#include "thread_pool.hpp"
 
 namespace tidemark {
 
@@ -56,8 +60,10 @@ CountAccumulator::CountAccumulator(const Profile& profile, const Model& model)
     pooled_.assign(profile.states.size(), 0.0);
 }
 
-void CountAccumulator::begin_contig(const Contig&) {
+void CountAccumulator::begin_contig(const Contig& contig) {
     std::fill(edge_.begin(), edge_.end(), 0.0);
+    contig_ = &contig;
+    started_ = false;
     ctx_ = 0;
     valid_ = 0;
 }
@@ -165,6 +171,25 @@ void CountAccumulator::block(const BlockView& v) {
         throw InternalError("CountAccumulator needs the posterior decoder's forward and backward rows");
     if (v.begin > 0 && !v.forward_before)
         throw InternalError("CountAccumulator: block view without forward_before");
+    if (!started_) {
+        started_ = true;
+        if (v.begin > 0 && contig_) {  // a later segment: the context from the bases before it
+            const int K = model_.max_order;
+            const int64_t look = std::min<int64_t>(K, v.begin);
+            uint8_t before[max_emission_order];
+            contig_->unpack(v.begin - look, look, before);
+            const uint32_t mask = (1u << (2 * K)) - 1;
+            for (int64_t k = 0; k < look; ++k) {
+                if (before[k] == base_unknown) {
+                    ctx_ = 0;
+                    valid_ = 0;
+                } else {
+                    ctx_ = ((ctx_ << 2) | before[k]) & mask;
+                    ++valid_;
+                }
+            }
+        }
+    }
     switch (v.states) {
         case 1: add_transitions<1>(v); break;
         case 2: add_transitions<2>(v); break;
@@ -197,18 +222,97 @@ void CountAccumulator::end_contig(const Contig& contig, const DecodeResult& resu
                 if (a > 0) add(i, j, a * edge_[static_cast<size_t>(i) * S + j]);
             }
     }
+    std::fill(edge_.begin(), edge_.end(), 0.0);  // folded in: a join must not add them again
     counts_.log_likelihood += result.log_likelihood;
     ++counts_.contigs;
 }
 
-TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64_t block_size) {
+std::unique_ptr<DecodeSink> CountAccumulator::fork() const {
+    return std::make_unique<CountAccumulator>(profile_, model_);
+}
+
+void CountAccumulator::join(DecodeSink& later) {
+    auto* other = dynamic_cast<CountAccumulator*>(&later);
+    if (!other) throw InternalError("CountAccumulator::join: not a fork of a CountAccumulator");
+    counts_.add(other->counts_);
+    for (size_t k = 0; k < edge_.size(); ++k) edge_[k] += other->edge_[k];
+}
+
+namespace {
+
+// A copy of a contig for a worker thread (TrainingData lends each contig only for one call).
+void copy_contig(const Contig& from, Contig& to) {
+    to.clear();
+    to.name = from.name;
+    to.offset = from.offset;
+    to.sequence_length = from.sequence_length;
+    constexpr int64_t piece = int64_t{1} << 20;
+    std::vector<uint8_t> codes(static_cast<size_t>(std::min(piece, std::max<int64_t>(from.length, 1))));
+    for (int64_t pos = 0; pos < from.length; pos += piece) {
+        const int64_t n = std::min(piece, from.length - pos);
+        from.unpack(pos, n, codes.data());
+        to.append(codes.data(), n);
+    }
+    to.soft_masked = from.soft_masked;
+}
+
+}  // namespace
+
+TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64_t block_size, int threads) {
     const Model model = compile(profile);
     DecoderOptions options;
     options.block_size = block_size;
-    PosteriorDecoder decoder(model, options);
-    CountAccumulator acc(profile, model);
-    data.for_each([&](const Contig& c) { decoder.run(c, acc); });
-    return acc.counts();
+    const int T = resolve_threads(threads);
+    std::vector<std::unique_ptr<PosteriorDecoder>> decoders;
+    for (int w = 0; w < T; ++w) decoders.push_back(std::make_unique<PosteriorDecoder>(model, options));
+    CountAccumulator total(profile, model);
+    if (T == 1) {
+        // The same per-contig sums as with threads, without copying contigs.
+        data.for_each([&](const Contig& c) {
+            const std::unique_ptr<DecodeSink> acc = total.fork();
+            decoders[0]->run(c, *acc);
+            total.join(*acc);
+        });
+        return total.counts();
+    }
+    struct Job {
+        Contig contig;
+        std::unique_ptr<DecodeSink> acc;
+        std::future<void> done;
+    };
+    std::deque<std::unique_ptr<Job>> jobs;
+    std::vector<Contig> spare;
+    TaskPool pool(T);  // declared last: destroyed first, while jobs and decoders still exist
+    const auto finish_oldest = [&] {
+        Job& job = *jobs.front();
+        job.done.get();
+        total.join(*job.acc);
+        spare.push_back(std::move(job.contig));
+        jobs.pop_front();
+    };
+    data.for_each([&](const Contig& c) {
+        if (decoders[0]->splits(c.length)) {
+            // A long contig: its segments take the whole pool, which must be idle first.
+            while (!jobs.empty()) finish_oldest();
+            const std::unique_ptr<DecodeSink> acc = total.fork();
+            decoders[0]->run(c, *acc, &pool);
+            total.join(*acc);
+            return;
+        }
+        while (jobs.size() > static_cast<size_t>(T)) finish_oldest();
+        auto job = std::make_unique<Job>();
+        if (!spare.empty()) {
+            job->contig = std::move(spare.back());
+            spare.pop_back();
+        }
+        copy_contig(c, job->contig);
+        job->acc = total.fork();
+        Job* j = job.get();
+        jobs.push_back(std::move(job));
+        j->done = pool.submit([j, &decoders](int w) { decoders[static_cast<size_t>(w)]->run(j->contig, *j->acc); });
+    });
+    while (!jobs.empty()) finish_oldest();
+    return total.counts();
 }
 
 }  // namespace tidemark

@@ -100,6 +100,8 @@ void parse_class_range(const std::string& text, int& lo, int& hi) {
 }
 
 void validate(const FitJobOptions& o) {
+    if (o.fit.threads < 0) throw UsageError("--threads must be >= 0 (0 = every core)");
+    if (o.shard.active() || !o.emit_stats.empty() || !o.from_stats.empty()) return validate_distributed(o);
     if (o.inputs.empty()) throw UsageError("fit needs at least one FASTA file");
     const bool from_template = o.classes_min > 0;
     if (from_template && !o.profile.empty())
@@ -132,6 +134,8 @@ void validate(const FitJobOptions& o) {
 
 FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     validate(o);
+    if (!o.from_stats.empty()) return fit_from_statistics(o, log);
+    if (!o.emit_stats.empty()) return emit_statistics(o, log);
     FastaTrainingData data(o.inputs, o.regions, o.regions_bed);
     // Open the output before the long work so that an unwritable path fails at once; it is
     // committed only at the end.
@@ -152,7 +156,7 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
         if (counts.known == 0) throw InputError("the training sequences contain no known base (A, C, G or T)");
         const FreezeMask freeze = resolve_freeze(o.fit.freeze, start);
         result.profile = maximise(start, start, counts, freeze, MStepOptions{o.fit.pseudocount});
-        const TrainingCounts check = expected_counts(result.profile, data, o.fit.block_size);
+        const TrainingCounts check = expected_counts(result.profile, data, o.fit.block_size, o.fit.threads);
         result.log_likelihood = check.log_likelihood;
         result.known_bases = check.known;
         result.positions = check.positions;

@@ -48,30 +48,51 @@ struct Call {
 
 /// Sums state posteriors into region posteriors and calls intervals for every reportable
 /// region. Calls of one contig are available after end_contig, sorted by start, end, region.
+///
+/// Forkable: a fork decodes a later span. A fork that saw a whole contig (end_contig) replaces
+/// this caller's state on join, as if this caller had decoded that contig. A fork that saw a
+/// later segment of the contig in progress is appended: per region, a span keeps the first
+/// group of runs (which may still merge with the span before it), the open last group with the
+/// posterior sum and minimum of the gap after it, and the posterior sum and minimum before its
+/// first run; groups in between are final and already calls. Joining merges the last group
+/// before the seam with the first after it when the gap between them is short, so the calls
+/// are those of one sequential pass (means may differ in the last bits: sums are added in
+/// another order).
 class IntervalCaller final : public DecodeSink {
 public:
     IntervalCaller(const Model& model, CallOptions options);
     void begin_contig(const Contig& contig) override;
     void block(const BlockView& view) override;
     void end_contig(const Contig& contig, const DecodeResult& result) override;
+    std::unique_ptr<DecodeSink> fork() const override;
+    void join(DecodeSink& later) override;
     const std::vector<Call>& calls() const { return calls_; }
 
 private:
-    struct Open {  // the call being extended for one region
-        bool active = false;
+    struct Group {  // merged runs of one region
         int64_t begin = 0, end = 0;  ///< end = one past the last base with P >= threshold
         double sum = 0;              ///< posterior sum over [begin, end)
         double min = 1;
-        double gap_sum = 0, gap_min = 1;  ///< over [end, current position)
         int64_t core_begin = -1, core_end = -1;
     };
-    void close(Open& open, int region);
+    struct Lane {  // one region's state over the span seen so far
+        bool seen = false;       ///< a run has started in this span
+        bool has_first = false;  ///< the span's first group is closed and kept in `first`
+        Group first;
+        bool active = false;     ///< `open` is being extended
+        Group open;
+        double lead_sum = 0, lead_min = 1;  ///< before the span's first run (all of it if none)
+        double gap_sum = 0, gap_min = 1;    ///< over [open.end, current position)
+    };
+    void close(Lane& lane, int region);  ///< closes the open group
+    void finish(const Group& group, int region);  ///< a final group: filter, then a call
 
     const Model& model_;
     CallOptions options_;
     const Contig* contig_ = nullptr;
+    bool ended_ = false;  ///< end_contig seen
     std::vector<int> reported_;  ///< region indices that are reportable
-    std::vector<Open> open_;
+    std::vector<Lane> lanes_;
     std::vector<Call> calls_;
 };
 

@@ -3,12 +3,15 @@
 #pragma once
 
 #include <cstdint>
+#include <memory>
 #include <vector>
 
 #include "tidemark/profile.hpp"
 #include "tidemark/sequence.hpp"
 
 namespace tidemark {
+
+class TaskPool;  // src/thread_pool.hpp
 
 /// One block of consecutive positions handed to a sink. Row t of each matrix is position
 /// begin + t; matrices are row-major with `states` columns. Pointers are valid only during
@@ -34,30 +37,49 @@ struct DecodeResult {
 };
 
 /// Receives a contig's blocks in forward order.
+///
+/// Parallel runs give each independent span (a later contig) a fork of the sink, decode the
+/// spans concurrently, and join the forks back in input order; a sink whose join appends
+/// exactly what it would have computed itself makes every output independent of the number of
+/// threads.
 class DecodeSink {
 public:
     virtual ~DecodeSink() = default;
     virtual void begin_contig(const Contig& /*contig*/) {}
     virtual void block(const BlockView& view) = 0;
     virtual void end_contig(const Contig& /*contig*/, const DecodeResult& /*result*/) {}
+    /// A fresh sink with this one's settings for a later, independent span; nullptr when the
+    /// sink cannot be forked.
+    virtual std::unique_ptr<DecodeSink> fork() const { return nullptr; }
+    /// Appends the results of `later` (a fork of this sink that saw the following span).
+    virtual void join(DecodeSink& /*later*/) {}
 };
 
-/// Forwards every call to several sinks, in order.
+/// Forwards every call to several sinks, in order. Forkable when all of them are: the fork
+/// owns the sinks' forks, and join joins them one by one.
 class SinkFanout final : public DecodeSink {
 public:
     explicit SinkFanout(std::vector<DecodeSink*> sinks) : sinks_(std::move(sinks)) {}
     void begin_contig(const Contig& c) override;
     void block(const BlockView& v) override;
     void end_contig(const Contig& c, const DecodeResult& r) override;
+    std::unique_ptr<DecodeSink> fork() const override;
+    void join(DecodeSink& later) override;
 
 private:
     std::vector<DecodeSink*> sinks_;
+    std::vector<std::unique_ptr<DecodeSink>> owned_;
 };
 
 struct DecoderOptions {
     /// Positions per block (checkpoint spacing); 0 = automatic: 64 Ki positions, fewer for
     /// models with many states so that block buffers stay within about 32 MiB.
     int64_t block_size = 0;
+    /// Positions per segment of a long contig (see PosteriorDecoder); 0 = 16 blocks but at
+    /// least 64 Ki, rounded up to a multiple of segment_multiple; -1 = never split.
+    int64_t segment_size = 0;
+    /// Segment boundaries fall on multiples of this (e.g. the track bin, so no bin straddles one).
+    int64_t segment_multiple = 1;
 };
 
 /// Exact posterior decoding. Memory beyond the 2-bit sequence: 5 block buffers of
@@ -68,17 +90,39 @@ struct DecoderOptions {
 /// so log-likelihoods carry no rounding from scaling and no position underflows.
 /// Throws InputError naming contig and position if the contig is impossible under the model.
 /// One decoder per thread; run() reuses its buffers.
+///
+/// Long contigs (more than one segment) of models with up to 6 states, decoded into a forkable
+/// sink, are split into segments of a fixed length, decoded exactly and independently:
+/// (a) per segment, a backward sweep of S x S matrices from the identity at the segment's end
+/// (B_t = A diag(e_{t+1}) B_{t+1}, rescaled by powers of two), keeping the matrix at every block
+/// end; (b) a short sequential chaining of the boundary vectors (backward from the contig end,
+/// forward from the initial distribution); (c) per segment, the forward sweep with backward
+/// recomputation from the checkpoint vectors (block matrix times the segment's end vector),
+/// into a fork of the sink; (d) the forks are joined in order. The split depends only on the
+/// contig length and the options, never on the number of threads, so results are the same
+/// with or without a pool. Models with more states decode in one segment (the matrix sweep
+/// would cost S times a vector sweep).
 class PosteriorDecoder {
 public:
     explicit PosteriorDecoder(const Model& model, DecoderOptions options = {});
-    DecodeResult run(const Contig& contig, DecodeSink& sink);
+    ~PosteriorDecoder();
+    /// pool: runs the segments of a long contig in parallel (nullptr = on this thread). The
+    /// pool's workers must be idle (not waiting on this call).
+    DecodeResult run(const Contig& contig, DecodeSink& sink, TaskPool* pool = nullptr);
+    /// True when a contig of this length is decoded in segments (given a forkable sink).
+    bool splits(int64_t length) const;
 
 private:
+    struct Workspace;
     template <int Fixed>
     DecodeResult run_fixed(const Contig& contig, DecodeSink& sink);
+    template <int Fixed>
+    DecodeResult run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool);
 
     const Model& model_;
     int64_t block_ = 0;
+    int64_t segment_ = 0;  ///< segment length; 0 = never split
+    std::vector<std::unique_ptr<Workspace>> workspaces_;  ///< one per pool worker
     std::vector<double> fast_emission_;  ///< emission rows: full contexts, [(ctx * 4 + base) * S
                                          ///< + s], then unknown bases and short contexts
     std::vector<double> folded_;         ///< per emission row r: A[i][j] * e_r[j], S x S (S <= 6)
@@ -89,6 +133,8 @@ private:
 
 /// Most probable state path (log-space Viterbi; ties go to the lower state index). Memory:
 /// one log-score checkpoint per block, one block of back-pointers, and the path as runs.
+/// Sequential; sparse models (duration chains) use the incoming-transition lists, so a chain
+/// costs time linear in its length.
 class ViterbiDecoder {
 public:
     explicit ViterbiDecoder(const Model& model, DecoderOptions options = {});

@@ -2,6 +2,7 @@
 #pragma once
 
 #include <chrono>
+#include <memory>
 #include <cstdint>
 #include <string>
 
@@ -26,16 +27,17 @@ private:
     double cpu_start_;
 };
 
-/// A progress line on stderr, redrawn at most four times a second: contig, bases done of the
-/// contig (and of the run when the total is known), Mbp/s, ETA. Draws nothing unless `enabled`
-/// (the caller passes whether stderr is a terminal), so logs stay clean.
+/// A progress line on stderr, redrawn at most four times a second: the contig last started,
+/// bases decoded in the run (and the share of the total when known), Mbp/s, ETA. Draws nothing
+/// unless `enabled` (the caller passes whether stderr is a terminal), so logs stay clean.
+/// Forks share one set of counters (atomic), so decoding threads report into the same line.
 class ProgressMeter final : public DecodeSink {
 public:
     /// total_bases: bases the run will decode, or 0 when unknown (streamed input).
     ProgressMeter(bool enabled, int64_t total_bases);
     void begin_contig(const Contig& contig) override;
     void block(const BlockView& view) override;
-    void end_contig(const Contig& contig, const DecodeResult& result) override;
+    std::unique_ptr<DecodeSink> fork() const override;
     /// Erases the line (call before printing anything else to stderr).
     void finish();
 
@@ -43,15 +45,11 @@ public:
     static bool stderr_is_terminal();
 
 private:
+    struct Shared;
+    explicit ProgressMeter(std::shared_ptr<Shared> shared);
     void draw(bool force);
 
-    bool enabled_;
-    int64_t total_;
-    int64_t done_before_ = 0;  ///< bases of finished contigs
-    int64_t contig_done_ = 0, contig_length_ = 0;
-    std::string contig_name_;
-    std::chrono::steady_clock::time_point start_, last_draw_;
-    bool drawn_ = false;
+    std::shared_ptr<Shared> shared_;
 };
 
 }  // namespace tidemark

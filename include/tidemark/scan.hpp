@@ -6,6 +6,7 @@
 #include <vector>
 
 #include "tidemark/log.hpp"
+#include "tidemark/shard.hpp"
 #include "tidemark/summary.hpp"
 #include "tidemark/track.hpp"
 
@@ -33,9 +34,16 @@ struct ScanOptions {
     std::string summary_path;               ///< deterministic JSON summary; "" = none
     std::string report_path;                ///< JSON run report with resources; "" = none
     int64_t block_size = 0;                 ///< decoder block (0 = automatic)
+    int threads = 0;                        ///< decoding threads (0 = every core); outputs do not
+                                            ///< depend on it
     bool progress = false;                  ///< draw a progress line on stderr
-    std::string command_line;               ///< recorded in headers and the summary
+    ShardSpec shard;                        ///< decode only this shard's records (not active = all)
+    std::string command_line;               ///< recorded in headers and the summary (without --shard)
 };
+
+/// The command line without -t/--threads and its value (-t N, -tN, --threads N, --threads=N),
+/// so that outputs recording the command do not depend on the number of threads.
+std::string remove_thread_words(const std::string& command_line);
 
 /// Validates option combinations; throws UsageError naming the conflict.
 void validate(const ScanOptions& options);

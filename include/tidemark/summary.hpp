@@ -14,6 +14,7 @@ namespace tidemark {
 /// Per-contig totals.
 struct ContigSummary {
     std::string name;
+    int64_t input_index = 0;  ///< 0-based place of the record (or region) in the whole input
     int64_t offset = 0;
     int64_t length = 0;
     int64_t unknown = 0;
@@ -37,11 +38,18 @@ public:
     explicit RegionTotals(const Model& model) : model_(model) {}
     void begin_contig(const Contig&) override;
     void block(const BlockView& view) override;
+    void end_contig(const Contig&, const DecodeResult&) override { ended_ = true; }
+    /// A fork that saw a whole contig replaces these totals on join (they are per contig); a
+    /// fork that saw a later segment of the contig in progress is added.
+    std::unique_ptr<DecodeSink> fork() const override { return std::make_unique<RegionTotals>(model_); }
+    void join(DecodeSink& later) override;
     const std::vector<double>& expected_bases() const { return expected_; }
 
 private:
     const Model& model_;
+    bool begun_ = false, ended_ = false;
     std::vector<double> expected_;
+    std::vector<double> by_state_;  ///< scratch: one block's per-state sums
 };
 
 /// What the summary says about the run as a whole.
@@ -52,6 +60,7 @@ struct RunInfo {
     std::string command_line;
     std::vector<std::string> inputs;
     std::string options_json;      ///< the effective options as a JSON object
+    std::string shard_json;        ///< shard runs: what merge needs (shard.hpp); "" = not sharded
 };
 
 /// The summary as JSON (tidemark-summary/1): run info, genome-wide totals, one entry per

@@ -67,6 +67,12 @@ struct TrackOptions {
 /// Writes one posterior track per reportable region: P(region) per base (or bin mean), rounded
 /// to `digits` decimals, consecutive equal values merged; intervals tile each decoded contig.
 /// Files appear at close().
+///
+/// A fork writes no file: it keeps its intervals (text, or bigWig records) in memory and, past
+/// a few MiB, in an unnamed temporary file; join() appends them to this sink's files in order.
+/// A fork that starts inside a contig (a later segment) holds back its first run, and its last
+/// run stays open, so that equal values merge across the seam as in one sequential pass;
+/// segment boundaries must fall on bin boundaries (DecoderOptions::segment_multiple).
 class PosteriorTracks final : public DecodeSink {
 public:
     PosteriorTracks(const Model& model, TrackOptions options);
@@ -74,19 +80,31 @@ public:
     void begin_contig(const Contig& contig) override;
     void block(const BlockView& view) override;
     void end_contig(const Contig& contig, const DecodeResult& result) override;
+    std::unique_ptr<DecodeSink> fork() const override;
+    void join(DecodeSink& later) override;
     void close();
     std::vector<std::string> paths() const;
 
 private:
     struct Track;
+    struct Sequence {
+        std::string name;
+        int64_t length = 0;
+    };
+    PosteriorTracks(const Model& model, TrackOptions options, bool forked);
     void add_value(Track& track, int64_t begin, int64_t end, double p);
     void flush_run(Track& track);
+    void append_output(Track& mine, Track& theirs, const PosteriorTracks& other, int64_t sequence);
 
     const Model& model_;
     TrackOptions options_;
     double scale_;
+    bool forked_ = false;
+    bool begun_ = false, ended_ = false;  ///< begin_contig / end_contig seen (for join)
+    bool started_ = false;                ///< a block of the current span was seen
     const Contig* contig_ = nullptr;
-    int sequence_ = -1;  ///< bigWig sequence index of the current contig
+    int sequence_ = -1;  ///< bigWig sequence index of the current contig (a fork: into sequences_)
+    std::vector<Sequence> sequences_;  ///< a fork's contigs, for the bigWig sequence list at join
     std::vector<std::unique_ptr<Track>> tracks_;
 };
 

@@ -15,6 +15,7 @@
 #include "tidemark/log.hpp"
 #include "tidemark/profile.hpp"
 #include "tidemark/sequence.hpp"
+#include "tidemark/shard.hpp"
 
 namespace tidemark {
 
@@ -107,6 +108,11 @@ public:
     void begin_contig(const Contig& contig) override;
     void block(const BlockView& view) override;
     void end_contig(const Contig& contig, const DecodeResult& result) override;
+    /// A fresh accumulator (zero counts) for a later contig or a later segment of the contig in
+    /// progress (its expected transition sums are added before the contig's are folded in);
+    /// join adds its counts to these.
+    std::unique_ptr<DecodeSink> fork() const override;
+    void join(DecodeSink& later) override;
     /// Counts so far (transition counts are folded in at each end_contig).
     const TrainingCounts& counts() const { return counts_; }
 
@@ -123,13 +129,18 @@ private:
     std::vector<double> part_;      ///< edge_'s share of the current block
     std::vector<double> weight_;    ///< per state e_t * b_t, scratch
     std::vector<double> pooled_;    ///< per profile state posterior, scratch
+    const Contig* contig_ = nullptr;
+    bool started_ = false;          ///< a block of the current span was seen
     uint32_t ctx_ = 0;              ///< rolling context over the largest order
     int64_t valid_ = 0;             ///< known bases immediately before the current position
 };
 
 /// Runs the posterior engine over all of data with profile's compiled model and returns the
 /// expected counts. Throws InputError when a contig is impossible under the profile.
-TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64_t block_size = 0);
+/// Contigs are decoded on `threads` threads (0 = every core); each contig's counts start from
+/// zero and are added in input order, so the result is the same for any number of threads.
+TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64_t block_size = 0,
+                               int threads = 0);
 
 // ---------------------------------------------------------------------------------------------
 // M-step
@@ -192,6 +203,7 @@ struct FitOptions {
     Freeze freeze;
     bool order_by_gc = false;   ///< reorder states and regions by GC (templates: class1..classK)
     int64_t block_size = 0;     ///< decoder block (0 = automatic)
+    int threads = 0;            ///< E-step threads (0 = every core); results do not depend on it
 };
 
 /// One E-step of a run.
@@ -309,7 +321,10 @@ struct FitJobOptions {
     std::string output = "-";          ///< profile JSON
     std::string name;                  ///< name of the output profile ("" = derived)
     FitOptions fit;
-    std::string command_line;
+    ShardSpec shard;                   ///< with emit_stats: only this shard's records (shard.hpp)
+    std::string emit_stats;            ///< write one E-step's counts here instead of fitting ("" = no)
+    std::vector<std::string> from_stats;  ///< M-step on the summed counts of these files (no FASTA)
+    std::string command_line;          ///< recorded in provenance (without --shard)
 };
 
 /// Parses "K" or "A..B" (1 <= A <= B <= 64). Throws UsageError.
@@ -319,6 +334,30 @@ void parse_class_range(const std::string& text, int& lo, int& hi);
 void validate(const FitJobOptions& options);
 
 /// Runs the whole fit and writes the profile (with provenance) only when everything succeeded.
+/// With emit_stats or from_stats, runs emit_statistics or fit_from_statistics instead.
 FitResult run_fit(const FitJobOptions& options, const Logger& log);
+
+// ---------------------------------------------------------------------------------------------
+// Distributed training: one EM iteration as N independent E-steps and one M-step
+
+/// Checks the options of --emit-stats, --from-stats and --shard. Throws UsageError.
+void validate_distributed(const FitJobOptions& options);
+
+/// One E-step of options.profile over the records of options.shard (all records when not
+/// sharded), written as tidemark-stats/1 JSON: the shard, the profile used (canonical JSON),
+/// the TrainingCounts at full double precision, and the records counted.
+FitResult emit_statistics(const FitJobOptions& options, const Logger& log);
+
+/// Sums the counts of every shard's statistics file in shard order and runs the M-step
+/// (maximise, as in baum_welch) from the profile the E-steps used; options.profile, when given,
+/// is the structure (the starting profile of the whole fit, as baum_welch uses it). Checks that
+/// the files come from one E-step (same profile, inputs and shard count; every shard once).
+/// Writes the next profile. Throws InputError naming the file.
+FitResult fit_from_statistics(const FitJobOptions& options, const Logger& log);
+
+/// Parses one statistics file's counts (exposed for tests). Throws InputError naming `where`.
+TrainingCounts counts_from_json(const std::string& json_text, const Profile& profile, const std::string& where);
+/// The counts as a JSON object (full precision).
+std::string counts_to_json(const TrainingCounts& counts);
 
 }  // namespace tidemark

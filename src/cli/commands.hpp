@@ -21,5 +21,6 @@ void add_profiles(CLI::App& app, Context& ctx);
 void add_fit(CLI::App& app, Context& ctx);
 void add_simulate(CLI::App& app, Context& ctx);
 void add_compare(CLI::App& app, Context& ctx);
+void add_merge(CLI::App& app, Context& ctx);
 
 }  // namespace tidemark::cli

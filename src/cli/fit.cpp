@@ -1,5 +1,6 @@
 // `tidemark fit`: options -> FitJobOptions -> run_fit.
 #include "commands.hpp"
+#include "tidemark/scan.hpp"  // remove_thread_words
 #include "tidemark/train.hpp"
 
 namespace tidemark::cli {
@@ -10,11 +11,13 @@ void add_fit(CLI::App& app, Context& ctx) {
     auto freeze = std::make_shared<std::vector<std::string>>();
     auto verbose = std::make_shared<bool>(false);
     auto quiet = std::make_shared<bool>(false);
+    auto shard = std::make_shared<std::string>();
 
     CLI::App* cmd = app.add_subcommand(
         "fit", "Learn a profile from sequences: Baum-Welch from a profile or a K-class template, or "
                "counting on labelled regions");
-    cmd->add_option("fasta", opts->inputs, "FASTA files, all records pooled (read once per iteration)")->required();
+    cmd->add_option("fasta", opts->inputs,
+                    "FASTA files, all records pooled (read once per iteration); none with --from-stats");
     cmd->add_option("-p,--profile", opts->profile, "starting profile: built-in name or profile JSON file");
     cmd->add_option("-o,--output", opts->output, "fitted profile JSON (- for stdout)")->capture_default_str();
     cmd->add_option("-r,--region", opts->regions,
@@ -52,14 +55,28 @@ void add_fit(CLI::App& app, Context& ctx) {
     cmd->add_option("--name", opts->name, "name of the fitted profile [start name + '-fit', or classesK-orderk]");
     cmd->add_option("--block", opts->fit.block_size, "decoder block size in bases (0 = automatic)")
         ->capture_default_str();
+    cmd->add_option("-t,--threads", opts->fit.threads,
+                    "E-step threads (0 = every core); the fitted profile is the same for any number")
+        ->capture_default_str();
+    const char* distributed = "Distributed training (one EM iteration over N machines)";
+    cmd->add_option("--emit-stats", opts->emit_stats,
+                    "run one E-step of -p PROFILE and write its expected counts (JSON) instead of fitting")
+        ->group(distributed);
+    cmd->add_option("--shard", *shard, "with --emit-stats: count only share I of N of the records (as scan --shard)")
+        ->group(distributed);
+    cmd->add_option("--from-stats", opts->from_stats,
+                    "sum the counts of every shard's --emit-stats file and write the re-estimated profile "
+                    "(-p: the fit's starting profile, for the structure)")
+        ->group(distributed);
     cmd->add_flag("-v,--verbose", *verbose, "more detail on stderr");
     cmd->add_flag("-q,--quiet", *quiet, "only errors and warnings on stderr");
 
     cmd->callback([=, &ctx] {
-        opts->command_line = ctx.command_line;
+        opts->command_line = remove_thread_words(remove_shard_words(ctx.command_line));
         const LogLevel level = *quiet ? LogLevel::quiet : *verbose ? LogLevel::verbose : LogLevel::normal;
         // Parsing that can throw tidemark errors runs in the action, where main maps them to exit codes.
-        ctx.action = [opts, classes, freeze, level] {
+        ctx.action = [opts, classes, freeze, shard, level] {
+            if (!shard->empty()) opts->shard = parse_shard(*shard);
             if (!classes->empty()) parse_class_range(*classes, opts->classes_min, opts->classes_max);
             for (const auto& w : *freeze) parse_freeze(w, opts->fit.freeze);
             run_fit(*opts, Logger(level));

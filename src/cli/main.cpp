@@ -36,6 +36,7 @@ int main(int argc, char** argv) {
     cli::add_fit(app, ctx);
     cli::add_simulate(app, ctx);
     cli::add_compare(app, ctx);
+    cli::add_merge(app, ctx);
     // One handler for everything: option callbacks may throw tidemark errors while parsing.
     try {
         app.parse(argc, argv);

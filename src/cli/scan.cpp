@@ -16,6 +16,7 @@ void add_scan(CLI::App& app, Context& ctx) {
     auto min_posterior = std::make_shared<double>(0);
     auto merge_gap = std::make_shared<int64_t>(0);
     auto min_length = std::make_shared<int64_t>(0);
+    auto shard = std::make_shared<std::string>();
 
     CLI::App* cmd = app.add_subcommand(
         "scan", "Decode FASTA sequences with a profile: per-base region posteriors and BED calls");
@@ -32,6 +33,10 @@ void add_scan(CLI::App& app, Context& ctx) {
         ->allow_extra_args(false)  // -r A genome.fa: genome.fa is the input, not a second region
         ->group(input);
     cmd->add_option("--regions-bed", opts->regions_bed, "decode only the intervals of this BED file")->group(input);
+    cmd->add_option("--shard", *shard,
+                    "decode only share I of N (1-based) of the records, balanced by length; combine the N "
+                    "outputs with 'tidemark merge'")
+        ->group(input);
 
     const char* decoding = "Decoding and calling";
     cmd->add_option("--decode", *decode, "posterior (exact per-base posteriors) or viterbi (best path)")
@@ -58,6 +63,10 @@ void add_scan(CLI::App& app, Context& ctx) {
         ->capture_default_str()
         ->group(decoding);
     cmd->add_option("--block", opts->block_size, "decoder block size in bases (0 = automatic)")
+        ->capture_default_str()
+        ->group(decoding);
+    cmd->add_option("-t,--threads", opts->threads,
+                    "decoding threads (0 = every core); every output is the same for any number")
         ->capture_default_str()
         ->group(decoding);
 
@@ -105,10 +114,12 @@ void add_scan(CLI::App& app, Context& ctx) {
         opts->criteria = parse_island_criteria(*criteria);
         opts->bed_style = *bed_style == "browser" ? BedStyle::browser : BedStyle::plain;
         opts->tracks.format = *track_format == "bigwig" ? TrackFormat::bigwig : TrackFormat::bedgraph;
-        opts->command_line = ctx.command_line;
+        // Every shard records the single-run command, so merged outputs equal a single run's.
+        opts->command_line = remove_thread_words(remove_shard_words(ctx.command_line));
         const LogLevel level = *quiet ? LogLevel::quiet : *verbose ? LogLevel::verbose : LogLevel::normal;
         opts->progress = !*quiet && !*no_progress && ProgressMeter::stderr_is_terminal();
-        ctx.action = [opts, level] {
+        ctx.action = [opts, shard, level] {
+            if (!shard->empty()) opts->shard = parse_shard(*shard);
             run_scan(*opts, Logger(level));
             return 0;
         };

@@ -1,0 +1,45 @@
+// Merge: combines the outputs of the N shards of a scan (scan --shard I/N) into exactly what a
+// single run with the same options writes.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "tidemark/log.hpp"
+
+namespace tidemark {
+
+/// Inputs are one file (or prefix) per shard. Summaries and reports may be given in any order
+/// (each names its shard); BED files and track prefixes must follow the order of the summaries
+/// (or, without summaries, of the reports). Every shard 1..N must be present.
+///
+/// What is merged exactly (byte for byte equal to a single run): plain and browser BED (plain
+/// or bgzip, with tabix index when --bgzip), bedGraph tracks (plain or bgzip), GFF3 (feature
+/// IDs renumbered through the run in input order), the summary, and the report except its
+/// "resources" object: wall and CPU seconds are the sums over the shards, peak memory the
+/// largest shard's, Mbp/s the bases over the summed wall time (throughput per shard-second).
+/// Not merged: bigWig tracks and chrom-sizes files (merge the bedGraph tracks instead, or run
+/// those outputs without --shard).
+struct MergeOptions {
+    std::vector<std::string> shard_summaries;  ///< scan --summary of every shard
+    std::vector<std::string> shard_reports;    ///< scan --report of every shard
+    std::vector<std::string> shard_beds;       ///< scan -o of every shard, in summary order
+    std::vector<std::string> shard_tracks;  ///< scan --posteriors PREFIX of every shard, same order
+    std::vector<std::string> shard_gff3;    ///< scan --gff3 of every shard, same order
+    std::string output;                     ///< merged BED ("" = stdout when shard_beds are given)
+    std::string summary_path;               ///< merged summary ("" = none)
+    std::string report_path;                ///< merged report ("" = none)
+    std::string gff3_path;                  ///< merged GFF3 ("" = none)
+    std::string tracks_prefix;              ///< merged bedGraph tracks PREFIX.REGION.bedgraph[.gz]
+    bool bgzip = false;                     ///< bgzip + tabix the merged BED and bedGraph files
+};
+
+/// Throws UsageError naming the conflict.
+void validate(const MergeOptions& options);
+
+/// Checks that the shards come from one run (same command without --shard, inputs, profile and
+/// options; every shard present once; every record of the input once) and writes the merged
+/// files, each only when the whole merge succeeds. Throws InputError naming file and line.
+void run_merge(const MergeOptions& options, const Logger& log);
+
+}  // namespace tidemark

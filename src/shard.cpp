@@ -1,0 +1,317 @@
+// Sharding: record lengths (faidx or one pass), longest-first assignment, the record filter,
+// the shard-free command line, and the exact per-contig record merge reads back.
+#include "tidemark/shard.hpp"
+
+#include <fmt/format.h>
+#include <htslib/bgzf.h>
+#include <htslib/faidx.h>
+#include <sys/stat.h>
+
+#include <algorithm>
+#include <fstream>
+#include <numeric>
+
+#include "shard_internal.hpp"
+#include "tidemark/error.hpp"
+#include "tidemark/output.hpp"
+
+namespace tidemark {
+namespace {
+
+constexpr int max_shards = 100000;
+
+bool parse_int(const std::string& s, int& out) {
+    if (s.empty() || s.size() > 6 ||
+        !std::all_of(s.begin(), s.end(), [](char c) { return c >= '0' && c <= '9'; }))
+        return false;
+    out = std::stoi(s);
+    return true;
+}
+
+bool newer_or_same(const std::string& a, const std::string& b) {
+    struct stat sa {
+    }, sb{};
+    if (stat(a.c_str(), &sa) != 0 || stat(b.c_str(), &sb) != 0) return false;
+    return sa.st_mtim.tv_sec > sb.st_mtim.tv_sec ||
+           (sa.st_mtim.tv_sec == sb.st_mtim.tv_sec && sa.st_mtim.tv_nsec >= sb.st_mtim.tv_nsec);
+}
+
+std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai_path) {
+    std::ifstream in(fai_path);
+    if (!in) throw InputError(fai_path + ": cannot open the index");
+    std::vector<ShardUnit> units;
+    std::string line;
+    int64_t number = 0;
+    while (std::getline(in, line)) {
+        ++number;
+        const auto tab = line.find('\t');
+        const auto tab2 = tab == std::string::npos ? tab : line.find('\t', tab + 1);
+        if (tab == std::string::npos || tab == 0)
+            throw InputError(
+                fmt::format("{}: line {}: not a faidx index line (NAME<TAB>LENGTH...); delete "
+                            "the index and rerun",
+                            fai_path, number));
+        ShardUnit u{input, line.substr(0, tab), 0};
+        try {
+            u.length = std::stoll(line.substr(
+                tab + 1, tab2 == std::string::npos ? std::string::npos : tab2 - tab - 1));
+        } catch (const std::exception&) {
+            throw InputError(fmt::format(
+                "{}: line {}: bad sequence length; delete the index and rerun", fai_path, number));
+        }
+        units.push_back(std::move(u));
+    }
+    return units;
+}
+
+// Whether htslib can index the file: bgzip, or uncompressed text starting with '>'.
+bool indexable(const std::string& path) {
+    BGZF* fp = bgzf_open(path.c_str(), "r");
+    if (!fp) return false;
+    const int compression = bgzf_compression(fp);
+    char first = 0;
+    const bool read = bgzf_read(fp, &first, 1) == 1;
+    bgzf_close(fp);
+    return compression == 2 || (compression == 0 && read && first == '>');
+}
+
+// Builds PATH.fai (and PATH.gzi for bgzip) under temporary names and renames them into place.
+bool build_index(const std::string& path) {
+    try {
+        StagedPath fai(path + ".fai");
+        StagedPath gzi(path + ".gzi");
+        if (fai_build3(path.c_str(), fai.temp().c_str(), gzi.temp().c_str()) != 0) return false;
+        struct stat st {};
+        if (stat(gzi.temp().c_str(), &st) == 0 && st.st_size > 0) gzi.commit();
+        fai.commit();
+        return true;
+    } catch (const IoError&) {
+        return false;  // a read-only folder: fall back to reading the records
+    }
+}
+
+std::vector<ShardUnit> record_lengths(const std::string& path) {
+    if (path == "-")
+        throw UsageError(
+            "--shard needs files: every shard must see the whole input to agree on its share, and "
+            "standard input (-) can be read only once");
+    const std::string fai = path + ".fai";
+    if (newer_or_same(fai, path)) return read_fai(path, fai);
+    if (indexable(path) && build_index(path)) return read_fai(path, fai);
+    // Plain gzip and the other compressions cannot be indexed: one pass over the records.
+    std::vector<ShardUnit> units;
+    std::unique_ptr<SequenceSource> source = open_fasta(path);
+    Contig contig;
+    while (source->next(contig)) units.push_back({path, contig.name, contig.length});
+    return units;
+}
+
+ordered_json vector_json(const std::vector<double>& v) {
+    ordered_json a = ordered_json::array();
+    for (double x : v) a.push_back(x);
+    return a;
+}
+
+template <typename T>
+std::vector<T> get_vector(const nlohmann::json& j, const char* key, const std::string& where) {
+    if (!j.contains(key) || !j[key].is_array())
+        throw InputError(fmt::format("{}: shard record lacks '{}'", where, key));
+    std::vector<T> out;
+    for (const auto& x : j[key]) {
+        if (x.is_null())
+            out.push_back(std::numeric_limits<T>::quiet_NaN());
+        else
+            out.push_back(x.get<T>());
+    }
+    return out;
+}
+
+}  // namespace
+
+ShardSpec parse_shard(const std::string& text) {
+    const auto slash = text.find('/');
+    ShardSpec s;
+    if (slash == std::string::npos || !parse_int(text.substr(0, slash), s.index) ||
+        !parse_int(text.substr(slash + 1), s.count) || s.index < 1 || s.index > s.count ||
+        s.count > max_shards)
+        throw UsageError(
+            fmt::format("--shard '{}': expected I/N with 1 <= I <= N <= {} (e.g. --shard 2/8)",
+                        text, max_shards));
+    return s;
+}
+
+std::vector<ShardUnit> list_units(const std::vector<std::string>& inputs,
+                                  const std::vector<Region>& regions) {
+    std::vector<ShardUnit> units;
+    if (!regions.empty()) {
+        for (const auto& r : regions) units.push_back({inputs.at(0), r.contig, r.end - r.begin});
+        return units;
+    }
+    for (const auto& in : inputs) {
+        std::vector<ShardUnit> more = record_lengths(in);
+        units.insert(units.end(), std::make_move_iterator(more.begin()),
+                     std::make_move_iterator(more.end()));
+    }
+    return units;
+}
+
+std::vector<int> assign_shards(const std::vector<int64_t>& lengths, int count) {
+    if (count < 1) throw InternalError("assign_shards: no shards");
+    std::vector<size_t> order(lengths.size());
+    std::iota(order.begin(), order.end(), size_t{0});
+    std::stable_sort(order.begin(), order.end(),
+                     [&](size_t a, size_t b) { return lengths[a] > lengths[b]; });
+    std::vector<int64_t> load(static_cast<size_t>(count), 0);
+    std::vector<int> shard(lengths.size(), 0);
+    for (const size_t u : order) {
+        const auto least =
+            std::min_element(load.begin(), load.end());  // first minimum: lower shard
+        shard[u] = static_cast<int>(least - load.begin());
+        *least += lengths[u];
+    }
+    return shard;
+}
+
+ShardFilter::ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
+                         const std::vector<Region>& regions)
+    : spec_(spec) {
+    if (!spec_.active()) return;
+    units_ = list_units(inputs, regions);
+    std::vector<int64_t> lengths;
+    for (const auto& u : units_) lengths.push_back(u.length);
+    shard_of_ = assign_shards(lengths, spec_.count);
+    for (size_t i = 0; i < units_.size(); ++i) {
+        total_bases_ += units_[i].length;
+        if (shard_of_[i] == spec_.index - 1) shard_bases_ += units_[i].length;
+    }
+}
+
+bool ShardFilter::take(const Contig& contig) {
+    ++next_;
+    if (!spec_.active()) return true;
+    const size_t i = planned_;
+    if (i < units_.size() && units_[i].name == contig.name) {
+        ++planned_;
+        return shard_of_[i] == spec_.index - 1;
+    }
+    // faidx leaves empty records out of its index; they hold no bases, so shard 1 takes them.
+    if (contig.length == 0) return spec_.index == 1;
+    if (i >= units_.size())
+        throw InputError(fmt::format(
+            "{}: record '{}' was not in the shard plan ({} records); if the file changed, "
+            "delete its .fai index and rerun every shard",
+            units_.empty() ? std::string("input") : units_.back().input, contig.name,
+            units_.size()));
+    throw InputError(
+        fmt::format("{}: record {} is '{}', but the shard plan (from {}.fai or a first pass) has "
+                    "'{}'; the index is out of date: delete it and rerun every shard",
+                    units_[i].input, next_, contig.name, units_[i].input, units_[i].name));
+}
+
+void ShardFilter::finish() const {
+    if (spec_.active() && planned_ != units_.size())
+        throw InputError(fmt::format(
+            "{}: read {} records but the shard plan has {}; the index is out of date: "
+            "delete it and rerun every shard",
+            units_.empty() ? std::string("input") : units_.back().input, planned_, units_.size()));
+}
+
+std::string remove_shard_words(const std::string& command_line) {
+    // Split into words at spaces outside single quotes, keeping each word's exact text.
+    std::vector<std::string> words;
+    std::string word;
+    bool quoted = false;
+    for (char c : command_line) {
+        if (c == '\'') quoted = !quoted;
+        if (c == ' ' && !quoted) {
+            words.push_back(word);
+            word.clear();
+        } else {
+            word += c;
+        }
+    }
+    words.push_back(word);
+    std::string out;
+    for (size_t i = 0; i < words.size(); ++i) {
+        if (words[i] == "--shard" && i + 1 < words.size()) {
+            ++i;
+            continue;
+        }
+        if (words[i].rfind("--shard=", 0) == 0) continue;
+        out += (out.empty() ? "" : " ") + words[i];
+    }
+    return out;
+}
+
+ordered_json contig_to_json(const ContigSummary& c) {
+    ordered_json o;
+    o["input_index"] = c.input_index;
+    o["name"] = c.name;
+    o["offset"] = c.offset;
+    o["length"] = c.length;
+    o["unknown"] = c.unknown;
+    o["soft_masked"] = c.soft_masked;
+    const Composition& k = c.composition;
+    o["composition"] = {k.a, k.c, k.g, k.t, k.unknown, k.cpg};
+    o["log_likelihood"] = c.log_likelihood;
+    o["expected_bases"] = vector_json(c.expected_bases);
+    o["called_bases"] = c.called_bases;
+    o["calls"] = c.calls;
+    o["call_lengths"] = c.call_lengths;
+    o["confidence_sum"] = vector_json(c.confidence_sum);
+    ordered_json conf = ordered_json::array();
+    for (const auto& v : c.call_confidences) conf.push_back(vector_json(v));
+    o["call_confidences"] = conf;
+    return o;
+}
+
+ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where) {
+    try {
+        ContigSummary c;
+        c.input_index = j.at("input_index").get<int64_t>();
+        c.name = j.at("name").get<std::string>();
+        c.offset = j.at("offset").get<int64_t>();
+        c.length = j.at("length").get<int64_t>();
+        c.unknown = j.at("unknown").get<int64_t>();
+        c.soft_masked = j.at("soft_masked").get<int64_t>();
+        const auto k = j.at("composition").get<std::vector<int64_t>>();
+        if (k.size() != 6) throw InputError(where + ": shard record 'composition' needs 6 counts");
+        c.composition = Composition{k[0], k[1], k[2], k[3], k[4], k[5]};
+        const auto& ll = j.at("log_likelihood");
+        c.log_likelihood =
+            ll.is_null() ? std::numeric_limits<double>::quiet_NaN() : ll.get<double>();
+        c.expected_bases = get_vector<double>(j, "expected_bases", where);
+        c.called_bases = j.at("called_bases").get<std::vector<int64_t>>();
+        c.calls = j.at("calls").get<std::vector<int64_t>>();
+        c.call_lengths = j.at("call_lengths").get<std::vector<std::vector<int64_t>>>();
+        c.confidence_sum = get_vector<double>(j, "confidence_sum", where);
+        for (const auto& v : j.at("call_confidences")) {
+            std::vector<double> row;
+            for (const auto& x : v)
+                row.push_back(x.is_null() ? std::numeric_limits<double>::quiet_NaN()
+                                          : x.get<double>());
+            c.call_confidences.push_back(std::move(row));
+        }
+        return c;
+    } catch (const nlohmann::json::exception& e) {
+        throw InputError(fmt::format("{}: malformed shard record: {}", where, e.what()));
+    }
+}
+
+std::string shard_json(const ShardFilter& filter, const std::string& options_json,
+                       const std::vector<ContigSummary>& contigs) {
+    ordered_json o;
+    o["index"] = filter.spec().index;
+    o["count"] = filter.spec().count;
+    o["records"] = filter.records();
+    o["options"] =
+        options_json.empty() ? ordered_json::object() : ordered_json::parse(options_json);
+    o["bases"] = filter.shard_bases();
+    o["total_bases"] = filter.total_bases();
+    ordered_json list = ordered_json::array();
+    for (const auto& c : contigs) list.push_back(contig_to_json(c));
+    o["contigs"] = list;
+    return o.dump();
+}
+
+}  // namespace tidemark

@@ -1,0 +1,318 @@
+// Distributed training: a shard's E-step counts as JSON (fit --emit-stats), and the M-step on
+// the summed counts of all shards (fit --from-stats), reusing CountAccumulator and maximise.
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <sstream>
+
+#include "tidemark/error.hpp"
+#include "tidemark/output.hpp"
+#include "tidemark/train.hpp"
+
+namespace tidemark {
+namespace {
+
+using ordered_json = nlohmann::ordered_json;
+
+constexpr const char* stats_format = "tidemark-stats/1";
+
+// The records of one shard, re-read on every pass like FastaTrainingData.
+class ShardTrainingData final : public TrainingData {
+public:
+    ShardTrainingData(const FitJobOptions& o) : inner_(o.inputs, o.regions, o.regions_bed) {
+        std::vector<Region> regions;
+        if (!o.regions.empty() || !o.regions_bed.empty()) {
+            const std::vector<Interval> bed =
+                o.regions_bed.empty() ? std::vector<Interval>{} : read_bed(o.regions_bed);
+            regions = resolve_regions(o.inputs[0], o.regions, bed);
+        }
+        if (o.shard.active()) plan_ = ShardFilter(o.shard, o.inputs, regions);
+    }
+    void for_each(const std::function<void(const Contig&)>& fn) override {
+        ShardFilter filter = plan_;  // a fresh copy per pass: it counts records
+        ordered_json seen = ordered_json::array();
+        inner_.for_each([&](const Contig& c) {
+            if (!filter.take(c)) return;
+            seen.push_back({{"input_index", filter.index()},
+                            {"name", c.name},
+                            {"offset", c.offset},
+                            {"length", c.length},
+                            {"unknown", c.unknown_count()}});
+            fn(c);
+        });
+        filter.finish();
+        records_ = std::move(seen);
+        records_total_ = filter.records();
+    }
+    const ordered_json& records() const { return records_; }
+    const ShardFilter& plan() const { return plan_; }
+    int64_t records_total() const { return records_total_; }  ///< of the whole input, last pass
+
+private:
+    FastaTrainingData inner_;
+    ShardFilter plan_;
+    ordered_json records_;
+    int64_t records_total_ = 0;
+};
+
+ordered_json read_json(const std::string& path) {
+    std::ifstream in(path);
+    if (!in) throw InputError(path + ": cannot open");
+    std::stringstream text;
+    text << in.rdbuf();
+    try {
+        return ordered_json::parse(text.str());
+    } catch (const nlohmann::json::exception& e) {
+        throw InputError(fmt::format("{}: not JSON: {}", path, e.what()));
+    }
+}
+
+}  // namespace
+
+std::string counts_to_json(const TrainingCounts& c) {
+    ordered_json o;
+    o["initial"] = c.initial;
+    o["transitions"] = c.transitions;
+    o["chain_steps"] = c.chain_steps;
+    ordered_json em = ordered_json::array();
+    for (const auto& rows : c.emissions) {
+        ordered_json r = ordered_json::array();
+        for (const auto& row : rows) r.push_back({row[0], row[1], row[2], row[3]});
+        em.push_back(r);
+    }
+    o["emissions"] = em;
+    o["log_likelihood"] = c.log_likelihood;
+    o["positions"] = c.positions;
+    o["known"] = c.known;
+    o["contigs"] = c.contigs;
+    return o.dump();
+}
+
+TrainingCounts counts_from_json(const std::string& text, const Profile& profile,
+                                const std::string& where) {
+    TrainingCounts c = TrainingCounts::zero(profile);
+    const size_t P = profile.states.size();
+    const auto bad = [&](const std::string& what) {
+        return InputError(
+            fmt::format("{}: counts do not fit profile '{}': {}", where, profile.name, what));
+    };
+    try {
+        const nlohmann::json j = nlohmann::json::parse(text);
+        const auto initial = j.at("initial").get<std::vector<double>>();
+        const auto transitions = j.at("transitions").get<std::vector<std::vector<double>>>();
+        const auto chain = j.at("chain_steps").get<std::vector<double>>();
+        if (initial.size() != P || transitions.size() != P || chain.size() != P)
+            throw bad("state count");
+        c.initial = initial;
+        c.chain_steps = chain;
+        for (size_t s = 0; s < P; ++s) {
+            if (transitions[s].size() != P) throw bad("transition row size");
+            c.transitions[s] = transitions[s];
+        }
+        const auto& em = j.at("emissions");
+        if (em.size() != P) throw bad("emission tables");
+        for (size_t s = 0; s < P; ++s) {
+            if (em[s].size() != c.emissions[s].size())
+                throw bad("emission rows of state " + profile.states[s].name);
+            for (size_t r = 0; r < c.emissions[s].size(); ++r) {
+                const auto row = em[s][r].get<std::vector<double>>();
+                if (row.size() != 4) throw bad("an emission row needs 4 counts");
+                std::copy(row.begin(), row.end(), c.emissions[s][r].begin());
+            }
+        }
+        c.log_likelihood = j.at("log_likelihood").get<double>();
+        c.positions = j.at("positions").get<int64_t>();
+        c.known = j.at("known").get<int64_t>();
+        c.contigs = j.at("contigs").get<int64_t>();
+    } catch (const nlohmann::json::exception& e) {
+        throw InputError(fmt::format("{}: malformed counts: {}", where, e.what()));
+    }
+    return c;
+}
+
+void validate_distributed(const FitJobOptions& o) {
+    if (!o.emit_stats.empty() && !o.from_stats.empty())
+        throw UsageError(
+            "--emit-stats (an E-step) and --from-stats (an M-step) are separate runs; give one");
+    if (o.shard.active() && o.emit_stats.empty())
+        throw UsageError(
+            "fit --shard needs --emit-stats: a shard runs one E-step, and fit --from-stats "
+            "combines "
+            "the shards");
+    if (o.classes_min > 0 || !o.labels.empty() || o.init_from_data || o.fit.restarts != 1 ||
+        !o.select.empty())
+        throw UsageError(
+            "--emit-stats/--from-stats run Baum-Welch from a profile: --classes, --labels, "
+            "--init-from-data, --restarts and --select are not available");
+    if (!(o.fit.pseudocount >= 0) || !std::isfinite(o.fit.pseudocount))
+        throw UsageError("--pseudocount must be a finite number >= 0");
+    if (o.fit.block_size < 0) throw UsageError("--block must be >= 0");
+    if (o.fit.threads < 0) throw UsageError("--threads must be >= 0 (0 = every core)");
+    if (!o.emit_stats.empty()) {
+        if (o.inputs.empty()) throw UsageError("--emit-stats needs the FASTA files");
+        if (o.profile.empty())
+            throw UsageError("--emit-stats needs the profile of this iteration (-p NAME|FILE)");
+    } else {
+        if (!o.inputs.empty())
+            throw UsageError("--from-stats reads counts, not sequences: drop the FASTA files (" +
+                             o.inputs[0] + ")");
+        if (!o.regions.empty() || !o.regions_bed.empty())
+            throw UsageError("--region/--regions-bed belong to the --emit-stats runs");
+    }
+}
+
+FitResult emit_statistics(const FitJobOptions& o, const Logger& log) {
+    const Profile profile = load_profile(o.profile);
+    ShardTrainingData data(o);
+    OutputFile out(o.emit_stats);  // fail early on an unwritable path
+    const TrainingCounts counts = expected_counts(profile, data, o.fit.block_size, o.fit.threads);
+
+    ordered_json doc;
+    doc["format"] = stats_format;
+    doc["tool_version"] = TIDEMARK_VERSION;
+    doc["command"] = o.command_line;
+    doc["inputs"] = o.inputs;
+    doc["regions"] = o.regions;
+    doc["regions_bed"] = o.regions_bed;
+    const ShardFilter& plan = data.plan();
+    if (plan.spec().active())
+        doc["shard"] = {{"index", plan.spec().index},
+                        {"count", plan.spec().count},
+                        {"records", data.records_total()},
+                        {"bases", plan.shard_bases()},
+                        {"total_bases", plan.total_bases()}};
+    else  // the whole input as shard 1 of 1
+        doc["shard"] = {{"index", 1},
+                        {"count", 1},
+                        {"records", data.records().size()},
+                        {"bases", counts.positions},
+                        {"total_bases", counts.positions}};
+    doc["profile"] = ordered_json::parse(to_json(profile));
+    doc["counts"] = ordered_json::parse(counts_to_json(counts));
+    doc["sequences"] = data.records();
+    out.write(doc.dump(1) + "\n");
+    out.commit();
+    log.info(fmt::format("fit: shard {}/{}: E-step over {} records, {} bp, log-likelihood {:.6f}",
+                         doc["shard"]["index"].get<int>(), doc["shard"]["count"].get<int>(),
+                         data.records().size(), counts.positions, counts.log_likelihood));
+    FitResult r;
+    r.profile = profile;
+    r.log_likelihood = counts.log_likelihood;
+    r.known_bases = counts.known;
+    r.positions = counts.positions;
+    r.contigs = counts.contigs;
+    return r;
+}
+
+FitResult fit_from_statistics(const FitJobOptions& o, const Logger& log) {
+    OutputFile out(o.output);
+    struct Stats {
+        std::string path;
+        ordered_json doc;
+        int index = 0;
+    };
+    std::vector<Stats> files;
+    for (const auto& path : o.from_stats) {
+        Stats s{path, read_json(path), 0};
+        if (!s.doc.is_object() || s.doc.value("format", "") != stats_format)
+            throw InputError(
+                fmt::format("{}: not a {} file (written by fit --emit-stats)", path, stats_format));
+        s.index = s.doc["shard"].value("index", 0);
+        files.push_back(std::move(s));
+    }
+    // A fixed summation order (by shard), whatever order the files were given in.
+    std::stable_sort(files.begin(), files.end(),
+                     [](const Stats& a, const Stats& b) { return a.index < b.index; });
+    const ordered_json& first = files[0].doc;
+    const int count = first["shard"].value("count", 0);
+    for (size_t k = 0; k < files.size(); ++k) {
+        const ordered_json& d = files[k].doc;
+        for (const char* key : {"tool_version", "inputs", "regions", "regions_bed", "profile"})
+            if (d.value(key, ordered_json()) != first.value(key, ordered_json()))
+                throw InputError(
+                    fmt::format("{} and {} differ in '{}': they are not shards of one E-step",
+                                files[0].path, files[k].path, key));
+        if (d["shard"].value("count", 0) != count ||
+            d["shard"].value("records", -1) != first["shard"].value("records", -1))
+            throw InputError(
+                fmt::format("{} and {}: different shard plans", files[0].path, files[k].path));
+        if (files[k].index != static_cast<int>(k) + 1)
+            throw InputError(fmt::format("statistics of shard {} of {} are {}", k + 1, count,
+                                         k > 0 && files[k].index == files[k - 1].index
+                                             ? "given twice (" + files[k].path + ")"
+                                             : std::string("missing")));
+    }
+    if (static_cast<int>(files.size()) != count)
+        throw InputError(
+            fmt::format("{} statistics files given for {} shards (missing shards from {})",
+                        files.size(), count, files.size() + 1));
+
+    const Profile current = parse_profile(first["profile"].dump(), files[0].path + " (profile)");
+    const Profile structure = o.profile.empty() ? current : load_profile(o.profile);
+    TrainingCounts total = TrainingCounts::zero(current);
+    for (const auto& f : files)
+        total.add(counts_from_json(f.doc["counts"].dump(), current, f.path));
+    if (total.known == 0)
+        throw InputError("the training sequences contain no known base (A, C, G or T)");
+    const FreezeMask freeze = resolve_freeze(o.fit.freeze, structure);
+    Profile p = maximise(structure, current, total, freeze, MStepOptions{o.fit.pseudocount});
+
+    // Named as fit names the result of the same start, whatever the iteration.
+    const std::string start_name = structure.name;
+    const std::string suffix = "-fit";
+    if (!o.name.empty())
+        p.name = o.name;
+    else if (start_name.size() >= suffix.size() &&
+             start_name.compare(start_name.size() - suffix.size(), suffix.size(), suffix) == 0)
+        p.name = start_name;
+    else
+        p.name = start_name + suffix;
+    std::vector<std::string> sources = {fmt::format(
+        "Parameters fitted by tidemark {} fit (distributed Baum-Welch, {} shards) to the sequences "
+        "listed under provenance, starting from profile '{}'.",
+        TIDEMARK_VERSION, count, start_name)};
+    for (const auto& s : structure.sources)
+        if (s.rfind("Parameters fitted by tidemark", 0) != 0)
+            sources.push_back("Starting profile '" + start_name + "': " + s);
+    p.sources = sources;
+
+    ordered_json prov;
+    prov["tool"] = std::string("tidemark ") + TIDEMARK_VERSION;
+    prov["command_line"] = o.command_line;
+    prov["method"] = "baum-welch-distributed";
+    prov["start"] = start_name;
+    prov["shards"] = count;
+    prov["inputs"] = first["inputs"];
+    ordered_json sequences = ordered_json::array();
+    for (const auto& f : files)
+        for (const auto& s : f.doc["sequences"]) sequences.push_back(s);
+    std::stable_sort(sequences.begin(), sequences.end(),
+                     [](const ordered_json& a, const ordered_json& b) {
+                         return a["input_index"].get<int64_t>() < b["input_index"].get<int64_t>();
+                     });
+    prov["sequences_total"] = sequences.size();
+    prov["options"] = {{"pseudocount", o.fit.pseudocount}};
+    prov["known_bases"] = total.known;
+    // The E-step's log-likelihood is that of the profile the shards used, not of the result.
+    prov["input_log_likelihood"] = total.log_likelihood;
+    p.provenance_json = prov.dump();
+    const std::string text = to_json(p);
+    parse_profile(text, "fitted profile");
+    out.write(text);
+    out.commit();
+    log.info(fmt::format(
+        "fit: M-step from {} shards: {} known bases, log-likelihood of the input profile {:.6f}",
+        count, total.known, total.log_likelihood));
+    FitResult r;
+    r.profile = p;
+    r.log_likelihood = total.log_likelihood;
+    r.known_bases = total.known;
+    r.positions = total.positions;
+    r.contigs = total.contigs;
+    r.iterations = 1;
+    return r;
+}
+
+}  // namespace tidemark

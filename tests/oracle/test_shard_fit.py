@@ -1,0 +1,115 @@
+"""Distributed training: fit --emit-stats over shards + fit --from-stats against single-process
+Baum-Welch (fit --max-iter K --tol 0), numbers within 1e-9, and the counts' totals against
+Python's own count of the bases."""
+
+import os
+import subprocess
+
+import numpy as np
+
+import tmtest
+
+SINGLE = "single-process fit --max-iter K --tol 0 (same E-step and M-step in one process)"
+PYTHON = "Python count of the FASTA's bases"
+
+
+def numbers(a, b, path=""):
+    """Largest relative difference over the numbers of two profile JSON documents (provenance,
+    sources and name left out); raises on a structural difference."""
+    if isinstance(a, dict):
+        assert set(a) == set(b), f"{path}: keys differ"
+        return max([numbers(a[k], b[k], f"{path}/{k}") for k in a if k not in ("provenance", "sources", "name")],
+                   default=0.0)
+    if isinstance(a, list):
+        assert len(a) == len(b), f"{path}: lengths differ"
+        return max([numbers(x, y, f"{path}[{i}]") for i, (x, y) in enumerate(zip(a, b))], default=0.0)
+    if isinstance(a, (int, float)) and not isinstance(a, bool):
+        return abs(a - b) / max(1.0, abs(a), abs(b))
+    assert a == b, f"{path}: {a!r} != {b!r}"
+    return 0.0
+
+
+def records(rng):
+    out = []
+    for i, n in enumerate([40000, 90000, 7000, 25000, 60000]):
+        seq = rng.choice(list("ACGT"), size=n, p=rng.dirichlet([6, 5, 5, 6]))
+        for start in rng.integers(0, n - 1500, size=2):
+            seq[start:start + 900] = rng.choice(list("CGTA"), size=900, p=[0.4, 0.4, 0.1, 0.1])
+        if i == 2:
+            seq[100:400] = "N"
+        out.append((f"ctg{i + 1}", "".join(seq)))
+    return out
+
+
+def distributed(binary, work, fasta, profile, n, iterations, tag):
+    current = profile
+    for k in range(1, iterations + 1):
+        stats = []
+        for i in range(1, n + 1):
+            path = os.path.join(work, f"{tag}.stats.{k}.{i}.json")
+            tmtest.run(binary, ["fit", fasta, "-p", current, "--emit-stats", path, "--shard", f"{i}/{n}", "-q"])
+            stats.append(path)
+        nxt = os.path.join(work, f"{tag}.profile.{k}.json")
+        tmtest.run(binary, ["fit", "--from-stats"] + stats[::-1] + ["-p", profile, "-o", nxt, "-q"])
+        current = nxt
+    return current
+
+
+def body(checks, binary, work):
+    rng = np.random.default_rng(77)
+    recs = records(rng)
+    fasta = os.path.join(work, "train.fa")
+    tmtest.write_fasta(fasta, recs)
+    known = sum(sum(s.count(b) for b in "ACGT") for _, s in recs)
+
+    for profile in ("cpg-island", "gc-shift"):
+        for iterations, n in ((1, 3), (2, 4)):
+            single = os.path.join(work, f"{profile}.single.{iterations}.json")
+            tmtest.run(binary, ["fit", fasta, "-p", profile, "--max-iter", str(iterations), "--tol", "0",
+                                "-o", single, "-q"])
+            tag = f"{profile}.{iterations}.{n}"
+            result = distributed(binary, work, fasta, profile, n, iterations, tag)
+            a, b = tmtest.read_json(single), tmtest.read_json(result)
+            diff = numbers(a, b)
+            checks.at_most(diff, 1e-9, f"{profile}: {iterations} EM iteration(s) over {n} shards equal the "
+                                       f"single-process fit", SINGLE)
+            checks.equal(b["name"], a["name"], f"{profile}: the distributed fit is named as fit names it", SINGLE)
+            stats = [tmtest.read_json(os.path.join(work, f"{tag}.stats.1.{i}.json")) for i in range(1, n + 1)]
+            checks.equal(sum(s["counts"]["known"] for s in stats), known,
+                         f"{profile}: the shards' known bases add up to the FASTA's", PYTHON)
+            names = sorted(r["name"] for s in stats for r in s["sequences"])
+            checks.equal(names, sorted(n for n, _ in recs), f"{profile}: every record counted by exactly one shard",
+                         PYTHON)
+
+    # The shards' counts add up to the unsharded E-step's (summation order aside).
+    whole = os.path.join(work, "whole.json")
+    tmtest.run(binary, ["fit", fasta, "-p", "cpg-island", "--emit-stats", whole, "-q"])
+    w = tmtest.read_json(whole)["counts"]
+    parts = [tmtest.read_json(os.path.join(work, f"cpg-island.1.3.stats.1.{i}.json"))["counts"] for i in (1, 2, 3)]
+    total = np.array(sum((np.array(p["transitions"]) for p in parts)))
+    rel = np.max(np.abs(total - np.array(w["transitions"])) / np.maximum(1.0, np.abs(w["transitions"])))
+    checks.at_most(rel, 1e-12, "transition counts of 3 shards add up to one E-step's", "sum of the shard files")
+    checks.at_most(abs(sum(p["log_likelihood"] for p in parts) - w["log_likelihood"]) / abs(w["log_likelihood"]),
+                   1e-12, "log-likelihoods of 3 shards add up to one E-step's",
+                   "ln P(genome) = sum over contigs of ln P(contig)")
+
+    # Failures.
+    s = [os.path.join(work, f"cpg-island.1.3.stats.1.{i}.json") for i in (1, 3)]
+    r = subprocess.run([binary, "fit", "--from-stats"] + s + ["-o", os.path.join(work, "x.json")],
+                       capture_output=True, text=True)
+    checks.check(r.returncode == 1 and "missing" in r.stderr and not os.path.exists(os.path.join(work, "x.json")),
+                 "--from-stats without shard 2 fails", "fit contract", r.stderr.strip())
+    mixed = [os.path.join(work, "cpg-island.1.3.stats.1.1.json"), os.path.join(work, "gc-shift.1.3.stats.1.2.json"),
+             os.path.join(work, "cpg-island.1.3.stats.1.3.json")]
+    r = subprocess.run([binary, "fit", "--from-stats"] + mixed + ["-o", os.path.join(work, "y.json")],
+                       capture_output=True, text=True)
+    checks.check(r.returncode == 1 and "not shards of one E-step" in r.stderr, "statistics of different profiles "
+                 "are refused", "fit contract", r.stderr.strip())
+    r = subprocess.run([binary, "fit", fasta, "-p", "cpg-island", "--shard", "1/2", "-o", "/dev/null"],
+                       capture_output=True, text=True)
+    checks.check(r.returncode == 2, "fit --shard without --emit-stats is a usage error", "documented exit code 2",
+                 r.stderr.strip())
+
+
+if __name__ == "__main__":
+    tmtest.main("distributed fit against single-process Baum-Welch", body)

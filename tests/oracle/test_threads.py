@@ -1,0 +1,145 @@
+"""scan and fit with --threads 1, 2 and 3 against each other (every output byte for byte, the
+report apart from its "resources"), on many contigs and on one contig long enough to be decoded
+in segments; and the segmented posteriors against numpy's own forward-backward in log space."""
+
+import json
+import os
+
+import numpy as np
+
+import tmtest
+
+ONE = "the same command with --threads 1 (outputs must not depend on the thread count)"
+NUMPY = "scaled forward-backward written here in numpy (independent of tidemark)"
+
+
+def records(rng, lengths, prefix):
+    out = []
+    for i, n in enumerate(lengths):
+        seq = rng.choice(list("ACGT"), size=n, p=[0.3, 0.2, 0.2, 0.3])
+        for start in rng.integers(0, max(1, n - 3000), size=max(1, n // 40000)):
+            seq[start:start + 1500] = rng.choice(list("CG"), size=min(1500, n - start))
+        if n > 20000:
+            seq[n // 3:n // 3 + 700] = "N"
+        text = "".join(seq)
+        if i % 2:
+            text = text[:1000] + text[1000:4000].lower() + text[4000:]
+        out.append((f"{prefix}{i + 1}", text))
+    return out
+
+
+def outputs(binary, workdir, tag, fasta, threads, extra):
+    d = os.path.join(workdir, f"{tag}-t{threads}")
+    os.makedirs(d, exist_ok=True)
+    # Relative output names: the recorded command line is then the same in every folder.
+    args = ["scan", "-q", "-t", str(threads), fasta, "-o", "calls.bed", "--bed-style", "browser",
+            "--gff3", "calls.gff3", "--summary", "summary.json", "--report", "report.json",
+            "--chrom-sizes", "sizes.txt", "--posteriors", "p", "--posterior-digits", "6"] + extra
+    tmtest.run(binary, args, cwd=d)
+    tmtest.run(binary, ["scan", "-q", f"--threads={threads}", fasta, "-o", "bw.bed", "--posteriors", "bw",
+                        "--track-format", "bigwig", "--bin", "5"] + extra, cwd=d)
+    tmtest.run(binary, ["scan", "-q", f"-t{threads}", fasta, "-o", "viterbi.bed", "--decode", "viterbi"] + extra,
+               cwd=d)
+    files = {}
+    for name in sorted(os.listdir(d)):
+        with open(os.path.join(d, name), "rb") as f:
+            data = f.read()
+        if name == "report.json":
+            doc = json.loads(data)
+            doc.pop("resources")
+            data = json.dumps(doc, sort_keys=True).encode()
+        files[name] = data
+    return files
+
+
+def numpy_posteriors(profile, seq):
+    """Posterior of each state by scaled forward-backward from the profile JSON alone
+    (order-1 emissions; unknown bases emit 1; the first base uses the mean row)."""
+    states = profile["states"]
+    S = len(states)
+    names = [s["name"] for s in states]
+    code = {c: i for i, c in enumerate("ACGT")}
+    x = [code.get(c.upper(), -1) for c in seq]
+    log_a = np.log(np.array([[profile["transitions"][a].get(b, 0.0) for b in names] for a in names]))
+    log_pi = np.log(np.array([profile["initial"][a] for a in names]))
+    em = [np.array(s["emissions"], dtype=float) for s in states]
+    n = len(x)
+    log_e = np.zeros((n, S))
+    for t in range(n):
+        for s in range(S):
+            if x[t] < 0:
+                continue
+            if t == 0 or x[t - 1] < 0:
+                log_e[t, s] = np.log(em[s][:, x[t]].mean())
+            else:
+                log_e[t, s] = np.log(em[s][x[t - 1], x[t]])
+    # Scaled (per-position normalised) recursions in probability space: log space would add a
+    # rounding error of about 1e-16 times |log f| per step, too much for a 1e-9 comparison.
+    a = np.exp(log_a)
+    e = np.exp(log_e)
+    f = np.zeros((n, S))
+    b = np.ones((n, S))
+    c = np.zeros(n)
+    f[0] = np.exp(log_pi) * e[0]
+    c[0] = f[0].sum()
+    f[0] /= c[0]
+    for t in range(1, n):
+        f[t] = (f[t - 1] @ a) * e[t]
+        c[t] = f[t].sum()
+        f[t] /= c[t]
+    for t in range(n - 2, -1, -1):
+        b[t] = a @ (e[t + 1] * b[t + 1]) / c[t + 1]
+    post = f * b
+    return post / post.sum(axis=1, keepdims=True), float(np.log(c).sum())
+
+
+def body(checks, binary, workdir):
+    rng = np.random.default_rng(20261201)
+    many = os.path.join(workdir, "many.fa")
+    tmtest.write_fasta(many, records(rng, [61000, 150000, 4000, 230000, 90000, 12000, 47000, 1], "ctg"))
+    long_fa = os.path.join(workdir, "long.fa")
+    tmtest.write_fasta(long_fa, records(rng, [2_300_000], "chrL"))
+    # --block 2000: 64 Ki segments (the floor), so the many-contig input is also split inside contigs.
+    for tag, fasta, extra in [("many", many, []), ("many-small-blocks", many, ["--block", "2000"]),
+                              ("long", long_fa, [])]:
+        base = outputs(binary, workdir, tag, fasta, 1, extra)
+        for threads in (2, 3):
+            other = outputs(binary, workdir, tag, fasta, threads, extra)
+            checks.equal(sorted(other), sorted(base), f"{tag}: same output files with --threads {threads}", ONE)
+            for name in sorted(base):
+                checks.check(other.get(name) == base[name], f"{tag}: {name} identical with --threads {threads}", ONE)
+
+    # fit: the E-step in a pool; the fitted profile (with provenance) must not change.
+    def fit(threads, fasta, iterations):
+        tmtest.run(binary, ["fit", "-q", "-t", str(threads), "-p", "cpg-island", "--max-iter", str(iterations),
+                            fasta, "-o", "fit.json"], cwd=workdir)
+        with open(os.path.join(workdir, "fit.json"), "rb") as f:
+            return f.read()
+
+    base = fit(1, many, 2)
+    for threads in (2, 3):
+        checks.check(fit(threads, many, 2) == base, f"fitted profile identical with --threads {threads}", ONE)
+    base = fit(1, long_fa, 1)
+    checks.check(fit(2, long_fa, 1) == base, "fit on one long (segmented) contig identical with --threads 2", ONE)
+
+    # Segmented posteriors against numpy on a 40 kbp contig cut into 16 segments (--block 160).
+    name, seq = records(rng, [40000], "chrP")[0]
+    small = os.path.join(workdir, "small.fa")
+    tmtest.write_fasta(small, [(name, seq)])
+    profile = json.loads(tmtest.run(binary, ["profiles", "show", "cpg-island"]))
+    want, ll = numpy_posteriors(profile, seq)
+    prefix = os.path.join(workdir, "seg")
+    tmtest.run(binary, ["scan", "-q", "-t", "2", small, "-o", prefix + ".bed", "--block", "160",
+                        "--posteriors", prefix, "--posterior-digits", "12", "--summary", prefix + ".json"])
+    got = tmtest.read_bedgraph(prefix + ".cpg_island.bedgraph", {name: len(seq)})[name]
+    region_of = [s["region"] for s in profile["states"]]
+    expect = sum(want[:, i] for i, r in enumerate(region_of) if r == "cpg_island")
+    checks.at_most(float(np.max(np.abs(got - expect))), 1e-9 + 0.5e-12,
+                   "segmented P(cpg_island) per base (12 digits) vs numpy", NUMPY)
+    summary = tmtest.read_json(prefix + ".json")
+    got_ll = summary["contigs"][0]["log_likelihood"]
+    checks.at_most(abs(got_ll - ll) / abs(ll), 1e-9, "segmented log-likelihood vs numpy (relative)", NUMPY)
+
+
+if __name__ == "__main__":
+    tmtest.main("--threads: outputs independent of the thread count", body)

@@ -1,0 +1,81 @@
+"""scripts/workflow/Snakefile run locally (snakemake --cores 2) on the demo genome with 3 shards:
+the gathered BED, tracks and summary equal a single run byte for byte, the report apart from its
+resources, and the distributed EM loop equals single-process fit within 1e-9."""
+
+import os
+import shutil
+import subprocess
+import sys
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+sys.path.insert(0, os.path.join(HERE, "..", "oracle"))
+import tmtest  # noqa: E402
+
+SOURCE = os.path.normpath(os.path.join(HERE, "..", ".."))
+SNAKEFILE = os.path.join(SOURCE, "scripts", "workflow", "Snakefile")
+DEMO = os.path.join(SOURCE, "data", "demo", "demo.fa.gz")
+SINGLE = "single run of the same tidemark command (merged shards must equal it byte for byte)"
+FIT = "single-process fit -p cpg-island --max-iter 2 --tol 0"
+ITERATIONS = 2
+
+
+def numbers(a, b, path=""):
+    """Largest relative difference over the numbers of two profiles (provenance, sources, name aside)."""
+    if isinstance(a, dict):
+        assert set(a) == set(b), f"{path}: keys differ"
+        return max([numbers(a[k], b[k], f"{path}/{k}") for k in a if k not in ("provenance", "sources", "name")],
+                   default=0.0)
+    if isinstance(a, list):
+        assert len(a) == len(b), f"{path}: lengths differ"
+        return max([numbers(x, y, f"{path}[{i}]") for i, (x, y) in enumerate(zip(a, b))], default=0.0)
+    if isinstance(a, (int, float)) and not isinstance(a, bool):
+        return abs(a - b) / max(1.0, abs(a), abs(b))
+    assert a == b, f"{path}: {a!r} != {b!r}"
+    return 0.0
+
+
+def read_bytes(path):
+    with open(path, "rb") as f:
+        return f.read()
+
+
+def body(checks, binary, work):
+    snakemake = shutil.which("snakemake")
+    if not checks.check(snakemake is not None, "snakemake is installed", "scripts/install-deps.sh (Debian snakemake)"):
+        return
+    out = os.path.join(work, "out")
+    cmd = [snakemake, "-s", SNAKEFILE, "--cores", "2", "--directory", work, "-q", "--config",
+           f"tidemark={binary}", f"genome={DEMO}", f"outdir={out}", "shards=3", "posteriors=true",
+           f"fit_iterations={ITERATIONS}", "fit_start=cpg-island"]
+    proc = subprocess.run(cmd, capture_output=True, text=True)
+    if not checks.check(proc.returncode == 0, "snakemake --cores 2 runs the workflow", "Snakemake exit status",
+                        proc.stderr[-2000:] if proc.returncode else ""):
+        return
+
+    single = os.path.join(work, "single")
+    os.makedirs(single)
+    # The same words as every shard's command apart from --shard (the workflow's threads default is 1).
+    tmtest.run(binary, ["scan", DEMO, "-p", "cpg-island", "-t", "1", "-o", "calls.bed", "--summary", "summary.json",
+                        "--report", "report.json", "--posteriors", "post", "-q"], cwd=single)
+    for ours, theirs in (("calls.bed", "calls.bed"), ("summary.json", "summary.json"),
+                         ("tracks/posteriors.cpg_island.bedgraph", "post.cpg_island.bedgraph")):
+        checks.check(read_bytes(os.path.join(out, ours)) == read_bytes(os.path.join(single, theirs)),
+                     f"gathered {ours} equals the single run's", SINGLE)
+    a = tmtest.read_json(os.path.join(single, "report.json"))
+    b = tmtest.read_json(os.path.join(out, "report.json"))
+    a.pop("resources")
+    b.pop("resources")
+    checks.check(a == b, "gathered report equals the single run's apart from resources", SINGLE)
+    shards = [tmtest.read_json(os.path.join(out, "shards", str(i), "summary.json")) for i in (1, 2, 3)]
+    checks.equal(sorted(c["name"] for s in shards for c in s["contigs"]),
+                 sorted(n for n, _ in tmtest.read_fasta(DEMO)), "the 3 shards decode every record once",
+                 "Python reading of the FASTA")
+
+    ref = os.path.join(work, "single-fit.json")
+    tmtest.run(binary, ["fit", DEMO, "-p", "cpg-island", "--max-iter", str(ITERATIONS), "--tol", "0", "-o", ref, "-q"])
+    diff = numbers(tmtest.read_json(ref), tmtest.read_json(os.path.join(out, "fitted-profile.json")))
+    checks.at_most(diff, 1e-9, f"{ITERATIONS} distributed EM iterations over 3 shards equal single-process fit", FIT)
+
+
+if __name__ == "__main__":
+    tmtest.main("Snakemake workflow: scatter/gather scan and distributed EM", body)
