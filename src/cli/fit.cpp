@@ -21,7 +21,8 @@ void add_fit(CLI::App& app, Context& ctx) {
     cmd->add_option("-p,--profile", opts->profile, "starting profile: built-in name or profile JSON file");
     cmd->add_option("-o,--output", opts->output, "fitted profile JSON (- for stdout)")->capture_default_str();
     cmd->add_option("-r,--region", opts->regions,
-                    "train only on this region: NAME or NAME:BEG-END, 1-based inclusive (repeatable)");
+                    "train only on this region: NAME or NAME:BEG-END, 1-based inclusive (repeatable)")
+        ->allow_extra_args(false);  // -r A genome.fa: genome.fa is the input, not a second region
     cmd->add_option("--regions-bed", opts->regions_bed, "train only on the intervals of this BED file");
     cmd->add_option("--classes", *classes,
                     "start from a template of K composition classes seeded from the data; A..B fits each "
@@ -51,7 +52,8 @@ void add_fit(CLI::App& app, Context& ctx) {
     cmd->add_option("--seed", opts->fit.seed, "random seed of the restarts' perturbations")->capture_default_str();
     cmd->add_option("--freeze", *freeze,
                     "keep fixed: initial, transitions, emissions, transitions:STATE or emissions:STATE "
-                    "(repeatable)");
+                    "(repeatable)")
+        ->allow_extra_args(false);
     cmd->add_option("--name", opts->name, "name of the fitted profile [start name + '-fit', or classesK-orderk]");
     cmd->add_option("--block", opts->fit.block_size, "decoder block size in bases (0 = automatic)")
         ->capture_default_str();
