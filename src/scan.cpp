@@ -16,7 +16,7 @@
 
 namespace tidemark {
 
-std::string remove_thread_words(const std::string& command_line) {
+std::string recorded_command_line(const std::string& command_line) {
     // Words split at spaces outside single quotes, as the command line was quoted.
     std::vector<std::string> words;
     std::string word;
@@ -31,15 +31,17 @@ std::string remove_thread_words(const std::string& command_line) {
         }
     }
     words.push_back(word);
+    const auto digits_from = [](const std::string& w, size_t at) {
+        return w.size() > at && w.find_first_not_of("0123456789", at) == std::string::npos;
+    };
     std::string out;
     for (size_t i = 0; i < words.size(); ++i) {
         const std::string& w = words[i];
-        if ((w == "-t" || w == "--threads") && i + 1 < words.size()) {
-            ++i;
+        if ((w == "-t" || w == "--threads" || w == "--shard") && i + 1 < words.size()) {
+            ++i;  // the option's value
             continue;
         }
-        if (w.rfind("--threads=", 0) == 0 || (w.size() > 2 && w.rfind("-t", 0) == 0 &&
-                                               w.find_first_not_of("0123456789", 2) == std::string::npos))
+        if (w.rfind("--threads=", 0) == 0 || w.rfind("--shard=", 0) == 0 || (w.rfind("-t", 0) == 0 && digits_from(w, 2)))
             continue;
         out += (out.empty() ? "" : " ") + w;
     }

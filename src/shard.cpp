@@ -216,33 +216,6 @@ void ShardFilter::finish() const {
             units_.empty() ? std::string("input") : units_.back().input, planned_, units_.size()));
 }
 
-std::string remove_shard_words(const std::string& command_line) {
-    // Split into words at spaces outside single quotes, keeping each word's exact text.
-    std::vector<std::string> words;
-    std::string word;
-    bool quoted = false;
-    for (char c : command_line) {
-        if (c == '\'') quoted = !quoted;
-        if (c == ' ' && !quoted) {
-            words.push_back(word);
-            word.clear();
-        } else {
-            word += c;
-        }
-    }
-    words.push_back(word);
-    std::string out;
-    for (size_t i = 0; i < words.size(); ++i) {
-        if (words[i] == "--shard" && i + 1 < words.size()) {
-            ++i;
-            continue;
-        }
-        if (words[i].rfind("--shard=", 0) == 0) continue;
-        out += (out.empty() ? "" : " ") + words[i];
-    }
-    return out;
-}
-
 ordered_json contig_to_json(const ContigSummary& c) {
     ordered_json o;
     o["input_index"] = c.input_index;

@@ -1,5 +1,6 @@
 // Sharding: "I/N" parsing, the longest-first assignment against Graham's bound and exhaustive
 // enumeration, exact cover of the records by the shard filters, and the shard-free command.
+#include "tidemark/scan.hpp"
 #include "tidemark/shard.hpp"
 
 #include <sys/stat.h>
@@ -157,13 +158,13 @@ TEST_CASE("standard input is refused with --shard") {
     CHECK_THROWS_AS(list_units({"-"}, {}), UsageError);
 }
 
-TEST_CASE("remove_shard_words drops --shard I/N and --shard=I/N only") {
-    CHECK(remove_shard_words("tidemark scan g.fa --shard 2/3 -o x.bed") ==
-          "tidemark scan g.fa -o x.bed");
-    CHECK(remove_shard_words("tidemark scan --shard=1/4 g.fa") == "tidemark scan g.fa");
-    CHECK(remove_shard_words("tidemark scan g.fa --shard 1/2") == "tidemark scan g.fa");
-    // A quoted word that merely contains the text stays as it is.
-    CHECK(remove_shard_words("tidemark scan 'a --shard 1/2.fa' -q") ==
-          "tidemark scan 'a --shard 1/2.fa' -q");
-    CHECK(remove_shard_words("tidemark scan g.fa") == "tidemark scan g.fa");
+TEST_CASE("recorded_command_line drops --shard and --threads in every spelling, nothing else") {
+    CHECK(recorded_command_line("tidemark scan g.fa --shard 2/3 -o x.bed") == "tidemark scan g.fa -o x.bed");
+    CHECK(recorded_command_line("tidemark scan --shard=1/4 g.fa") == "tidemark scan g.fa");
+    CHECK(recorded_command_line("tidemark scan g.fa --shard 1/2") == "tidemark scan g.fa");
+    CHECK(recorded_command_line("tidemark scan -t 3 g.fa -t2 --threads 4 --threads=1 -q") == "tidemark scan g.fa -q");
+    // A quoted word that merely contains the text stays as it is; -tx is not a thread count.
+    CHECK(recorded_command_line("tidemark scan 'a --shard 1/2.fa' -q") == "tidemark scan 'a --shard 1/2.fa' -q");
+    CHECK(recorded_command_line("tidemark scan -tx g.fa") == "tidemark scan -tx g.fa");
+    CHECK(recorded_command_line("tidemark scan g.fa") == "tidemark scan g.fa");
 }

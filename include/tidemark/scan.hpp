@@ -41,9 +41,11 @@ struct ScanOptions {
     std::string command_line;               ///< recorded in headers and the summary (without --shard)
 };
 
-/// The command line without -t/--threads and its value (-t N, -tN, --threads N, --threads=N),
-/// so that outputs recording the command do not depend on the number of threads.
-std::string remove_thread_words(const std::string& command_line);
+/// The command line as outputs record it: without the options that never change results,
+/// -t/--threads (-t N, -tN, --threads N, --threads=N) and --shard (--shard I/N, --shard=I/N),
+/// so that runs differing only in those record the same command and write identical files.
+/// Words are those of the shell-quoted form tidemark records (single quotes).
+std::string recorded_command_line(const std::string& command_line);
 
 /// Validates option combinations; throws UsageError naming the conflict.
 void validate(const ScanOptions& options);

@@ -82,11 +82,6 @@ private:
     int64_t shard_bases_ = 0, total_bases_ = 0;
 };
 
-/// The recorded command line with the words "--shard I/N" (or "--shard=I/N") removed, so that
-/// every shard of a run and a single run record the same command. Words are those of the
-/// shell-quoted form tidemark records (single quotes).
-std::string remove_shard_words(const std::string& command_line);
-
 /// The "shard" object of a shard's summary and report: index, count, records of the whole input,
 /// the effective options (a JSON object, so that merge can refuse shards of different runs even
 /// from summaries), and every ContigSummary field of this shard's contigs at full precision

@@ -1,6 +1,6 @@
 // `tidemark fit`: options -> FitJobOptions -> run_fit.
 #include "commands.hpp"
-#include "tidemark/scan.hpp"  // remove_thread_words
+#include "tidemark/scan.hpp"  // recorded_command_line
 #include "tidemark/train.hpp"
 
 namespace tidemark::cli {
@@ -74,7 +74,7 @@ void add_fit(CLI::App& app, Context& ctx) {
     cmd->add_flag("-q,--quiet", *quiet, "only errors and warnings on stderr");
 
     cmd->callback([=, &ctx] {
-        opts->command_line = remove_thread_words(remove_shard_words(ctx.command_line));
+        opts->command_line = recorded_command_line(ctx.command_line);
         const LogLevel level = *quiet ? LogLevel::quiet : *verbose ? LogLevel::verbose : LogLevel::normal;
         // Parsing that can throw tidemark errors runs in the action, where main maps them to exit codes.
         ctx.action = [opts, classes, freeze, shard, level] {

@@ -115,7 +115,7 @@ void add_scan(CLI::App& app, Context& ctx) {
         opts->bed_style = *bed_style == "browser" ? BedStyle::browser : BedStyle::plain;
         opts->tracks.format = *track_format == "bigwig" ? TrackFormat::bigwig : TrackFormat::bedgraph;
         // Every shard records the single-run command, so merged outputs equal a single run's.
-        opts->command_line = remove_thread_words(remove_shard_words(ctx.command_line));
+        opts->command_line = recorded_command_line(ctx.command_line);
         const LogLevel level = *quiet ? LogLevel::quiet : *verbose ? LogLevel::verbose : LogLevel::normal;
         opts->progress = !*quiet && !*no_progress && ProgressMeter::stderr_is_terminal();
         ctx.action = [opts, shard, level] {
