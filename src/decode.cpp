@@ -134,6 +134,39 @@ inline double sum_of(const double* v, int S) {
     return s;
 }
 
+// p = f * b / (f . b), the posterior row from scaled forward and backward vectors; false when
+// f . b is not positive (the sequence is impossible there).
+template <int Fixed>
+inline bool combine_posterior(const double* f, const double* b, int states, double* p) {
+    const int S = Fixed > 0 ? Fixed : states;
+    double dot = f[0] * b[0];
+    for (int i = 1; i < S; ++i) dot += f[i] * b[i];
+    if (!(dot > 0)) return false;
+    const double inv = 1.0 / dot;
+    for (int i = 0; i < S; ++i) p[i] = f[i] * b[i] * inv;
+    return true;
+}
+
+// One block's sweeps, interleaved so that the processor overlaps the two recursions: iteration
+// i computes forward(i) and backward(n-2-i) (backward(n-1) is the checkpoint). Position t has
+// both once i = max(t, n-2-t), so the second half of the iterations also finishes two
+// posteriors each, filling the gaps that the two recursions leave.
+template <class Forward, class Backward, class Posterior>
+inline void interleaved_block(int64_t n, Forward& forward_at, Backward& backward_at, Posterior& posterior_at) {
+    int64_t i = 0;
+    for (; i < n && 2 * i < n - 2; ++i) {
+        forward_at(i);
+        backward_at(n - 2 - i);
+    }
+    for (; i < n; ++i) {
+        forward_at(i);
+        const int64_t u = n - 2 - i;
+        if (u >= 0) backward_at(u);
+        posterior_at(i);
+        if (u >= 0 && u != i) posterior_at(u);
+    }
+}
+
 }  // namespace
 
 void SinkFanout::begin_contig(const Contig& c) {
@@ -554,30 +587,10 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
             copy_vec(bn, S, bw + u * S);
         };
         const auto posterior_at = [&](int64_t t) {
-            const double* f = fw + t * S;
-            const double* b = bw + t * S;
-            double* p = posterior_.data() + t * S;
-            double dot = f[0] * b[0];
-            for (int i = 1; i < S; ++i) dot += f[i] * b[i];
-            if (!(dot > 0)) impossible(m, contig, start + t);
-            const double inv = 1.0 / dot;
-            for (int i = 0; i < S; ++i) p[i] = f[i] * b[i] * inv;
+            if (!combine_posterior<Fixed>(fw + t * S, bw + t * S, S, posterior_.data() + t * S))
+                impossible(m, contig, start + t);
         };
-        // Iteration i computes forward(i) and backward(n-2-i). Position t has both once
-        // i = max(t, n-2-t), so the second half of the iterations also finishes two
-        // posteriors each, filling the gaps that the two recursions leave.
-        int64_t i = 0;
-        for (; i < n && 2 * i < n - 2; ++i) {
-            forward_at(i);
-            backward_at(n - 2 - i);
-        }
-        for (; i < n; ++i) {
-            forward_at(i);
-            const int64_t u = n - 2 - i;
-            if (u >= 0) backward_at(u);
-            posterior_at(i);
-            if (u >= 0 && u != i) posterior_at(u);
-        }
+        interleaved_block(n, forward_at, backward_at, posterior_at);
         BlockView view;
         view.begin = start;
         view.size = n;
@@ -921,27 +934,10 @@ DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& s
                 copy_vec(bn.data(), S, bw + u * S);
             };
             const auto posterior_at = [&](int64_t t) {
-                const double* f = fw + t * S;
-                const double* b = bw + t * S;
-                double* p = ws.posterior.data() + t * S;
-                double dot = f[0] * b[0];
-                for (int i = 1; i < S; ++i) dot += f[i] * b[i];
-                if (!(dot > 0)) impossible(m, contig, start + t);
-                const double inv = 1.0 / dot;
-                for (int i = 0; i < S; ++i) p[i] = f[i] * b[i] * inv;
+                if (!combine_posterior<Fixed>(fw + t * S, bw + t * S, S, ws.posterior.data() + t * S))
+                    impossible(m, contig, start + t);
             };
-            int64_t i = 0;
-            for (; i < n && 2 * i < n - 2; ++i) {
-                forward_at(i);
-                backward_at(n - 2 - i);
-            }
-            for (; i < n; ++i) {
-                forward_at(i);
-                const int64_t u = n - 2 - i;
-                if (u >= 0) backward_at(u);
-                posterior_at(i);
-                if (u >= 0 && u != i) posterior_at(u);
-            }
+            interleaved_block(n, forward_at, backward_at, posterior_at);
             BlockView view;
             view.begin = start;
             view.size = n;
