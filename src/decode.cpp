@@ -645,16 +645,6 @@ struct Segment {
     int64_t exponent = 0;
 };
 
-// Multiplies a matrix (or vector, n entries) by the power of two that brings `sum` into
-// [0.5, 1); returns the exponent removed.
-inline int rescale_n(double* v, int n, double sum) {
-    const int e = exponent_of(sum);
-    const double f = pow2(-e);
-    for (int i = 0; i < n; ++i) v[i] *= f;
-    return e;
-}
-
-
 // M = F_row M for each row of rows[0..count) in turn (the matrix sweep's step); returns the
 // exponent removed by rescaling. M is row-major S x S; its columns are independent vector
 // recursions, so a step costs about as much time as one vector step of the sequential sweep.
@@ -839,7 +829,7 @@ DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& s
             s += acc;
         }
         if (!(s > 0)) impossible(m, contig, segs[k + 1].begin);
-        if (s < rescale_below) rescale_n(v.data(), S, s);
+        if (s < rescale_below) rescale(v.data(), S, s);
         segs[k].end_vector = std::move(v);
     }
     {
@@ -859,7 +849,7 @@ DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& s
             }
             const double s = sum_of(a.data(), S);
             if (!(s > 0)) impossible(m, contig, segs[k].begin - 1);
-            if (s < rescale_below) aexp += rescale_n(a.data(), S, s);
+            if (s < rescale_below) aexp += rescale(a.data(), S, s);
             segs[k].before = a;
             segs[k].before_exponent = aexp;
         }
