@@ -630,10 +630,8 @@ struct PosteriorDecoder::Workspace {
 
 PosteriorDecoder::~PosteriorDecoder() = default;
 
-namespace {
-
 // What the matrix sweep and the chaining know about one segment [begin, end).
-struct Segment {
+struct PosteriorDecoder::Segment {
     int64_t begin = 0, end = 0;
     std::vector<double> marks;  ///< per block: the S x S matrix at the block's last position
     std::vector<double> product;  ///< F_begin M_begin (segment 0: the row (pi * e_0) M_0)
@@ -644,6 +642,8 @@ struct Segment {
     double last_sum = 0;             ///< the forward sweep's last sum and exponent
     int64_t exponent = 0;
 };
+
+namespace {
 
 // M = F_row M for each row of rows[0..count) in turn (the matrix sweep's step); returns the
 // exponent removed by rescaling. M is row-major S x S; its columns are independent vector
@@ -723,46 +723,52 @@ inline int64_t matrix_steps_back(const double* folded, const uint32_t* rows, int
 
 bool PosteriorDecoder::splits(int64_t length) const { return segment_ > 0 && length > segment_; }
 
-template <int Fixed>
-DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool) {
-    static_assert(Fixed > 0, "segmented decoding needs a compile-time state count");
-    constexpr int S = Fixed;
-    constexpr int SS = S * S;
-    const Model& m = model_;
-    const int64_t N = contig.length;
-    const int64_t B = std::min(block_, segment_);
-    const TableLayout layout(m.max_order);
-    const double* table = fast_emission_.data();
-    const double* folded = folded_.data();
-    if (fast_emission_.empty() || folded_.empty())
-        throw InternalError("decoder: emission table missing for a small model");
-    DecodeResult result;
-    sink.begin_contig(contig);
-
-    const int workers = pool ? pool->threads() : 1;
-    while (static_cast<int>(workspaces_.size()) < workers) workspaces_.push_back(std::make_unique<Workspace>());
-    for (auto& w : workspaces_) w->size(B, S);
-    std::vector<Segment> segs(static_cast<size_t>((N + segment_ - 1) / segment_));
+// The segments of a contig of length N: [k * segment, min(N, (k + 1) * segment)).
+std::vector<PosteriorDecoder::Segment> PosteriorDecoder::make_segments(int64_t N) const {
+    std::vector<Segment> segs(segment_count(N));
     for (size_t k = 0; k < segs.size(); ++k) {
         segs[k].begin = static_cast<int64_t>(k) * segment_;
         segs[k].end = std::min(N, segs[k].begin + segment_);
     }
-    // Runs task(k, workspace) for every segment, in parallel when there is a pool; waits for
-    // all of them, then rethrows the first failure in segment order.
-    const auto for_segments = [&](const std::function<void(size_t, Workspace&)>& task) {
-        if (!pool) {
-            for (size_t k = 0; k < segs.size(); ++k) task(k, *workspaces_[0]);
-            return;
-        }
-        std::vector<std::future<void>> done;
-        for (size_t k = 0; k < segs.size(); ++k)
-            done.push_back(pool->submit([&, k](int w) { task(k, *workspaces_[static_cast<size_t>(w)]); }));
-        for (auto& f : done) f.wait();
-        for (auto& f : done) f.get();
-    };
+    return segs;
+}
 
+size_t PosteriorDecoder::segment_count(int64_t length) const {
+    return splits(length) ? static_cast<size_t>((length + segment_ - 1) / segment_) : 1;
+}
+
+// Runs task(k, workspace) for k in [first, last), in parallel when there is a pool; waits for
+// all of them, then rethrows the first failure in segment order.
+void PosteriorDecoder::for_segments(size_t first, size_t last, TaskPool* pool,
+                                    const std::function<void(size_t, Workspace&)>& task) {
+    const int workers = pool ? pool->threads() : 1;
+    const int S = model_.states;
+    const int64_t B = std::min(block_, segment_);
+    while (static_cast<int>(workspaces_.size()) < workers) workspaces_.push_back(std::make_unique<Workspace>());
+    for (auto& w : workspaces_) w->size(B, S);
+    if (!pool) {
+        for (size_t k = first; k < last; ++k) task(k, *workspaces_[0]);
+        return;
+    }
+    std::vector<std::future<void>> done;
+    for (size_t k = first; k < last; ++k)
+        done.push_back(pool->submit([&, k](int w) { task(k, *workspaces_[static_cast<size_t>(w)]); }));
+    for (auto& f : done) f.wait();
+    for (auto& f : done) f.get();
+}
+
+template <int Fixed>
+void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last,
+                                     TaskPool* pool) {
+    constexpr int S = Fixed;
+    constexpr int SS = S * S;
+    const Model& m = model_;
+    const int64_t B = std::min(block_, segment_);
+    const TableLayout layout(m.max_order);
+    const double* table = fast_emission_.data();
+    const double* folded = folded_.data();
     // (a) Matrix sweep per segment: M = I at the segment's last position, M_t = F_{t+1} M_{t+1}.
-    for_segments([&](size_t k, Workspace& ws) {
+    for_segments(first, last, pool, [&](size_t k, Workspace& ws) {
         Segment& sg = segs[k];
         const int64_t n_seg = sg.end - sg.begin;
         const int64_t nb = (n_seg + B - 1) / B;
@@ -813,6 +819,22 @@ DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& s
         }
     });
 
+}
+
+template <int Fixed>
+DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<Segment>& segs, size_t first,
+                                              size_t last, DecodeSink& sink, const SegmentTaker& take,
+                                              TaskPool* pool) {
+    constexpr int S = Fixed;
+    constexpr int SS = S * S;
+    const Model& m = model_;
+    const int64_t B = std::min(block_, segment_);
+    const TableLayout layout(m.max_order);
+    const double* table = fast_emission_.data();
+    const double* folded = folded_.data();
+    const int workers = pool ? pool->threads() : 1;
+    while (static_cast<int>(workspaces_.size()) < workers) workspaces_.push_back(std::make_unique<Workspace>());
+    for (auto& w : workspaces_) w->size(B, S);
     // (b) Chaining: backward vectors at segment ends from the contig end, forward vectors before
     // segment starts from the initial distribution.
     const size_t K = segs.size();
@@ -945,6 +967,7 @@ DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& s
     };
     // At most workers + 1 forks hold results at once; they are joined in order.
     struct Pending {
+        size_t segment = 0;
         std::unique_ptr<DecodeSink> fork;
         std::future<void> done;
     };
@@ -954,13 +977,14 @@ DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& s
             if (p.done.valid()) p.done.wait();
     };
     try {
-        for (size_t k = 0; k < K; ++k) {
+        for (size_t k = first; k < last; ++k) {
             while (window.size() > static_cast<size_t>(workers)) {
                 window.front().done.get();
-                sink.join(*window.front().fork);
+                take(window.front().segment, *window.front().fork);
                 window.pop_front();
             }
             Pending p;
+            p.segment = k;
             p.fork = sink.fork();
             if (!p.fork) throw InternalError("decoder: a sink stopped being forkable");
             p.fork->begin_contig(contig);
@@ -977,17 +1001,101 @@ DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& s
         }
         while (!window.empty()) {
             window.front().done.get();
-            sink.join(*window.front().fork);
+            take(window.front().segment, *window.front().fork);
             window.pop_front();
         }
     } catch (...) {
         wait_all();  // tasks still running use this frame's data
         throw;
     }
-    const Segment& last = segs[K - 1];
-    result.log_likelihood = std::log(last.last_sum) + static_cast<double>(last.exponent) * ln2;
+    DecodeResult result;
+    result.log_likelihood = std::numeric_limits<double>::quiet_NaN();
+    if (last == K) {
+        const Segment& final_segment = segs[K - 1];
+        result.log_likelihood =
+            std::log(final_segment.last_sum) + static_cast<double>(final_segment.exponent) * ln2;
+    }
+    return result;
+}
+
+template <int Fixed>
+DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool) {
+    static_assert(Fixed > 0, "segmented decoding needs a compile-time state count");
+    if (fast_emission_.empty() || folded_.empty())
+        throw InternalError("decoder: emission table missing for a small model");
+    sink.begin_contig(contig);
+    std::vector<Segment> segs = make_segments(contig.length);
+    matrix_sweeps<Fixed>(contig, segs, 0, segs.size(), pool);
+    const DecodeResult result = sweep_segments<Fixed>(
+        contig, segs, 0, segs.size(), sink, [&](size_t, DecodeSink& fork) { sink.join(fork); }, pool);
     sink.end_contig(contig, result);
     return result;
+}
+
+namespace {
+
+// Calls f(std::integral_constant<int, S>) for the model's state count (1..max_fixed_states).
+template <typename F>
+decltype(auto) with_fixed_states(int states, F&& f) {
+    switch (states) {
+        case 1: return f(std::integral_constant<int, 1>{});
+        case 2: return f(std::integral_constant<int, 2>{});
+        case 3: return f(std::integral_constant<int, 3>{});
+        case 4: return f(std::integral_constant<int, 4>{});
+        case 5: return f(std::integral_constant<int, 5>{});
+        case 6: return f(std::integral_constant<int, 6>{});
+        default: throw InternalError("decoder: segments need a model of at most 6 states");
+    }
+}
+
+}  // namespace
+
+std::vector<SegmentSeam> PosteriorDecoder::seams(const Contig& contig, size_t first, size_t last, TaskPool* pool) {
+    std::vector<Segment> segs = make_segments(contig.length);
+    if (!splits(contig.length) || first > last || last > segs.size())
+        throw InternalError("PosteriorDecoder::seams: not a split contig or a bad segment range");
+    with_fixed_states(model_.states, [&](auto fixed) {
+        matrix_sweeps<decltype(fixed)::value>(contig, segs, first, last, pool);
+    });
+    std::vector<SegmentSeam> out;
+    for (size_t k = first; k < last; ++k)
+        out.push_back({segs[k].begin, segs[k].end, std::move(segs[k].product), segs[k].product_exponent});
+    return out;
+}
+
+DecodeResult PosteriorDecoder::run_segments(const Contig& contig, const std::vector<SegmentSeam>& all, size_t first,
+                                            size_t last, DecodeSink& sink, const SegmentTaker& take,
+                                            TaskPool* pool) {
+    std::vector<Segment> segs = make_segments(contig.length);
+    if (!splits(contig.length) || first >= last || last > segs.size())
+        throw InternalError("PosteriorDecoder::run_segments: not a split contig or a bad segment range");
+    if (all.size() != segs.size())
+        throw InputError(fmt::format("record '{}': the seams given have {} segments, the record has {}; they "
+                                     "come from another input or other options",
+                                     contig.name, all.size(), segs.size()));
+    const size_t S = static_cast<size_t>(model_.states);
+    return with_fixed_states(model_.states, [&](auto fixed) {
+        matrix_sweeps<decltype(fixed)::value>(contig, segs, first, last, pool);
+        for (size_t k = 0; k < segs.size(); ++k) {
+            Segment& sg = segs[k];
+            const SegmentSeam& given = all[k];
+            const bool mine = k >= first && k < last;
+            const bool fits = given.begin == sg.begin && given.end == sg.end &&
+                              given.product.size() == (k == 0 ? S : S * S);
+            // Recomputed seams must be bit for bit those given: otherwise the other processes
+            // saw another sequence, profile or options, and the boundary vectors would be wrong.
+            if (!fits || (mine && (given.product != sg.product || given.exponent != sg.product_exponent)))
+                throw InputError(fmt::format(
+                    "record '{}', segment {} ({}-{}): the seams given do not match this sequence; they "
+                    "come from another input, profile or --block/--bin",
+                    contig.name, k + 1, sg.begin, sg.end));
+            if (!mine) {
+                sg.product = given.product;
+                sg.product_exponent = given.exponent;
+            }
+        }
+        return sweep_segments<decltype(fixed)::value>(contig, segs, first, last, sink, take, pool);
+    });
 }
 
 ViterbiDecoder::ViterbiDecoder(const Model& model, DecoderOptions options)

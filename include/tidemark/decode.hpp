@@ -3,6 +3,7 @@
 #pragma once
 
 #include <cstdint>
+#include <functional>
 #include <memory>
 #include <vector>
 
@@ -65,10 +66,23 @@ public:
     void end_contig(const Contig& c, const DecodeResult& r) override;
     std::unique_ptr<DecodeSink> fork() const override;
     void join(DecodeSink& later) override;
+    /// The i-th sink (of a fork: the fork of the i-th sink given to the original).
+    DecodeSink& part(size_t i) const { return *sinks_.at(i); }
 
 private:
     std::vector<DecodeSink*> sinks_;
     std::vector<std::unique_ptr<DecodeSink>> owned_;
+};
+
+/// One segment's share of the boundary vectors of a long contig (step (a) of PosteriorDecoder):
+/// the product of its forward operators, whose true value is product * 2^exponent. Processes
+/// that decode different segments of one contig (scan --shard) exchange these, so that each
+/// computes exactly the boundary vectors of a single run.
+struct SegmentSeam {
+    int64_t begin = 0, end = 0;   ///< the segment [begin, end) of the contig
+    std::vector<double> product;  ///< segment 0: the row vector (pi e_0) M_0 (S values);
+                                  ///< later ones: F_begin M_begin (S x S, row-major)
+    int64_t exponent = 0;
 };
 
 struct DecoderOptions {
@@ -111,13 +125,40 @@ public:
     DecodeResult run(const Contig& contig, DecodeSink& sink, TaskPool* pool = nullptr);
     /// True when a contig of this length is decoded in segments (given a forkable sink).
     bool splits(int64_t length) const;
+    /// Segment length of long contigs; 0 = this model is never split.
+    int64_t segment_length() const { return segment_; }
+    /// Segments of a contig of this length (1 when it is not split).
+    size_t segment_count(int64_t length) const;
+
+    /// Step (a) alone for segments [first, last) of a contig that splits(): their seams.
+    std::vector<SegmentSeam> seams(const Contig& contig, size_t first, size_t last, TaskPool* pool = nullptr);
+
+    /// Receives each decoded segment's fork, in segment order.
+    using SegmentTaker = std::function<void(size_t segment, DecodeSink& fork)>;
+    /// Decodes segments [first, last) of a contig that splits(), given the seams of all its
+    /// segments (from seams(), here or in other processes): steps (a) for [first, last), (b)
+    /// and (c), each segment into its own fork of `sink`, handed to `take`. The caller begins
+    /// and ends `sink`. The recomputed seams of [first, last) must equal the given ones bit for
+    /// bit (InputError otherwise: they come from another input, profile or options). Returns
+    /// the whole contig's log-likelihood when `last` is the final segment, NaN otherwise.
+    /// The posteriors are those of run(), bit for bit.
+    DecodeResult run_segments(const Contig& contig, const std::vector<SegmentSeam>& all, size_t first,
+                              size_t last, DecodeSink& sink, const SegmentTaker& take, TaskPool* pool = nullptr);
 
 private:
     struct Workspace;
+    struct Segment;
     template <int Fixed>
     DecodeResult run_fixed(const Contig& contig, DecodeSink& sink);
     template <int Fixed>
     DecodeResult run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool);
+    std::vector<Segment> make_segments(int64_t length) const;
+    void for_segments(size_t first, size_t last, TaskPool* pool, const std::function<void(size_t, Workspace&)>& task);
+    template <int Fixed>
+    void matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last, TaskPool* pool);
+    template <int Fixed>
+    DecodeResult sweep_segments(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last,
+                                DecodeSink& sink, const SegmentTaker& take, TaskPool* pool);
 
     const Model& model_;
     int64_t block_ = 0;
