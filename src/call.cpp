@@ -43,6 +43,15 @@ std::unique_ptr<DecodeSink> IntervalCaller::fork() const {
     return std::make_unique<IntervalCaller>(model_, options_);
 }
 
+void IntervalCaller::restore_span(std::vector<Lane> lanes, std::vector<Call> calls) {
+    if (lanes.size() != reported_.size())
+        throw InputError("restored caller state has " + std::to_string(lanes.size()) + " regions, the profile reports " +
+                         std::to_string(reported_.size()));
+    lanes_ = std::move(lanes);
+    calls_ = std::move(calls);
+    ended_ = false;
+}
+
 void IntervalCaller::finish(const Group& g, int region) {
     const int64_t length = g.end - g.begin;
     if (length < options_.min_length) return;
@@ -54,7 +63,8 @@ void IntervalCaller::finish(const Group& g, int region) {
     call.min_posterior = g.min;
     call.core_begin = g.core_begin < 0 ? g.begin : g.core_begin;
     call.core_end = g.core_begin < 0 ? g.begin : g.core_end;
-    call.composition = composition(*contig_, call.begin, call.end);
+    call.composition = composition_source_ ? composition_source_(call.begin, call.end)
+                                           : composition(*contig_, call.begin, call.end);
     if (!meets_island_criteria(options_.criteria, length, call.composition)) return;
     calls_.push_back(call);
 }

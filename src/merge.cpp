@@ -9,7 +9,9 @@
 
 #include <algorithm>
 #include <fstream>
+#include <map>
 #include <memory>
+#include <optional>
 #include <sstream>
 
 #include "shard_internal.hpp"
@@ -17,6 +19,7 @@
 #include "tidemark/output.hpp"
 #include "tidemark/profile.hpp"
 #include "tidemark/summary.hpp"
+#include "tidemark/track.hpp"
 
 namespace tidemark {
 namespace {
@@ -28,6 +31,7 @@ struct ShardDoc {
     int index = 0, count = 0;
     int64_t records = 0;
     std::vector<ContigSummary> contigs;  ///< this shard's, in its (input) order
+    std::vector<SharedRecord> shared;    ///< its segments of records shared between shards
 };
 
 ShardDoc read_doc(const std::string& path, const char* format) {
@@ -53,6 +57,8 @@ ShardDoc read_doc(const std::string& path, const char* format) {
         d.count = s.at("count").get<int>();
         d.records = s.at("records").get<int64_t>();
         for (const auto& c : s.at("contigs")) d.contigs.push_back(contig_from_json(c, path));
+        if (s.contains("shared"))
+            for (const auto& r : s.at("shared")) d.shared.push_back(shared_from_json(r, path));
     } catch (const nlohmann::json::exception& e) {
         throw InputError(fmt::format("{}: malformed 'shard' object: {}", path, e.what()));
     }
@@ -127,39 +133,229 @@ void warn_on_commands(const std::vector<ShardDoc>& docs, const Logger& log) {
         }
 }
 
-// (shard position in the given order, contig position in that shard) of every record, in input
-// order.
-std::vector<std::pair<size_t, size_t>> input_order(const std::vector<ShardDoc>& docs) {
-    std::vector<std::pair<size_t, size_t>> order(static_cast<size_t>(docs.at(0).records),
-                                                 {SIZE_MAX, 0});
-    std::vector<bool> seen_shard(static_cast<size_t>(docs[0].count) + 1, false);
-    for (size_t k = 0; k < docs.size(); ++k) {
-        if (seen_shard[static_cast<size_t>(docs[k].index)])
-            throw InputError(fmt::format("{}: shard {}/{} is given twice", docs[k].path,
-                                         docs[k].index, docs[k].count));
-        seen_shard[static_cast<size_t>(docs[k].index)] = true;
-        for (size_t j = 0; j < docs[k].contigs.size(); ++j) {
-            const int64_t i = docs[k].contigs[j].input_index;
-            if (i < 0 || i >= docs[k].records || order[static_cast<size_t>(i)].first != SIZE_MAX)
-                throw InputError(fmt::format(
-                    "{}: record '{}' (input index {}) is out of range or also in another "
-                    "shard; the shards were planned differently",
-                    docs[k].path, docs[k].contigs[j].name, i));
-            order[static_cast<size_t>(i)] = {k, j};
-        }
+// A record shared between shards, put back together: every segment from the shard that
+// decoded it, joined in order as a single run joins them.
+struct SharedAssembly {
+    SharedRecord record;  ///< whole-record fields (log-likelihood from the last segment's shard)
+    std::vector<std::pair<size_t, const SharedSegment*>> segments;  ///< (doc, segment) in order
+    ContigSummary summary;
+    std::vector<Call> calls;
+    Contig contig;  ///< name and coordinates only, for formatting
+};
+
+// Where each record of the input comes from: a whole record of one shard, or an assembly.
+struct Slot {
+    size_t doc = SIZE_MAX, index = 0;  ///< docs[doc].contigs[index]
+    int shared = -1;                   ///< >= 0: assemblies[shared]
+};
+
+// What the calls of shared records need: the profile and the calling options of the run.
+struct SharedContext {
+    Model model;
+    CallOptions calling;
+    BedStyle style = BedStyle::plain;
+};
+
+// The profile of the run (the shards' own, or --profile), checked against the recorded checksum.
+SharedContext shared_context(const ShardDoc& doc, const std::string& profile_override) {
+    const ordered_json& opt = doc.doc["shard"]["options"];
+    const std::string name = profile_override.empty() ? opt.value("profile", "") : profile_override;
+    Profile profile;
+    try {
+        profile = load_profile(name);
+    } catch (const Error& e) {
+        throw InputError(fmt::format(
+            "{}: records shared between shards need the run's profile to join their calls, and '{}' "
+            "cannot be loaded ({}); give it with --profile",
+            doc.path, name, e.what()));
     }
-    for (size_t i = 0; i < order.size(); ++i)
-        if (order[i].first == SIZE_MAX)
-            throw InputError(fmt::format(
-                "record {} of the input is in no shard; the shards were planned differently",
-                i + 1));
-    return order;
+    const std::string recorded = doc.doc["shard"].value("profile_crc32", "");
+    if (profile_checksum(profile) != recorded)
+        throw InputError(fmt::format("{}: profile '{}' is not the one the shards used (checksum {} vs {}); give the "
+                                     "run's profile with --profile",
+                                     doc.path, name, profile_checksum(profile), recorded));
+    SharedContext c{compile(profile), {}, BedStyle::plain};
+    try {
+        c.calling.min_posterior = opt.at("min_posterior").get<double>();
+        c.calling.merge_gap = opt.at("merge_gap").get<int64_t>();
+        c.calling.min_length = opt.at("min_length").get<int64_t>();
+        c.calling.high_posterior = opt.at("core_posterior").get<double>();
+        c.calling.criteria = parse_island_criteria(opt.at("island_criteria").get<std::string>());
+        c.style = opt.at("bed_style").get<std::string>() == "browser" ? BedStyle::browser : BedStyle::plain;
+    } catch (const nlohmann::json::exception& e) {
+        throw InputError(fmt::format("{}: malformed 'options': {}", doc.path, e.what()));
+    }
+    return c;
 }
 
-std::vector<ContigSummary> merged_contigs(const std::vector<ShardDoc>& docs) {
-    std::vector<ContigSummary> all;
-    for (const auto& [k, j] : input_order(docs)) all.push_back(docs[k].contigs[j]);
-    return all;
+Composition minus(Composition x, const Composition& y) {
+    x.a -= y.a;
+    x.c -= y.c;
+    x.g -= y.g;
+    x.t -= y.t;
+    x.unknown -= y.unknown;
+    x.cpg -= y.cpg;
+    return x;
+}
+
+// Composition of [begin, end) of a shared record from the segments' prefix marks: with G(p) the
+// composition of [0, p), it is G(end) - G(begin) less the CpG straddling begin - 1 and begin.
+class MarkedComposition {
+public:
+    explicit MarkedComposition(const SharedAssembly& a) {
+        Composition base;
+        for (const auto& [doc, seg] : a.segments) {
+            const bool straddle = !seg->marks.empty() && seg->marks.front().cpg_before;
+            Composition at_end = base;
+            for (const CompositionMark& m : seg->marks) {
+                Composition g = base;
+                g.a += m.prefix.a;
+                g.c += m.prefix.c;
+                g.g += m.prefix.g;
+                g.t += m.prefix.t;
+                g.unknown += m.prefix.unknown;
+                g.cpg += m.prefix.cpg + (straddle && m.position > seg->begin ? 1 : 0);
+                marks_[m.position] = {g, m.cpg_before};
+                if (m.position == seg->end) at_end = g;
+            }
+            base = at_end;
+        }
+    }
+    Composition operator()(int64_t begin, int64_t end) const {
+        const auto b = marks_.find(begin), e = marks_.find(end);
+        if (b == marks_.end() || e == marks_.end())
+            throw InternalError(fmt::format("merge: no composition mark at {} or {}", begin, end));
+        Composition c = minus(e->second.first, b->second.first);
+        if (b->second.second) --c.cpg;
+        return c;
+    }
+
+private:
+    std::map<int64_t, std::pair<Composition, bool>> marks_;
+};
+
+// Joins the segments' caller and totals states in order, as the single run does.
+void join_segments(SharedAssembly& a, const SharedContext& ctx) {
+    const Model& model = ctx.model;
+    Contig& stub = a.contig;
+    stub.name = a.record.whole.name;
+    stub.offset = a.record.whole.offset;
+    stub.length = a.record.whole.length;
+    stub.sequence_length = a.record.full_length;
+    IntervalCaller caller(model, ctx.calling);
+    caller.use_composition_source(MarkedComposition(a));
+    RegionTotals totals(model);
+    caller.begin_contig(stub);
+    totals.begin_contig(stub);
+    for (const auto& [doc, seg] : a.segments) {
+        IntervalCaller span(model, ctx.calling);
+        span.begin_contig(stub);
+        span.restore_span(seg->lanes, seg->calls);
+        caller.join(span);
+        RegionTotals part(model);
+        part.restore_span(seg->expected);
+        totals.join(part);
+    }
+    DecodeResult result;
+    result.log_likelihood = a.record.whole.log_likelihood;
+    caller.end_contig(stub, result);
+    totals.end_contig(stub, result);
+    a.calls = caller.calls();
+    ContigSummary& s = a.summary;
+    s = a.record.whole;
+    const size_t regions = model.region_names.size();
+    s.expected_bases = totals.expected_bases();
+    s.expected_bases.resize(regions, 0.0);
+    s.calls.assign(regions, 0);
+    s.called_bases.assign(regions, 0);
+    s.call_lengths.assign(regions, {});
+    s.confidence_sum.assign(regions, 0.0);
+    s.call_confidences.assign(regions, {});
+    for (const Call& call : a.calls) s.add_call(call, regions);
+}
+
+// Every record of the input, in input order, and the shared records put back together; checks
+// that the shards cover every record (and every segment of a shared one) exactly once.
+struct MergedRun {
+    std::vector<Slot> slots;
+    std::vector<SharedAssembly> shared;
+    std::vector<ContigSummary> contigs;
+    std::optional<SharedContext> context;  ///< when there are shared records
+};
+
+MergedRun assemble(const std::vector<ShardDoc>& docs, const std::string& profile_override) {
+    MergedRun run;
+    run.slots.assign(static_cast<size_t>(docs.at(0).records), Slot{});
+    std::vector<bool> seen_shard(static_cast<size_t>(docs[0].count) + 1, false);
+    const auto claim = [&](const ShardDoc& d, int64_t i, const std::string& name) -> Slot& {
+        if (i < 0 || i >= d.records)
+            throw InputError(fmt::format("{}: record '{}' (input index {}) is out of range; the shards were "
+                                         "planned differently",
+                                         d.path, name, i));
+        return run.slots[static_cast<size_t>(i)];
+    };
+    const auto overlap = [](const ShardDoc& d, const std::string& name, int64_t i) {
+        return InputError(fmt::format("{}: record '{}' (input index {}) is also in another shard; the shards were "
+                                      "planned differently",
+                                      d.path, name, i));
+    };
+    for (size_t k = 0; k < docs.size(); ++k) {
+        const ShardDoc& d = docs[k];
+        if (seen_shard[static_cast<size_t>(d.index)])
+            throw InputError(fmt::format("{}: shard {}/{} is given twice", d.path, d.index, d.count));
+        seen_shard[static_cast<size_t>(d.index)] = true;
+        for (size_t j = 0; j < d.contigs.size(); ++j) {
+            Slot& slot = claim(d, d.contigs[j].input_index, d.contigs[j].name);
+            if (slot.doc != SIZE_MAX || slot.shared >= 0) throw overlap(d, d.contigs[j].name, d.contigs[j].input_index);
+            slot.doc = k;
+            slot.index = j;
+        }
+        for (const SharedRecord& r : d.shared) {
+            Slot& slot = claim(d, r.whole.input_index, r.whole.name);
+            if (slot.doc != SIZE_MAX) throw overlap(d, r.whole.name, r.whole.input_index);
+            if (slot.shared < 0) {
+                slot.shared = static_cast<int>(run.shared.size());
+                SharedAssembly a;
+                a.record = r;
+                a.record.done.clear();
+                a.segments.assign(r.segments, {SIZE_MAX, nullptr});
+                run.shared.push_back(std::move(a));
+            }
+            SharedAssembly& a = run.shared[static_cast<size_t>(slot.shared)];
+            if (a.record.whole.name != r.whole.name || a.record.segments != r.segments ||
+                a.record.whole.length != r.whole.length)
+                throw InputError(fmt::format("{}: shared record {} differs from the other shards' ({} vs {})", d.path,
+                                             r.whole.input_index + 1, r.whole.name, a.record.whole.name));
+            for (const SharedSegment& seg : r.done) {
+                if (seg.index >= a.segments.size() || a.segments[seg.index].second)
+                    throw InputError(fmt::format("{}: record '{}' segment {} is out of range or in another shard too",
+                                                 d.path, r.whole.name, seg.index + 1));
+                a.segments[seg.index] = {k, &seg};
+                if (seg.index + 1 == r.segments) a.record.whole.log_likelihood = r.whole.log_likelihood;
+            }
+        }
+    }
+    for (size_t i = 0; i < run.slots.size(); ++i)
+        if (run.slots[i].doc == SIZE_MAX && run.slots[i].shared < 0)
+            throw InputError(fmt::format(
+                "record {} of the input is in no shard; the shards were planned differently", i + 1));
+    if (!run.shared.empty()) {
+        const SharedContext ctx = shared_context(first_shard(docs), profile_override);
+        for (SharedAssembly& a : run.shared) {
+            std::string missing;
+            for (size_t k = 0; k < a.segments.size(); ++k)
+                if (!a.segments[k].second) missing += (missing.empty() ? "" : ", ") + std::to_string(k + 1);
+            if (!missing.empty())
+                throw InputError(fmt::format("shared record '{}': segments {} of {} are in no shard's file",
+                                             a.record.whole.name, missing, a.segments.size()));
+            join_segments(a, ctx);
+        }
+        run.context = ctx;
+    }
+    for (const Slot& slot : run.slots)
+        run.contigs.push_back(slot.shared >= 0 ? run.shared[static_cast<size_t>(slot.shared)].summary
+                                               : docs[slot.doc].contigs[slot.index]);
+    return run;
 }
 
 // The parts of a Model the summary writer reads: region names and which are reported.
@@ -265,13 +461,24 @@ bool coordinates(const std::string& line, std::string& chrom, int64_t& start, in
     return true;
 }
 
+std::string chrom_of(const std::string& line) { return line.substr(0, line.find('\t')); }
+
+// A track line's value: what follows the third tab.
+std::string_view value_of(const std::string& line) {
+    const size_t third = line.find('\t', line.find('\t', line.find('\t') + 1) + 1);
+    return third == std::string::npos ? std::string_view() : std::string_view(line).substr(third);
+}
+
 // Streams the shard files (files[k] belongs to docs[k]) into out in input order. The lines of a
 // record are those that follow in its shard's file with its name and coordinates inside it,
-// each starting at or after the previous line's end (calls are disjoint, tracks tile).
+// each starting at or after the previous line's end (calls are disjoint, tracks tile). Shared
+// records: shared_lines (BED: formatted by merge), else (tracks) the lines of each segment from
+// the shard that decoded it.
 // Returns the output uncommitted, so that nothing appears unless every merge succeeds.
-std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs,
+std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs, const MergedRun& run,
                                        const std::vector<std::string>& files,
-                                       const std::string& target, const OutputFormat& base_format) {
+                                       const std::string& target, const OutputFormat& base_format,
+                                       const std::vector<std::string>* shared_lines) {
     std::vector<std::unique_ptr<LineReader>> readers;
     for (const auto& f : files) readers.push_back(std::make_unique<LineReader>(f));
     std::string header, first_compared;
@@ -299,24 +506,66 @@ std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs,
     std::string buffer = header;
     std::string chrom;
     int64_t start = 0, end = 0;
-    for (const auto& [k, j] : input_order(docs)) {
-        const ContigSummary& c = docs[k].contigs[j];
-        LineReader& r = *readers[k];
-        int64_t previous_end = c.offset;
+    // Copies the lines of `name` inside [from, to) that follow in r. With stitch, a line that
+    // continues the one before (adjacent, same value) extends it instead: a piece of a shared
+    // record ends its last run at the piece's end, where a single run may have continued it.
+    std::string held;  // stitch mode: the last line, not yet written
+    int64_t held_start = 0, held_end = 0;
+    const auto flush_held = [&] {
+        if (held.empty()) return;
+        const size_t third = held.find('\t', held.find('\t', held.find('\t') + 1) + 1);
+        buffer += fmt::format("{}\t{}\t{}{}\n", chrom_of(held), held_start, held_end, held.substr(third));
+        held.clear();
+    };
+    const auto copy_lines = [&](LineReader& r, const std::string& name, int64_t from, int64_t to, bool stitch) {
+        int64_t previous_end = from;
         while (const std::string* line = r.peek()) {
             if (!coordinates(*line, chrom, start, end))
                 throw InputError(fmt::format("{}: line {}: expected CHROM<TAB>START<TAB>END...",
                                              r.path(), r.number()));
-            if (chrom != c.name || start < previous_end || end > c.offset + c.length) break;
-            buffer += *line;
-            buffer += '\n';
+            if (chrom != name || start < previous_end || end > to) break;
             previous_end = end;
+            if (stitch) {
+                if (!held.empty() && held_end == start && value_of(held) == value_of(*line)) {
+                    held_end = end;
+                } else {
+                    flush_held();
+                    held = *line;
+                    held_start = start;
+                    held_end = end;
+                }
+            } else {
+                buffer += *line;
+                buffer += '\n';
+            }
             r.pop();
             if (buffer.size() > (1 << 20)) {
                 out.write(buffer);
                 buffer.clear();
             }
         }
+    };
+    for (const Slot& slot : run.slots) {
+        if (slot.shared < 0) {
+            const ContigSummary& c = docs[slot.doc].contigs[slot.index];
+            copy_lines(*readers[slot.doc], c.name, c.offset, c.offset + c.length, false);
+            continue;
+        }
+        const SharedAssembly& a = run.shared[static_cast<size_t>(slot.shared)];
+        if (shared_lines) {
+            buffer += (*shared_lines)[static_cast<size_t>(slot.shared)];
+            continue;
+        }
+        // Segments come from the shards that decoded them, in order.
+        const int64_t offset = a.record.whole.offset;
+        for (size_t k = 0; k < a.segments.size();) {
+            size_t next = k + 1;
+            while (next < a.segments.size() && a.segments[next].first == a.segments[k].first) ++next;
+            copy_lines(*readers[a.segments[k].first], a.record.whole.name, offset + a.segments[k].second->begin,
+                       offset + a.segments[next - 1].second->end, true);
+            k = next;
+        }
+        flush_held();
     }
     for (size_t k = 0; k < readers.size(); ++k)
         if (const std::string* line = readers[k]->peek())
@@ -331,8 +580,9 @@ std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs,
 
 // GFF3: after the version line, each record is a ##sequence-region line (one per record, as
 // scan writes it) followed by its features. Blocks go back into input order and the feature
-// IDs (REGION_SERIAL, numbered through the run) are renumbered in that order.
-std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs,
+// IDs (REGION_SERIAL, numbered through the run) are renumbered in that order. Shared records
+// are formatted here.
+std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs, const MergedRun& run,
                                        const std::vector<std::string>& files,
                                        const std::string& target) {
     std::vector<std::vector<std::string>> blocks(docs.size());
@@ -362,8 +612,14 @@ std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs,
     auto out = std::make_unique<OutputFile>(target);
     std::string text = header;
     int64_t serial = 0;
-    for (const auto& [k, j] : input_order(docs)) {
-        const std::string& block = blocks[k][j];
+    for (const Slot& slot : run.slots) {
+        if (slot.shared >= 0) {  // formatted here, numbered on through the run
+            const SharedAssembly& a = run.shared[static_cast<size_t>(slot.shared)];
+            text += format_gff3_sequence_region(a.contig);
+            for (const Call& call : a.calls) text += format_gff3_feature(run.context->model, a.contig, call, ++serial);
+            continue;
+        }
+        const std::string& block = blocks[slot.doc][slot.index];
         size_t begin = 0;
         while (begin < block.size()) {
             const size_t end = block.find('\n', begin);
@@ -374,7 +630,7 @@ std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs,
                 const size_t semi = line.find(';', id);
                 const size_t underscore = semi == std::string::npos ? semi : line.rfind('_', semi);
                 if (semi == std::string::npos || underscore == std::string::npos || underscore < id)
-                    throw InputError(fmt::format("{}: feature without a tidemark ID: {}", files[k],
+                    throw InputError(fmt::format("{}: feature without a tidemark ID: {}", files[slot.doc],
                                                  line.substr(0, 80)));
                 line.replace(underscore + 1, semi - underscore - 1, std::to_string(++serial));
             }
@@ -440,9 +696,12 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     // BED and track files follow the order given, so they pair with the documents as given,
     // not as sorted; read_docs keeps the given order.
     const std::vector<ShardDoc>& plan = summaries.empty() ? reports : summaries;
-    const std::vector<ContigSummary> contigs = merged_contigs(plan);
+    const MergedRun run = assemble(plan, o.profile);
+    const std::vector<ContigSummary>& contigs = run.contigs;
+    std::optional<MergedRun> report_run;
     if (!summaries.empty() && !reports.empty()) {
-        const std::vector<ContigSummary> other = merged_contigs(reports);
+        report_run = assemble(reports, o.profile);
+        const std::vector<ContigSummary>& other = report_run->contigs;
         bool same = other.size() == contigs.size();
         for (size_t i = 0; same && i < other.size(); ++i) same = other[i].name == contigs[i].name;
         if (!same)
@@ -460,15 +719,22 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     if (!o.report_path.empty()) {
         report = std::make_unique<OutputFile>(o.report_path);
         report->write(report_json(run_info(first_shard(reports).doc), model,
-                                  merged_contigs(reports), summed_resources(reports)));
+                                  report_run ? report_run->contigs : contigs, summed_resources(reports)));
     }
     OutputFormat format;
     format.bgzip = o.bgzip;
     format.tabix = o.bgzip;
     std::vector<std::unique_ptr<OutputFile>> texts;
-    if (!o.shard_beds.empty())
-        texts.push_back(merge_text(plan, o.shard_beds, o.output.empty() ? "-" : o.output, format));
-    if (!o.shard_gff3.empty()) texts.push_back(merge_gff3(plan, o.shard_gff3, o.gff3_path));
+    if (!o.shard_beds.empty()) {
+        std::vector<std::string> lines;  // of the shared records
+        for (const SharedAssembly& a : run.shared) {
+            lines.emplace_back();
+            for (const Call& call : a.calls)
+                lines.back() += format_bed_line(run.context->style, run.context->model, a.contig, call);
+        }
+        texts.push_back(merge_text(plan, run, o.shard_beds, o.output.empty() ? "-" : o.output, format, &lines));
+    }
+    if (!o.shard_gff3.empty()) texts.push_back(merge_gff3(plan, run, o.shard_gff3, o.gff3_path));
     if (!o.shard_tracks.empty()) {
         for (size_t r = 0; r < model.region_names.size(); ++r) {
             if (!model.region_report[r]) continue;
@@ -487,7 +753,7 @@ void run_merge(const MergeOptions& o, const Logger& log) {
             }
             const std::string target = o.tracks_prefix + "." + model.region_names[r] +
                                        (o.bgzip ? ".bedgraph.gz" : ".bedgraph");
-            texts.push_back(merge_text(plan, files, target, format));
+            texts.push_back(merge_text(plan, run, files, target, format, nullptr));
         }
     }
     for (auto& t : texts) t->commit();
@@ -495,8 +761,8 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     if (report) report->commit();
     int64_t bases = 0;
     for (const auto& c : contigs) bases += c.length;
-    log.info(
-        fmt::format("merge: {} shards, {} records, {} bp", plan.size(), contigs.size(), bases));
+    log.info(fmt::format("merge: {} shards, {} records ({} shared between shards), {} bp", plan.size(),
+                         contigs.size(), run.shared.size(), bases));
 }
 
 }  // namespace tidemark

@@ -3,6 +3,7 @@
 #include "tidemark/profile.hpp"
 
 #include <fmt/format.h>
+#include <zlib.h>
 #include <sys/stat.h>
 
 #include <algorithm>
@@ -386,6 +387,13 @@ std::string to_json(const Profile& p) {
                       {"merge_gap", p.calling.merge_gap}};
     if (!p.provenance_json.empty()) doc["provenance"] = ordered_json::parse(p.provenance_json);
     return doc.dump(2) + "\n";
+}
+
+std::string profile_checksum(const Profile& profile) {
+    const std::string text = to_json(profile);
+    const uLong crc = crc32(crc32(0L, Z_NULL, 0), reinterpret_cast<const Bytef*>(text.data()),
+                            static_cast<uInt>(text.size()));
+    return fmt::format("{:08x}", crc);
 }
 
 Profile load_profile(const std::string& name_or_path) {

@@ -2,9 +2,9 @@
 #include "tidemark/scan.hpp"
 
 #include <fmt/format.h>
-#include <zlib.h>
 
 #include <deque>
+#include <limits>
 #include <future>
 #include <memory>
 #include <nlohmann/json.hpp>
@@ -37,11 +37,12 @@ std::string recorded_command_line(const std::string& command_line) {
     std::string out;
     for (size_t i = 0; i < words.size(); ++i) {
         const std::string& w = words[i];
-        if ((w == "-t" || w == "--threads" || w == "--shard") && i + 1 < words.size()) {
+        if ((w == "-t" || w == "--threads" || w == "--shard" || w == "--seams") && i + 1 < words.size()) {
             ++i;  // the option's value
             continue;
         }
-        if (w.rfind("--threads=", 0) == 0 || w.rfind("--shard=", 0) == 0 || (w.rfind("-t", 0) == 0 && digits_from(w, 2)))
+        if (w == "--whole-contigs" || w.rfind("--threads=", 0) == 0 || w.rfind("--shard=", 0) == 0 ||
+            w.rfind("--seams=", 0) == 0 || (w.rfind("-t", 0) == 0 && digits_from(w, 2)))
             continue;
         out += (out.empty() ? "" : " ") + w;
     }
@@ -69,6 +70,15 @@ void validate(const ScanOptions& o) {
         throw UsageError("--track-line applies to bedGraph, not bigWig");
     if (o.block_size < 0) throw UsageError("--block must be >= 0");
     if (o.threads < 0) throw UsageError("--threads must be >= 0 (0 = every core)");
+    if ((!o.emit_seams.empty() || !o.seams.empty() || o.whole_contigs) && !o.shard.active())
+        throw UsageError("--emit-seams, --seams and --whole-contigs go with --shard I/N");
+    if (!o.emit_seams.empty() && !o.seams.empty())
+        throw UsageError("--emit-seams is the first step and --seams the second: give one of them");
+    if (o.whole_contigs && (!o.emit_seams.empty() || !o.seams.empty()))
+        throw UsageError("--whole-contigs keeps every record on one shard, so there are no seams");
+    if (!o.emit_seams.empty() && (o.output != "-" || !o.summary_path.empty() || !o.report_path.empty() ||
+                                  !o.gff3_path.empty() || !o.chrom_sizes_path.empty() || !o.tracks.prefix.empty()))
+        throw UsageError("--emit-seams writes only the seams file; give the outputs to the second step (--seams)");
 }
 
 namespace {
@@ -81,12 +91,6 @@ struct Decoder {
     }
     bool splits(int64_t length) const { return posterior && posterior->splits(length); }
 };
-
-std::string crc32_hex(const std::string& text) {
-    const uLong crc = crc32(crc32(0L, Z_NULL, 0), reinterpret_cast<const Bytef*>(text.data()),
-                            static_cast<uInt>(text.size()));
-    return fmt::format("{:08x}", crc);
-}
 
 std::string options_json(const ScanOptions& o, const CallOptions& c) {
     nlohmann::ordered_json j;
@@ -111,6 +115,107 @@ std::string options_json(const ScanOptions& o, const CallOptions& c) {
 }
 
 std::string display(const std::string& path) { return path == "-" ? "<stdin>" : path; }
+
+std::string join_words(const std::vector<std::string>& words) {
+    std::string out;
+    for (const auto& w : words) out += (out.empty() ? "" : ", ") + w;
+    return out;
+}
+
+// What seams depend on: the records (inputs and regions), the profile and how contigs split.
+std::string seams_identity(const ScanOptions& o, const std::string& profile_crc, int64_t segment_length) {
+    nlohmann::ordered_json j;
+    j["inputs"] = o.inputs;
+    j["regions"] = o.regions;
+    j["regions_bed"] = o.regions_bed;
+    j["profile_crc32"] = profile_crc;
+    j["block"] = o.block_size;
+    j["bin"] = o.tracks.bin;
+    j["segment_length"] = segment_length;
+    return j.dump();
+}
+
+// Step 1 for shared records: the seams of this shard's segments, and nothing else.
+std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard, const std::string& identity,
+                                      Decoder& decoder, int threads, const Logger& log,
+                                      const std::vector<Region>& regions) {
+    OutputFile out(o.emit_seams);
+    TaskPool pool(threads);
+    std::vector<SeamsRecord> records;
+    size_t segments = 0;
+    for (const auto& input : o.inputs) {
+        std::unique_ptr<SequenceSource> source = regions.empty() ? open_fasta(input) : open_regions(input, regions);
+        Contig contig;
+        while (source->next(contig)) {
+            if (!shard.take(contig) || !shard.split()) continue;
+            SeamsRecord r;
+            r.input_index = shard.index();
+            r.name = contig.name;
+            r.length = contig.length;
+            r.segments = shard.segments();
+            for (const ShardPiece& piece : shard.my_pieces()) {
+                std::vector<SegmentSeam> part =
+                    decoder.posterior->seams(contig, piece.first, piece.last, threads > 1 ? &pool : nullptr);
+                for (size_t k = piece.first; k < piece.last; ++k) r.indexes.push_back(k);
+                for (auto& seam : part) r.seams.push_back(std::move(seam));
+            }
+            segments += r.seams.size();
+            records.push_back(std::move(r));
+        }
+    }
+    shard.finish();
+    out.write(seams_json(o.shard, identity, records));
+    out.commit();
+    log.info(fmt::format("shard {}/{}: seams of {} segments of {} shared records", o.shard.index, o.shard.count,
+                         segments, records.size()));
+    return {};
+}
+
+// Step 2 for a shared record: this shard's segments, decoded from every shard's seams; each
+// segment's caller and totals are kept for merge, the tracks are written for the pieces.
+SharedRecord decode_shared(const Contig& contig, int64_t input_index, const ShardFilter& shard,
+                           const SeamsTable& seams, PosteriorDecoder& decoder, const IntervalCaller& caller,
+                           const RegionTotals& totals, PosteriorTracks* tracks, const ProgressMeter& progress,
+                           TaskPool* pool) {
+    const std::vector<SegmentSeam> all = seams.record(input_index, contig.name, contig.length, shard.segments());
+    SharedRecord record;
+    ContigSummary& s = record.whole;
+    s.name = contig.name;
+    s.input_index = input_index;
+    s.offset = contig.offset;
+    s.length = contig.length;
+    s.unknown = contig.unknown_count();
+    s.soft_masked = contig.soft_masked;
+    s.composition = composition(contig, 0, contig.length);
+    s.log_likelihood = std::numeric_limits<double>::quiet_NaN();
+    record.full_length = contig.full_length();
+    record.segments = shard.segments();
+    for (const ShardPiece& piece : shard.my_pieces()) {
+        std::unique_ptr<DecodeSink> piece_caller = caller.fork(), piece_totals = totals.fork(),
+                                    piece_progress = progress.fork(), piece_tracks;
+        std::vector<DecodeSink*> sinks = {piece_caller.get(), piece_totals.get(), piece_progress.get()};
+        if (tracks) {
+            piece_tracks = tracks->fork();
+            sinks.push_back(piece_tracks.get());
+        }
+        SinkFanout fanout(sinks);
+        fanout.begin_contig(contig);
+        const auto take = [&](size_t k, DecodeSink& fork) {
+            auto& parts = dynamic_cast<SinkFanout&>(fork);
+            const int64_t begin = all[k].begin, end = all[k].end;
+            record.done.push_back(describe_segment(contig, k, begin, end, dynamic_cast<IntervalCaller&>(parts.part(0)),
+                                                   dynamic_cast<RegionTotals&>(parts.part(1))));
+            if (piece_tracks) piece_tracks->join(parts.part(3));
+        };
+        const DecodeResult result = decoder.run_segments(contig, all, piece.first, piece.last, fanout, take, pool);
+        if (piece.last == record.segments) s.log_likelihood = result.log_likelihood;
+        if (piece_tracks) {
+            piece_tracks->end_contig(contig, result);  // the piece's last run ends at its end
+            tracks->join(*piece_tracks);
+        }
+    }
+    return record;
+}
 
 }  // namespace
 
@@ -144,8 +249,30 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         regions = resolve_regions(o.inputs[0], o.regions, bed);
         for (const auto& r : regions) total_bases += r.end - r.begin;
     }
+    // One decoder per worker; the first also says how long contigs split into segments.
+    const int threads = resolve_threads(o.threads);
+    std::vector<Decoder> decoders(static_cast<size_t>(threads));
+    for (auto& d : decoders) {
+        if (o.decode == DecodeMode::posterior)
+            d.posterior = std::make_unique<PosteriorDecoder>(model, decoder_options);
+        else
+            d.viterbi = std::make_unique<ViterbiDecoder>(model, decoder_options);
+    }
+    const int64_t segment_length =
+        decoders[0].posterior && !o.whole_contigs ? decoders[0].posterior->segment_length() : 0;
+
     // Planned before any output exists, like the regions; every shard makes the same plan.
-    ShardFilter shard(o.shard, o.inputs, regions);
+    ShardFilter shard(o.shard, o.inputs, regions, segment_length);
+    const std::string identity = seams_identity(o, profile_checksum(profile), segment_length);
+    if (!o.emit_seams.empty()) return emit_seams(o, shard, identity, decoders[0], threads, log, regions);
+    if (shard.has_pieces() && o.seams.empty())
+        throw UsageError(fmt::format(
+            "shard {}/{} decodes part of a record shared between shards ({}). Such records take two steps: "
+            "first 'scan ... --shard I/N --emit-seams seams.I.json' for every shard I, then this command "
+            "with '--seams seams.1.json --seams seams.2.json ...' (all of them); or add --whole-contigs to keep "
+            "every record on one shard",
+            o.shard.index, o.shard.count, join_words(shard.split_records())));
+    const SeamsTable seams = o.seams.empty() ? SeamsTable() : SeamsTable(o.seams, identity, o.shard);
 
     OutputFormat bed_format;
     bed_format.bgzip = o.bgzip;
@@ -171,15 +298,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     ProgressMeter progress(o.progress, total_bases);
 
     // Contigs are decoded in a pool, each into forks of the sinks above, and joined back in
-    // input order; at most threads + 1 contigs are held at once. One decoder per worker.
-    const int threads = resolve_threads(o.threads);
-    std::vector<Decoder> decoders(static_cast<size_t>(threads));
-    for (auto& d : decoders) {
-        if (o.decode == DecodeMode::posterior)
-            d.posterior = std::make_unique<PosteriorDecoder>(model, decoder_options);
-        else
-            d.viterbi = std::make_unique<ViterbiDecoder>(model, decoder_options);
-    }
+    // input order; at most threads + 1 contigs are held at once.
     struct Job {
         Contig contig;
         std::string input;
@@ -193,6 +312,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     TaskPool pool(threads);  // after jobs and decoders: destroyed first, while they still exist
 
     std::vector<ContigSummary> summaries;
+    std::vector<SharedRecord> shared;
     std::string lines, gff_lines;
     int64_t serial = 0;
     std::string last_sized;
@@ -269,6 +389,17 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             if (!shard.take(job->contig)) continue;  // another shard's record
             job->input = input;
             job->input_index = shard.index();
+            if (shard.split()) {  // this shard's segments of a shared record
+                while (!jobs.empty()) finish_oldest();
+                shared.push_back(decode_shared(job->contig, job->input_index, shard, seams, *decoders[0].posterior,
+                                               caller, totals, tracks.get(), progress, threads > 1 ? &pool : nullptr));
+                if (sizes && job->contig.name != last_sized) {
+                    sizes->write(fmt::format("{}\t{}\n", job->contig.name, job->contig.full_length()));
+                    last_sized = job->contig.name;
+                }
+                spare.push_back(std::move(job->contig));
+                continue;
+            }
             job->caller = caller.fork();
             job->totals = totals.fork();
             if (tracks) job->tracks = tracks->fork();
@@ -314,12 +445,12 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
 
     RunInfo info;
     info.profile_name = model.name;
-    info.profile_checksum = crc32_hex(to_json(profile));
+    info.profile_checksum = profile_checksum(profile);
     info.decode_mode = o.decode == DecodeMode::posterior ? "posterior" : "viterbi";
     info.command_line = o.command_line;
     info.inputs = o.inputs;
     info.options_json = options_json(o, call_options);
-    if (o.shard.active()) info.shard_json = shard_json(shard, info.options_json, summaries);
+    if (o.shard.active()) info.shard_json = shard_json(shard, info.options_json, info.profile_checksum, summaries, shared);
     std::unique_ptr<OutputFile> summary, report;
     if (!o.summary_path.empty()) {
         summary = std::make_unique<OutputFile>(o.summary_path);

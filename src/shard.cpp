@@ -172,27 +172,106 @@ std::vector<int> assign_shards(const std::vector<int64_t>& lengths, int count) {
     return shard;
 }
 
-ShardFilter::ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
-                         const std::vector<Region>& regions)
-    : spec_(spec) {
-    if (!spec_.active()) return;
-    units_ = list_units(inputs, regions);
+ShardPlan plan_shards(std::vector<ShardUnit> units, int count, int64_t segment_length) {
+    ShardPlan plan;
+    plan.units = std::move(units);
+    const size_t n = plan.units.size();
+    plan.shard_of.assign(n, -1);
+    plan.pieces.assign(n, {});
+    int64_t total = 0;
+    for (const auto& u : plan.units) total += u.length;
+    const int64_t share = count > 0 ? (total + count - 1) / count : total;
+    // Items to assign: (unit, piece index or -1 for the whole unit) with their lengths.
+    std::vector<std::pair<size_t, int>> items;
     std::vector<int64_t> lengths;
-    for (const auto& u : units_) lengths.push_back(u.length);
-    shard_of_ = assign_shards(lengths, spec_.count);
-    for (size_t i = 0; i < units_.size(); ++i) {
-        total_bases_ += units_[i].length;
-        if (shard_of_[i] == spec_.index - 1) shard_bases_ += units_[i].length;
+    for (size_t i = 0; i < n; ++i) {
+        const int64_t length = plan.units[i].length;
+        if (segment_length > 0 && share > 0 && length > share && length > segment_length) {
+            const auto segments = static_cast<size_t>((length + segment_length - 1) / segment_length);
+            const size_t m = std::min(segments, static_cast<size_t>((length + share - 1) / share));
+            for (size_t p = 0; p < m; ++p) {
+                ShardPiece piece;
+                piece.first = p * segments / m;
+                piece.last = (p + 1) * segments / m;
+                plan.pieces[i].push_back(piece);
+                items.emplace_back(i, static_cast<int>(p));
+                lengths.push_back(std::min(length, static_cast<int64_t>(piece.last) * segment_length) -
+                                  static_cast<int64_t>(piece.first) * segment_length);
+            }
+        } else {
+            items.emplace_back(i, -1);
+            lengths.push_back(length);
+        }
     }
+    const std::vector<int> shard = assign_shards(lengths, count);
+    for (size_t k = 0; k < items.size(); ++k) {
+        const auto [unit, piece] = items[k];
+        if (piece < 0)
+            plan.shard_of[unit] = shard[k];
+        else
+            plan.pieces[unit][static_cast<size_t>(piece)].shard = shard[k];
+    }
+    return plan;
+}
+
+ShardFilter::ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
+                         const std::vector<Region>& regions, int64_t segment_length)
+    : spec_(spec), segment_length_(segment_length) {
+    if (!spec_.active()) return;
+    plan_ = plan_shards(list_units(inputs, regions), spec_.count, segment_length);
+    for (size_t i = 0; i < plan_.units.size(); ++i) {
+        const int64_t length = plan_.units[i].length;
+        total_bases_ += length;
+        if (plan_.shard_of[i] == spec_.index - 1) shard_bases_ += length;
+        for (const auto& p : plan_.pieces[i])
+            if (p.shard == spec_.index - 1)
+                shard_bases_ += std::min(length, static_cast<int64_t>(p.last) * segment_length) -
+                                static_cast<int64_t>(p.first) * segment_length;
+    }
+}
+
+std::vector<ShardPiece> ShardFilter::my_pieces() const {
+    std::vector<ShardPiece> out;
+    if (!split()) return out;
+    for (const auto& p : plan_.pieces[static_cast<size_t>(current_)])
+        if (p.shard == spec_.index - 1) out.push_back(p);
+    return out;
+}
+
+size_t ShardFilter::segments() const { return split() ? plan_.pieces[static_cast<size_t>(current_)].back().last : 1; }
+
+bool ShardFilter::has_pieces() const {
+    for (const auto& pieces : plan_.pieces)
+        for (const auto& p : pieces)
+            if (p.shard == spec_.index - 1) return true;
+    return false;
+}
+
+std::vector<std::string> ShardFilter::split_records() const {
+    std::vector<std::string> out;
+    for (size_t i = 0; i < plan_.units.size(); ++i)
+        if (!plan_.pieces[i].empty())
+            out.push_back(fmt::format("'{}' ({} bp, {} pieces)", plan_.units[i].name, plan_.units[i].length,
+                                      plan_.pieces[i].size()));
+    return out;
 }
 
 bool ShardFilter::take(const Contig& contig) {
     ++next_;
+    current_ = -1;
     if (!spec_.active()) return true;
     const size_t i = planned_;
+    const auto& units_ = plan_.units;
     if (i < units_.size() && units_[i].name == contig.name) {
         ++planned_;
-        return shard_of_[i] == spec_.index - 1;
+        current_ = static_cast<int64_t>(i);
+        if (units_[i].length != contig.length)
+            throw InputError(fmt::format(
+                "{}: record '{}' has {} bases, but the shard plan (from {}.fai or a first pass) says {}; "
+                "the index is out of date: delete it and rerun every shard",
+                units_[i].input, contig.name, contig.length, units_[i].input, units_[i].length));
+        if (split()) return !my_pieces().empty();
+        return plan_.shard_of[i] == spec_.index - 1;
     }
     // faidx leaves empty records out of its index; they hold no bases, so shard 1 takes them.
     if (contig.length == 0) return spec_.index == 1;
@@ -209,6 +288,7 @@ bool ShardFilter::take(const Contig& contig) {
 }
 
 void ShardFilter::finish() const {
+    const auto& units_ = plan_.units;
     if (spec_.active() && planned_ != units_.size())
         throw InputError(fmt::format(
             "{}: read {} records but the shard plan has {}; the index is out of date: "
@@ -271,19 +351,23 @@ ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where
     }
 }
 
-std::string shard_json(const ShardFilter& filter, const std::string& options_json,
-                       const std::vector<ContigSummary>& contigs) {
+std::string shard_json(const ShardFilter& filter, const std::string& options_json, const std::string& profile_crc32,
+                       const std::vector<ContigSummary>& contigs, const std::vector<SharedRecord>& shared) {
     ordered_json o;
     o["index"] = filter.spec().index;
     o["count"] = filter.spec().count;
     o["records"] = filter.records();
     o["options"] =
         options_json.empty() ? ordered_json::object() : ordered_json::parse(options_json);
+    o["profile_crc32"] = profile_crc32;
     o["bases"] = filter.shard_bases();
     o["total_bases"] = filter.total_bases();
     ordered_json list = ordered_json::array();
     for (const auto& c : contigs) list.push_back(contig_to_json(c));
     o["contigs"] = list;
+    ordered_json parts = ordered_json::array();
+    for (const auto& r : shared) parts.push_back(shared_to_json(r));
+    o["shared"] = parts;
     return o.dump();
 }
 

@@ -1,10 +1,11 @@
-// Internal: the JSON form of a ContigSummary inside a shard's summary (written by scan, read by
-// merge).
+// Internal: the JSON forms of a ContigSummary and of a shared record inside a shard's summary
+// (written by scan, read by merge).
 #pragma once
 
 #include <nlohmann/json.hpp>
 #include <string>
 
+#include "tidemark/shard.hpp"
 #include "tidemark/summary.hpp"
 
 namespace tidemark {
@@ -17,5 +18,9 @@ ordered_json contig_to_json(const ContigSummary& contig);
 
 /// The inverse; throws InputError naming `where`.
 ContigSummary contig_from_json(const nlohmann::json& json, const std::string& where);
+
+/// A shared record (shard.hpp) and its inverse, every double at full precision.
+ordered_json shared_to_json(const SharedRecord& record);
+SharedRecord shared_from_json(const nlohmann::json& json, const std::string& where);
 
 }  // namespace tidemark

@@ -28,7 +28,7 @@ public:
                 o.regions_bed.empty() ? std::vector<Interval>{} : read_bed(o.regions_bed);
             regions = resolve_regions(o.inputs[0], o.regions, bed);
         }
-        if (o.shard.active()) plan_ = ShardFilter(o.shard, o.inputs, regions);
+        if (o.shard.active()) plan_ = ShardFilter(o.shard, o.inputs, regions, 0);  // fit shards whole records
     }
     void for_each(const std::function<void(const Contig&)>& fn) override {
         ShardFilter filter = plan_;  // a fresh copy per pass: it counts records

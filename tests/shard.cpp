@@ -113,7 +113,7 @@ TEST_CASE("shard filters cover every record exactly once, from a built index and
         for (int n : {1, 3, 8, 11}) {
             std::vector<int> taken(lengths.size(), 0);
             for (int i = 1; i <= n; ++i) {
-                ShardFilter filter(ShardSpec{i, n}, {file.path()}, {});
+                ShardFilter filter(ShardSpec{i, n}, {file.path()}, {}, 0);
                 auto source = open_fasta(file.path());
                 Contig c;
                 while (source->next(c))
@@ -147,7 +147,7 @@ TEST_CASE("a stale index is detected instead of giving overlapping shards") {
     TempFile file(">a\nACGT\n>b\nACGT\n", ".fa");
     // An index claiming other records, newer than the file.
     std::ofstream(file.path() + ".fai") << "x\t4\t3\t4\t5\nb\t4\t11\t4\t5\n";
-    ShardFilter filter(ShardSpec{1, 2}, {file.path()}, {});
+    ShardFilter filter(ShardSpec{1, 2}, {file.path()}, {}, 0);
     auto source = open_fasta(file.path());
     Contig c;
     REQUIRE(source->next(c));

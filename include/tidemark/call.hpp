@@ -3,6 +3,7 @@
 #pragma once
 
 #include <cstdint>
+#include <functional>
 #include <optional>
 #include <string>
 #include <vector>
@@ -68,14 +69,16 @@ public:
     void join(DecodeSink& later) override;
     const std::vector<Call>& calls() const { return calls_; }
 
-private:
+    /// A fork's state after one segment, in plain form: scan --shard writes it for segments of a
+    /// contig shared between shards, and merge restores it (restore_span) and joins the spans
+    /// in order, as the single run does.
     struct Group {  // merged runs of one region
         int64_t begin = 0, end = 0;  ///< end = one past the last base with P >= threshold
         double sum = 0;              ///< posterior sum over [begin, end)
         double min = 1;
         int64_t core_begin = -1, core_end = -1;
     };
-    struct Lane {  // one region's state over the span seen so far
+    struct Lane {  // one reportable region's state over the span seen so far
         bool seen = false;       ///< a run has started in this span
         bool has_first = false;  ///< the span's first group is closed and kept in `first`
         Group first;
@@ -84,6 +87,15 @@ private:
         double lead_sum = 0, lead_min = 1;  ///< before the span's first run (all of it if none)
         double gap_sum = 0, gap_min = 1;    ///< over [open.end, current position)
     };
+    const std::vector<Lane>& lanes() const { return lanes_; }
+    /// Makes this caller a fork that saw one segment of the contig begun with begin_contig.
+    void restore_span(std::vector<Lane> lanes, std::vector<Call> calls);
+    /// Where calls get their composition when the contig's bases are not at hand (merge):
+    /// composition of [begin, end).
+    using CompositionSource = std::function<Composition(int64_t begin, int64_t end)>;
+    void use_composition_source(CompositionSource source) { composition_source_ = std::move(source); }
+
+private:
     void close(Lane& lane, int region);  ///< closes the open group
     void finish(const Group& group, int region);  ///< a final group: filter, then a call
 
@@ -94,6 +106,7 @@ private:
     std::vector<int> reported_;  ///< region indices that are reportable
     std::vector<Lane> lanes_;
     std::vector<Call> calls_;
+    CompositionSource composition_source_;
 };
 
 }  // namespace tidemark

@@ -32,6 +32,7 @@ struct MergeOptions {
     std::string gff3_path;                  ///< merged GFF3 ("" = none)
     std::string tracks_prefix;              ///< merged bedGraph tracks PREFIX.REGION.bedgraph[.gz]
     bool bgzip = false;                     ///< bgzip + tabix the merged BED and bedGraph files
+    std::string profile;  ///< records shared between shards: the run's profile ("" = as recorded)
 };
 
 /// Throws UsageError naming the conflict.

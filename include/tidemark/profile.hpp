@@ -77,6 +77,9 @@ Profile parse_profile(std::string_view json_text, const std::string& origin);
 /// Canonical JSON text of a profile (stable key order; parse_profile(to_json(p)) == p).
 std::string to_json(const Profile& profile);
 
+/// CRC-32 of the profile's canonical JSON (to_json), 8 hex digits: recorded by scan, checked by merge.
+std::string profile_checksum(const Profile& profile);
+
 /// A profile compiled into the binary from data/profiles/NAME.json.
 struct BuiltinProfile {
     std::string_view name;

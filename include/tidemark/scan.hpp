@@ -38,12 +38,16 @@ struct ScanOptions {
                                             ///< depend on it
     bool progress = false;                  ///< draw a progress line on stderr
     ShardSpec shard;                        ///< decode only this shard's records (not active = all)
+    bool whole_contigs = false;             ///< shards never split a record (no seams step)
+    std::string emit_seams;                 ///< step 1 for shared records: write only their seams
+    std::vector<std::string> seams;         ///< step 2: the seams files of every shard
     std::string command_line;               ///< recorded in headers and the summary (without --shard)
 };
 
 /// The command line as outputs record it: without the options that never change results,
-/// -t/--threads (-t N, -tN, --threads N, --threads=N) and --shard (--shard I/N, --shard=I/N),
-/// so that runs differing only in those record the same command and write identical files.
+/// -t/--threads (-t N, -tN, --threads N, --threads=N), --shard (--shard I/N, --shard=I/N),
+/// --seams FILE and --whole-contigs, so that runs differing only in those record the same
+/// command and write identical files.
 /// Words are those of the shell-quoted form tidemark records (single quotes).
 std::string recorded_command_line(const std::string& command_line);
 

@@ -7,6 +7,7 @@
 #include <string>
 #include <vector>
 
+#include "tidemark/decode.hpp"
 #include "tidemark/sequence.hpp"
 #include "tidemark/summary.hpp"
 
@@ -38,11 +39,33 @@ struct ShardUnit {
 std::vector<ShardUnit> list_units(const std::vector<std::string>& inputs,
                                   const std::vector<Region>& regions);
 
+/// Segments [first, last) of a record split between shards, and the shard (0-based) that
+/// decodes them.
+struct ShardPiece {
+    size_t first = 0, last = 0;
+    int shard = 0;
+};
+
+/// Which shard decodes what: every unit whole on one shard, or split into pieces.
+struct ShardPlan {
+    std::vector<ShardUnit> units;
+    std::vector<int> shard_of;                    ///< per unit: 0-based shard, -1 when split
+    std::vector<std::vector<ShardPiece>> pieces;  ///< per unit: its pieces, in order (split only)
+};
+
+/// The plan for `count` shards. With segment_length > 0 (the posterior decoder's segment
+/// length, PosteriorDecoder::segment_length), a unit longer than one shard's share
+/// (ceil(total / count) bases) and than one segment is cut into m = ceil(length / share)
+/// pieces of whole segments (piece p: segments [p K / m, (p + 1) K / m) of the K), so that no
+/// shard waits on one long chromosome. Whole units and pieces then go to shards by
+/// assign_shards. Deterministic: depends only on the lengths, count and segment_length.
+ShardPlan plan_shards(std::vector<ShardUnit> units, int count, int64_t segment_length);
+
 /// Greedy longest-first assignment (Graham 1969, "Bounds on multiprocessing timing anomalies",
 /// SIAM J. Appl. Math. 17:416-429: the largest load is at most 4/3 - 1/(3N) times the best
 /// possible): units by decreasing length, ties by input order, each to the shard with the
 /// smallest load so far, ties by the lower shard. Returns the 0-based shard of every unit.
-/// Deterministic: depends only on the lengths and N. Contigs are never split.
+/// Deterministic: depends only on the lengths and N.
 std::vector<int> assign_shards(const std::vector<int64_t>& lengths, int count);
 
 /// Decides, record by record as a reader yields them, which records belong to this shard, and
@@ -52,12 +75,24 @@ class ShardFilter {
 public:
     /// Not active: every record is taken (input indexes are still counted).
     ShardFilter() = default;
+    /// segment_length: see plan_shards (0 = records are never split).
     ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
-                const std::vector<Region>& regions);
+                const std::vector<Region>& regions, int64_t segment_length);
 
-    /// Advances to the next record; true when it belongs to this shard. Throws InputError when
-    /// the record is not the one planned (name differs, or more records than planned).
+    /// Advances to the next record; true when it belongs to this shard, wholly or in part.
+    /// Throws InputError when the record is not the one planned (name differs, or more records
+    /// than planned).
     bool take(const Contig& contig);
+    /// True when the record last passed to take() is split between shards.
+    bool split() const { return current_ >= 0 && !plan_.pieces[static_cast<size_t>(current_)].empty(); }
+    /// Its pieces that this shard decodes (split() only), in order.
+    std::vector<ShardPiece> my_pieces() const;
+    /// Its number of segments (split() only).
+    size_t segments() const;
+    /// True when this shard decodes part of a record split between shards.
+    bool has_pieces() const;
+    /// Records split between shards, with their lengths, as names for messages.
+    std::vector<std::string> split_records() const;
     /// 0-based input index of the record last passed to take().
     int64_t index() const { return next_ - 1; }
     /// Throws InputError when fewer records were read than planned.
@@ -68,25 +103,105 @@ public:
 
     const ShardSpec& spec() const { return spec_; }
     /// Planned units (non-empty records, or regions).
-    int64_t units() const { return static_cast<int64_t>(units_.size()); }
+    int64_t units() const { return static_cast<int64_t>(plan_.units.size()); }
     /// Bases (known and unknown) planned for this shard, and for the whole input.
     int64_t shard_bases() const { return shard_bases_; }
     int64_t total_bases() const { return total_bases_; }
 
 private:
     ShardSpec spec_;
-    std::vector<ShardUnit> units_;
-    std::vector<int> shard_of_;
+    ShardPlan plan_;
+    int64_t segment_length_ = 0;
+    int64_t current_ = -1;  ///< planned unit of the record last taken; -1 = none (empty record)
     int64_t next_ = 0;    ///< records seen
     size_t planned_ = 0;  ///< planned units seen
     int64_t shard_bases_ = 0, total_bases_ = 0;
 };
 
+// --- Records shared between shards (split by plan_shards) -------------------------------------
+// Such a record is decoded in two steps: every shard first writes the seams of its segments
+// (scan --emit-seams); then each decodes its segments from all the seams (scan --seams), which
+// gives exactly the boundary vectors of a single run, and records what its segments' sinks saw
+// (SharedRecord) so that merge can join the segments in order as the single run does.
+
+/// The seams of one shard's segments of one shared record.
+struct SeamsRecord {
+    int64_t input_index = 0;
+    std::string name;
+    int64_t length = 0;
+    size_t segments = 0;                  ///< of the whole record
+    std::vector<size_t> indexes;          ///< segment index of each seam
+    std::vector<SegmentSeam> seams;
+};
+
+/// The seams file of one shard (tidemark-seams/1): shard index and count, `identity` (what the
+/// seams depend on: inputs, profile checksum, decoder options; a JSON object text) and records.
+std::string seams_json(const ShardSpec& spec, const std::string& identity, const std::vector<SeamsRecord>& records);
+
+/// The seams of every shared record, gathered from the seams files of all shards.
+class SeamsTable {
+public:
+    SeamsTable() = default;
+    /// Reads the files; throws InputError for a file that is not a seams file, comes from
+    /// another run (identity or shard count differ) or repeats a segment.
+    SeamsTable(const std::vector<std::string>& paths, const std::string& identity, const ShardSpec& spec);
+    bool empty() const { return paths_.empty(); }
+    /// All segments' seams of a record; throws InputError naming the missing segments.
+    std::vector<SegmentSeam> record(int64_t input_index, const std::string& name, int64_t length,
+                                    size_t segments) const;
+
+private:
+    struct Entry {
+        std::string name;
+        int64_t length = 0;
+        size_t segments = 0;
+        std::vector<SegmentSeam> seams;
+        std::vector<bool> have;
+    };
+    std::vector<std::string> paths_;
+    std::vector<std::pair<int64_t, Entry>> records_;  ///< by input index
+};
+
+/// Prefix composition of a segment at one position: the bases of [segment begin, position), and
+/// whether a CpG straddles position - 1 and position. Merge rebuilds the composition of a call
+/// that crosses segments from these.
+struct CompositionMark {
+    int64_t position = 0;
+    Composition prefix;
+    bool cpg_before = false;
+};
+
+/// What one shard's sinks saw over one segment of a shared record.
+struct SharedSegment {
+    size_t index = 0;
+    int64_t begin = 0, end = 0;
+    std::vector<IntervalCaller::Lane> lanes;
+    std::vector<Call> calls;             ///< calls that ended inside the segment
+    std::vector<double> expected;        ///< expected bases per region
+    std::vector<CompositionMark> marks;  ///< at begin, end and the lanes' group bounds
+};
+
+/// A shared record as one shard saw it.
+struct SharedRecord {
+    /// Whole-record fields (name, input_index, offset, length, unknown, soft_masked,
+    /// composition); log_likelihood only from the shard with the last segment, else NaN.
+    ContigSummary whole;
+    int64_t full_length = 0;  ///< of the named sequence (regions)
+    size_t segments = 0;      ///< of the whole record
+    std::vector<SharedSegment> done;  ///< this shard's segments, in order
+};
+
+/// Describes segment `index`, [begin, end) of `contig`, from the forks that decoded it.
+SharedSegment describe_segment(const Contig& contig, size_t index, int64_t begin, int64_t end,
+                               const IntervalCaller& caller, const RegionTotals& totals);
+
 /// The "shard" object of a shard's summary and report: index, count, records of the whole input,
 /// the effective options (a JSON object, so that merge can refuse shards of different runs even
 /// from summaries), and every ContigSummary field of this shard's contigs at full precision
 /// (what merge needs to rebuild the genome-wide totals exactly). Returned as JSON text.
-std::string shard_json(const ShardFilter& filter, const std::string& options_json,
-                       const std::vector<ContigSummary>& contigs);
+/// Also the profile checksum (merge checks the profile it loads for shared records against it);
+/// shared records go under "shared".
+std::string shard_json(const ShardFilter& filter, const std::string& options_json, const std::string& profile_crc32,
+                       const std::vector<ContigSummary>& contigs, const std::vector<SharedRecord>& shared);
 
 }  // namespace tidemark

@@ -44,6 +44,12 @@ public:
     std::unique_ptr<DecodeSink> fork() const override { return std::make_unique<RegionTotals>(model_); }
     void join(DecodeSink& later) override;
     const std::vector<double>& expected_bases() const { return expected_; }
+    /// Makes this a fork that saw one segment with these totals (merge of shared contigs).
+    void restore_span(std::vector<double> expected) {
+        expected_ = std::move(expected);
+        begun_ = true;
+        ended_ = false;
+    }
 
 private:
     const Model& model_;

@@ -24,6 +24,10 @@ void add_merge(CLI::App& app, Context& ctx) {
     cmd->add_option("--shard-posteriors", opts->shard_tracks,
                     "every shard's scan --posteriors PREFIX (bedGraph)")
         ->group(input);
+    cmd->add_option("-p,--profile", opts->profile,
+                    "the run's profile, when records were shared between shards and the recorded one "
+                    "cannot be found from here (checked against the recorded checksum)")
+        ->group(input);
     const char* output = "Merged outputs";
     cmd->add_option("-o,--output", opts->output,
                     "merged BED (- for stdout) [stdout with --shard-beds]")

@@ -37,6 +37,17 @@ void add_scan(CLI::App& app, Context& ctx) {
                     "decode only share I of N (1-based) of the records, balanced by length; combine the N "
                     "outputs with 'tidemark merge'")
         ->group(input);
+    cmd->add_option("--emit-seams", opts->emit_seams,
+                    "with --shard, when records longer than one share are split between shards: step 1, write "
+                    "only the seams of this shard's segments to FILE")
+        ->group(input);
+    cmd->add_option("--seams", opts->seams,
+                    "with --shard: step 2, the seams files of every shard (repeat the option for each file)")
+        ->allow_extra_args(false)
+        ->group(input);
+    cmd->add_flag("--whole-contigs", opts->whole_contigs,
+                  "with --shard: never split a record between shards (one step, less balanced)")
+        ->group(input);
 
     const char* decoding = "Decoding and calling";
     cmd->add_option("--decode", *decode, "posterior (exact per-base posteriors) or viterbi (best path)")

@@ -1,0 +1,239 @@
+"""Records longer than one shard's share are split between shards (scan --emit-seams, then
+scan --seams, then merge): the merged outputs must equal a single run of the same command byte
+for byte; the split must follow the documented piece rule (re-implemented here); calls that
+cross the seams between shards must exist (so the joining is exercised) and their GC content
+must equal Python's count over the FASTA."""
+
+import json
+import os
+import subprocess
+
+import numpy as np
+
+import tmtest
+
+SINGLE = "single run of the same command (merged shards must equal it byte for byte)"
+PYTHON = "Python reading of the FASTA"
+RULE = "piece rule of plan_shards re-implemented in Python (shard.hpp)"
+
+
+def records_with_seam_islands(rng, lengths, segment):
+    """AT-leaning background with CpG-rich stretches centred on segment boundaries (where one
+    shard's piece may end and the next begin), plus a few elsewhere, N runs and lowercase."""
+    records = []
+    for i, n in enumerate(lengths):
+        seq = rng.choice(list("ACGT"), size=n, p=[0.3, 0.2, 0.2, 0.3])
+        centres = list(range(segment, n - 1000, segment)) + list(rng.integers(2000, n - 2000, size=3))
+        for c in centres:
+            width = int(rng.integers(600, 2400))
+            lo, hi = max(0, c - width // 2), min(n, c + width // 2)
+            seq[lo:hi] = rng.choice(list("ACGT"), size=hi - lo, p=[0.1, 0.4, 0.4, 0.1])
+        if i == 0:
+            seq[3 * segment - 40:3 * segment + 40] = "N"  # an unknown run across a boundary
+        text = "".join(seq)
+        if i == 1:
+            text = text[:segment - 500] + text[segment - 500:segment + 500].lower() + text[segment + 500:]
+        records.append((f"chr{i + 1}", text))
+    return records
+
+
+def lpt(lengths, n):
+    order = sorted(range(len(lengths)), key=lambda i: (-lengths[i], i))
+    load, shard = [0] * n, [0] * len(lengths)
+    for i in order:
+        s = min(range(n), key=lambda k: (load[k], k))
+        shard[i] = s
+        load[s] += lengths[i]
+    return shard
+
+
+def expected_plan(lengths, n, segment):
+    """{record: [(first, last, shard)]} for split records and {record: shard} for whole ones."""
+    total = sum(lengths)
+    share = -(-total // n)
+    items, item_len = [], []
+    for i, length in enumerate(lengths):
+        if length > share and length > segment:
+            k = -(-length // segment)
+            m = min(k, -(-length // share))
+            for p in range(m):
+                first, last = p * k // m, (p + 1) * k // m
+                items.append((i, first, last))
+                item_len.append(min(length, last * segment) - first * segment)
+        else:
+            items.append((i, None, None))
+            item_len.append(length)
+    shard = lpt(item_len, n)
+    pieces, whole = {}, {}
+    for (i, first, last), s in zip(items, shard):
+        if first is None:
+            whole[i] = s
+        else:
+            pieces.setdefault(i, []).append((first, last, s))
+    return pieces, whole
+
+
+def run_in(binary, folder, args):
+    os.makedirs(folder, exist_ok=True)
+    return tmtest.run(binary, args, cwd=folder)
+
+
+def read_bytes(path):
+    with open(path, "rb") as f:
+        return f.read()
+
+
+def outputs_of(scan_args, bgzip):
+    bed = "calls.bed.gz" if bgzip else "calls.bed"
+    return ["-o", bed, "--summary", "summary.json", "--report", "report.json", "--posteriors", "post",
+            "--gff3", "calls.gff3", "-q"] + (["--bgzip"] if bgzip else []) + scan_args
+
+
+def scenario(checks, binary, work, name, fasta, n, scan_args, regions, bgzip=False):
+    base = os.path.join(work, name)
+    words = outputs_of(scan_args, bgzip)
+    run_in(binary, os.path.join(base, "single"), ["scan", fasta] + words)
+    for i in range(1, n + 1):  # step 1: seams only
+        run_in(binary, os.path.join(base, "seams"), ["scan", fasta, "--shard", f"{i}/{n}", "--emit-seams",
+                                                    f"{i}.json", "-q"] + scan_args)
+    seams = sum((["--seams", f"../seams/{i}.json"] for i in range(n, 0, -1)), [])
+    for i in range(1, n + 1):  # step 2: every shard in its own folder, same words
+        run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/{n}"] + seams + words)
+    bed = "calls.bed.gz" if bgzip else "calls.bed"
+    args = ["merge", "-q", "--shard-summaries"] + [f"../s{i}/summary.json" for i in range(1, n + 1)]
+    args += ["--shard-reports"] + [f"../s{i}/report.json" for i in range(1, n + 1)]
+    args += ["--shard-beds"] + [f"../s{i}/{bed}" for i in range(1, n + 1)]
+    args += ["--shard-posteriors"] + [f"../s{i}/post" for i in range(1, n + 1)]
+    args += ["--shard-gff3"] + [f"../s{i}/calls.gff3" for i in range(1, n + 1)]
+    args += ["-o", bed, "--summary", "summary.json", "--report", "report.json", "--posteriors", "post",
+             "--gff3", "calls.gff3"] + (["--bgzip"] if bgzip else [])
+    run_in(binary, os.path.join(base, "merged"), args)
+    single, merged = os.path.join(base, "single"), os.path.join(base, "merged")
+    for f in sorted(os.listdir(single)):
+        if f == "report.json":
+            a = {k: v for k, v in tmtest.read_json(os.path.join(single, f)).items() if k != "resources"}
+            b = {k: v for k, v in tmtest.read_json(os.path.join(merged, f)).items() if k != "resources"}
+            checks.check(a == b, f"{name}: merged report equals the single run's apart from resources", SINGLE)
+        else:
+            checks.check(read_bytes(os.path.join(single, f)) == read_bytes(os.path.join(merged, f)),
+                         f"{name}: merged {f} equals the single run's", SINGLE)
+    return [tmtest.read_json(os.path.join(base, f"s{i}", "summary.json"))["shard"] for i in range(1, n + 1)]
+
+
+def check_plan(checks, name, shards, lengths, n, segment):
+    pieces, whole = expected_plan(lengths, n, segment)
+    got_pieces, got_whole = {}, {}
+    for s, doc in enumerate(shards):
+        for c in doc["contigs"]:
+            got_whole[c["input_index"]] = s
+        for r in doc["shared"]:
+            idx = [d["segment"] for d in r["done"]]
+            got_pieces.setdefault(r["record"]["input_index"], set()).update((k, s) for k in idx)
+    want = {i: {(k, s) for first, last, s in p for k in range(first, last)} for i, p in pieces.items()}
+    checks.equal(got_whole, whole, f"{name}: whole records go to the planned shards", RULE)
+    checks.equal(got_pieces, want, f"{name}: every segment of a split record is decoded once, by the planned shard",
+                 RULE)
+    return pieces
+
+
+def check_seam_calls(checks, name, merged_bed, records, pieces, segment):
+    """Calls that cross a boundary between two shards' pieces; their GC against Python."""
+    seqs = dict(records)
+    names = [r[0] for r in records]
+    seams = {names[i]: [first * segment for first, _, _ in p[1:]] for i, p in pieces.items()}
+    crossing, worst = 0, 0.0
+    for row in tmtest.read_bed(merged_bed):
+        chrom, start, end = row[0], int(row[1]), int(row[2])
+        if any(start < b < end for b in seams.get(chrom, [])):
+            crossing += 1
+            s = seqs[chrom][start:end].upper()
+            known = sum(s.count(b) for b in "ACGT")
+            worst = max(worst, abs(float(row[8]) - (s.count("C") + s.count("G")) / known))
+    checks.check(crossing >= 2, f"{name}: calls cross the seams between shards", PYTHON, f"{crossing} calls")
+    checks.at_most(worst, 5e-5, f"{name}: GC of calls across seams (4 decimals in the BED)", PYTHON)
+
+
+def fails(checks, binary, cwd, args, code, fragment, what):
+    r = subprocess.run([binary] + args, cwd=cwd, capture_output=True, text=True)
+    checks.check(r.returncode == code and fragment in r.stderr, what, "documented error contract",
+                 f"exit {r.returncode}: {r.stderr.strip()[:200]}")
+
+
+def body(checks, binary, work):
+    rng = np.random.default_rng(20261201)
+    segment = 65536  # --block 4096: 16 blocks, at least 64 Ki (decode.hpp)
+    lengths = [700000, 455000, 30000, 90000, 12000]
+    records = records_with_seam_islands(rng, lengths, segment)
+    fasta = os.path.join(work, "genome.fa")
+    tmtest.write_fasta(fasta, records)
+
+    # 1. cpg-island with published island criteria (call compositions are joined across seams).
+    shards = scenario(checks, binary, work, "cpg", fasta, 3, ["--block", "4096", "--island-criteria", "ggf1987"], None)
+    pieces = check_plan(checks, "cpg", shards, lengths, 3, segment)
+    checks.check(len(pieces) == 2, "cpg: the two long records are split", RULE, str(sorted(pieces)))
+    check_seam_calls(checks, "cpg", os.path.join(work, "cpg", "merged", "calls.bed"), records, pieces, segment)
+
+    # 2. More shards, browser BED, bgzip + tabix, merged gaps, two threads per shard.
+    shards = scenario(checks, binary, work, "browser", fasta, 5,
+                      ["--block", "4096", "--bed-style", "browser", "--merge-gap", "400", "--min-length", "80",
+                       "-t", "2"], None, bgzip=True)
+    check_plan(checks, "browser", shards, lengths, 5, segment)
+
+    # 3. A profile of several states per region type, binned tracks (segments end on bins).
+    bin_segment = 65600  # 65536 rounded up to a multiple of --bin 100
+    shards = scenario(checks, binary, work, "isochore", fasta, 4,
+                      ["-p", "isochore", "--block", "4096", "--bin", "100", "--posterior-digits", "2"], None)
+    check_plan(checks, "isochore", shards, lengths, 4, bin_segment)
+
+    # 4. Regions of the indexed file.
+    regs = ["chr1:20001-690000", "chr2", "chr4"]
+    reg_args = sum((["-r", r] for r in regs), [])
+    shards = scenario(checks, binary, work, "regions", fasta, 3, ["--block", "4096"] + reg_args, None)
+    check_plan(checks, "regions", shards, [670000, 455000, 90000], 3, segment)
+
+    # 5. --whole-contigs: one step, no record split, and the merge still equals the single run.
+    base = os.path.join(work, "whole")
+    words = outputs_of(["--block", "4096"], False)
+    run_in(binary, os.path.join(base, "single"), ["scan", fasta] + words)
+    for i in (1, 2):
+        run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/2", "--whole-contigs"] + words)
+    run_in(binary, os.path.join(base, "merged"),
+           ["merge", "-q", "--shard-summaries", "../s1/summary.json", "../s2/summary.json", "--shard-beds",
+            "../s1/calls.bed", "../s2/calls.bed", "-o", "calls.bed", "--summary", "summary.json"])
+    for f in ("calls.bed", "summary.json"):
+        checks.check(read_bytes(os.path.join(base, "single", f)) == read_bytes(os.path.join(base, "merged", f)),
+                     f"whole: merged {f} equals the single run's", SINGLE)
+    shared = [r for i in (1, 2) for r in tmtest.read_json(os.path.join(base, f"s{i}", "summary.json"))["shard"]["shared"]]
+    checks.equal(shared, [], "whole: --whole-contigs shares no record", "documented option")
+
+    # 6. Failures name the problem and write nothing.
+    cpg = os.path.join(work, "cpg")
+    fails(checks, binary, cpg, ["scan", fasta, "--shard", "1/3", "--block", "4096", "-o", "x.bed"], 2,
+          "--emit-seams", "a shard with a shared record and no --seams is a usage error naming both steps")
+    fails(checks, binary, cpg, ["scan", fasta, "--shard", "1/3", "--block", "4096", "--seams", "seams/1.json",
+                                "--seams", "seams/3.json", "-o", "x.bed"], 1, "no seams for segments",
+          "seams of one shard missing: the segments are named")
+    fails(checks, binary, cpg, ["scan", fasta, "--shard", "1/3", "--block", "8192", "--seams", "seams/1.json",
+                                "--seams", "seams/2.json", "--seams", "seams/3.json", "-o", "x.bed"], 1,
+          "another run", "seams made with other options are refused")
+    fails(checks, binary, cpg, ["scan", fasta, "--shard", "1/3", "--block", "4096", "--emit-seams", "y.json",
+                                "-o", "x.bed"], 2, "writes only the seams", "--emit-seams with other outputs")
+    checks.check(not os.path.exists(os.path.join(cpg, "x.bed")) and not os.path.exists(os.path.join(cpg, "y.json")),
+                 "failed runs leave no output file", "documented error contract")
+    merged = os.path.join(cpg, "merged")
+    fails(checks, binary, merged, ["merge", "--shard-summaries", "../s1/summary.json", "../s2/summary.json",
+                                   "../s3/summary.json", "-p", "isochore", "--summary", "z.json"], 1,
+          "not the one the shards used", "merge refuses a profile other than the shards'")
+    s2 = tmtest.read_json(os.path.join(cpg, "s2", "summary.json"))
+    s2["shard"]["shared"] = s2["shard"]["shared"][:-1]
+    with open(os.path.join(merged, "cut.json"), "w") as f:
+        json.dump(s2, f)
+    fails(checks, binary, merged, ["merge", "--shard-summaries", "../s1/summary.json", "cut.json",
+                                   "../s3/summary.json", "--summary", "z.json"], 1, "in no shard",
+          "a shard summary without its part of a shared record is refused")
+    checks.check(not os.path.exists(os.path.join(merged, "z.json")), "failed merges leave no output file",
+                 "documented error contract")
+
+
+if __name__ == "__main__":
+    tmtest.main("records split between shards: seams, decoding and merge against a single run", body)
