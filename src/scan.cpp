@@ -72,6 +72,8 @@ void validate(const ScanOptions& o) {
     if (o.threads < 0) throw UsageError("--threads must be >= 0 (0 = every core)");
     if ((!o.emit_seams.empty() || !o.seams.empty() || o.whole_contigs) && !o.shard.active())
         throw UsageError("--emit-seams, --seams and --whole-contigs go with --shard I/N");
+    if ((!o.emit_seams.empty() || !o.seams.empty()) && o.decode == DecodeMode::viterbi)
+        throw UsageError("--emit-seams and --seams are for posterior decoding; Viterbi shards keep records whole");
     if (!o.emit_seams.empty() && !o.seams.empty())
         throw UsageError("--emit-seams is the first step and --seams the second: give one of them");
     if (o.whole_contigs && (!o.emit_seams.empty() || !o.seams.empty()))
@@ -122,48 +124,16 @@ std::string join_words(const std::vector<std::string>& words) {
     return out;
 }
 
-// What seams depend on: the records (inputs and regions), the profile and how contigs split.
-std::string seams_identity(const ScanOptions& o, const std::string& profile_crc, int64_t segment_length) {
-    nlohmann::ordered_json j;
-    j["inputs"] = o.inputs;
-    j["regions"] = o.regions;
-    j["regions_bed"] = o.regions_bed;
-    j["profile_crc32"] = profile_crc;
-    j["block"] = o.block_size;
-    j["bin"] = o.tracks.bin;
-    j["segment_length"] = segment_length;
-    return j.dump();
-}
-
 // Step 1 for shared records: the seams of this shard's segments, and nothing else.
 std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard, const std::string& identity,
                                       Decoder& decoder, int threads, const Logger& log,
                                       const std::vector<Region>& regions) {
     OutputFile out(o.emit_seams);
     TaskPool pool(threads);
-    std::vector<SeamsRecord> records;
+    const std::vector<SeamsRecord> records =
+        compute_seams(shard, *decoder.posterior, o.inputs, regions, threads > 1 ? &pool : nullptr);
     size_t segments = 0;
-    for (const auto& input : o.inputs) {
-        std::unique_ptr<SequenceSource> source = regions.empty() ? open_fasta(input) : open_regions(input, regions);
-        Contig contig;
-        while (source->next(contig)) {
-            if (!shard.take(contig) || !shard.split()) continue;
-            SeamsRecord r;
-            r.input_index = shard.index();
-            r.name = contig.name;
-            r.length = contig.length;
-            r.segments = shard.segments();
-            for (const ShardPiece& piece : shard.my_pieces()) {
-                std::vector<SegmentSeam> part =
-                    decoder.posterior->seams(contig, piece.first, piece.last, threads > 1 ? &pool : nullptr);
-                for (size_t k = piece.first; k < piece.last; ++k) r.indexes.push_back(k);
-                for (auto& seam : part) r.seams.push_back(std::move(seam));
-            }
-            segments += r.seams.size();
-            records.push_back(std::move(r));
-        }
-    }
-    shard.finish();
+    for (const auto& r : records) segments += r.seams.size();
     out.write(seams_json(o.shard, identity, records));
     out.commit();
     log.info(fmt::format("shard {}/{}: seams of {} segments of {} shared records", o.shard.index, o.shard.count,
@@ -263,7 +233,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
 
     // Planned before any output exists, like the regions; every shard makes the same plan.
     ShardFilter shard(o.shard, o.inputs, regions, segment_length);
-    const std::string identity = seams_identity(o, profile_checksum(profile), segment_length);
+    const std::string identity = seams_identity(o.inputs, o.regions, o.regions_bed, profile_checksum(profile),
+                                                o.block_size, o.tracks.bin, segment_length);
     if (!o.emit_seams.empty()) return emit_seams(o, shard, identity, decoders[0], threads, log, regions);
     if (shard.has_pieces() && o.seams.empty())
         throw UsageError(fmt::format(

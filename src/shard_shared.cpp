@@ -55,6 +55,46 @@ bool cpg_straddles(const Contig& contig, int64_t position) {
 
 }  // namespace
 
+std::string seams_identity(const std::vector<std::string>& inputs, const std::vector<std::string>& regions,
+                           const std::string& regions_bed, const std::string& profile_crc32, int64_t block,
+                           int64_t bin, int64_t segment_length) {
+    ordered_json j;
+    j["inputs"] = inputs;
+    j["regions"] = regions;
+    j["regions_bed"] = regions_bed;
+    j["profile_crc32"] = profile_crc32;
+    j["block"] = block;
+    j["bin"] = bin;
+    j["segment_length"] = segment_length;
+    return j.dump();
+}
+
+std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& decoder,
+                                       const std::vector<std::string>& inputs, const std::vector<Region>& regions,
+                                       TaskPool* pool) {
+    std::vector<SeamsRecord> records;
+    for (const auto& input : inputs) {
+        std::unique_ptr<SequenceSource> source = regions.empty() ? open_fasta(input) : open_regions(input, regions);
+        Contig contig;
+        while (source->next(contig)) {
+            if (!shard.take(contig) || !shard.split()) continue;
+            SeamsRecord r;
+            r.input_index = shard.index();
+            r.name = contig.name;
+            r.length = contig.length;
+            r.segments = shard.segments();
+            for (const ShardPiece& piece : shard.my_pieces()) {
+                std::vector<SegmentSeam> part = decoder.seams(contig, piece.first, piece.last, pool);
+                for (size_t k = piece.first; k < piece.last; ++k) r.indexes.push_back(k);
+                for (auto& seam : part) r.seams.push_back(std::move(seam));
+            }
+            records.push_back(std::move(r));
+        }
+    }
+    shard.finish();
+    return records;
+}
+
 std::string seams_json(const ShardSpec& spec, const std::string& identity, const std::vector<SeamsRecord>& records) {
     ordered_json doc;
     doc["format"] = seams_format;

@@ -205,6 +205,10 @@ void CountAccumulator::block(const BlockView& v) {
 
 void CountAccumulator::end_contig(const Contig& contig, const DecodeResult& result) {
     if (contig.length == 0) return;
+    end_piece(result, true);
+}
+
+void CountAccumulator::end_piece(const DecodeResult& result, bool ends_contig) {
     const Model& m = model_;
     const int S = m.states;
     const auto add = [&](int from, int to, double x) {
@@ -223,6 +227,7 @@ void CountAccumulator::end_contig(const Contig& contig, const DecodeResult& resu
             }
     }
     std::fill(edge_.begin(), edge_.end(), 0.0);  // folded in: a join must not add them again
+    if (!ends_contig) return;
     counts_.log_likelihood += result.log_likelihood;
     ++counts_.contigs;
 }
@@ -266,9 +271,30 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
     std::vector<std::unique_ptr<PosteriorDecoder>> decoders;
     for (int w = 0; w < T; ++w) decoders.push_back(std::make_unique<PosteriorDecoder>(model, options));
     CountAccumulator total(profile, model);
+    // This shard's segments of a record shared between shards, from every shard's seams.
+    const auto count_shared = [&](const Contig& c, const ShardFilter& shard, TaskPool* pool) {
+        if (!data.seams())
+            throw UsageError(fmt::format("record '{}' is shared between shards: run fit --emit-seams for every "
+                                         "shard first and pass the files with --seams",
+                                         c.name));
+        const std::vector<SegmentSeam> all = data.seams()->record(shard.index(), c.name, c.length, shard.segments());
+        for (const ShardPiece& piece : shard.my_pieces()) {
+            auto acc = std::make_unique<CountAccumulator>(profile, model);
+            acc->begin_contig(c);
+            const DecodeResult result = decoders[0]->run_segments(
+                c, all, piece.first, piece.last, *acc, [&](size_t, DecodeSink& fork) { acc->join(fork); }, pool);
+            acc->end_piece(result, piece.last == shard.segments());
+            total.join(*acc);
+        }
+    };
+    const auto shared = [&data] {
+        const ShardFilter* f = data.current_shard();
+        return f && f->split() ? f : nullptr;
+    };
     if (T == 1) {
         // The same per-contig sums as with threads, without copying contigs.
         data.for_each([&](const Contig& c) {
+            if (const ShardFilter* f = shared()) return count_shared(c, *f, nullptr);
             const std::unique_ptr<DecodeSink> acc = total.fork();
             decoders[0]->run(c, *acc);
             total.join(*acc);
@@ -291,6 +317,10 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
         jobs.pop_front();
     };
     data.for_each([&](const Contig& c) {
+        if (const ShardFilter* f = shared()) {
+            while (!jobs.empty()) finish_oldest();
+            return count_shared(c, *f, &pool);
+        }
         if (decoders[0]->splits(c.length)) {
             // A long contig: its segments take the whole pool, which must be idle first.
             while (!jobs.empty()) finish_oldest();

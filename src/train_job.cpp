@@ -101,7 +101,9 @@ void parse_class_range(const std::string& text, int& lo, int& hi) {
 
 void validate(const FitJobOptions& o) {
     if (o.fit.threads < 0) throw UsageError("--threads must be >= 0 (0 = every core)");
-    if (o.shard.active() || !o.emit_stats.empty() || !o.from_stats.empty()) return validate_distributed(o);
+    if (o.shard.active() || !o.emit_stats.empty() || !o.from_stats.empty() || !o.emit_seams.empty() ||
+        !o.seams.empty() || o.whole_contigs)
+        return validate_distributed(o);
     if (o.inputs.empty()) throw UsageError("fit needs at least one FASTA file");
     const bool from_template = o.classes_min > 0;
     if (from_template && !o.profile.empty())
@@ -135,7 +137,7 @@ void validate(const FitJobOptions& o) {
 FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     validate(o);
     if (!o.from_stats.empty()) return fit_from_statistics(o, log);
-    if (!o.emit_stats.empty()) return emit_statistics(o, log);
+    if (!o.emit_stats.empty() || !o.emit_seams.empty()) return emit_statistics(o, log);
     FastaTrainingData data(o.inputs, o.regions, o.regions_bed);
     // Open the output before the long work so that an unwritable path fails at once; it is
     // committed only at the end.

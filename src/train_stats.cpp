@@ -10,6 +10,7 @@
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/train.hpp"
+#include "thread_pool.hpp"
 
 namespace tidemark {
 namespace {
@@ -18,20 +19,25 @@ using ordered_json = nlohmann::ordered_json;
 
 constexpr const char* stats_format = "tidemark-stats/1";
 
-// The records of one shard, re-read on every pass like FastaTrainingData.
+// The records of one shard, re-read on every pass like FastaTrainingData. Records longer than
+// a share are split between shards as scan splits them (segment_length > 0).
 class ShardTrainingData final : public TrainingData {
 public:
-    ShardTrainingData(const FitJobOptions& o) : inner_(o.inputs, o.regions, o.regions_bed) {
-        std::vector<Region> regions;
+    ShardTrainingData(const FitJobOptions& o, int64_t segment_length) : inner_(o.inputs, o.regions, o.regions_bed) {
         if (!o.regions.empty() || !o.regions_bed.empty()) {
             const std::vector<Interval> bed =
                 o.regions_bed.empty() ? std::vector<Interval>{} : read_bed(o.regions_bed);
-            regions = resolve_regions(o.inputs[0], o.regions, bed);
+            regions_ = resolve_regions(o.inputs[0], o.regions, bed);
         }
-        if (o.shard.active()) plan_ = ShardFilter(o.shard, o.inputs, regions, 0);  // fit shards whole records
+        if (o.shard.active()) plan_ = ShardFilter(o.shard, o.inputs, regions_, segment_length);
     }
+    void use_seams(SeamsTable seams) { seams_ = std::move(seams); }
+    const ShardFilter* current_shard() const override { return live_; }
+    const SeamsTable* seams() const override { return seams_.empty() ? nullptr : &seams_; }
+    const std::vector<Region>& regions() const { return regions_; }
     void for_each(const std::function<void(const Contig&)>& fn) override {
         ShardFilter filter = plan_;  // a fresh copy per pass: it counts records
+        live_ = &filter;
         ordered_json seen = ordered_json::array();
         inner_.for_each([&](const Contig& c) {
             if (!filter.take(c)) return;
@@ -42,6 +48,7 @@ public:
                             {"unknown", c.unknown_count()}});
             fn(c);
         });
+        live_ = nullptr;
         filter.finish();
         records_ = std::move(seen);
         records_total_ = filter.records();
@@ -52,7 +59,10 @@ public:
 
 private:
     FastaTrainingData inner_;
+    std::vector<Region> regions_;
     ShardFilter plan_;
+    const ShardFilter* live_ = nullptr;  ///< during for_each
+    SeamsTable seams_;
     ordered_json records_;
     int64_t records_total_ = 0;
 };
@@ -136,7 +146,11 @@ void validate_distributed(const FitJobOptions& o) {
     if (!o.emit_stats.empty() && !o.from_stats.empty())
         throw UsageError(
             "--emit-stats (an E-step) and --from-stats (an M-step) are separate runs; give one");
-    if (o.shard.active() && o.emit_stats.empty())
+    if ((o.whole_contigs || !o.emit_seams.empty() || !o.seams.empty()) && !o.shard.active())
+        throw UsageError("--emit-seams, --seams and --whole-contigs go with --shard I/N");
+    if (!o.emit_seams.empty() && (!o.emit_stats.empty() || !o.seams.empty() || o.whole_contigs))
+        throw UsageError("--emit-seams is a step of its own: no --emit-stats, --seams or --whole-contigs with it");
+    if (o.shard.active() && o.emit_stats.empty() && o.emit_seams.empty())
         throw UsageError(
             "fit --shard needs --emit-stats: a shard runs one E-step, and fit --from-stats "
             "combines "
@@ -150,7 +164,7 @@ void validate_distributed(const FitJobOptions& o) {
         throw UsageError("--pseudocount must be a finite number >= 0");
     if (o.fit.block_size < 0) throw UsageError("--block must be >= 0");
     if (o.fit.threads < 0) throw UsageError("--threads must be >= 0 (0 = every core)");
-    if (!o.emit_stats.empty()) {
+    if (!o.emit_stats.empty() || !o.emit_seams.empty()) {
         if (o.inputs.empty()) throw UsageError("--emit-stats needs the FASTA files");
         if (o.profile.empty())
             throw UsageError("--emit-stats needs the profile of this iteration (-p NAME|FILE)");
@@ -165,7 +179,38 @@ void validate_distributed(const FitJobOptions& o) {
 
 FitResult emit_statistics(const FitJobOptions& o, const Logger& log) {
     const Profile profile = load_profile(o.profile);
-    ShardTrainingData data(o);
+    const Model model = compile(profile);
+    DecoderOptions decoder_options;
+    decoder_options.block_size = o.fit.block_size;
+    PosteriorDecoder decoder(model, decoder_options);
+    const int64_t segment_length = o.whole_contigs ? 0 : decoder.segment_length();
+    ShardTrainingData data(o, segment_length);
+    // What the seams depend on, as scan records it (no track bins in training: bin 1).
+    const std::string identity = seams_identity(o.inputs, o.regions, o.regions_bed, profile_checksum(profile),
+                                                o.fit.block_size, 1, segment_length);
+    if (!o.emit_seams.empty()) {
+        OutputFile out(o.emit_seams);
+        ShardFilter shard = data.plan();
+        const int threads = resolve_threads(o.fit.threads);
+        TaskPool pool(threads);
+        const std::vector<SeamsRecord> records =
+            compute_seams(shard, decoder, o.inputs, data.regions(), threads > 1 ? &pool : nullptr);
+        out.write(seams_json(o.shard, identity, records));
+        out.commit();
+        log.info(fmt::format("fit: shard {}/{}: seams of {} shared records", o.shard.index, o.shard.count,
+                             records.size()));
+        FitResult r;
+        r.profile = profile;
+        return r;
+    }
+    if (data.plan().has_pieces() && o.seams.empty())
+        throw UsageError(fmt::format(
+            "shard {}/{} counts part of a record shared between shards. Such records take two steps per "
+            "iteration: first 'fit ... -p PROFILE --shard I/N --emit-seams seams.I.json' for every shard I, then "
+            "this command with '--seams seams.1.json --seams seams.2.json ...' (all of them); or add "
+            "--whole-contigs to keep every record on one shard",
+            o.shard.index, o.shard.count));
+    if (!o.seams.empty()) data.use_seams(SeamsTable(o.seams, identity, o.shard));
     OutputFile out(o.emit_stats);  // fail early on an unwritable path
     const TrainingCounts counts = expected_counts(profile, data, o.fit.block_size, o.fit.threads);
 

@@ -134,6 +134,18 @@ struct SeamsRecord {
     std::vector<SegmentSeam> seams;
 };
 
+/// What seams depend on, as a JSON object text: the records (inputs, regions), the profile
+/// checksum and how contigs split (--block, --bin, segment length). scan and fit write the same.
+std::string seams_identity(const std::vector<std::string>& inputs, const std::vector<std::string>& regions,
+                           const std::string& regions_bed, const std::string& profile_crc32, int64_t block,
+                           int64_t bin, int64_t segment_length);
+
+/// Step 1: reads the input (inputs, or regions of inputs[0]) and computes the seams of this
+/// shard's segments of every shared record (shard.split()). Calls shard.finish().
+std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& decoder,
+                                       const std::vector<std::string>& inputs, const std::vector<Region>& regions,
+                                       TaskPool* pool);
+
 /// The seams file of one shard (tidemark-seams/1): shard index and count, `identity` (what the
 /// seams depend on: inputs, profile checksum, decoder options; a JSON object text) and records.
 std::string seams_json(const ShardSpec& spec, const std::string& identity, const std::vector<SeamsRecord>& records);

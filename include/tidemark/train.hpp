@@ -29,6 +29,11 @@ public:
     virtual ~TrainingData() = default;
     /// Calls fn for every contig, in the same order on every pass.
     virtual void for_each(const std::function<void(const Contig&)>& fn) = 0;
+    /// During for_each, sharded data only: the filter that took the contig being passed (when
+    /// it is shared between shards, the E-step decodes only this shard's segments), and the
+    /// seams of all shared records. nullptr otherwise.
+    virtual const ShardFilter* current_shard() const { return nullptr; }
+    virtual const SeamsTable* seams() const { return nullptr; }
 };
 
 /// What one pass saw of one record (for provenance).
@@ -108,6 +113,9 @@ public:
     void begin_contig(const Contig& contig) override;
     void block(const BlockView& view) override;
     void end_contig(const Contig& contig, const DecodeResult& result) override;
+    /// Ends this shard's piece of a contig shared between shards: folds in the transition
+    /// counts; the log-likelihood and the contig count only when the piece ends the contig.
+    void end_piece(const DecodeResult& result, bool ends_contig);
     /// A fresh accumulator (zero counts) for a later contig or a later segment of the contig in
     /// progress (its expected transition sums are added before the contig's are folded in);
     /// join adds its counts to these.
@@ -322,6 +330,9 @@ struct FitJobOptions {
     std::string name;                  ///< name of the output profile ("" = derived)
     FitOptions fit;
     ShardSpec shard;                   ///< with emit_stats: only this shard's records (shard.hpp)
+    bool whole_contigs = false;        ///< shards never split a record (no seams step)
+    std::string emit_seams;            ///< step 1 for shared records: write only their seams
+    std::vector<std::string> seams;    ///< step 2 (with emit_stats): the seams files of every shard
     std::string emit_stats;            ///< write one E-step's counts here instead of fitting ("" = no)
     std::vector<std::string> from_stats;  ///< M-step on the summed counts of these files (no FASTA)
     std::string command_line;          ///< recorded in provenance (without --shard)
@@ -345,7 +356,10 @@ void validate_distributed(const FitJobOptions& options);
 
 /// One E-step of options.profile over the records of options.shard (all records when not
 /// sharded), written as tidemark-stats/1 JSON: the shard, the profile used (canonical JSON),
-/// the TrainingCounts at full double precision, and the records counted.
+/// the TrainingCounts at full double precision, and the records counted. Records longer than
+/// one share are split between shards as scan splits them (unless whole_contigs): with
+/// emit_seams, writes only this shard's seams of them (step 1); the E-step (step 2) then needs
+/// every shard's seams files (options.seams) and counts only this shard's segments.
 FitResult emit_statistics(const FitJobOptions& options, const Logger& log);
 
 /// Sums the counts of every shard's statistics file in shard order and runs the M-step

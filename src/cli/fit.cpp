@@ -66,6 +66,16 @@ void add_fit(CLI::App& app, Context& ctx) {
         ->group(distributed);
     cmd->add_option("--shard", *shard, "with --emit-stats: count only share I of N of the records (as scan --shard)")
         ->group(distributed);
+    cmd->add_option("--emit-seams", opts->emit_seams,
+                    "with --shard, when records longer than one share are split between shards: step 1 of an "
+                    "E-step, write only the seams of this shard's segments (as scan --emit-seams)")
+        ->group(distributed);
+    cmd->add_option("--seams", opts->seams,
+                    "with --emit-stats: the seams files of every shard (repeat the option for each file)")
+        ->allow_extra_args(false)
+        ->group(distributed);
+    cmd->add_flag("--whole-contigs", opts->whole_contigs, "with --shard: never split a record between shards")
+        ->group(distributed);
     cmd->add_option("--from-stats", opts->from_stats,
                     "sum the counts of every shard's --emit-stats file and write the re-estimated profile "
                     "(-p: the fit's starting profile, for the structure)")

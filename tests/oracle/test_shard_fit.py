@@ -30,8 +30,12 @@ def numbers(a, b, path=""):
 
 
 def records(rng):
+    return records_of(rng, [40000, 90000, 7000, 25000, 60000])
+
+
+def records_of(rng, lengths):
     out = []
-    for i, n in enumerate([40000, 90000, 7000, 25000, 60000]):
+    for i, n in enumerate(lengths):
         seq = rng.choice(list("ACGT"), size=n, p=rng.dirichlet([6, 5, 5, 6]))
         for start in rng.integers(0, n - 1500, size=2):
             seq[start:start + 900] = rng.choice(list("CGTA"), size=900, p=[0.4, 0.4, 0.1, 0.1])
@@ -41,13 +45,20 @@ def records(rng):
     return out
 
 
-def distributed(binary, work, fasta, profile, n, iterations, tag):
+def distributed(binary, work, fasta, profile, n, iterations, tag, extra=(), split=False):
+    """EM over n shards; with split, each E-step takes two steps (seams of every shard first)."""
     current = profile
     for k in range(1, iterations + 1):
-        stats = []
+        stats, seams = [], []
+        if split:
+            for i in range(1, n + 1):
+                seams += ["--seams", os.path.join(work, f"{tag}.seams.{k}.{i}.json")]
+                tmtest.run(binary, ["fit", fasta, "-p", current, "--emit-seams", seams[-1], "--shard", f"{i}/{n}",
+                                    "-q"] + list(extra))
         for i in range(1, n + 1):
             path = os.path.join(work, f"{tag}.stats.{k}.{i}.json")
-            tmtest.run(binary, ["fit", fasta, "-p", current, "--emit-stats", path, "--shard", f"{i}/{n}", "-q"])
+            tmtest.run(binary, ["fit", fasta, "-p", current, "--emit-stats", path, "--shard", f"{i}/{n}", "-q"] +
+                       list(extra) + seams)
             stats.append(path)
         nxt = os.path.join(work, f"{tag}.profile.{k}.json")
         tmtest.run(binary, ["fit", "--from-stats"] + stats[::-1] + ["-p", profile, "-o", nxt, "-q"])
@@ -92,6 +103,35 @@ def body(checks, binary, work):
     checks.at_most(abs(sum(p["log_likelihood"] for p in parts) - w["log_likelihood"]) / abs(w["log_likelihood"]),
                    1e-12, "log-likelihoods of 3 shards add up to one E-step's",
                    "ln P(genome) = sum over contigs of ln P(contig)")
+
+    # Records longer than one share are split between shards (--block 4096: 64 Ki-base segments),
+    # two steps per E-step; the fit still equals the single-process one.
+    long_recs = records_of(rng, [300000, 210000, 20000])
+    long_fa = os.path.join(work, "long.fa")
+    tmtest.write_fasta(long_fa, long_recs)
+    long_known = sum(sum(s.count(b) for b in "ACGT") for _, s in long_recs)
+    for profile in ("cpg-island", "gc-shift"):
+        single = os.path.join(work, f"{profile}.long.single.json")
+        tmtest.run(binary, ["fit", long_fa, "-p", profile, "--max-iter", "2", "--tol", "0", "-o", single, "-q"])
+        tag = f"{profile}.long"
+        result = distributed(binary, work, long_fa, profile, 3, 2, tag, ["--block", "4096"], split=True)
+        checks.at_most(numbers(tmtest.read_json(single), tmtest.read_json(result)), 1e-9,
+                       f"{profile}: 2 EM iterations over 3 shards with split records equal the single-process fit",
+                       SINGLE)
+        stats = [tmtest.read_json(os.path.join(work, f"{tag}.stats.1.{i}.json"))["counts"] for i in (1, 2, 3)]
+        checks.equal(sum(c["known"] for c in stats), long_known,
+                     f"{profile}: split records: the shards' known bases add up to the FASTA's", PYTHON)
+        checks.equal(sum(c["contigs"] for c in stats), len(long_recs),
+                     f"{profile}: split records: each record is counted once", PYTHON)
+        seams = [tmtest.read_json(os.path.join(work, f"{tag}.seams.1.{i}.json")) for i in (1, 2, 3)]
+        shared = sorted({r["name"] for s in seams for r in s["records"]})
+        checks.equal(shared, ["ctg1", "ctg2"], f"{profile}: the records longer than a share are split",
+                     "share = ceil(530000 / 3) bases (shard.hpp rule)")
+    r = subprocess.run([binary, "fit", long_fa, "-p", "cpg-island", "--block", "4096", "--shard", "1/3",
+                        "--emit-stats", os.path.join(work, "z.json")], capture_output=True, text=True)
+    checks.check(r.returncode == 2 and "--emit-seams" in r.stderr and not os.path.exists(os.path.join(work, "z.json")),
+                 "an E-step of a shard with a shared record and no --seams is a usage error naming step 1",
+                 "documented exit code 2", r.stderr.strip()[:160])
 
     # Failures.
     s = [os.path.join(work, f"cpg-island.1.3.stats.1.{i}.json") for i in (1, 3)]
