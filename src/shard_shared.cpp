@@ -73,6 +73,7 @@ std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& dec
                                        const std::vector<std::string>& inputs, const std::vector<Region>& regions,
                                        TaskPool* pool) {
     std::vector<SeamsRecord> records;
+    if (!shard.has_pieces()) return records;  // nothing to read: this shard decodes only whole records
     for (const auto& input : inputs) {
         std::unique_ptr<SequenceSource> source = regions.empty() ? open_fasta(input) : open_regions(input, regions);
         Contig contig;

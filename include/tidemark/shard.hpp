@@ -141,7 +141,8 @@ std::string seams_identity(const std::vector<std::string>& inputs, const std::ve
                            int64_t bin, int64_t segment_length);
 
 /// Step 1: reads the input (inputs, or regions of inputs[0]) and computes the seams of this
-/// shard's segments of every shared record (shard.split()). Calls shard.finish().
+/// shard's segments of every shared record (shard.split()); checks the records against the
+/// plan (shard.finish()). A shard without such segments reads nothing and returns none.
 std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& decoder,
                                        const std::vector<std::string>& inputs, const std::vector<Region>& regions,
                                        TaskPool* pool);

@@ -46,7 +46,9 @@ def body(checks, binary, work):
     out = os.path.join(work, "out")
     cmd = [snakemake, "-s", SNAKEFILE, "--cores", "2", "--directory", work, "-q", "--config",
            f"tidemark={binary}", f"genome={DEMO}", f"outdir={out}", "shards=3", "posteriors=true",
-           f"fit_iterations={ITERATIONS}", "fit_start=cpg-island"]
+           f"fit_iterations={ITERATIONS}", "fit_start=cpg-island",
+           # 64 Ki-base segments: the 150 kb demo record is longer than a share and is split.
+           "scan_options=--block 4096", "fit_estep_options=--block 4096"]
     proc = subprocess.run(cmd, capture_output=True, text=True)
     if not checks.check(proc.returncode == 0, "snakemake --cores 2 runs the workflow", "Snakemake exit status",
                         proc.stderr[-2000:] if proc.returncode else ""):
@@ -56,7 +58,7 @@ def body(checks, binary, work):
     os.makedirs(single)
     # The same words as every shard's command apart from --shard (the workflow's threads default is 1).
     tmtest.run(binary, ["scan", DEMO, "-p", "cpg-island", "-t", "1", "-o", "calls.bed", "--summary", "summary.json",
-                        "--report", "report.json", "--posteriors", "post", "-q"], cwd=single)
+                        "--report", "report.json", "--posteriors", "post", "-q", "--block", "4096"], cwd=single)
     for ours, theirs in (("calls.bed", "calls.bed"), ("summary.json", "summary.json"),
                          ("tracks/posteriors.cpg_island.bedgraph", "post.cpg_island.bedgraph")):
         checks.check(read_bytes(os.path.join(out, ours)) == read_bytes(os.path.join(single, theirs)),
@@ -67,9 +69,14 @@ def body(checks, binary, work):
     b.pop("resources")
     checks.check(a == b, "gathered report equals the single run's apart from resources", SINGLE)
     shards = [tmtest.read_json(os.path.join(out, "shards", str(i), "summary.json")) for i in (1, 2, 3)]
-    checks.equal(sorted(c["name"] for s in shards for c in s["contigs"]),
-                 sorted(n for n, _ in tmtest.read_fasta(DEMO)), "the 3 shards decode every record once",
-                 "Python reading of the FASTA")
+    whole = [c["name"] for s in shards for c in s["shard"]["contigs"]]
+    shared = {r["record"]["name"] for s in shards for r in s["shard"]["shared"]}
+    demo = tmtest.read_fasta(DEMO)
+    longest = max(demo, key=lambda r: len(r[1]))[0]
+    checks.equal(sorted(shared), [longest], "the record longer than a share is split between shards",
+                 "share = ceil(genome length / 3) (shard.hpp rule); Python reading of the FASTA")
+    checks.equal(sorted(whole + sorted(shared)), sorted(n for n, _ in demo),
+                 "the 3 shards decode every record, whole or in pieces, once", "Python reading of the FASTA")
 
     ref = os.path.join(work, "single-fit.json")
     tmtest.run(binary, ["fit", DEMO, "-p", "cpg-island", "--max-iter", str(ITERATIONS), "--tol", "0", "-o", ref, "-q"])
