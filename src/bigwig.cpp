@@ -1,8 +1,12 @@
-// bigWig output through libBigWig. Its header declares global names (e.g. min, max), so it is
-// included in this file only.
+// bigWig output and input through libBigWig. Its header declares global names (e.g. min, max),
+// so it is included in this file only.
+#include <sys/stat.h>
+#include <unistd.h>
+
 #include <cstdio>
 #include <cstring>
-#include <unistd.h>
+#include <map>
+#include <set>
 #include <vector>
 
 #include "tidemark/error.hpp"
@@ -26,6 +30,8 @@ struct BigWigWriter::Impl {
     std::FILE* spool = nullptr;  // intervals wait here until the sequence list is complete
     std::vector<std::string> names;
     std::vector<uint32_t> lengths;
+    std::map<std::string, int> index;  // name -> place in names
+    std::unique_ptr<StagedPath> staged;  // written, not yet committed
 };
 
 BigWigWriter::BigWigWriter(std::string path) : impl_(std::make_unique<Impl>()) {
@@ -41,9 +47,25 @@ BigWigWriter::~BigWigWriter() {
 int BigWigWriter::add_sequence(const std::string& name, int64_t length) {
     if (length > 0xFFFFFFFFll)
         throw InputError(name + ": longer than bigWig's 32-bit coordinates allow");
+    const auto found = impl_->index.find(name);
+    if (found != impl_->index.end()) {
+        const auto i = static_cast<size_t>(found->second);
+        if (impl_->lengths[i] != static_cast<uint32_t>(length))
+            throw InputError(impl_->path + ": sequence '" + name + "' appears with lengths " +
+                             std::to_string(impl_->lengths[i]) + " and " + std::to_string(length) +
+                             "; a bigWig lists each name once (two inputs with a record of that name?)");
+        // libBigWig needs each sequence's intervals in one stretch, in list order.
+        if (i + 1 != impl_->names.size())
+            throw InputError(impl_->path + ": sequence '" + name +
+                             "' comes back after other sequences; a bigWig holds each sequence in one "
+                             "stretch (two inputs with a record of that name?)");
+        return found->second;
+    }
     impl_->names.push_back(name);
     impl_->lengths.push_back(static_cast<uint32_t>(length));
-    return static_cast<int>(impl_->names.size() - 1);
+    const int i = static_cast<int>(impl_->names.size() - 1);
+    impl_->index.emplace(name, i);
+    return i;
 }
 
 void BigWigWriter::add(int sequence, int64_t start, int64_t end, double value) {
@@ -54,7 +76,24 @@ void BigWigWriter::add(int sequence, int64_t start, int64_t end, double value) {
 }
 
 void BigWigWriter::close() {
-    StagedPath staged(impl_->path);
+    write();
+    commit();
+}
+
+void BigWigWriter::commit() {
+    if (!impl_->staged) throw InternalError(impl_->path + ": BigWigWriter::commit before write");
+    impl_->staged->commit();
+    impl_->staged.reset();
+}
+
+void BigWigWriter::write() {
+    // libBigWig divides by the list's size while writing the header (SIGFPE, no error).
+    if (impl_->names.empty())
+        throw InputError(impl_->path +
+                         ": no sequence was decoded, and a bigWig file needs at least one (a shard that got "
+                         "no record?); write bedGraph tracks, or use fewer shards than records");
+    auto staged_path = std::make_unique<StagedPath>(impl_->path);
+    StagedPath& staged = *staged_path;
     ::close(staged.release_fd());
     if (bwInit(1 << 17) != 0) throw IoError("libBigWig failed to initialise");
     bigWigFile_t* bw = bwOpen(staged.temp().c_str(), nullptr, "w");
@@ -106,7 +145,78 @@ void BigWigWriter::close() {
     bwClose(bw);  // writes the zoom levels and the index
     bw = nullptr;
     bwCleanup();
-    staged.commit();
+    impl_->staged = std::move(staged_path);
+}
+
+struct BigWigReader::Impl {
+    std::string path;
+    bigWigFile_t* bw = nullptr;
+    bool initialised = false;
+    std::vector<Sequence> sequences;
+    std::set<std::string> names;  // libBigWig fails on a name it does not list
+};
+
+BigWigReader::BigWigReader(std::string path) : impl_(std::make_unique<Impl>()) {
+    Impl& m = *impl_;
+    m.path = std::move(path);
+    // libBigWig's own messages on a missing file are vague; name the file first.
+    struct stat st {};
+    if (stat(m.path.c_str(), &st) != 0 || !S_ISREG(st.st_mode))
+        throw InputError(m.path + ": cannot open (no such bigWig file)");
+    if (bwInit(1 << 17) != 0) throw IoError("libBigWig failed to initialise");
+    m.initialised = true;
+    if (!bwIsBigWig(m.path.c_str(), nullptr)) {
+        bwCleanup();
+        m.initialised = false;
+        throw InputError(m.path + ": not a bigWig file");
+    }
+    m.bw = bwOpen(m.path.c_str(), nullptr, "r");
+    if (!m.bw || !m.bw->cl) {
+        if (m.bw) bwClose(m.bw);
+        bwCleanup();
+        m.initialised = false;
+        throw InputError(m.path + ": cannot read the bigWig header (truncated or corrupt file?)");
+    }
+    for (int64_t i = 0; i < m.bw->cl->nKeys; ++i) {
+        m.sequences.push_back({m.bw->cl->chrom[i], static_cast<int64_t>(m.bw->cl->len[i])});
+        m.names.insert(m.sequences.back().name);
+    }
+}
+
+BigWigReader::~BigWigReader() {
+    if (impl_->bw) bwClose(impl_->bw);
+    if (impl_->initialised) bwCleanup();
+}
+
+const std::string& BigWigReader::path() const { return impl_->path; }
+
+const std::vector<BigWigReader::Sequence>& BigWigReader::sequences() const { return impl_->sequences; }
+
+void BigWigReader::intervals(const std::string& name, int64_t begin, int64_t end,
+                             const std::function<void(const Interval&)>& f) {
+    if (end <= begin) return;
+    if (!impl_->names.count(name)) return;
+    if (begin < 0 || end > 0xFFFFFFFFll)
+        throw InputError(impl_->path + ": " + name + " " + std::to_string(begin) + "-" + std::to_string(end) +
+                         " is outside bigWig's 32-bit coordinates");
+    const auto fail = [&] {
+        return InputError(impl_->path + ": cannot read the intervals of '" + name +
+                          "' (truncated or corrupt file?)");
+    };
+    // A few blocks at a time keeps memory small; each block holds at most a few thousand intervals.
+    bwOverlapIterator_t* it = bwOverlappingIntervalsIterator(impl_->bw, name.c_str(), static_cast<uint32_t>(begin),
+                                                             static_cast<uint32_t>(end), 16);
+    if (!it) throw fail();
+    struct Guard {
+        bwOverlapIterator_t*& it;
+        ~Guard() { bwIteratorDestroy(it); }
+    } guard{it};
+    while (it->data) {
+        const bwOverlappingIntervals_t* iv = it->intervals;
+        for (uint32_t i = 0; i < iv->l; ++i) f({iv->start[i], iv->end[i], iv->value[i]});
+        it = bwIteratorNext(it);  // destroys the iterator on error
+        if (!it) throw fail();
+    }
 }
 
 }  // namespace tidemark

@@ -1,5 +1,5 @@
 // Merge: shard summaries and reports -> the run's contigs in input order -> summary and report;
-// shard BED and bedGraph files streamed back into input order.
+// shard BED, bedGraph, bigWig and chrom-sizes files streamed back into input order.
 #include "tidemark/merge.hpp"
 
 #include <fmt/format.h>
@@ -12,6 +12,7 @@
 #include <map>
 #include <memory>
 #include <optional>
+#include <set>
 #include <sstream>
 
 #include "shard_internal.hpp"
@@ -650,6 +651,161 @@ bool exists(const std::string& path) {
     return stat(path.c_str(), &st) == 0;
 }
 
+// The records each shard decoded, as (input index, name): its whole records and the shared
+// records it has a part of. Its chrom sizes and bigWig sequence lists name exactly these.
+std::vector<std::vector<std::pair<int64_t, std::string>>> shard_records(const std::vector<ShardDoc>& docs) {
+    std::vector<std::vector<std::pair<int64_t, std::string>>> out(docs.size());
+    for (size_t k = 0; k < docs.size(); ++k) {
+        for (const ContigSummary& c : docs[k].contigs) out[k].emplace_back(c.input_index, c.name);
+        for (const SharedRecord& r : docs[k].shared) out[k].emplace_back(r.whole.input_index, r.whole.name);
+        std::sort(out[k].begin(), out[k].end());
+    }
+    return out;
+}
+
+// The shard whose file gives a record's sequence entry: the record's own, or for a shared
+// record the shard of its first segment.
+size_t source_doc(const MergedRun& run, const Slot& slot) {
+    return slot.shared < 0 ? slot.doc : run.shared[static_cast<size_t>(slot.shared)].segments.at(0).first;
+}
+
+std::string record_name(const std::vector<ShardDoc>& docs, const MergedRun& run, const Slot& slot) {
+    return slot.shared < 0 ? docs[slot.doc].contigs[slot.index].name
+                           : run.shared[static_cast<size_t>(slot.shared)].record.whole.name;
+}
+
+std::string shard_label(const ShardDoc& d) { return fmt::format("shard {}/{} ({})", d.index, d.count, d.path); }
+
+// Chrom sizes: scan writes "name<TAB>length" once for each run of records with one name (several
+// regions of one sequence), so the merged file walks the records in input order the same way,
+// taking each length from a shard that decoded the record.
+std::unique_ptr<OutputFile> merge_chrom_sizes(const std::vector<ShardDoc>& docs, const MergedRun& run,
+                                              const std::vector<std::string>& files, const std::string& target) {
+    const auto records = shard_records(docs);
+    std::vector<std::map<std::string, std::string>> lengths(files.size());
+    for (size_t k = 0; k < files.size(); ++k) {
+        std::set<std::string> names;
+        for (const auto& r : records[k]) names.insert(r.second);
+        LineReader r(files[k]);
+        while (const std::string* line = r.peek()) {
+            const size_t tab = line->find('\t');
+            const std::string name = line->substr(0, tab);
+            const std::string length = tab == std::string::npos ? "" : line->substr(tab + 1);
+            if (tab == std::string::npos || name.empty() || length.empty() ||
+                length.find_first_not_of("0123456789") != std::string::npos)
+                throw InputError(fmt::format("{}: line {}: expected NAME<TAB>LENGTH", files[k], r.number()));
+            if (!names.count(name))
+                throw InputError(fmt::format(
+                    "{}: line {}: '{}' is no record of {}; give the files in the same shard order as the summaries",
+                    files[k], r.number(), name, shard_label(docs[k])));
+            const auto [at, fresh] = lengths[k].emplace(name, length);
+            if (!fresh && at->second != length)
+                throw InputError(fmt::format("{}: line {}: '{}' has lengths {} and {}", files[k], r.number(), name,
+                                             at->second, length));
+            r.pop();
+        }
+        for (const auto& name : names)
+            if (!lengths[k].count(name))
+                throw InputError(fmt::format("{}: no line for '{}', a record of {}; was it written by that shard?",
+                                             files[k], name, shard_label(docs[k])));
+    }
+    auto out = std::make_unique<OutputFile>(target);
+    std::string text, last;
+    bool first = true;
+    for (const Slot& slot : run.slots) {
+        const std::string name = record_name(docs, run, slot);
+        if (!first && name == last) continue;
+        first = false;
+        last = name;
+        text += name + "\t" + lengths[source_doc(run, slot)].at(name) + "\n";
+    }
+    out->write(text);
+    return out;
+}
+
+// bigWig tracks: the shards' intervals go through BigWigWriter in input order, which gives the
+// single run's file byte for byte (the writer's output depends only on the sequence list and
+// the interval stream). A shared record's pieces end their last run at the piece's end, where a
+// single run may have continued it, so adjacent equal values across pieces are joined again.
+// Returns the writer unclosed: close() writes and commits the file.
+std::unique_ptr<BigWigWriter> merge_bigwig(const std::vector<ShardDoc>& docs, const MergedRun& run,
+                                           const std::vector<std::string>& files, const std::string& target) {
+    std::vector<std::unique_ptr<BigWigReader>> readers;
+    for (const auto& f : files) readers.push_back(std::make_unique<BigWigReader>(f));
+    const auto records = shard_records(docs);
+    std::vector<std::map<std::string, int64_t>> lengths(files.size());
+    for (size_t k = 0; k < files.size(); ++k) {
+        std::set<std::string> names;
+        for (const auto& r : records[k]) names.insert(r.second);
+        for (const auto& seq : readers[k]->sequences()) {
+            if (!names.count(seq.name))
+                throw InputError(fmt::format(
+                    "{}: sequence '{}' is no record of {}; give the prefixes in the same shard order as the summaries",
+                    files[k], seq.name, shard_label(docs[k])));
+            lengths[k][seq.name] = seq.length;
+        }
+        for (const auto& name : names)
+            if (!lengths[k].count(name))
+                throw InputError(fmt::format("{}: no sequence '{}', a record of {}; was it written by that shard?",
+                                             files[k], name, shard_label(docs[k])));
+    }
+    auto out = std::make_unique<BigWigWriter>(target);
+    for (const Slot& slot : run.slots) {
+        const std::string name = record_name(docs, run, slot);
+        const size_t source = source_doc(run, slot);
+        const int64_t length = lengths[source].at(name);
+        if (slot.shared >= 0)
+            for (const auto& [doc, seg] : run.shared[static_cast<size_t>(slot.shared)].segments)
+                if (lengths[doc].at(name) != length)
+                    throw InputError(fmt::format("{} and {}: sequence '{}' has lengths {} and {}", files[source],
+                                                 files[doc], name, length, lengths[doc].at(name)));
+        const int sequence = out->add_sequence(name, length);
+        // The intervals of [from, to) in file k must tile it, as scan writes them; anything else
+        // means a file of another shard or run.
+        bool held = false;
+        BigWigReader::Interval last;
+        const auto copy = [&](size_t k, int64_t from, int64_t to, bool stitch) {
+            int64_t at = from;
+            readers[k]->intervals(name, from, to, [&](const BigWigReader::Interval& iv) {
+                if (iv.start != at || iv.end > to || iv.end <= iv.start)
+                    throw InputError(fmt::format(
+                        "{}: interval {}:{}-{} does not continue the track of {}:{}-{} at {}; the file does not "
+                        "belong to {}",
+                        files[k], name, iv.start, iv.end, name, from, to, at, shard_label(docs[k])));
+                at = iv.end;
+                if (!stitch) {
+                    out->add(sequence, iv.start, iv.end, iv.value);
+                } else if (held && last.end == iv.start && last.value == iv.value) {
+                    last.end = iv.end;
+                } else {
+                    if (held) out->add(sequence, last.start, last.end, last.value);
+                    last = iv;
+                    held = true;
+                }
+            });
+            if (at != to)
+                throw InputError(fmt::format("{}: the track of {}:{}-{} stops at {}; the file does not belong to {}",
+                                             files[k], name, from, to, at, shard_label(docs[k])));
+        };
+        if (slot.shared < 0) {
+            const ContigSummary& c = docs[slot.doc].contigs[slot.index];
+            copy(slot.doc, c.offset, c.offset + c.length, false);
+            continue;
+        }
+        const SharedAssembly& a = run.shared[static_cast<size_t>(slot.shared)];
+        const int64_t offset = a.record.whole.offset;
+        for (size_t k = 0; k < a.segments.size();) {  // consecutive segments of one shard: one piece
+            size_t next = k + 1;
+            while (next < a.segments.size() && a.segments[next].first == a.segments[k].first) ++next;
+            copy(a.segments[k].first, offset + a.segments[k].second->begin, offset + a.segments[next - 1].second->end,
+                 true);
+            k = next;
+        }
+        if (held) out->add(sequence, last.start, last.end, last.value);
+    }
+    return out;
+}
+
 }  // namespace
 
 void validate(const MergeOptions& o) {
@@ -682,11 +838,18 @@ void validate(const MergeOptions& o) {
     if (!o.shard_tracks.empty() && o.shard_tracks.size() != n)
         throw UsageError(fmt::format("{} track prefixes for {} shards: give one per shard",
                                      o.shard_tracks.size(), n));
-    if (o.summary_path.empty() && o.report_path.empty() && o.shard_beds.empty() &&
-        o.shard_tracks.empty() && o.shard_gff3.empty())
+    if (o.chrom_sizes_path.empty() != o.shard_chrom_sizes.empty())
         throw UsageError(
-            "merge has nothing to write: give -o with --shard-beds, --summary, --report or "
-            "--posteriors");
+            "--chrom-sizes and --shard-chrom-sizes go together: the merged file and every shard's "
+            "chrom sizes");
+    if (!o.shard_chrom_sizes.empty() && o.shard_chrom_sizes.size() != n)
+        throw UsageError(fmt::format("{} chrom-sizes files for {} shards: give one per shard",
+                                     o.shard_chrom_sizes.size(), n));
+    if (o.summary_path.empty() && o.report_path.empty() && o.shard_beds.empty() &&
+        o.shard_tracks.empty() && o.shard_gff3.empty() && o.shard_chrom_sizes.empty())
+        throw UsageError(
+            "merge has nothing to write: give -o with --shard-beds, --summary, --report, "
+            "--posteriors or --chrom-sizes");
 }
 
 void run_merge(const MergeOptions& o, const Logger& log) {
@@ -735,27 +898,60 @@ void run_merge(const MergeOptions& o, const Logger& log) {
         texts.push_back(merge_text(plan, run, o.shard_beds, o.output.empty() ? "-" : o.output, format, &lines));
     }
     if (!o.shard_gff3.empty()) texts.push_back(merge_gff3(plan, run, o.shard_gff3, o.gff3_path));
+    std::vector<std::unique_ptr<BigWigWriter>> bigwigs;
     if (!o.shard_tracks.empty()) {
+        const ShardDoc& first = first_shard(plan);
+        const ordered_json recorded = first.doc["shard"].value("options", ordered_json::object());
+        // The shards' recorded track format decides; without it (older shards), what is on disk.
+        std::string track_format = recorded.is_object() ? recorded.value("track_format", "") : "";
+        if (track_format.empty()) {
+            track_format = "bedgraph";
+            for (size_t r = 0; r < model.region_names.size(); ++r)
+                if (model.region_report[r] && exists(o.shard_tracks[0] + "." + model.region_names[r] + ".bw"))
+                    track_format = "bigwig";
+        }
+        const bool bigwig = track_format == "bigwig";
+        if (bigwig && !run.shared.empty()) {
+            const int digits = recorded.is_object() ? recorded.value("posterior_digits", 3) : 3;
+            if (digits > 6)
+                throw InputError(fmt::format(
+                    "{}: the shards wrote bigWig tracks with --posterior-digits {} and share records between "
+                    "shards; bigWig stores values as float32, which cannot tell apart some values with more than 6 "
+                    "decimals, so the pieces of a shared record cannot be joined exactly as a single run joins "
+                    "them. Merge bedGraph tracks instead, or scan with --posterior-digits 6 or fewer, or with "
+                    "--whole-contigs",
+                    first.path, digits));
+        }
         for (size_t r = 0; r < model.region_names.size(); ++r) {
             if (!model.region_report[r]) continue;
             std::vector<std::string> files;
             for (const auto& prefix : o.shard_tracks) {
-                const std::string base = prefix + "." + model.region_names[r] + ".bedgraph";
-                if (exists(base + ".gz"))
-                    files.push_back(base + ".gz");
-                else if (exists(base))
-                    files.push_back(base);
-                else
-                    throw InputError(fmt::format(
-                        "no track {} or {}.gz (merge reads bedGraph tracks; bigWig is not "
-                        "merged)",
-                        base, base));
+                const std::string base = prefix + "." + model.region_names[r];
+                if (bigwig) {
+                    if (!exists(base + ".bw"))
+                        throw InputError(fmt::format("no track {}.bw (the shards recorded --track-format bigwig)",
+                                                     base));
+                    files.push_back(base + ".bw");
+                } else if (exists(base + ".bedgraph.gz")) {
+                    files.push_back(base + ".bedgraph.gz");
+                } else if (exists(base + ".bedgraph")) {
+                    files.push_back(base + ".bedgraph");
+                } else {
+                    throw InputError(fmt::format("no track {0}.bedgraph or {0}.bedgraph.gz", base));
+                }
             }
-            const std::string target = o.tracks_prefix + "." + model.region_names[r] +
-                                       (o.bgzip ? ".bedgraph.gz" : ".bedgraph");
-            texts.push_back(merge_text(plan, run, files, target, format, nullptr));
+            const std::string target = o.tracks_prefix + "." + model.region_names[r];
+            if (bigwig)
+                bigwigs.push_back(merge_bigwig(plan, run, files, target + ".bw"));
+            else
+                texts.push_back(
+                    merge_text(plan, run, files, target + (o.bgzip ? ".bedgraph.gz" : ".bedgraph"), format, nullptr));
         }
     }
+    if (!o.shard_chrom_sizes.empty())
+        texts.push_back(merge_chrom_sizes(plan, run, o.shard_chrom_sizes, o.chrom_sizes_path));
+    for (auto& b : bigwigs) b->write();  // to temporary names: a failure leaves no output behind
+    for (auto& b : bigwigs) b->commit();
     for (auto& t : texts) t->commit();
     if (summary) summary->commit();
     if (report) report->commit();

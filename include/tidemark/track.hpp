@@ -2,6 +2,7 @@
 // bedGraph (run-length merged, quantised, optionally binned, bgzip+tabix) or bigWig.
 #pragma once
 
+#include <functional>
 #include <memory>
 #include <string>
 #include <vector>
@@ -44,9 +45,45 @@ class BigWigWriter {
 public:
     explicit BigWigWriter(std::string path);
     ~BigWigWriter();
-    int add_sequence(const std::string& name, int64_t length);  ///< returns its index
+    /// Returns its index. A bigWig lists a name once, so a name added again (several regions of
+    /// one sequence) gets its first index; it must be the last name added and have the same
+    /// length (InputError otherwise: its intervals would not be in one stretch).
+    int add_sequence(const std::string& name, int64_t length);
     void add(int sequence, int64_t start, int64_t end, double value);
-    void close();  ///< throws IoError
+    void close();   ///< write() then commit(); throws IoError
+    void write();   ///< writes the file under a temporary name beside the target; throws IoError
+    void commit();  ///< renames the written file into place; throws IoError
+
+private:
+    struct Impl;
+    std::unique_ptr<Impl> impl_;
+};
+
+/// Reads a bigWig file (merge reads the shards' tracks back). Errors are InputError naming the
+/// file.
+class BigWigReader {
+public:
+    struct Sequence {
+        std::string name;
+        int64_t length = 0;
+    };
+    struct Interval {
+        int64_t start = 0, end = 0;
+        float value = 0;  ///< as stored: bigWig values are float32
+    };
+    explicit BigWigReader(std::string path);
+    ~BigWigReader();
+    BigWigReader(const BigWigReader&) = delete;
+    BigWigReader& operator=(const BigWigReader&) = delete;
+
+    const std::string& path() const;
+    /// The sequence list of the header, in file order.
+    const std::vector<Sequence>& sequences() const;
+    /// Calls f on every interval of `name` that overlaps [begin, end), in order, streaming
+    /// (a per-base track of a long sequence need not fit in memory). A name absent from the
+    /// sequence list has no intervals.
+    void intervals(const std::string& name, int64_t begin, int64_t end,
+                   const std::function<void(const Interval&)>& f);
 
 private:
     struct Impl;

@@ -13,7 +13,7 @@ void add_merge(CLI::App& app, Context& ctx) {
                                        "Combine the outputs of the N shards of a scan (scan "
                                        "--shard I/N) into what one run writes");
     const char* input =
-        "Shard outputs (one per shard; BED files and prefixes in the order of the summaries)";
+        "Shard outputs (one per shard; files and prefixes in the order of the summaries)";
     cmd->add_option("--shard-summaries", opts->shard_summaries, "every shard's scan --summary")
         ->group(input);
     cmd->add_option("--shard-reports", opts->shard_reports, "every shard's scan --report")
@@ -22,7 +22,9 @@ void add_merge(CLI::App& app, Context& ctx) {
         ->group(input);
     cmd->add_option("--shard-gff3", opts->shard_gff3, "every shard's scan --gff3")->group(input);
     cmd->add_option("--shard-posteriors", opts->shard_tracks,
-                    "every shard's scan --posteriors PREFIX (bedGraph)")
+                    "every shard's scan --posteriors PREFIX (bedGraph or bigWig, as the shards wrote them)")
+        ->group(input);
+    cmd->add_option("--shard-chrom-sizes", opts->shard_chrom_sizes, "every shard's scan --chrom-sizes")
         ->group(input);
     cmd->add_option("-p,--profile", opts->profile,
                     "the run's profile, when records were shared between shards and the recorded one "
@@ -39,7 +41,10 @@ void add_merge(CLI::App& app, Context& ctx) {
     cmd->add_option("--gff3", opts->gff3_path,
                     "merged GFF3 (feature IDs renumbered in input order)")
         ->group(output);
-    cmd->add_option("--posteriors", opts->tracks_prefix, "merged tracks PREFIX.REGION.bedgraph")
+    cmd->add_option("--posteriors", opts->tracks_prefix,
+                    "merged tracks PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw (the shards' format)")
+        ->group(output);
+    cmd->add_option("--chrom-sizes", opts->chrom_sizes_path, "merged chrom sizes (name<TAB>length)")
         ->group(output);
     cmd->add_flag("--bgzip", opts->bgzip,
                   "bgzip the merged BED and bedGraph files and write tabix indexes")
