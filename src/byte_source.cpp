@@ -42,10 +42,19 @@ public:
                              ": read failed (truncated or corrupt compressed data?)");
         return static_cast<size_t>(got);
     }
+    bool seek(int64_t offset) override {
+        if (path_ == "-" || bgzf_compression(fp_) == 1) return false;
+        if (bgzf_compression(fp_) == 2 && !index_loaded_) {
+            if (bgzf_index_load(fp_, path_.c_str(), ".gzi") != 0) return false;
+            index_loaded_ = true;
+        }
+        return bgzf_useek(fp_, offset, SEEK_SET) == 0;
+    }
 
 private:
     BGZF* fp_ = nullptr;
     std::string path_;
+    bool index_loaded_ = false;
 };
 
 // Boost.Iostreams source device that reads through an htslib hFILE (which already holds the

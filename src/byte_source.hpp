@@ -13,6 +13,9 @@ public:
     /// Reads up to n bytes; returns 0 at the end. Throws InputError on a read or
     /// decompression failure (e.g. a truncated gzip member).
     virtual size_t read(char* buf, size_t n) = 0;
+    /// Moves to this offset of the uncompressed bytes (plain or bgzip with its .gzi index);
+    /// false when the source cannot seek there.
+    virtual bool seek(int64_t /*offset*/) { return false; }
 };
 
 /// Opens path ("-" = stdin), sniffing the compression from its first bytes.

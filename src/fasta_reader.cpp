@@ -38,9 +38,26 @@ public:
           source_(detail::open_byte_source(path_)), buf_(new char[buf_size]),
           codes_(new uint8_t[buf_size]) {}
 
+    FastaStream(std::string path, std::vector<RecordStart> starts) : FastaStream(std::move(path)) {
+        starts_ = std::move(starts);
+        jumping_ = true;
+    }
+
     const std::string& path() const override { return path_; }
 
     bool next(Contig& contig) override {
+        if (jumping_) {  // only the records that start at starts_: move to the next one
+            if (next_start_ == starts_.size()) return false;
+            const RecordStart& at = starts_[next_start_++];
+            if (!source_->seek(at.offset))
+                throw InputError(fmt::format("{}: cannot move to byte {} (through the .fai/.gzi index); delete "
+                                             "the index and rerun",
+                                             display_, at.offset));
+            pos_ = end_ = 0;
+            line_ = at.line;
+            at_line_start_ = true;
+            skip_lf_ = started_ = have_header_ = false;
+        }
         if (!have_header_ && !find_first_header()) return false;
         contig.clear();
         contig.name = pending_name_;
@@ -186,12 +203,19 @@ private:
     bool at_line_start_ = true, skip_lf_ = false, started_ = false, have_header_ = false;
     std::string pending_name_;
     std::unordered_set<std::string> names_;
+    std::vector<RecordStart> starts_;
+    size_t next_start_ = 0;
+    bool jumping_ = false;
 };
 
 }  // namespace
 
 std::unique_ptr<SequenceSource> open_fasta(const std::string& path) {
     return std::make_unique<FastaStream>(path);
+}
+
+std::unique_ptr<SequenceSource> open_fasta_records(const std::string& path, std::vector<RecordStart> starts) {
+    return std::make_unique<FastaStream>(path, std::move(starts));
 }
 
 }  // namespace tidemark

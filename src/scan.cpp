@@ -339,7 +339,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     };
 
     for (const auto& input : o.inputs) {
-        std::unique_ptr<SequenceSource> source = regions.empty() ? open_fasta(input) : open_regions(input, regions);
+        std::unique_ptr<SequenceSource> source = shard.open(input, regions);
         int64_t records = 0;
         for (;;) {
             auto job = std::make_unique<Job>();
@@ -404,7 +404,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             // One thread: the job has run; write it now, so nothing waits in memory.
             if (threads == 1) finish_oldest();
         }
-        if (records == 0) {
+        if (records == 0 && !shard.reading_share()) {
             while (!jobs.empty()) finish_oldest();  // keep messages in input order
             progress.finish();
             log.warn(fmt::format("{}: no FASTA records", display(input)));

@@ -10,6 +10,7 @@
 #include <algorithm>
 #include <fstream>
 #include <numeric>
+#include <sstream>
 
 #include "shard_internal.hpp"
 #include "tidemark/error.hpp"
@@ -51,7 +52,7 @@ std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai
                 fmt::format("{}: line {}: not a faidx index line (NAME<TAB>LENGTH...); delete "
                             "the index and rerun",
                             fai_path, number));
-        ShardUnit u{input, line.substr(0, tab), 0};
+        ShardUnit u{input, line.substr(0, tab), 0, 0, {}};
         try {
             u.length = std::stoll(line.substr(
                 tab + 1, tab2 == std::string::npos ? std::string::npos : tab2 - tab - 1));
@@ -90,19 +91,89 @@ bool build_index(const std::string& path) {
     }
 }
 
-std::vector<ShardUnit> record_lengths(const std::string& path) {
+// True when PATH.fai lists every record of PATH, so that a shard may read only its own records
+// through the index: the bytes between one record's sequence and the next one's hold exactly one
+// header line (an empty record, which faidx leaves out, adds another), and only line ends follow
+// the last record. Reads just those bytes.
+bool index_lists_every_record(const std::string& path, const std::string& fai_path, std::vector<ShardUnit>& units) {
+    struct Entry {
+        int64_t length = 0, offset = 0, line_bases = 0, line_bytes = 0;
+    };
+    std::vector<Entry> entries;
+    {
+        std::ifstream in(fai_path);
+        std::string line;
+        while (std::getline(in, line)) {
+            std::istringstream fields(line);
+            std::string name;
+            Entry e;
+            if (!(fields >> name >> e.length >> e.offset >> e.line_bases >> e.line_bytes) || e.line_bases <= 0)
+                return false;
+            entries.push_back(e);
+        }
+    }
+    BGZF* fp = bgzf_open(path.c_str(), "r");
+    if (!fp) return false;
+    const auto close = [&](bool result) {
+        bgzf_close(fp);
+        return result;
+    };
+    if (bgzf_compression(fp) == 2 && bgzf_index_load(fp, path.c_str(), ".gzi") != 0) return close(false);
+    if (bgzf_compression(fp) == 1) return close(false);
+    // Lines starting with '>' in [from, to) (to < 0: up to the end, at most 1 MiB); gap_lines
+    // counts the line ends there.
+    int64_t gap_lines = 0;
+    const auto headers_in = [&](int64_t from, int64_t to) -> int {
+        const int64_t want = to < 0 ? (int64_t{1} << 20) : to - from;
+        if (want < 0 || want > (int64_t{1} << 20) || bgzf_useek(fp, from, SEEK_SET) != 0) return -1;
+        std::string bytes(static_cast<size_t>(want), '\0');
+        const ssize_t got = bgzf_read(fp, bytes.data(), bytes.size());
+        if (got < 0 || (to >= 0 && got != want) || (to < 0 && got == want)) return -1;
+        int count = 0;
+        gap_lines = 0;
+        for (ssize_t i = 0; i < got; ++i) {
+            if (bytes[i] == '>' && (i == 0 ? to >= 0 : bytes[i - 1] == '\n')) ++count;  // gaps start lines
+            else if (to < 0 && i > 0 && bytes[i] != '\n' && bytes[i] != '\r') return -1;  // trailing text
+            gap_lines += bytes[i] == '\n' || (bytes[i] == '\r' && (i + 1 == got || bytes[i + 1] != '\n'));
+        }
+        return count;
+    };
+    if (entries.size() != units.size()) return close(false);
+    int64_t end = 0;   // of the previous record's sequence
+    int64_t line = 1;  // number of the line that starts at `end`
+    for (size_t i = 0; i < entries.size(); ++i) {
+        const Entry& e = entries[i];
+        if (e.length == 0 || headers_in(end, e.offset) != 1) return close(false);
+        units[i].start = RecordStart{end, line};
+        const int64_t full = e.length / e.line_bases, rest = e.length % e.line_bases;
+        end = e.offset + full * e.line_bytes + (rest > 0 ? rest + (e.line_bytes - e.line_bases) : 0);
+        line += gap_lines + full + (rest > 0 ? 1 : 0);
+    }
+    if (entries.empty()) return close(false);
+    // The tail, read from the last base (a seek to the very end of a file may fail; the last
+    // line may lack its line end).
+    const Entry& last = entries.back();
+    return close(headers_in(end - (last.line_bytes - last.line_bases) - 1, -1) == 0);
+}
+
+// by_index: set when the index lists every record (a shard may then read only its own).
+std::vector<ShardUnit> record_lengths(const std::string& path, bool& by_index) {
+    by_index = false;
     if (path == "-")
         throw UsageError(
             "--shard needs files: every shard must see the whole input to agree on its share, and "
             "standard input (-) can be read only once");
     const std::string fai = path + ".fai";
-    if (newer_or_same(fai, path)) return read_fai(path, fai);
-    if (indexable(path) && build_index(path)) return read_fai(path, fai);
+    if (newer_or_same(fai, path) || (indexable(path) && build_index(path))) {
+        std::vector<ShardUnit> units = read_fai(path, fai);
+        by_index = index_lists_every_record(path, fai, units);
+        return units;
+    }
     // Plain gzip and the other compressions cannot be indexed: one pass over the records.
     std::vector<ShardUnit> units;
     std::unique_ptr<SequenceSource> source = open_fasta(path);
     Contig contig;
-    while (source->next(contig)) units.push_back({path, contig.name, contig.length});
+    while (source->next(contig)) units.push_back({path, contig.name, contig.length, 0, {}});
     return units;
 }
 
@@ -141,14 +212,17 @@ ShardSpec parse_shard(const std::string& text) {
 }
 
 std::vector<ShardUnit> list_units(const std::vector<std::string>& inputs,
-                                  const std::vector<Region>& regions) {
+                                  const std::vector<Region>& regions, bool* by_index) {
     std::vector<ShardUnit> units;
+    if (by_index) *by_index = true;
     if (!regions.empty()) {
-        for (const auto& r : regions) units.push_back({inputs.at(0), r.contig, r.end - r.begin});
+        for (const auto& r : regions) units.push_back({inputs.at(0), r.contig, r.end - r.begin, r.begin, {}});
         return units;
     }
     for (const auto& in : inputs) {
-        std::vector<ShardUnit> more = record_lengths(in);
+        bool indexed = false;
+        std::vector<ShardUnit> more = record_lengths(in, indexed);
+        if (by_index) *by_index = *by_index && indexed;
         units.insert(units.end(), std::make_move_iterator(more.begin()),
                      std::make_move_iterator(more.end()));
     }
@@ -218,7 +292,9 @@ ShardFilter::ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
                          const std::vector<Region>& regions, int64_t segment_length)
     : spec_(spec), segment_length_(segment_length) {
     if (!spec_.active()) return;
-    plan_ = plan_shards(list_units(inputs, regions), spec_.count, segment_length);
+    bool by_index = false;
+    plan_ = plan_shards(list_units(inputs, regions, &by_index), spec_.count, segment_length);
+    read_share_ = by_index;
     for (size_t i = 0; i < plan_.units.size(); ++i) {
         const int64_t length = plan_.units[i].length;
         total_bases_ += length;
@@ -256,12 +332,54 @@ std::vector<std::string> ShardFilter::split_records() const {
     return out;
 }
 
+std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, const std::vector<Region>& regions,
+                                                  bool pieces_only) {
+    if (!spec_.active() || !read_share_) {
+        sharing_ = false;
+        return regions.empty() ? open_fasta(input) : open_regions(input, regions);
+    }
+    // Only this shard's units of this input, through the index, in input order.
+    sharing_ = true;
+    const auto& units = plan_.units;
+    std::vector<Region> share;
+    std::vector<RecordStart> starts;
+    size_t first = units.size();
+    for (size_t i = 0; i < units.size(); ++i) {
+        if (units[i].input != input) continue;
+        first = std::min(first, i);
+        const bool mine = plan_.pieces[i].empty()
+                              ? plan_.shard_of[i] == spec_.index - 1
+                              : std::any_of(plan_.pieces[i].begin(), plan_.pieces[i].end(),
+                                            [&](const ShardPiece& p) { return p.shard == spec_.index - 1; });
+        if (mine && (!pieces_only || !plan_.pieces[i].empty())) {
+            share.push_back({units[i].name, units[i].begin, units[i].begin + units[i].length});
+            starts.push_back(units[i].start);
+        }
+    }
+    planned_ = first == units.size() ? planned_ : first;
+    next_ = static_cast<int64_t>(planned_);
+    // Records are parsed as a stream from where each starts (faidx fetches are slower).
+    return regions.empty() ? open_fasta_records(input, std::move(starts)) : open_regions(input, std::move(share));
+}
+
 bool ShardFilter::take(const Contig& contig) {
     ++next_;
     current_ = -1;
     if (!spec_.active()) return true;
-    const size_t i = planned_;
     const auto& units_ = plan_.units;
+    if (sharing_) {  // the source gives this shard's units only: skip to the one it gave
+        size_t i = planned_;
+        while (i < units_.size() &&
+               !(units_[i].name == contig.name && units_[i].begin == contig.offset && units_[i].length == contig.length))
+            ++i;
+        if (i == units_.size())
+            throw InternalError(fmt::format("shard filter: record '{}' read through the index is not planned", contig.name));
+        planned_ = i + 1;
+        next_ = static_cast<int64_t>(i) + 1;
+        current_ = static_cast<int64_t>(i);
+        return split() ? !my_pieces().empty() : plan_.shard_of[i] == spec_.index - 1;
+    }
+    const size_t i = planned_;
     if (i < units_.size() && units_[i].name == contig.name) {
         ++planned_;
         current_ = static_cast<int64_t>(i);
@@ -287,8 +405,13 @@ bool ShardFilter::take(const Contig& contig) {
                     units_[i].input, next_, contig.name, units_[i].input, units_[i].name));
 }
 
-void ShardFilter::finish() const {
+void ShardFilter::finish() {
     const auto& units_ = plan_.units;
+    if (sharing_) {  // read through the index, which lists every record: all were seen
+        planned_ = units_.size();
+        next_ = static_cast<int64_t>(units_.size());
+        return;
+    }
     if (spec_.active() && planned_ != units_.size())
         throw InputError(fmt::format(
             "{}: read {} records but the shard plan has {}; the index is out of date: "

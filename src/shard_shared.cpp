@@ -75,7 +75,7 @@ std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& dec
     std::vector<SeamsRecord> records;
     if (!shard.has_pieces()) return records;  // nothing to read: this shard decodes only whole records
     for (const auto& input : inputs) {
-        std::unique_ptr<SequenceSource> source = regions.empty() ? open_fasta(input) : open_regions(input, regions);
+        std::unique_ptr<SequenceSource> source = shard.open(input, regions, true);
         Contig contig;
         while (source->next(contig)) {
             if (!shard.take(contig) || !shard.split()) continue;

@@ -23,7 +23,8 @@ constexpr const char* stats_format = "tidemark-stats/1";
 // a share are split between shards as scan splits them (segment_length > 0).
 class ShardTrainingData final : public TrainingData {
 public:
-    ShardTrainingData(const FitJobOptions& o, int64_t segment_length) : inner_(o.inputs, o.regions, o.regions_bed) {
+    ShardTrainingData(const FitJobOptions& o, int64_t segment_length)
+        : inner_(o.inputs, o.regions, o.regions_bed), inputs_(o.inputs) {
         if (!o.regions.empty() || !o.regions_bed.empty()) {
             const std::vector<Interval> bed =
                 o.regions_bed.empty() ? std::vector<Interval>{} : read_bed(o.regions_bed);
@@ -39,7 +40,7 @@ public:
         ShardFilter filter = plan_;  // a fresh copy per pass: it counts records
         live_ = &filter;
         ordered_json seen = ordered_json::array();
-        inner_.for_each([&](const Contig& c) {
+        const auto take = [&](const Contig& c) {
             if (!filter.take(c)) return;
             seen.push_back({{"input_index", filter.index()},
                             {"name", c.name},
@@ -47,7 +48,15 @@ public:
                             {"length", c.length},
                             {"unknown", c.unknown_count()}});
             fn(c);
-        });
+        };
+        if (plan_.spec().active()) {  // through the shard's own source: possibly its records only
+            for (const auto& input : inputs_) {
+                std::unique_ptr<SequenceSource> source = filter.open(input, regions_);
+                while (source->next(contig_)) take(contig_);
+            }
+        } else {
+            inner_.for_each(take);
+        }
         live_ = nullptr;
         filter.finish();
         records_ = std::move(seen);
@@ -58,8 +67,10 @@ public:
     int64_t records_total() const { return records_total_; }  ///< of the whole input, last pass
 
 private:
-    FastaTrainingData inner_;
+    FastaTrainingData inner_;  ///< the whole input (no --shard)
+    std::vector<std::string> inputs_;
     std::vector<Region> regions_;
+    Contig contig_;
     ShardFilter plan_;
     const ShardFilter* live_ = nullptr;  ///< during for_each
     SeamsTable seams_;

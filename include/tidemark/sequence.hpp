@@ -97,6 +97,18 @@ public:
 /// Record names must be unique within the file.
 std::unique_ptr<SequenceSource> open_fasta(const std::string& path);
 
+/// Where a record starts: the byte offset (uncompressed) of its header line, or of the line
+/// ends before it, and that line's number (for messages).
+struct RecordStart {
+    int64_t offset = 0;
+    int64_t line = 1;
+};
+
+/// Reads only the records that start at these offsets, in this order, parsing each as
+/// open_fasta does (a shard's share, with offsets from the index). Plain or bgzip files with
+/// their .fai/.gzi index only.
+std::unique_ptr<SequenceSource> open_fasta_records(const std::string& path, std::vector<RecordStart> starts);
+
 /// Resolves region strings ("chr", "chr:beg-end", 1-based inclusive as in samtools, "," allowed
 /// in numbers) and BED intervals against the faidx index of path (built when missing for plain
 /// and bgzip files). Regions are returned in index order, then by start; overlapping regions are

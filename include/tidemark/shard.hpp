@@ -28,6 +28,8 @@ struct ShardUnit {
     std::string input;  ///< the file it comes from
     std::string name;
     int64_t length = 0;
+    int64_t begin = 0;  ///< a region's start on its sequence (0 for records)
+    RecordStart start;  ///< where the record starts in its file (records read by index only)
 };
 
 /// The units of an input in input order, with their lengths. With regions, the resolved regions
@@ -36,8 +38,10 @@ struct ShardUnit {
 /// temporary name and renamed, so that concurrent shards never see half an index), else (plain
 /// gzip, xz, bzip2, zstd, unequal line lengths, read-only folder) from one pass over the records.
 /// Throws UsageError for standard input (it cannot be read twice), InputError for bad files.
+/// by_index (when given): set when every input's index lists all its records (empty records,
+/// which faidx leaves out, are found from the bytes between indexed records), or with regions.
 std::vector<ShardUnit> list_units(const std::vector<std::string>& inputs,
-                                  const std::vector<Region>& regions);
+                                  const std::vector<Region>& regions, bool* by_index = nullptr);
 
 /// Segments [first, last) of a record split between shards, and the shard (0-based) that
 /// decodes them.
@@ -79,6 +83,14 @@ public:
     ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
                 const std::vector<Region>& regions, int64_t segment_length);
 
+    /// The source of an input's records (regions: the resolved regions of inputs[0]). When the
+    /// input can be read through its index (list_units' by_index), it yields only this shard's
+    /// records, so that a shard reads and decompresses its share and not the whole genome;
+    /// otherwise every record, and take() picks. pieces_only: only records split between shards.
+    std::unique_ptr<SequenceSource> open(const std::string& input, const std::vector<Region>& regions,
+                                         bool pieces_only = false);
+    /// True while the source last opened yields only this shard's records.
+    bool reading_share() const { return sharing_; }
     /// Advances to the next record; true when it belongs to this shard, wholly or in part.
     /// Throws InputError when the record is not the one planned (name differs, or more records
     /// than planned).
@@ -96,7 +108,7 @@ public:
     /// 0-based input index of the record last passed to take().
     int64_t index() const { return next_ - 1; }
     /// Throws InputError when fewer records were read than planned.
-    void finish() const;
+    void finish();
     /// Records passed to take() so far: after a whole pass, the records of the input (empty
     /// records included, which faidx does not list).
     int64_t records() const { return next_; }
@@ -113,6 +125,8 @@ private:
     ShardPlan plan_;
     int64_t segment_length_ = 0;
     int64_t current_ = -1;  ///< planned unit of the record last taken; -1 = none (empty record)
+    bool read_share_ = false;  ///< inputs can be read through their index (see open)
+    bool sharing_ = false;     ///< the current source yields only this shard's units
     int64_t next_ = 0;    ///< records seen
     size_t planned_ = 0;  ///< planned units seen
     int64_t shard_bases_ = 0, total_bases_ = 0;

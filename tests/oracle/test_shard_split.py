@@ -234,6 +234,65 @@ def body(checks, binary, work):
     checks.check(not os.path.exists(os.path.join(merged, "z.json")), "failed merges leave no output file",
                  "documented error contract")
 
+    # 7. Shards reading their share through the index.
+    index_reading(checks, binary, work, rng)
+
+
+def index_reading(checks, binary, work, rng):
+    """Shards read their share through the .fai index when it lists every record; a file with
+    empty records (which faidx leaves out) is streamed instead. Either way the merge equals the
+    single run, and errors still name file and line."""
+    def seq(n):
+        return "".join(rng.choice(list("ACGT"), size=n))
+
+    cases = {
+        # CRLF line ends, descriptions, a lowercase stretch, records of unequal line widths.
+        "crlf.fa": ("\r\n", [(">a first record", seq(3000), 60), (">b", seq(5003).lower(), 70), (">c x>y", seq(4100), 60),
+                              (">d", seq(61), 60)]),
+        # Empty records between and after others: the index cannot place them.
+        "empty.fa": ("\n", [(">a", seq(3000), 60), (">e1", "", 60), (">b desc", seq(5000), 80), (">c", seq(2500), 60),
+                             (">e2", "", 60)]),
+    }
+    for name, (eol, recs) in cases.items():
+        path = os.path.join(work, name)
+        with open(path, "w", newline="") as f:
+            for header, s, width in recs:
+                f.write(header + eol)
+                for i in range(0, len(s), width):
+                    f.write(s[i:i + width] + eol)
+        base = os.path.join(work, "index-" + name)
+        words = ["-o", "calls.bed", "--summary", "summary.json", "--posteriors", "post", "-q", "--min-length", "20"]
+        run_in(binary, os.path.join(base, "single"), ["scan", path] + words)
+        for i in (1, 2, 3):
+            subprocess.run([binary, "scan", path, "--shard", f"{i}/3"] + words, cwd=run_dir(base, f"s{i}"),
+                           capture_output=True, text=True, check=True)
+        run_in(binary, os.path.join(base, "merged"),
+               ["merge", "-q", "--shard-summaries"] + [f"../s{i}/summary.json" for i in (1, 2, 3)] +
+               ["--shard-beds"] + [f"../s{i}/calls.bed" for i in (1, 2, 3)] +
+               ["--shard-posteriors"] + [f"../s{i}/post" for i in (1, 2, 3)] +
+               ["-o", "calls.bed", "--summary", "summary.json", "--posteriors", "post"])
+        for f in ("calls.bed", "summary.json", "post.cpg_island.bedgraph"):
+            checks.check(read_bytes(os.path.join(base, "single", f)) == read_bytes(os.path.join(base, "merged", f)),
+                         f"{name}: merged {f} equals the single run's", SINGLE)
+    # A bad byte: only the shard that decodes the record reads it, and names its line.
+    path = os.path.join(work, "bad.fa")
+    lines = [">p one", seq(60), seq(13), ">q", seq(60), seq(20) + "X" + seq(9), ">r", seq(60)]
+    with open(path, "w") as f:
+        f.write("\n".join(lines) + "\n")
+    bad_line = lines.index(next(l for l in lines if "X" in l)) + 1
+    codes = [subprocess.run([binary, "scan", path, "--shard", f"{i}/3", "-o", "/dev/null", "-q"],
+                            capture_output=True, text=True) for i in (1, 2, 3)]
+    failed = [r for r in codes if r.returncode != 0]
+    checks.check(len(failed) == 1 and f"bad.fa:{bad_line}:" in failed[0].stderr and "column 21" in failed[0].stderr,
+                 "a shard reading its share by index reports the bad byte with its line and column; the others "
+                 "do not read that record", PYTHON, " | ".join(r.stderr.strip() for r in failed))
+
+
+def run_dir(base, name):
+    folder = os.path.join(base, name)
+    os.makedirs(folder, exist_ok=True)
+    return folder
+
 
 if __name__ == "__main__":
     tmtest.main("records split between shards: seams, decoding and merge against a single run", body)
