@@ -2,6 +2,7 @@
 #include "tidemark/sequence.hpp"
 
 #include <algorithm>
+#include <cstring>
 #include <array>
 #include <cmath>
 #include <limits>
@@ -151,6 +152,31 @@ void Contig::append(const uint8_t* codes, int64_t n) {
         length += 4 * groups;
     }
     while (k < n) push(codes[k++]);
+}
+
+void Contig::append_unknown(int64_t n) {
+    while (n > 0 && (length & 3)) {
+        push(base_unknown);
+        --n;
+    }
+    const int64_t bulk = n & ~int64_t{3};
+    if (bulk > 0) {
+        const int64_t begin = length;
+        for (int64_t done = 0; done < bulk;) {  // unknown packs as 0: clear whole bytes
+            const size_t chunk = static_cast<size_t>(length >> chunk_shift);
+            if (chunk == chunks_.size()) chunks_.push_back(std::make_unique<uint8_t[]>(chunk_bytes));
+            const int64_t room = chunk_bases - (length & (chunk_bases - 1));
+            const int64_t take = std::min(bulk - done, room);
+            std::memset(chunks_[chunk].get() + ((length & (chunk_bases - 1)) >> 2), 0, static_cast<size_t>(take / 4));
+            length += take;
+            done += take;
+        }
+        if (!unknown.empty() && unknown.back().begin + unknown.back().length == begin)
+            unknown.back().length += bulk;
+        else
+            unknown.push_back({begin, bulk});
+    }
+    for (int64_t k = bulk; k < n; ++k) push(base_unknown);
 }
 
 double Composition::gc_fraction() const {

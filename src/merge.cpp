@@ -264,6 +264,8 @@ void join_segments(SharedAssembly& a, const SharedContext& ctx) {
     a.calls = caller.calls();
     ContigSummary& s = a.summary;
     s = a.record.whole;
+    s.composition = MarkedComposition(a)(0, stub.length);  // the whole record, from every segment
+    s.unknown = s.composition.unknown;
     const size_t regions = model.region_names.size();
     s.expected_bases = totals.expected_bases();
     s.expected_bases.resize(regions, 0.0);
@@ -312,9 +314,11 @@ MergedRun assemble(const std::vector<ShardDoc>& docs, const std::string& profile
             slot.index = j;
         }
         for (const SharedRecord& r : d.shared) {
+            bool created = false;
             Slot& slot = claim(d, r.whole.input_index, r.whole.name);
             if (slot.doc != SIZE_MAX) throw overlap(d, r.whole.name, r.whole.input_index);
             if (slot.shared < 0) {
+                created = true;
                 slot.shared = static_cast<int>(run.shared.size());
                 SharedAssembly a;
                 a.record = r;
@@ -327,6 +331,7 @@ MergedRun assemble(const std::vector<ShardDoc>& docs, const std::string& profile
                 a.record.whole.length != r.whole.length)
                 throw InputError(fmt::format("{}: shared record {} differs from the other shards' ({} vs {})", d.path,
                                              r.whole.input_index + 1, r.whole.name, a.record.whole.name));
+            if (!created) a.record.whole.soft_masked += r.whole.soft_masked;  // each shard's share
             for (const SharedSegment& seg : r.done) {
                 if (seg.index >= a.segments.size() || a.segments[seg.index].second)
                     throw InputError(fmt::format("{}: record '{}' segment {} is out of range or in another shard too",

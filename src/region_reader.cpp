@@ -96,6 +96,37 @@ Region parse_region(const faidx_t* fai, const std::string& text) {
     return r;
 }
 
+// Appends bases [from, to) of sequence `name` to contig, fetched in bounded pieces (memory
+// stays flat on chromosomes); lowercase bases are counted when count_soft.
+void append_fetched(faidx_t* fai, const std::string& path, const std::string& name, int64_t from, int64_t to,
+                    bool count_soft, Contig& contig, std::vector<uint8_t>& codes) {
+    const auto& classes = detail::byte_classes();
+    constexpr int64_t piece = 1 << 20;
+    for (int64_t pos = from; pos < to; pos += piece) {
+        const int64_t last = std::min(to, pos + piece) - 1;
+        hts_pos_t got = 0;
+        char* seq = faidx_fetch_seq64(fai, name.c_str(), pos, last, &got);
+        if (!seq || got != last - pos + 1) {
+            std::free(seq);
+            throw InputError(fmt::format("{}: cannot read {}:{}-{} through the index", path, name, pos + 1, last + 1));
+        }
+        codes.resize(static_cast<size_t>(got));
+        for (hts_pos_t k = 0; k < got; ++k) {
+            const unsigned char ch = static_cast<unsigned char>(seq[k]);
+            const uint8_t cls = classes[ch];
+            if (cls > base_unknown) {
+                std::free(seq);
+                throw InputError(fmt::format("{}: record '{}': illegal character {} at position {}", path, name,
+                                             detail::describe_byte(ch), pos + k + 1));
+            }
+            codes[k] = cls;
+            if (count_soft) contig.soft_masked += detail::is_lower_base(ch);
+        }
+        std::free(seq);
+        contig.append(codes.data(), got);
+    }
+}
+
 class FaidxSource final : public SequenceSource {
 public:
     FaidxSource(std::string path, std::vector<Region> regions)
@@ -110,33 +141,7 @@ public:
         contig.name = r.contig;
         contig.offset = r.begin;
         contig.sequence_length = faidx_seq_len(fai_.get(), r.contig.c_str());
-        const auto& classes = detail::byte_classes();
-        constexpr int64_t piece = 1 << 20;  // bounded fetches keep memory flat on chromosomes
-        for (int64_t pos = r.begin; pos < r.end; pos += piece) {
-            const int64_t last = std::min(r.end, pos + piece) - 1;
-            hts_pos_t got = 0;
-            char* seq = faidx_fetch_seq64(fai_.get(), r.contig.c_str(), pos, last, &got);
-            if (!seq || got != last - pos + 1) {
-                std::free(seq);
-                throw InputError(fmt::format("{}: cannot read {}:{}-{} through the index",
-                                             path_, r.contig, pos + 1, last + 1));
-            }
-            codes_.resize(static_cast<size_t>(got));
-            for (hts_pos_t k = 0; k < got; ++k) {
-                const unsigned char ch = static_cast<unsigned char>(seq[k]);
-                const uint8_t cls = classes[ch];
-                if (cls > base_unknown) {
-                    std::free(seq);
-                    throw InputError(fmt::format(
-                        "{}: record '{}': illegal character {} at position {}", path_,
-                        r.contig, detail::describe_byte(ch), pos + k + 1));
-                }
-                codes_[k] = cls;
-                contig.soft_masked += detail::is_lower_base(ch);
-            }
-            std::free(seq);
-            contig.append(codes_.data(), got);
-        }
+        append_fetched(fai_.get(), path_, r.contig, r.begin, r.end, true, contig, codes_);
         return true;
     }
 
@@ -189,6 +194,23 @@ std::vector<Region> resolve_regions(const std::string& path,
         sorted.push_back(r);
     }
     return sorted;
+}
+
+void read_record_windows(const std::string& path, const std::string& name, int64_t length,
+                         const std::vector<RecordWindow>& windows, Contig& contig) {
+    FaiPtr fai = load_index(path);
+    std::vector<uint8_t> codes;
+    contig.clear();
+    contig.name = name;
+    for (const RecordWindow& w : windows) {
+        if (w.begin < contig.length || w.end > length || w.count_begin < w.begin || w.count_end > w.end)
+            throw InternalError("read_record_windows: windows out of order or outside the record");
+        contig.append_unknown(w.begin - contig.length);
+        append_fetched(fai.get(), path, name, w.begin, w.count_begin, false, contig, codes);
+        append_fetched(fai.get(), path, name, w.count_begin, w.count_end, true, contig, codes);
+        append_fetched(fai.get(), path, name, w.count_end, w.end, false, contig, codes);
+    }
+    contig.append_unknown(length - contig.length);
 }
 
 std::unique_ptr<SequenceSource> open_regions(const std::string& path, std::vector<Region> regions) {

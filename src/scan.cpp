@@ -154,13 +154,15 @@ SharedRecord decode_shared(const Contig& contig, int64_t input_index, const Shar
     s.input_index = input_index;
     s.offset = contig.offset;
     s.length = contig.length;
-    s.unknown = contig.unknown_count();
-    s.soft_masked = contig.soft_masked;
-    s.composition = composition(contig, 0, contig.length);
+    // Composition and unknown bases come from the segments' marks at merge (this shard may hold
+    // only its pieces' bases); soft_masked is this shard's share: its pieces' lowercase bases
+    // when it read only those, else the whole record's from the shard with the first segment.
+    const std::vector<ShardPiece> pieces = shard.my_pieces();
+    s.soft_masked = shard.reading_share() || pieces.front().first == 0 ? contig.soft_masked : 0;
     s.log_likelihood = std::numeric_limits<double>::quiet_NaN();
     record.full_length = contig.full_length();
     record.segments = shard.segments();
-    for (const ShardPiece& piece : shard.my_pieces()) {
+    for (const ShardPiece& piece : pieces) {
         std::unique_ptr<DecodeSink> piece_caller = caller.fork(), piece_totals = totals.fork(),
                                     piece_progress = progress.fork(), piece_tracks;
         std::vector<DecodeSink*> sinks = {piece_caller.get(), piece_totals.get(), piece_progress.get()};

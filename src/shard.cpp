@@ -15,6 +15,7 @@
 #include "shard_internal.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
+#include "tidemark/profile.hpp"
 
 namespace tidemark {
 namespace {
@@ -246,6 +247,45 @@ std::vector<int> assign_shards(const std::vector<int64_t>& lengths, int count) {
     return shard;
 }
 
+namespace {
+
+// One shard's records of one input, in input order: whole records parsed from where they start,
+// pieces of shared records read as windows through the index.
+class ShareSource final : public SequenceSource {
+public:
+    struct Item {
+        bool window = false;
+        std::string name;
+        int64_t length = 0;
+        std::vector<RecordWindow> windows;
+    };
+    ShareSource(std::string path, std::vector<Item> items, std::vector<RecordStart> whole)
+        : path_(std::move(path)), items_(std::move(items)),
+          stream_(whole.empty() ? nullptr : open_fasta_records(path_, std::move(whole))) {}
+    const std::string& path() const override { return path_; }
+    bool next(Contig& contig) override {
+        if (next_ == items_.size()) return false;
+        const Item& item = items_[next_++];
+        if (!item.window) {
+            if (!stream_->next(contig))
+                throw InputError(fmt::format("{}: record '{}' is missing where the index says it starts; delete "
+                                             "the index and rerun every shard",
+                                             path_, item.name));
+            return true;
+        }
+        read_record_windows(path_, item.name, item.length, item.windows, contig);
+        return true;
+    }
+
+private:
+    std::string path_;
+    std::vector<Item> items_;
+    std::unique_ptr<SequenceSource> stream_;
+    size_t next_ = 0;
+};
+
+}  // namespace
+
 ShardPlan plan_shards(std::vector<ShardUnit> units, int count, int64_t segment_length) {
     ShardPlan plan;
     plan.units = std::move(units);
@@ -342,7 +382,6 @@ std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, cons
     sharing_ = true;
     const auto& units = plan_.units;
     std::vector<Region> share;
-    std::vector<RecordStart> starts;
     size_t first = units.size();
     for (size_t i = 0; i < units.size(); ++i) {
         if (units[i].input != input) continue;
@@ -351,15 +390,41 @@ std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, cons
                               ? plan_.shard_of[i] == spec_.index - 1
                               : std::any_of(plan_.pieces[i].begin(), plan_.pieces[i].end(),
                                             [&](const ShardPiece& p) { return p.shard == spec_.index - 1; });
-        if (mine && (!pieces_only || !plan_.pieces[i].empty())) {
+        if (mine && (!pieces_only || !plan_.pieces[i].empty()))
             share.push_back({units[i].name, units[i].begin, units[i].begin + units[i].length});
-            starts.push_back(units[i].start);
-        }
     }
     planned_ = first == units.size() ? planned_ : first;
     next_ = static_cast<int64_t>(planned_);
-    // Records are parsed as a stream from where each starts (faidx fetches are slower).
-    return regions.empty() ? open_fasta_records(input, std::move(starts)) : open_regions(input, std::move(share));
+    if (!regions.empty()) return open_regions(input, std::move(share));
+    // Whole records are parsed as a stream from where each starts (faidx fetches are slower);
+    // of a shared record only this shard's segments are read, with a few bases of context.
+    std::vector<ShareSource::Item> items;
+    std::vector<RecordStart> whole;
+    for (size_t i = first; i < units.size() && units[i].input == input; ++i) {
+        if (plan_.pieces[i].empty()) {
+            if (plan_.shard_of[i] != spec_.index - 1 || pieces_only) continue;
+            items.push_back({false, units[i].name, units[i].length, {}});
+            whole.push_back(units[i].start);
+            continue;
+        }
+        ShareSource::Item item{true, units[i].name, units[i].length, {}};
+        const int64_t length = units[i].length, context = max_emission_order + 1;
+        for (const ShardPiece& p : plan_.pieces[i]) {
+            if (p.shard != spec_.index - 1) continue;
+            const int64_t b = static_cast<int64_t>(p.first) * segment_length_;
+            const int64_t e = std::min(length, static_cast<int64_t>(p.last) * segment_length_);
+            // One base after the piece too: a CpG may straddle its end.
+            RecordWindow w{std::max<int64_t>(0, b - context), std::min(length, e + 1), b, e};
+            if (!item.windows.empty() && w.begin < item.windows.back().end) {  // adjacent pieces
+                item.windows.back().end = w.end;
+                item.windows.back().count_end = w.count_end;
+            } else {
+                item.windows.push_back(w);
+            }
+        }
+        if (!item.windows.empty()) items.push_back(std::move(item));
+    }
+    return std::make_unique<ShareSource>(input, std::move(items), std::move(whole));
 }
 
 bool ShardFilter::take(const Contig& contig) {

@@ -42,11 +42,15 @@ public:
         ordered_json seen = ordered_json::array();
         const auto take = [&](const Contig& c) {
             if (!filter.take(c)) return;
-            seen.push_back({{"input_index", filter.index()},
-                            {"name", c.name},
-                            {"offset", c.offset},
-                            {"length", c.length},
-                            {"unknown", c.unknown_count()}});
+            // A record shared between shards is listed once, by the shard with its first
+            // segment; its unknown bases are known only when this shard read all of it.
+            const bool shared = filter.split();
+            if (!shared || filter.my_pieces().front().first == 0)
+                seen.push_back({{"input_index", filter.index()},
+                                {"name", c.name},
+                                {"offset", c.offset},
+                                {"length", c.length},
+                                {"unknown", shared && filter.reading_share() ? ordered_json() : ordered_json(c.unknown_count())}});
             fn(c);
         };
         if (plan_.spec().active()) {  // through the shard's own source: possibly its records only

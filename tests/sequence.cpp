@@ -206,6 +206,46 @@ TEST_CASE("contig storage round-trips across chunk boundaries and reuse", "[sequ
     CHECK(decode(c) == "TGCATGCA");  // reused chunk bits were cleared
 }
 
+TEST_CASE("record windows: the record's length, bases only inside the windows", "[sequence]") {
+    // 3 lines of 10 bases, CRLF; expected bases written out by hand from the file text.
+    TempFile f(">r x\r\nACGTacgtAC\r\nGGGGCCCCNN\r\nTTTTAAAACG\r\n>s\r\nAC\r\n", ".fa");
+    resolve_regions(f.path(), {"r"}, {});  // builds the .fai
+    Contig c;
+    // [2, 13) with lowercase counted in [3, 12); then [25, 30) counted whole.
+    read_record_windows(f.path(), "r", 30, {{2, 13, 3, 12}, {25, 30, 25, 30}}, c);
+    CHECK(c.length == 30);
+    CHECK(decode(c) == "NNGTACGTACGGGNNNNNNNNNNNNAAACG");
+    CHECK(c.soft_masked == 4);  // "acgt" at 4..7, all inside [3, 12)
+    Contig d;
+    read_record_windows(f.path(), "r", 30, {{5, 6, 5, 5}}, d);
+    CHECK(d.soft_masked == 0);  // 'c' at 5 is outside the empty count range
+    CHECK(d.unknown.size() == 2);
+    CHECK_THROWS_AS(read_record_windows(f.path(), "r", 30, {{5, 31, 5, 5}}, d), InternalError);  // past the end
+}
+
+TEST_CASE("append_unknown equals pushing unknown bases one by one", "[sequence]") {
+    for (const int64_t before : {0, 1, 3, 6}) {
+        for (const int64_t n : {int64_t{0}, int64_t{1}, int64_t{5}, (int64_t{1} << Contig::chunk_shift) + 7}) {
+            Contig fast, slow;
+            for (int64_t i = 0; i < before; ++i) {
+                fast.push(static_cast<uint8_t>(i % 4));
+                slow.push(static_cast<uint8_t>(i % 4));
+            }
+            fast.append_unknown(n);
+            for (int64_t i = 0; i < n; ++i) slow.push(base_unknown);
+            fast.push(2);
+            slow.push(2);
+            REQUIRE(fast.length == slow.length);
+            REQUIRE(fast.unknown.size() == slow.unknown.size());
+            for (size_t k = 0; k < fast.unknown.size(); ++k)
+                CHECK((fast.unknown[k].begin == slow.unknown[k].begin && fast.unknown[k].length == slow.unknown[k].length));
+            const Composition a = composition(fast, 0, fast.length), b = composition(slow, 0, slow.length);
+            CHECK((a.a == b.a && a.c == b.c && a.g == b.g && a.t == b.t && a.unknown == b.unknown && a.cpg == b.cpg));
+            CHECK(fast.base(fast.length - 1) == 2);
+        }
+    }
+}
+
 TEST_CASE("composition and the observed/expected CpG ratio", "[sequence]") {
     // Hand count of "CGCGAATTNCG": A2 C3 G3 T2, one N; CpG at 0-1, 2-3, 9-10 = 3 (none spans the
     // N). Known length L = 10, o/e = N(CpG) L / (N(C) N(G)) = 3*10/(3*3) = 3.3333 (formula of

@@ -50,6 +50,8 @@ struct Contig {
     void push(uint8_t code);
     /// Appends n base codes (0..4); the bulk form of push used by the readers.
     void append(const uint8_t* codes, int64_t n);
+    /// Appends n unknown bases (one run; no per-base work).
+    void append_unknown(int64_t n);
 
     static constexpr int chunk_shift = 22;  // bases per chunk = 4 Mi (1 MiB packed)
 
@@ -108,6 +110,17 @@ struct RecordStart {
 /// open_fasta does (a shard's share, with offsets from the index). Plain or bgzip files with
 /// their .fai/.gzi index only.
 std::unique_ptr<SequenceSource> open_fasta_records(const std::string& path, std::vector<RecordStart> starts);
+
+/// Parts of one record read through faidx into `contig`, which gets the record's whole length:
+/// bases outside the windows are unknown and never read (a shard's segments of a record split
+/// between shards, with a few bases of context). Lowercase bases are counted in soft_masked
+/// only inside [count_begin, count_end) of each window. Windows are sorted and disjoint.
+struct RecordWindow {
+    int64_t begin = 0, end = 0;
+    int64_t count_begin = 0, count_end = 0;
+};
+void read_record_windows(const std::string& path, const std::string& name, int64_t length,
+                         const std::vector<RecordWindow>& windows, Contig& contig);
 
 /// Resolves region strings ("chr", "chr:beg-end", 1-based inclusive as in samtools, "," allowed
 /// in numbers) and BED intervals against the faidx index of path (built when missing for plain
