@@ -739,13 +739,15 @@ size_t PosteriorDecoder::segment_count(int64_t length) const {
 
 // Runs task(k, workspace) for k in [first, last), in parallel when there is a pool; waits for
 // all of them, then rethrows the first failure in segment order.
+void PosteriorDecoder::size_workspaces(TaskPool* pool) {
+    const int workers = pool ? pool->threads() : 1;
+    while (static_cast<int>(workspaces_.size()) < workers) workspaces_.push_back(std::make_unique<Workspace>());
+    for (auto& w : workspaces_) w->size(std::min(block_, segment_), model_.states);
+}
+
 void PosteriorDecoder::for_segments(size_t first, size_t last, TaskPool* pool,
                                     const std::function<void(size_t, Workspace&)>& task) {
-    const int workers = pool ? pool->threads() : 1;
-    const int S = model_.states;
-    const int64_t B = std::min(block_, segment_);
-    while (static_cast<int>(workspaces_.size()) < workers) workspaces_.push_back(std::make_unique<Workspace>());
-    for (auto& w : workspaces_) w->size(B, S);
+    size_workspaces(pool);
     if (!pool) {
         for (size_t k = first; k < last; ++k) task(k, *workspaces_[0]);
         return;
@@ -833,8 +835,7 @@ DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<
     const double* table = fast_emission_.data();
     const double* folded = folded_.data();
     const int workers = pool ? pool->threads() : 1;
-    while (static_cast<int>(workspaces_.size()) < workers) workspaces_.push_back(std::make_unique<Workspace>());
-    for (auto& w : workspaces_) w->size(B, S);
+    size_workspaces(pool);
     // (b) Chaining: backward vectors at segment ends from the contig end, forward vectors before
     // segment starts from the initial distribution.
     const size_t K = segs.size();

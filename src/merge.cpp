@@ -268,12 +268,7 @@ void join_segments(SharedAssembly& a, const SharedContext& ctx) {
     s.unknown = s.composition.unknown;
     const size_t regions = model.region_names.size();
     s.expected_bases = totals.expected_bases();
-    s.expected_bases.resize(regions, 0.0);
-    s.calls.assign(regions, 0);
-    s.called_bases.assign(regions, 0);
-    s.call_lengths.assign(regions, {});
-    s.confidence_sum.assign(regions, 0.0);
-    s.call_confidences.assign(regions, {});
+    s.reset_calls(regions);
     for (const Call& call : a.calls) s.add_call(call, regions);
 }
 

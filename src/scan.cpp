@@ -311,12 +311,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         s.composition = composition(contig, 0, contig.length);
         s.log_likelihood = job.result.log_likelihood;
         s.expected_bases = totals.expected_bases();
-        s.expected_bases.resize(model.region_names.size(), 0.0);
-        s.calls.assign(model.region_names.size(), 0);
-        s.called_bases.assign(model.region_names.size(), 0);
-        s.call_lengths.assign(model.region_names.size(), {});
-        s.confidence_sum.assign(model.region_names.size(), 0.0);
-        s.call_confidences.assign(model.region_names.size(), {});
+        s.reset_calls(model.region_names.size());
         lines.clear();
         gff_lines.clear();
         if (gff3) gff_lines = format_gff3_sequence_region(contig);

@@ -19,12 +19,7 @@ ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>&
     const size_t R = model.region_names.size();
     ContigSummary total;
     total.name = "(all)";
-    total.expected_bases.assign(R, 0.0);
-    total.called_bases.assign(R, 0);
-    total.calls.assign(R, 0);
-    total.call_lengths.assign(R, {});
-    total.confidence_sum.assign(R, 0.0);
-    total.call_confidences.assign(R, {});
+    total.reset_calls(R);
     for (const auto& c : contigs) {
         total.length += c.length;
         total.unknown += c.unknown;
@@ -166,6 +161,15 @@ ordered_json document(const char* format, const RunInfo& info, const Model& mode
 }
 
 }  // namespace
+
+void ContigSummary::reset_calls(size_t regions) {
+    expected_bases.resize(regions, 0.0);
+    called_bases.assign(regions, 0);
+    calls.assign(regions, 0);
+    call_lengths.assign(regions, {});
+    confidence_sum.assign(regions, 0.0);
+    call_confidences.assign(regions, {});
+}
 
 void ContigSummary::add_call(const Call& call, size_t regions) {
     if (calls.size() < regions) {

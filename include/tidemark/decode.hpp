@@ -153,6 +153,7 @@ private:
     template <int Fixed>
     DecodeResult run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool);
     std::vector<Segment> make_segments(int64_t length) const;
+    void size_workspaces(TaskPool* pool);  ///< one workspace per pool worker, sized for a block
     void for_segments(size_t first, size_t last, TaskPool* pool, const std::function<void(size_t, Workspace&)>& task);
     template <int Fixed>
     void matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last, TaskPool* pool);

@@ -28,6 +28,9 @@ struct ContigSummary {
     std::vector<double> confidence_sum;  ///< per region: sum of the calls' mean posteriors
     std::vector<std::vector<double>> call_confidences;  ///< per region: every call's mean posterior
 
+    /// Zero call counts and expected bases for `regions` region types (the expected bases
+    /// given are kept and padded).
+    void reset_calls(size_t regions);
     /// Adds a call to the counts above (sizes the vectors for `regions` region types).
     void add_call(const Call& call, size_t regions);
 };

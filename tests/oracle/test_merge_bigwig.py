@@ -36,19 +36,13 @@ def genome(rng, lengths, segment):
     return records
 
 
-def run_in(binary, folder, args):
-    os.makedirs(folder, exist_ok=True)
-    return tmtest.run(binary, args, cwd=folder)
 
 
-def read_bytes(path):
-    with open(path, "rb") as f:
-        return f.read()
 
 
 def chrom_tree(path):
     """(item count, [(name, id, length)]) from the bigWig header's chromosome B+ tree."""
-    data = read_bytes(path)
+    data = tmtest.read_bytes(path)
     offset, = struct.unpack_from("<Q", data, 8)
     _, _, key_size, _, count, _ = struct.unpack_from("<IIIIQQ", data, offset)
     items = []
@@ -102,19 +96,19 @@ def scenario(checks, binary, work, name, fasta, records, n, scan_args, regions=(
     scan = scan_args + reg
     words = ["-o", "calls.bed", "--summary", "summary.json", "--posteriors", "post", "--track-format", "bigwig",
              "--chrom-sizes", "sizes.txt", "-q"] + scan
-    run_in(binary, os.path.join(base, "single"), ["scan", fasta] + words)
-    run_in(binary, os.path.join(base, "bedgraph"), ["scan", fasta, "-o", "/dev/null", "--posteriors", "post", "-q"]
+    tmtest.run_in(binary, os.path.join(base, "single"), ["scan", fasta] + words)
+    tmtest.run_in(binary, os.path.join(base, "bedgraph"), ["scan", fasta, "-o", "/dev/null", "--posteriors", "post", "-q"]
            + scan)
     seams = []
     if split:
         for i in range(1, n + 1):
-            run_in(binary, os.path.join(base, "seams"),
+            tmtest.run_in(binary, os.path.join(base, "seams"),
                    ["scan", fasta, "--shard", f"{i}/{n}", "--emit-seams", f"{i}.json", "-q"] + scan)
         seams = sum((["--seams", f"../seams/{i}.json"] for i in range(1, n + 1)), [])
     for i in range(1, n + 1):  # every shard in its own folder, with the same output words
-        run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/{n}"] + seams + words)
+        tmtest.run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/{n}"] + seams + words)
     shards = [f"../s{i}" for i in range(1, n + 1)]
-    run_in(binary, os.path.join(base, "merged"),
+    tmtest.run_in(binary, os.path.join(base, "merged"),
            ["merge", "-q", "--shard-summaries"] + [f"{s}/summary.json" for s in shards]
            + ["--shard-beds"] + [f"{s}/calls.bed" for s in shards]
            + ["--shard-posteriors"] + [f"{s}/post" for s in shards]
@@ -122,7 +116,7 @@ def scenario(checks, binary, work, name, fasta, records, n, scan_args, regions=(
            + ["-o", "calls.bed", "--summary", "summary.json", "--posteriors", "post", "--chrom-sizes", "sizes.txt"])
     single, merged = os.path.join(base, "single"), os.path.join(base, "merged")
     for f in sorted(os.listdir(single)):
-        checks.check(read_bytes(os.path.join(single, f)) == read_bytes(os.path.join(merged, f)),
+        checks.check(tmtest.read_bytes(os.path.join(single, f)) == tmtest.read_bytes(os.path.join(merged, f)),
                      f"{name}: merged {f} equals the single run's", SINGLE)
 
     lengths = dict((nm, len(s)) for nm, s in records)
@@ -244,7 +238,7 @@ def body(checks, binary, work):
     cut = os.path.join(work, "split", "cut")
     os.makedirs(cut)
     with open(os.path.join(cut, f"post.{REGION}.bw"), "wb") as f:
-        f.write(read_bytes(missing)[:len(read_bytes(missing)) // 2])
+        f.write(tmtest.read_bytes(missing)[:len(tmtest.read_bytes(missing)) // 2])
     fails(checks, binary, split,
           ["merge", "--shard-summaries"] + [f"../s{i}/summary.json" for i in range(1, 5)]
           + ["--shard-posteriors", "../s1/post", "../cut/post", "../s3/post", "../s4/post", "--posteriors", "out"], 1,
@@ -271,11 +265,11 @@ def body(checks, binary, work):
     base = os.path.join(work, "deep")
     scan = ["--block", "4096", "--posterior-digits", "8"]
     for i in (1, 2, 3):
-        run_in(binary, os.path.join(base, "seams"),
+        tmtest.run_in(binary, os.path.join(base, "seams"),
                ["scan", fa_deep, "--shard", f"{i}/3", "--emit-seams", f"{i}.json", "-q"] + scan)
     seams = sum((["--seams", f"../seams/{i}.json"] for i in (1, 2, 3)), [])
     for i in (1, 2, 3):
-        run_in(binary, os.path.join(base, f"s{i}"), ["scan", fa_deep, "--shard", f"{i}/3", "-o", "calls.bed",
+        tmtest.run_in(binary, os.path.join(base, f"s{i}"), ["scan", fa_deep, "--shard", f"{i}/3", "-o", "calls.bed",
                                                      "--summary", "summary.json", "--posteriors", "post",
                                                      "--track-format", "bigwig", "-q"] + seams + scan)
     deep_merged = os.path.join(base, "merged")

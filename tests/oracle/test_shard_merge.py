@@ -34,25 +34,10 @@ def synthetic_records(rng):
     return records
 
 
-def greedy_shards(lengths, n):
-    order = sorted(range(len(lengths)), key=lambda i: (-lengths[i], i))
-    load = [0] * n
-    shard = [0] * len(lengths)
-    for i in order:
-        s = min(range(n), key=lambda k: (load[k], k))
-        shard[i] = s
-        load[s] += lengths[i]
-    return shard
 
 
-def run_in(binary, folder, args):
-    os.makedirs(folder, exist_ok=True)
-    return tmtest.run(binary, args, cwd=folder)
 
 
-def read_bytes(path):
-    with open(path, "rb") as f:
-        return f.read()
 
 
 def without_resources(path):
@@ -67,9 +52,9 @@ def exit_code(binary, args, cwd):
 def scenario(checks, binary, work, name, fasta, n, scan_args, outputs, regions=None):
     """Runs the single scan and n shards (each in its own folder, same words) and merges."""
     base = os.path.join(work, name)
-    run_in(binary, os.path.join(base, "single"), ["scan", fasta] + scan_args)
+    tmtest.run_in(binary, os.path.join(base, "single"), ["scan", fasta] + scan_args)
     for i in range(1, n + 1):
-        run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/{n}"] + scan_args)
+        tmtest.run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/{n}"] + scan_args)
     # Summaries in reverse order: merge must sort by shard; BEDs and tracks follow the summaries.
     order = list(range(n, 0, -1))
     args = ["merge", "-q", "--shard-summaries"] + [f"../s{i}/summary.json" for i in order]
@@ -82,12 +67,12 @@ def scenario(checks, binary, work, name, fasta, n, scan_args, outputs, regions=N
         args += ["--shard-gff3"] + [f"../s{i}/{outputs['gff3']}" for i in order] + ["--gff3", outputs["gff3"]]
     if outputs.get("bgzip"):
         args += ["--bgzip"]
-    run_in(binary, os.path.join(base, "merged"), args)
+    tmtest.run_in(binary, os.path.join(base, "merged"), args)
     single, merged = os.path.join(base, "single"), os.path.join(base, "merged")
     files = [outputs["bed"], "summary.json"] + outputs.get("tracks", []) + outputs.get("extra", [])
     files += [outputs["gff3"]] if "gff3" in outputs else []
     for f in files:
-        checks.check(read_bytes(os.path.join(single, f)) == read_bytes(os.path.join(merged, f)),
+        checks.check(tmtest.read_bytes(os.path.join(single, f)) == tmtest.read_bytes(os.path.join(merged, f)),
                      f"{name}: merged {f} equals the single run's", SINGLE)
     a, _ = without_resources(os.path.join(single, "report.json"))
     b, res = without_resources(os.path.join(merged, "report.json"))
@@ -114,7 +99,7 @@ def body(checks, binary, work):
     with open(plain, "rb") as src, gzip.open(gz, "wb") as dst:  # plain gzip: no index possible
         shutil.copyfileobj(src, dst)
     lengths = [len(s) for _, s in records]
-    expected_shard = greedy_shards(lengths, 3)
+    expected_shard = tmtest.longest_first(lengths, 3)
 
     # 1. Plain FASTA (the index is built by the first shard), BED, summary, report, tracks.
     out = {"bed": "calls.bed", "tracks": ["post.cpg_island.bedgraph"], "gff3": "calls.gff3"}
@@ -163,7 +148,7 @@ def body(checks, binary, work):
     checks.check(r.returncode == 1 and "belongs to no record" in r.stderr and not os.path.exists(os.path.join(base, "y.bed")),
                  "BED files in another order than the summaries are refused", "merge contract", r.stderr.strip())
     other = os.path.join(work, "other")
-    run_in(binary, other, ["scan", plain, "--shard", "2/3", "--min-length", "300", "--summary", "summary.json",
+    tmtest.run_in(binary, other, ["scan", plain, "--shard", "2/3", "--min-length", "300", "--summary", "summary.json",
                            "-o", "calls.bed", "-q"])
     r = exit_code(binary, ["merge", "--shard-summaries", "../plain/s1/summary.json", "summary.json",
                            "../plain/s3/summary.json", "--summary", "z.json"], other)

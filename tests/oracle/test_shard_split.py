@@ -37,14 +37,6 @@ def records_with_seam_islands(rng, lengths, segment):
     return records
 
 
-def lpt(lengths, n):
-    order = sorted(range(len(lengths)), key=lambda i: (-lengths[i], i))
-    load, shard = [0] * n, [0] * len(lengths)
-    for i in order:
-        s = min(range(n), key=lambda k: (load[k], k))
-        shard[i] = s
-        load[s] += lengths[i]
-    return shard
 
 
 def expected_plan(lengths, n, segment):
@@ -63,7 +55,7 @@ def expected_plan(lengths, n, segment):
         else:
             items.append((i, None, None))
             item_len.append(length)
-    shard = lpt(item_len, n)
+    shard = tmtest.longest_first(item_len, n)
     pieces, whole = {}, {}
     for (i, first, last), s in zip(items, shard):
         if first is None:
@@ -73,14 +65,8 @@ def expected_plan(lengths, n, segment):
     return pieces, whole
 
 
-def run_in(binary, folder, args):
-    os.makedirs(folder, exist_ok=True)
-    return tmtest.run(binary, args, cwd=folder)
 
 
-def read_bytes(path):
-    with open(path, "rb") as f:
-        return f.read()
 
 
 def outputs_of(scan_args, bgzip):
@@ -92,13 +78,13 @@ def outputs_of(scan_args, bgzip):
 def scenario(checks, binary, work, name, fasta, n, scan_args, regions, bgzip=False):
     base = os.path.join(work, name)
     words = outputs_of(scan_args, bgzip)
-    run_in(binary, os.path.join(base, "single"), ["scan", fasta] + words)
+    tmtest.run_in(binary, os.path.join(base, "single"), ["scan", fasta] + words)
     for i in range(1, n + 1):  # step 1: seams only
-        run_in(binary, os.path.join(base, "seams"), ["scan", fasta, "--shard", f"{i}/{n}", "--emit-seams",
+        tmtest.run_in(binary, os.path.join(base, "seams"), ["scan", fasta, "--shard", f"{i}/{n}", "--emit-seams",
                                                     f"{i}.json", "-q"] + scan_args)
     seams = sum((["--seams", f"../seams/{i}.json"] for i in range(n, 0, -1)), [])
     for i in range(1, n + 1):  # step 2: every shard in its own folder, same words
-        run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/{n}"] + seams + words)
+        tmtest.run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/{n}"] + seams + words)
     bed = "calls.bed.gz" if bgzip else "calls.bed"
     args = ["merge", "-q", "--shard-summaries"] + [f"../s{i}/summary.json" for i in range(1, n + 1)]
     args += ["--shard-reports"] + [f"../s{i}/report.json" for i in range(1, n + 1)]
@@ -107,7 +93,7 @@ def scenario(checks, binary, work, name, fasta, n, scan_args, regions, bgzip=Fal
     args += ["--shard-gff3"] + [f"../s{i}/calls.gff3" for i in range(1, n + 1)]
     args += ["-o", bed, "--summary", "summary.json", "--report", "report.json", "--posteriors", "post",
              "--gff3", "calls.gff3"] + (["--bgzip"] if bgzip else [])
-    run_in(binary, os.path.join(base, "merged"), args)
+    tmtest.run_in(binary, os.path.join(base, "merged"), args)
     single, merged = os.path.join(base, "single"), os.path.join(base, "merged")
     for f in sorted(os.listdir(single)):
         if f == "report.json":
@@ -115,7 +101,7 @@ def scenario(checks, binary, work, name, fasta, n, scan_args, regions, bgzip=Fal
             b = {k: v for k, v in tmtest.read_json(os.path.join(merged, f)).items() if k != "resources"}
             checks.check(a == b, f"{name}: merged report equals the single run's apart from resources", SINGLE)
         else:
-            checks.check(read_bytes(os.path.join(single, f)) == read_bytes(os.path.join(merged, f)),
+            checks.check(tmtest.read_bytes(os.path.join(single, f)) == tmtest.read_bytes(os.path.join(merged, f)),
                          f"{name}: merged {f} equals the single run's", SINGLE)
     return [tmtest.read_json(os.path.join(base, f"s{i}", "summary.json"))["shard"] for i in range(1, n + 1)]
 
@@ -194,14 +180,14 @@ def body(checks, binary, work):
     # 5. --whole-contigs: one step, no record split, and the merge still equals the single run.
     base = os.path.join(work, "whole")
     words = outputs_of(["--block", "4096"], False)
-    run_in(binary, os.path.join(base, "single"), ["scan", fasta] + words)
+    tmtest.run_in(binary, os.path.join(base, "single"), ["scan", fasta] + words)
     for i in (1, 2):
-        run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/2", "--whole-contigs"] + words)
-    run_in(binary, os.path.join(base, "merged"),
+        tmtest.run_in(binary, os.path.join(base, f"s{i}"), ["scan", fasta, "--shard", f"{i}/2", "--whole-contigs"] + words)
+    tmtest.run_in(binary, os.path.join(base, "merged"),
            ["merge", "-q", "--shard-summaries", "../s1/summary.json", "../s2/summary.json", "--shard-beds",
             "../s1/calls.bed", "../s2/calls.bed", "-o", "calls.bed", "--summary", "summary.json"])
     for f in ("calls.bed", "summary.json"):
-        checks.check(read_bytes(os.path.join(base, "single", f)) == read_bytes(os.path.join(base, "merged", f)),
+        checks.check(tmtest.read_bytes(os.path.join(base, "single", f)) == tmtest.read_bytes(os.path.join(base, "merged", f)),
                      f"whole: merged {f} equals the single run's", SINGLE)
     shared = [r for i in (1, 2) for r in tmtest.read_json(os.path.join(base, f"s{i}", "summary.json"))["shard"]["shared"]]
     checks.equal(shared, [], "whole: --whole-contigs shares no record", "documented option")
@@ -262,17 +248,17 @@ def index_reading(checks, binary, work, rng):
                     f.write(s[i:i + width] + eol)
         base = os.path.join(work, "index-" + name)
         words = ["-o", "calls.bed", "--summary", "summary.json", "--posteriors", "post", "-q", "--min-length", "20"]
-        run_in(binary, os.path.join(base, "single"), ["scan", path] + words)
+        tmtest.run_in(binary, os.path.join(base, "single"), ["scan", path] + words)
         for i in (1, 2, 3):
             subprocess.run([binary, "scan", path, "--shard", f"{i}/3"] + words, cwd=run_dir(base, f"s{i}"),
                            capture_output=True, text=True, check=True)
-        run_in(binary, os.path.join(base, "merged"),
+        tmtest.run_in(binary, os.path.join(base, "merged"),
                ["merge", "-q", "--shard-summaries"] + [f"../s{i}/summary.json" for i in (1, 2, 3)] +
                ["--shard-beds"] + [f"../s{i}/calls.bed" for i in (1, 2, 3)] +
                ["--shard-posteriors"] + [f"../s{i}/post" for i in (1, 2, 3)] +
                ["-o", "calls.bed", "--summary", "summary.json", "--posteriors", "post"])
         for f in ("calls.bed", "summary.json", "post.cpg_island.bedgraph"):
-            checks.check(read_bytes(os.path.join(base, "single", f)) == read_bytes(os.path.join(base, "merged", f)),
+            checks.check(tmtest.read_bytes(os.path.join(base, "single", f)) == tmtest.read_bytes(os.path.join(base, "merged", f)),
                          f"{name}: merged {f} equals the single run's", SINGLE)
     # A bad byte: only the shard that decodes the record reads it, and names its line.
     path = os.path.join(work, "bad.fa")

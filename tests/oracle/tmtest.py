@@ -74,6 +74,29 @@ def run(binary, args, cwd=None):
     return proc.stdout
 
 
+def run_in(binary, folder, args):
+    """Runs tidemark in folder (created when missing); returns stdout."""
+    os.makedirs(folder, exist_ok=True)
+    return run(binary, args, cwd=folder)
+
+
+def read_bytes(path):
+    with open(path, "rb") as f:
+        return f.read()
+
+
+def longest_first(lengths, n):
+    """The documented shard rule re-implemented (Graham 1969 LPT): items by decreasing length,
+    ties by input order, each to the least-loaded shard, ties by the lower shard."""
+    order = sorted(range(len(lengths)), key=lambda i: (-lengths[i], i))
+    load, shard = [0] * n, [0] * len(lengths)
+    for i in order:
+        s = min(range(n), key=lambda k: (load[k], k))
+        shard[i] = s
+        load[s] += lengths[i]
+    return shard
+
+
 def read_json(path):
     with open(path, encoding="utf-8") as f:
         return json.load(f)
