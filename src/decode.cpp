@@ -2,6 +2,7 @@
 #include "tidemark/decode.hpp"
 
 #include <fmt/format.h>
+#include <zlib.h>
 
 #include <algorithm>
 #include <array>
@@ -772,6 +773,7 @@ void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>&
     // (a) Matrix sweep per segment: M = I at the segment's last position, M_t = F_{t+1} M_{t+1}.
     for_segments(first, last, pool, [&](size_t k, Workspace& ws) {
         Segment& sg = segs[k];
+        if (!sg.marks.empty()) return;  // given (run_segments)
         const int64_t n_seg = sg.end - sg.begin;
         const int64_t nb = (n_seg + B - 1) / B;
         sg.marks.assign(static_cast<size_t>(nb) * SS, 0.0);
@@ -1060,8 +1062,22 @@ std::vector<SegmentSeam> PosteriorDecoder::seams(const Contig& contig, size_t fi
     });
     std::vector<SegmentSeam> out;
     for (size_t k = first; k < last; ++k)
-        out.push_back({segs[k].begin, segs[k].end, std::move(segs[k].product), segs[k].product_exponent});
+        out.push_back({segs[k].begin, segs[k].end, std::move(segs[k].product), segs[k].product_exponent,
+                       std::move(segs[k].marks), bases_crc32(contig, segs[k].begin, segs[k].end)});
     return out;
+}
+
+uint32_t PosteriorDecoder::bases_crc32(const Contig& contig, int64_t begin, int64_t end) const {
+    uLong crc = crc32(0L, Z_NULL, 0);
+    std::vector<uint8_t> codes;
+    constexpr int64_t piece = int64_t{1} << 20;
+    for (int64_t at = std::max<int64_t>(0, begin - model_.max_order); at < end; at += piece) {
+        const int64_t n = std::min(piece, end - at);
+        codes.resize(static_cast<size_t>(n));
+        contig.unpack(at, n, codes.data());
+        crc = crc32(crc, codes.data(), static_cast<uInt>(n));
+    }
+    return static_cast<uint32_t>(crc);
 }
 
 DecodeResult PosteriorDecoder::run_segments(const Contig& contig, const std::vector<SegmentSeam>& all, size_t first,
@@ -1075,6 +1091,27 @@ DecodeResult PosteriorDecoder::run_segments(const Contig& contig, const std::vec
                                      "come from another input or other options",
                                      contig.name, all.size(), segs.size()));
     const size_t S = static_cast<size_t>(model_.states);
+    const int64_t B = std::min(block_, segment_);
+    const auto mismatch = [&](size_t k) {
+        return InputError(fmt::format(
+            "record '{}', segment {} ({}-{}): the seams given do not match this sequence; they come from another "
+            "input, profile or --block/--bin",
+            contig.name, k + 1, segs[k].begin, segs[k].end));
+    };
+    // This process's segments with marks from step 1 skip their matrix sweep, once their bases
+    // are those the marks were made from.
+    std::vector<bool> given_marks(segs.size(), false);
+    for (size_t k = first; k < last; ++k) {
+        const SegmentSeam& given = all[k];
+        if (given.marks.empty()) continue;
+        const auto blocks = static_cast<size_t>((segs[k].end - segs[k].begin + B - 1) / B);
+        if (given.marks.size() != blocks * S * S || given.bases_crc32 != bases_crc32(contig, segs[k].begin, segs[k].end))
+            throw mismatch(k);
+        segs[k].marks = given.marks;
+        segs[k].product = given.product;
+        segs[k].product_exponent = given.exponent;
+        given_marks[k] = true;
+    }
     return with_fixed_states(model_.states, [&](auto fixed) {
         matrix_sweeps<decltype(fixed)::value>(contig, segs, first, last, pool);
         for (size_t k = 0; k < segs.size(); ++k) {
@@ -1085,11 +1122,9 @@ DecodeResult PosteriorDecoder::run_segments(const Contig& contig, const std::vec
                               given.product.size() == (k == 0 ? S : S * S);
             // Recomputed seams must be bit for bit those given: otherwise the other processes
             // saw another sequence, profile or options, and the boundary vectors would be wrong.
-            if (!fits || (mine && (given.product != sg.product || given.exponent != sg.product_exponent)))
-                throw InputError(fmt::format(
-                    "record '{}', segment {} ({}-{}): the seams given do not match this sequence; they "
-                    "come from another input, profile or --block/--bin",
-                    contig.name, k + 1, sg.begin, sg.end));
+            if (!fits || (mine && !given_marks[k] &&
+                          (given.product != sg.product || given.exponent != sg.product_exponent)))
+                throw mismatch(k);
             if (!mine) {
                 sg.product = given.product;
                 sg.product_exponent = given.exponent;

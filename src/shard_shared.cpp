@@ -1,6 +1,7 @@
 // Records shared between shards: seams files (scan --emit-seams / --seams) and the per-segment
 // sink states a shard records for merge, with their JSON forms.
 #include <fmt/format.h>
+#include <sys/stat.h>
 
 #include <algorithm>
 #include <fstream>
@@ -60,6 +61,17 @@ std::string seams_identity(const std::vector<std::string>& inputs, const std::ve
                            int64_t bin, int64_t segment_length) {
     ordered_json j;
     j["inputs"] = inputs;
+    // Size and modification time: seams from before a change to a file are refused.
+    ordered_json stamps = ordered_json::array();
+    for (const auto& in : inputs) {
+        struct stat st {};
+        if (stat(in.c_str(), &st) == 0)
+            stamps.push_back({static_cast<int64_t>(st.st_size), static_cast<int64_t>(st.st_mtim.tv_sec),
+                              static_cast<int64_t>(st.st_mtim.tv_nsec)});
+        else
+            stamps.push_back(nullptr);
+    }
+    j["input_stamps"] = stamps;
     j["regions"] = regions;
     j["regions_bed"] = regions_bed;
     j["profile_crc32"] = profile_crc32;
@@ -116,7 +128,9 @@ std::string seams_json(const ShardSpec& spec, const std::string& identity, const
                              {"begin", s.begin},
                              {"end", s.end},
                              {"exponent", s.exponent},
-                             {"product", s.product}});
+                             {"product", s.product},
+                             {"bases_crc32", s.bases_crc32},
+                             {"marks", s.marks}});
         }
         o["seams"] = seams;
         list.push_back(o);
@@ -144,7 +158,7 @@ SeamsTable::SeamsTable(const std::vector<std::string>& paths, const std::string&
         try {
             if (doc.at("shard").at("count").get<int>() != spec.count || doc.at("identity") != want)
                 throw InputError(fmt::format(
-                    "{}: these seams come from another run (inputs, profile, --block, --bin or shard count "
+                    "{}: these seams come from another run (inputs or their contents, profile, --block, --bin or shard count "
                     "differ); run scan --emit-seams again with the same options for every shard",
                     path));
             for (const auto& r : doc.at("records")) {
@@ -170,9 +184,13 @@ SeamsTable::SeamsTable(const std::vector<std::string>& paths, const std::string&
                         throw InputError(fmt::format("{}: record '{}' segment {} is out of range or given twice",
                                                      path, e.name, k + 1));
                     e.have[k] = true;
+                    // Marks serve only the shard that made them (step 2 of the same shard).
+                    const bool own = doc.at("shard").at("index").get<int>() == spec.index;
                     e.seams[k] = SegmentSeam{s.at("begin").get<int64_t>(), s.at("end").get<int64_t>(),
                                              s.at("product").get<std::vector<double>>(),
-                                             s.at("exponent").get<int64_t>()};
+                                             s.at("exponent").get<int64_t>(),
+                                             own ? s.at("marks").get<std::vector<double>>() : std::vector<double>{},
+                                             s.at("bases_crc32").get<uint32_t>()};
                 }
             }
         } catch (const nlohmann::json::exception& e) {

@@ -83,6 +83,12 @@ struct SegmentSeam {
     std::vector<double> product;  ///< segment 0: the row vector (pi e_0) M_0 (S values);
                                   ///< later ones: F_begin M_begin (S x S, row-major)
     int64_t exponent = 0;
+    /// Per block of the segment, the S x S matrix at its last position (what the forward sweep
+    /// needs); given back to run_segments, they spare the segment's matrix sweep.
+    std::vector<double> marks;
+    /// CRC-32 of the segment's base codes and the max_order bases before it: run_segments
+    /// checks it before trusting the marks.
+    uint32_t bases_crc32 = 0;
 };
 
 struct DecoderOptions {
@@ -130,18 +136,20 @@ public:
     /// Segments of a contig of this length (1 when it is not split).
     size_t segment_count(int64_t length) const;
 
-    /// Step (a) alone for segments [first, last) of a contig that splits(): their seams.
+    /// Step (a) alone for segments [first, last) of a contig that splits(): their seams, with
+    /// marks and base CRCs.
     std::vector<SegmentSeam> seams(const Contig& contig, size_t first, size_t last, TaskPool* pool = nullptr);
 
     /// Receives each decoded segment's fork, in segment order.
     using SegmentTaker = std::function<void(size_t segment, DecodeSink& fork)>;
     /// Decodes segments [first, last) of a contig that splits(), given the seams of all its
-    /// segments (from seams(), here or in other processes): steps (a) for [first, last), (b)
-    /// and (c), each segment into its own fork of `sink`, handed to `take`. The caller begins
-    /// and ends `sink`. The recomputed seams of [first, last) must equal the given ones bit for
-    /// bit (InputError otherwise: they come from another input, profile or options). Returns
-    /// the whole contig's log-likelihood when `last` is the final segment, NaN otherwise.
-    /// The posteriors are those of run(), bit for bit.
+    /// segments (from seams(), here or in other processes): steps (a) for [first, last) unless
+    /// their marks are given, (b) and (c), each segment into its own fork of `sink`, handed to
+    /// `take`. The caller begins and ends `sink`. Given marks need the segment's bases to match
+    /// their CRC; without marks, the recomputed seams must equal the given ones bit for bit
+    /// (InputError otherwise: they come from another input, profile or options). Returns the
+    /// whole contig's log-likelihood when `last` is the final segment, NaN otherwise. The
+    /// posteriors are those of run(), bit for bit.
     DecodeResult run_segments(const Contig& contig, const std::vector<SegmentSeam>& all, size_t first,
                               size_t last, DecodeSink& sink, const SegmentTaker& take, TaskPool* pool = nullptr);
 
@@ -153,6 +161,7 @@ private:
     template <int Fixed>
     DecodeResult run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool);
     std::vector<Segment> make_segments(int64_t length) const;
+    uint32_t bases_crc32(const Contig& contig, int64_t begin, int64_t end) const;
     void size_workspaces(TaskPool* pool);  ///< one workspace per pool worker, sized for a block
     void for_segments(size_t first, size_t last, TaskPool* pool, const std::function<void(size_t, Workspace&)>& task);
     template <int Fixed>

@@ -148,8 +148,9 @@ struct SeamsRecord {
     std::vector<SegmentSeam> seams;
 };
 
-/// What seams depend on, as a JSON object text: the records (inputs, regions), the profile
-/// checksum and how contigs split (--block, --bin, segment length). scan and fit write the same.
+/// What seams depend on, as a JSON object text: the records (inputs with their size and
+/// modification time, regions), the profile checksum and how contigs split (--block, --bin,
+/// segment length). scan and fit write the same.
 std::string seams_identity(const std::vector<std::string>& inputs, const std::vector<std::string>& regions,
                            const std::string& regions_bed, const std::string& profile_crc32, int64_t block,
                            int64_t bin, int64_t segment_length);

@@ -6,6 +6,7 @@ must equal Python's count over the FASTA."""
 
 import json
 import os
+import shutil
 import subprocess
 
 import numpy as np
@@ -202,6 +203,27 @@ def body(checks, binary, work):
     fails(checks, binary, cpg, ["scan", fasta, "--shard", "1/3", "--block", "8192", "--seams", "seams/1.json",
                                 "--seams", "seams/2.json", "--seams", "seams/3.json", "-o", "x.bed"], 1,
           "another run", "seams made with other options are refused")
+    # The genome changed after step 1: refused by its modification time; and when the time is
+    # put back, by the base checksum of the shard's own segments.
+    changed = os.path.join(work, "changed.fa")
+    shutil.copy2(fasta, changed)
+    for i in (1, 2, 3):
+        tmtest.run_in(binary, os.path.join(cpg, "changed"), ["scan", changed, "--shard", f"{i}/3", "--block", "4096",
+                                                              "--emit-seams", f"{i}.json", "-q"])
+    stat = os.stat(changed)
+    with open(changed, "r+") as f:
+        f.seek(len(">chr1\n") + 200000 // 60 * 61 + 7)  # a base of chr1, in the first piece
+        old = f.read(1)
+        f.seek(f.tell() - 1)
+        f.write("C" if old != "C" else "G")
+    all_seams = ["--seams", "changed/1.json", "--seams", "changed/2.json", "--seams", "changed/3.json"]
+    owner = [i for i, sh in enumerate(shards, 1) for r in sh["shared"] if r["record"]["name"] == "chr1"
+             and any(d["begin"] <= 200000 < d["end"] for d in r["done"])][0]
+    fails(checks, binary, cpg, ["scan", changed, "--shard", f"{owner}/3", "--block", "4096", "-o", "x.bed"] + all_seams,
+          1, "another run", "seams made before the genome changed are refused (modification time)")
+    os.utime(changed, ns=(stat.st_atime_ns, stat.st_mtime_ns))
+    fails(checks, binary, cpg, ["scan", changed, "--shard", f"{owner}/3", "--block", "4096", "-o", "x.bed"] + all_seams,
+          1, "do not match this sequence", "changed bases under old seams are refused (checksum of the segment)")
     fails(checks, binary, cpg, ["scan", fasta, "--shard", "1/3", "--block", "4096", "--emit-seams", "y.json",
                                 "-o", "x.bed"], 2, "writes only the seams", "--emit-seams with other outputs")
     checks.check(not os.path.exists(os.path.join(cpg, "x.bed")) and not os.path.exists(os.path.join(cpg, "y.json")),
