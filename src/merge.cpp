@@ -225,7 +225,9 @@ public:
     Composition operator()(int64_t begin, int64_t end) const {
         const auto b = marks_.find(begin), e = marks_.find(end);
         if (b == marks_.end() || e == marks_.end())
-            throw InternalError(fmt::format("merge: no composition mark at {} or {}", begin, end));
+            throw InputError(fmt::format("a call {}-{} of a record shared between shards has no composition mark "
+                                         "at its ends; the shard summaries were edited or come from another run",
+                                         begin, end));
         Composition c = minus(e->second.first, b->second.first);
         if (b->second.second) --c.cpg;
         return c;
@@ -234,6 +236,37 @@ public:
 private:
     std::map<int64_t, std::pair<Composition, bool>> marks_;
 };
+
+// The segments must tile the record in order, and what each holds must lie inside it (calls of
+// reported regions, marks from its start to its end); anything else is an edited or foreign file.
+void check_segments(const std::vector<ShardDoc>& docs, const SharedAssembly& a, const Model& model) {
+    size_t reported = 0;
+    for (bool r : model.region_report) reported += r;
+    int64_t at = 0;
+    for (const auto& [doc, seg] : a.segments) {
+        const auto bad = [&](const char* what) {
+            return InputError(fmt::format("{}: record '{}' segment {} ({}-{}): {}; the file was edited or comes "
+                                          "from another run",
+                                          docs[doc].path, a.record.whole.name, seg->index + 1, seg->begin, seg->end,
+                                          what));
+        };
+        if (seg->begin != at || seg->end <= seg->begin || seg->end > a.record.whole.length)
+            throw bad("does not continue the segment before it");
+        at = seg->end;
+        if (seg->lanes.size() != reported) throw bad("holds another number of reported regions than the profile");
+        for (const Call& c : seg->calls)
+            if (c.begin < seg->begin || c.end > seg->end || c.begin >= c.end || c.region < 0 ||
+                static_cast<size_t>(c.region) >= model.region_names.size() || !model.region_report[c.region])
+                throw bad("has a call outside it or of an unreported region");
+        if (seg->marks.empty() || seg->marks.front().position != seg->begin || seg->marks.back().position != seg->end)
+            throw bad("lacks its composition marks");
+        for (size_t m = 1; m < seg->marks.size(); ++m)
+            if (seg->marks[m].position <= seg->marks[m - 1].position) throw bad("has composition marks out of order");
+    }
+    if (at != a.record.whole.length) throw InputError(fmt::format("record '{}': its segments end at {}, not at its "
+                                                                  "length {}", a.record.whole.name, at,
+                                                                  a.record.whole.length));
+}
 
 // Joins the segments' caller and totals states in order, as the single run does.
 void join_segments(SharedAssembly& a, const SharedContext& ctx) {
@@ -349,6 +382,7 @@ MergedRun assemble(const std::vector<ShardDoc>& docs, const std::string& profile
             if (!missing.empty())
                 throw InputError(fmt::format("shared record '{}': segments {} of {} are in no shard's file",
                                              a.record.whole.name, missing, a.segments.size()));
+            check_segments(docs, a, ctx.model);
             join_segments(a, ctx);
         }
         run.context = ctx;

@@ -239,6 +239,19 @@ def body(checks, binary, work):
     fails(checks, binary, merged, ["merge", "--shard-summaries", "../s1/summary.json", "cut.json",
                                    "../s3/summary.json", "--summary", "z.json"], 1, "in no shard",
           "a shard summary without its part of a shared record is refused")
+    for what, edit, fragment in (
+            ("a segment that does not continue the one before",
+             lambda d: d["shard"]["shared"][0]["done"][0].__setitem__("begin", 5), "does not continue"),
+            ("a call of a region the profile has not",
+             lambda d: d["shard"]["shared"][0]["done"][0]["calls"].append([10, 20, 7, 0.9, 0.8, 10, 20, [3, 3, 2, 2, 0, 1]]),
+             "unreported region")):
+        doc = tmtest.read_json(os.path.join(cpg, "s2", "summary.json"))
+        edit(doc)
+        with open(os.path.join(merged, "edited.json"), "w") as f:
+            json.dump(doc, f)
+        fails(checks, binary, merged, ["merge", "--shard-summaries", "../s1/summary.json", "edited.json",
+                                       "../s3/summary.json", "--summary", "z.json"], 1, fragment,
+              f"an edited shard summary is refused: {what}")
     checks.check(not os.path.exists(os.path.join(merged, "z.json")), "failed merges leave no output file",
                  "documented error contract")
 
