@@ -196,23 +196,6 @@ std::vector<Region> resolve_regions(const std::string& path,
     return sorted;
 }
 
-void read_record_windows(const std::string& path, const std::string& name, int64_t length,
-                         const std::vector<RecordWindow>& windows, Contig& contig) {
-    FaiPtr fai = load_index(path);
-    std::vector<uint8_t> codes;
-    contig.clear();
-    contig.name = name;
-    for (const RecordWindow& w : windows) {
-        if (w.begin < contig.length || w.end > length || w.count_begin < w.begin || w.count_end > w.end)
-            throw InternalError("read_record_windows: windows out of order or outside the record");
-        contig.append_unknown(w.begin - contig.length);
-        append_fetched(fai.get(), path, name, w.begin, w.count_begin, false, contig, codes);
-        append_fetched(fai.get(), path, name, w.count_begin, w.count_end, true, contig, codes);
-        append_fetched(fai.get(), path, name, w.count_end, w.end, false, contig, codes);
-    }
-    contig.append_unknown(length - contig.length);
-}
-
 std::unique_ptr<SequenceSource> open_regions(const std::string& path, std::vector<Region> regions) {
     return std::make_unique<FaidxSource>(path, std::move(regions));
 }

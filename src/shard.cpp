@@ -53,7 +53,7 @@ std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai
                 fmt::format("{}: line {}: not a faidx index line (NAME<TAB>LENGTH...); delete "
                             "the index and rerun",
                             fai_path, number));
-        ShardUnit u{input, line.substr(0, tab), 0, 0, {}};
+        ShardUnit u{input, line.substr(0, tab), 0, 0, {}, {}};
         try {
             u.length = std::stoll(line.substr(
                 tab + 1, tab2 == std::string::npos ? std::string::npos : tab2 - tab - 1));
@@ -146,6 +146,7 @@ bool index_lists_every_record(const std::string& path, const std::string& fai_pa
         const Entry& e = entries[i];
         if (e.length == 0 || headers_in(end, e.offset) != 1) return close(false);
         units[i].start = RecordStart{end, line};
+        units[i].layout = RecordLayout{e.offset, e.line_bases, e.line_bytes};
         const int64_t full = e.length / e.line_bases, rest = e.length % e.line_bases;
         end = e.offset + full * e.line_bytes + (rest > 0 ? rest + (e.line_bytes - e.line_bases) : 0);
         line += gap_lines + full + (rest > 0 ? 1 : 0);
@@ -174,7 +175,7 @@ std::vector<ShardUnit> record_lengths(const std::string& path, bool& by_index) {
     std::vector<ShardUnit> units;
     std::unique_ptr<SequenceSource> source = open_fasta(path);
     Contig contig;
-    while (source->next(contig)) units.push_back({path, contig.name, contig.length, 0, {}});
+    while (source->next(contig)) units.push_back({path, contig.name, contig.length, 0, {}, {}});
     return units;
 }
 
@@ -217,7 +218,7 @@ std::vector<ShardUnit> list_units(const std::vector<std::string>& inputs,
     std::vector<ShardUnit> units;
     if (by_index) *by_index = true;
     if (!regions.empty()) {
-        for (const auto& r : regions) units.push_back({inputs.at(0), r.contig, r.end - r.begin, r.begin, {}});
+        for (const auto& r : regions) units.push_back({inputs.at(0), r.contig, r.end - r.begin, r.begin, {}, {}});
         return units;
     }
     for (const auto& in : inputs) {
@@ -258,6 +259,7 @@ public:
         std::string name;
         int64_t length = 0;
         std::vector<RecordWindow> windows;
+        RecordLayout layout;
     };
     ShareSource(std::string path, std::vector<Item> items, std::vector<RecordStart> whole)
         : path_(std::move(path)), items_(std::move(items)),
@@ -273,7 +275,7 @@ public:
                                              path_, item.name));
             return true;
         }
-        read_record_windows(path_, item.name, item.length, item.windows, contig);
+        read_record_windows(path_, item.name, item.length, item.layout, item.windows, contig);
         return true;
     }
 
@@ -403,11 +405,11 @@ std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, cons
     for (size_t i = first; i < units.size() && units[i].input == input; ++i) {
         if (plan_.pieces[i].empty()) {
             if (plan_.shard_of[i] != spec_.index - 1 || pieces_only) continue;
-            items.push_back({false, units[i].name, units[i].length, {}});
+            items.push_back({false, units[i].name, units[i].length, {}, {}});
             whole.push_back(units[i].start);
             continue;
         }
-        ShareSource::Item item{true, units[i].name, units[i].length, {}};
+        ShareSource::Item item{true, units[i].name, units[i].length, {}, units[i].layout};
         const int64_t length = units[i].length, context = max_emission_order + 1;
         for (const ShardPiece& p : plan_.pieces[i]) {
             if (p.shard != spec_.index - 1) continue;

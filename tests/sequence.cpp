@@ -2,6 +2,7 @@
 #include <catch2/catch.hpp>
 
 #include <cstdlib>
+#include <fstream>
 
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
@@ -210,17 +211,27 @@ TEST_CASE("record windows: the record's length, bases only inside the windows", 
     // 3 lines of 10 bases, CRLF; expected bases written out by hand from the file text.
     TempFile f(">r x\r\nACGTacgtAC\r\nGGGGCCCCNN\r\nTTTTAAAACG\r\n>s\r\nAC\r\n", ".fa");
     resolve_regions(f.path(), {"r"}, {});  // builds the .fai
+    const RecordLayout layout{6, 10, 12};  // ">r x\r\n" is 6 bytes; lines of 10 bases + CRLF
+    {  // as htslib's index says (name, length, offset, bases per line, bytes per line)
+        std::ifstream fai(f.path() + ".fai");
+        std::string line;
+        std::getline(fai, line);
+        CHECK(line == "r\t30\t6\t10\t12");
+    }
     Contig c;
     // [2, 13) with lowercase counted in [3, 12); then [25, 30) counted whole.
-    read_record_windows(f.path(), "r", 30, {{2, 13, 3, 12}, {25, 30, 25, 30}}, c);
+    read_record_windows(f.path(), "r", 30, layout, {{2, 13, 3, 12}, {25, 30, 25, 30}}, c);
     CHECK(c.length == 30);
     CHECK(decode(c) == "NNGTACGTACGGGNNNNNNNNNNNNAAACG");
     CHECK(c.soft_masked == 4);  // "acgt" at 4..7, all inside [3, 12)
     Contig d;
-    read_record_windows(f.path(), "r", 30, {{5, 6, 5, 5}}, d);
+    read_record_windows(f.path(), "r", 30, layout, {{5, 6, 5, 5}}, d);
     CHECK(d.soft_masked == 0);  // 'c' at 5 is outside the empty count range
     CHECK(d.unknown.size() == 2);
-    CHECK_THROWS_AS(read_record_windows(f.path(), "r", 30, {{5, 31, 5, 5}}, d), InternalError);  // past the end
+    CHECK_THROWS_AS(read_record_windows(f.path(), "r", 30, layout, {{5, 31, 5, 5}}, d), InternalError);  // past the end
+    TempFile bad(">r\nACGTXCGTAC\n", ".fa");
+    CHECK(error_of([&] { read_record_windows(bad.path(), "r", 10, {3, 10, 11}, {{2, 8, 2, 8}}, d); })
+              .find("illegal character 'X' (byte 0x58) at position 5") != std::string::npos);
 }
 
 TEST_CASE("append_unknown equals pushing unknown bases one by one", "[sequence]") {

@@ -111,15 +111,24 @@ struct RecordStart {
 /// their .fai/.gzi index only.
 std::unique_ptr<SequenceSource> open_fasta_records(const std::string& path, std::vector<RecordStart> starts);
 
-/// Parts of one record read through faidx into `contig`, which gets the record's whole length:
-/// bases outside the windows are unknown and never read (a shard's segments of a record split
-/// between shards, with a few bases of context). Lowercase bases are counted in soft_masked
-/// only inside [count_begin, count_end) of each window. Windows are sorted and disjoint.
+/// Where a record's bases lie in its file, as its .fai line gives it: the offset of its first
+/// base (uncompressed), bases per line and bytes per line.
+struct RecordLayout {
+    int64_t offset = 0;
+    int64_t line_bases = 0, line_bytes = 0;
+};
+
+/// Parts of one record read into `contig`, which gets the record's whole length: bases outside
+/// the windows are unknown and never read (a shard's segments of a record split between shards,
+/// with a few bases of context). Each window is read by seeking to its first base (plain or
+/// bgzip with .gzi) and parsing as the FASTA stream does. Lowercase bases are counted in
+/// soft_masked only inside [count_begin, count_end) of each window. Windows are sorted and
+/// disjoint. Throws InputError naming the record and position of a byte that is not a base.
 struct RecordWindow {
     int64_t begin = 0, end = 0;
     int64_t count_begin = 0, count_end = 0;
 };
-void read_record_windows(const std::string& path, const std::string& name, int64_t length,
+void read_record_windows(const std::string& path, const std::string& name, int64_t length, const RecordLayout& layout,
                          const std::vector<RecordWindow>& windows, Contig& contig);
 
 /// Resolves region strings ("chr", "chr:beg-end", 1-based inclusive as in samtools, "," allowed

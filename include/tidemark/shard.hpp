@@ -30,6 +30,7 @@ struct ShardUnit {
     int64_t length = 0;
     int64_t begin = 0;  ///< a region's start on its sequence (0 for records)
     RecordStart start;  ///< where the record starts in its file (records read by index only)
+    RecordLayout layout;  ///< where its bases lie (records read by index only)
 };
 
 /// The units of an input in input order, with their lengths. With regions, the resolved regions
