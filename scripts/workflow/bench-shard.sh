@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Per-shard throughput that sizes a cluster job: human chrX (Debian smalt-examples, 70 Mbp) cut
 # into ten records, bgzip-compressed, shard 3/4 decoded with each built-in profile on one thread
-# (-t 1); best of 3.
+# (-t 1); best of 3. Then all of chrX as one record split over 4 shards (seams step + decoding
+# step per shard) against one unsharded run.
 # Usage: scripts/workflow/bench-shard.sh [PATH_TO_TIDEMARK] [WORKDIR]
 set -euo pipefail
 TM=$(realpath "${1:-build/tidemark}")
