@@ -11,6 +11,7 @@
 
 #include "base_table.hpp"
 #include "tidemark/error.hpp"
+#include "tidemark/output.hpp"
 #include "tidemark/sequence.hpp"
 
 namespace tidemark {
@@ -20,6 +21,40 @@ struct FaiDeleter {
     void operator()(faidx_t* f) const { fai_destroy(f); }
 };
 using FaiPtr = std::unique_ptr<faidx_t, FaiDeleter>;
+
+bool newer_or_same(const std::string& a, const std::string& b) {
+    struct stat sa {
+    }, sb{};
+    if (stat(a.c_str(), &sa) != 0 || stat(b.c_str(), &sb) != 0) return false;
+    return sa.st_mtim.tv_sec > sb.st_mtim.tv_sec ||
+           (sa.st_mtim.tv_sec == sb.st_mtim.tv_sec && sa.st_mtim.tv_nsec >= sb.st_mtim.tv_nsec);
+}
+
+// 2 for bgzip, 0 for uncompressed text starting with '>' (both indexable), else -1.
+int indexable(const std::string& path) {
+    BGZF* fp = bgzf_open(path.c_str(), "r");
+    if (!fp) return false;
+    const int compression = bgzf_compression(fp);
+    char first = 0;
+    const bool read = bgzf_read(fp, &first, 1) == 1;
+    bgzf_close(fp);
+    return compression == 2 ? 2 : compression == 0 && read && first == '>' ? 0 : -1;
+}
+
+// Builds PATH.fai (and PATH.gzi for bgzip) under temporary names and renames them into place.
+bool build_index(const std::string& path) {
+    try {
+        StagedPath fai(path + ".fai");
+        StagedPath gzi(path + ".gzi");
+        if (fai_build3(path.c_str(), fai.temp().c_str(), gzi.temp().c_str()) != 0) return false;
+        struct stat st {};
+        if (stat(gzi.temp().c_str(), &st) == 0 && st.st_size > 0) gzi.commit();
+        fai.commit();
+        return true;
+    } catch (const IoError&) {
+        return false;  // a read-only folder: fall back to reading the records
+    }
+}
 
 FaiPtr load_index(const std::string& path) {
     if (path == "-")
@@ -37,6 +72,9 @@ FaiPtr load_index(const std::string& path) {
                          ": is plain gzip, which cannot be read by region; recompress it with "
                          "'zcat " + path + " | bgzip > NEW.fa.gz' (bgzip is in Debian's tabix "
                          "package) or drop --region to stream the whole file");
+    // Built here under temporary names first, so that concurrent runs (shards) never read a
+    // half-written index; FAI_CREATE remains for a read-only folder, where nothing is written.
+    ensure_fasta_index(path);
     faidx_t* fai = fai_load3(path.c_str(), nullptr, nullptr, FAI_CREATE);
     if (!fai)
         throw InputError(path +
@@ -154,6 +192,13 @@ private:
 };
 
 }  // namespace
+
+bool ensure_fasta_index(const std::string& path) {
+    const int kind = indexable(path);
+    if (kind < 0) return false;
+    if (newer_or_same(path + ".fai", path) && (kind == 0 || newer_or_same(path + ".gzi", path))) return true;
+    return build_index(path);
+}
 
 std::vector<Region> resolve_regions(const std::string& path,
                                     const std::vector<std::string>& region_strings,

@@ -4,7 +4,6 @@
 
 #include <fmt/format.h>
 #include <htslib/bgzf.h>
-#include <htslib/faidx.h>
 #include <sys/stat.h>
 
 #include <algorithm>
@@ -30,13 +29,6 @@ bool parse_int(const std::string& s, int& out) {
     return true;
 }
 
-bool newer_or_same(const std::string& a, const std::string& b) {
-    struct stat sa {
-    }, sb{};
-    if (stat(a.c_str(), &sa) != 0 || stat(b.c_str(), &sb) != 0) return false;
-    return sa.st_mtim.tv_sec > sb.st_mtim.tv_sec ||
-           (sa.st_mtim.tv_sec == sb.st_mtim.tv_sec && sa.st_mtim.tv_nsec >= sb.st_mtim.tv_nsec);
-}
 
 std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai_path) {
     std::ifstream in(fai_path);
@@ -66,31 +58,6 @@ std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai
     return units;
 }
 
-// Whether htslib can index the file: bgzip, or uncompressed text starting with '>'.
-bool indexable(const std::string& path) {
-    BGZF* fp = bgzf_open(path.c_str(), "r");
-    if (!fp) return false;
-    const int compression = bgzf_compression(fp);
-    char first = 0;
-    const bool read = bgzf_read(fp, &first, 1) == 1;
-    bgzf_close(fp);
-    return compression == 2 || (compression == 0 && read && first == '>');
-}
-
-// Builds PATH.fai (and PATH.gzi for bgzip) under temporary names and renames them into place.
-bool build_index(const std::string& path) {
-    try {
-        StagedPath fai(path + ".fai");
-        StagedPath gzi(path + ".gzi");
-        if (fai_build3(path.c_str(), fai.temp().c_str(), gzi.temp().c_str()) != 0) return false;
-        struct stat st {};
-        if (stat(gzi.temp().c_str(), &st) == 0 && st.st_size > 0) gzi.commit();
-        fai.commit();
-        return true;
-    } catch (const IoError&) {
-        return false;  // a read-only folder: fall back to reading the records
-    }
-}
 
 // True when PATH.fai lists every record of PATH, so that a shard may read only its own records
 // through the index: the bytes between one record's sequence and the next one's hold exactly one
@@ -166,7 +133,7 @@ std::vector<ShardUnit> record_lengths(const std::string& path, bool& by_index) {
             "--shard needs files: every shard must see the whole input to agree on its share, and "
             "standard input (-) can be read only once");
     const std::string fai = path + ".fai";
-    if (newer_or_same(fai, path) || (indexable(path) && build_index(path))) {
+    if (ensure_fasta_index(path)) {
         std::vector<ShardUnit> units = read_fai(path, fai);
         by_index = index_lists_every_record(path, fai, units);
         return units;

@@ -131,6 +131,12 @@ struct RecordWindow {
 void read_record_windows(const std::string& path, const std::string& name, int64_t length, const RecordLayout& layout,
                          const std::vector<RecordWindow>& windows, Contig& contig);
 
+/// Makes sure PATH.fai (and PATH.gzi for bgzip) exist and are at least as new as PATH: builds
+/// them under temporary names and renames them into place, so that concurrent processes never
+/// see half an index. False when the file cannot be indexed (plain gzip, xz, ...; not FASTA)
+/// or the index cannot be written (a read-only folder).
+bool ensure_fasta_index(const std::string& path);
+
 /// Resolves region strings ("chr", "chr:beg-end", 1-based inclusive as in samtools, "," allowed
 /// in numbers) and BED intervals against the faidx index of path (built when missing for plain
 /// and bgzip files). Regions are returned in index order, then by start; overlapping regions are

@@ -295,6 +295,18 @@ def index_reading(checks, binary, work, rng):
         for f in ("calls.bed", "summary.json", "post.cpg_island.bedgraph"):
             checks.check(tmtest.read_bytes(os.path.join(base, "single", f)) == tmtest.read_bytes(os.path.join(base, "merged", f)),
                          f"{name}: merged {f} equals the single run's", SINGLE)
+    # --region builds a missing index under a temporary name (concurrent shards are safe): the
+    # index appears with every record, and nothing else is left.
+    folder = run_dir(work, "index-build")
+    fa = os.path.join(folder, "r.fa")
+    shutil.copy(os.path.join(work, "crlf.fa"), fa)
+    tmtest.run(binary, ["scan", fa, "-r", "b", "-o", "/dev/null", "-q"])
+    lines = open(fa + ".fai").read().splitlines()
+    checks.equal([l.split("\t")[:2] for l in lines], [["a", "3000"], ["b", "5003"], ["c", "4100"], ["d", "61"]],
+                 "--region builds the .fai (names and lengths)", "the records written above")
+    checks.equal(sorted(os.listdir(folder)), ["r.fa", "r.fa.fai"], "no temporary index file is left behind",
+                 "atomic rename contract")
+
     # A bad byte: only the shard that decodes the record reads it, and names its line.
     path = os.path.join(work, "bad.fa")
     lines = [">p one", seq(60), seq(13), ">q", seq(60), seq(20) + "X" + seq(9), ">r", seq(60)]
