@@ -86,6 +86,8 @@ void BigWigWriter::commit() {
     impl_->staged.reset();
 }
 
+bool BigWigWriter::empty() const { return impl_->names.empty(); }
+
 void BigWigWriter::write() {
     // libBigWig divides by the list's size while writing the header (SIGFPE, no error).
     if (impl_->names.empty())

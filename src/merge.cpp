@@ -764,11 +764,13 @@ std::unique_ptr<OutputFile> merge_chrom_sizes(const std::vector<ShardDoc>& docs,
 // Returns the writer unclosed: close() writes and commits the file.
 std::unique_ptr<BigWigWriter> merge_bigwig(const std::vector<ShardDoc>& docs, const MergedRun& run,
                                            const std::vector<std::string>& files, const std::string& target) {
-    std::vector<std::unique_ptr<BigWigReader>> readers;
-    for (const auto& f : files) readers.push_back(std::make_unique<BigWigReader>(f));
     const auto records = shard_records(docs);
+    std::vector<std::unique_ptr<BigWigReader>> readers;
+    for (size_t k = 0; k < files.size(); ++k)  // a shard without records wrote no bigWig
+        readers.push_back(records[k].empty() ? nullptr : std::make_unique<BigWigReader>(files[k]));
     std::vector<std::map<std::string, int64_t>> lengths(files.size());
     for (size_t k = 0; k < files.size(); ++k) {
+        if (!readers[k]) continue;
         std::set<std::string> names;
         for (const auto& r : records[k]) names.insert(r.second);
         for (const auto& seq : readers[k]->sequences()) {
@@ -962,6 +964,11 @@ void run_merge(const MergeOptions& o, const Logger& log) {
             for (const auto& prefix : o.shard_tracks) {
                 const std::string base = prefix + "." + model.region_names[r];
                 if (bigwig) {
+                    const size_t k = files.size();
+                    if (plan[k].contigs.empty() && plan[k].shared.empty()) {  // wrote no bigWig
+                        files.push_back("");
+                        continue;
+                    }
                     if (!exists(base + ".bw"))
                         throw InputError(fmt::format("no track {}.bw (the shards recorded --track-format bigwig)",
                                                      base));

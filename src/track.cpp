@@ -405,7 +405,7 @@ void PosteriorTracks::close() {
     for (auto& t : tracks_) {
         if (forked_) throw InternalError("PosteriorTracks::close on a fork; join it instead");
         if (t->bigwig) {
-            t->bigwig->close();
+            if (!t->bigwig->empty()) t->bigwig->close();
             continue;
         }
         t->file->write(t->buffer);

@@ -16,7 +16,8 @@ namespace tidemark {
 ///
 /// What is merged exactly (byte for byte equal to a single run), also when records were split
 /// between shards: plain and browser BED (plain or bgzip, with tabix index when --bgzip),
-/// bedGraph tracks (plain or bgzip), bigWig tracks (the format the shards recorded), chrom-sizes
+/// bedGraph tracks (plain or bgzip), bigWig tracks (the format the shards recorded; a shard that
+/// decoded no record wrote none, and none is looked for), chrom-sizes
 /// files, GFF3 (feature IDs renumbered through the run in input order), the summary, and the
 /// report except its "resources" object: wall and CPU seconds are the sums over the shards, peak
 /// memory the largest shard's, Mbp/s the bases over the summed wall time (throughput per

@@ -50,6 +50,9 @@ public:
     /// length (InputError otherwise: its intervals would not be in one stretch).
     int add_sequence(const std::string& name, int64_t length);
     void add(int sequence, int64_t start, int64_t end, double value);
+    /// No sequence was added: there is nothing a bigWig file could hold (libBigWig cannot write
+    /// an empty one).
+    bool empty() const;
     void close();   ///< write() then commit(); throws IoError
     void write();   ///< writes the file under a temporary name beside the target; throws IoError
     void commit();  ///< renames the written file into place; throws IoError
@@ -119,6 +122,8 @@ public:
     void end_contig(const Contig& contig, const DecodeResult& result) override;
     std::unique_ptr<DecodeSink> fork() const override;
     void join(DecodeSink& later) override;
+    /// Writes the files. bigWig tracks of a run that decoded no sequence (a shard without
+    /// records) are not written; `tidemark merge` does not look for them.
     void close();
     std::vector<std::string> paths() const;
 

@@ -204,6 +204,16 @@ def body(checks, binary, work):
     _, shards = scenario(checks, binary, work, "whole", fa_small, small, 3, [])
     checks.equal(sum(len(d.get("shared", [])) for d in shards), 0, "whole: no record is shared between shards",
                  "shard plan in the summaries")
+    # More shards than records: the shard without records writes no bigWig (libBigWig cannot
+    # write an empty one) and merge does not look for it.
+    two = small[-2:]
+    fa_two = os.path.join(work, "two.fa")
+    tmtest.write_fasta(fa_two, two)
+    _, shards = scenario(checks, binary, work, "empty-shard", fa_two, two, 3, [])
+    empty = [i for i, d in enumerate(shards, 1) if not d["contigs"] and not d["shared"]]
+    checks.check(len(empty) == 1 and not os.path.exists(os.path.join(work, "empty-shard", f"s{empty[0]}",
+                                                                     f"post.{REGION}.bw")),
+                 "empty-shard: the shard without records wrote no bigWig", "libBigWig cannot write an empty file")
     # Digits beyond float32's reach are fine without shared records: nothing is joined.
     scenario(checks, binary, work, "whole-digits8", fa_small, small, 3, ["--posterior-digits", "8"])
 
