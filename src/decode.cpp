@@ -646,19 +646,19 @@ struct PosteriorDecoder::Segment {
 
 namespace {
 
-// M = F_row M for each row of rows[0..count) in turn (the matrix sweep's step); returns the
-// exponent removed by rescaling. M is row-major S x S; its columns are independent vector
-// recursions, so a step costs about as much time as one vector step of the sequential sweep.
-// Sets failed = 0 when the matrix becomes all zero (the contig is impossible).
-template <int S>
-inline int64_t matrix_steps(const double* folded, const uint32_t* rows, int64_t count, double* M,
-                            int64_t& failed) {
+// M = F_row M for each row in turn, the k-th row being row_at(k) for k < count (the matrix
+// sweep's step); returns the exponent removed by rescaling. M is row-major S x S; its columns
+// are independent vector recursions, so a step costs about as much time as one vector step of
+// the sequential sweep. Sets failed = k when the k-th step makes the matrix all zero (the
+// contig is impossible).
+template <int S, typename RowAt>
+inline int64_t matrix_steps(const double* folded, int64_t count, RowAt row_at, double* M, int64_t& failed) {
     constexpr int SS = S * S;
     double W[SS];
     for (int q = 0; q < SS; ++q) W[q] = M[q];
     int64_t exponent = 0;
     for (int64_t k = 0; k < count; ++k) {
-        const double* F = folded + static_cast<size_t>(rows[k]) * SS;
+        const double* F = folded + static_cast<size_t>(row_at(k)) * SS;
         double T[SS];
         for (int i = 0; i < S; ++i)
             for (int c = 0; c < S; ++c) {
@@ -669,7 +669,7 @@ inline int64_t matrix_steps(const double* folded, const uint32_t* rows, int64_t 
         double s = T[0];
         for (int q = 1; q < SS; ++q) s += T[q];
         if (!(s > 0)) {
-            failed = 0;
+            failed = k;
             break;
         }
         if (s < rescale_below) {
@@ -684,39 +684,19 @@ inline int64_t matrix_steps(const double* folded, const uint32_t* rows, int64_t 
     return exponent;
 }
 
+// One step with one row.
+template <int S>
+inline int64_t matrix_step(const double* folded, uint32_t row, double* M, int64_t& failed) {
+    return matrix_steps<S>(folded, 1, [row](int64_t) { return row; }, M, failed);
+}
+
 // The steps of one block: M_t = F_{rows[t+1]} M_{t+1} for t = n-2 down to 0. On failure,
 // failed = the position (in the block) whose row made the matrix zero.
 template <int S>
 inline int64_t matrix_steps_back(const double* folded, const uint32_t* rows, int64_t n, double* M,
                                  int64_t& failed) {
-    constexpr int SS = S * S;
-    double W[SS];
-    for (int q = 0; q < SS; ++q) W[q] = M[q];
-    int64_t exponent = 0;
-    for (int64_t t = n - 2; t >= 0; --t) {
-        const double* F = folded + static_cast<size_t>(rows[t + 1]) * SS;
-        double T[SS];
-        for (int i = 0; i < S; ++i)
-            for (int c = 0; c < S; ++c) {
-                double acc = F[i * S] * W[c];
-                for (int j = 1; j < S; ++j) acc += F[i * S + j] * W[j * S + c];
-                T[i * S + c] = acc;
-            }
-        double s = T[0];
-        for (int q = 1; q < SS; ++q) s += T[q];
-        if (!(s > 0)) {
-            failed = t + 1;
-            break;
-        }
-        if (s < rescale_below) {
-            const int e = exponent_of(s);
-            const double f = pow2(-e);
-            for (int q = 0; q < SS; ++q) T[q] *= f;
-            exponent += e;
-        }
-        for (int q = 0; q < SS; ++q) W[q] = T[q];
-    }
-    for (int q = 0; q < SS; ++q) M[q] = W[q];
+    const int64_t exponent = matrix_steps<S>(folded, n - 1, [rows, n](int64_t k) { return rows[n - 1 - k]; }, M, failed);
+    if (failed >= 0) failed = n - 1 - failed;
     return exponent;
 }
 
@@ -790,7 +770,7 @@ void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>&
                 for (int i = 0; i < S; ++i) M[i * S + i] = 1.0;
             } else {
                 int64_t failed = -1;
-                mexp += matrix_steps<S>(folded, &next_row, 1, M, failed);
+                mexp += matrix_step<S>(folded, next_row, M, failed);
                 if (failed >= 0) impossible(m, contig, start + n);
             }
             std::copy(M, M + SS, sg.marks.begin() + j * SS);
@@ -804,7 +784,7 @@ void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>&
         }
         const auto step = [&](uint32_t row, int64_t pos) {
             int64_t failed = -1;
-            mexp += matrix_steps<S>(folded, &row, 1, M, failed);
+            mexp += matrix_step<S>(folded, row, M, failed);
             if (failed >= 0) impossible(m, contig, pos);
         };
         if (sg.begin == 0) {  // the row vector (pi * e_0) M_0

@@ -13,21 +13,6 @@ SINGLE = "single-process fit --max-iter K --tol 0 (same E-step and M-step in one
 PYTHON = "Python count of the FASTA's bases"
 
 
-def numbers(a, b, path=""):
-    """Largest relative difference over the numbers of two profile JSON documents (provenance,
-    sources and name left out); raises on a structural difference."""
-    if isinstance(a, dict):
-        assert set(a) == set(b), f"{path}: keys differ"
-        return max([numbers(a[k], b[k], f"{path}/{k}") for k in a if k not in ("provenance", "sources", "name")],
-                   default=0.0)
-    if isinstance(a, list):
-        assert len(a) == len(b), f"{path}: lengths differ"
-        return max([numbers(x, y, f"{path}[{i}]") for i, (x, y) in enumerate(zip(a, b))], default=0.0)
-    if isinstance(a, (int, float)) and not isinstance(a, bool):
-        return abs(a - b) / max(1.0, abs(a), abs(b))
-    assert a == b, f"{path}: {a!r} != {b!r}"
-    return 0.0
-
 
 def records(rng):
     return records_of(rng, [40000, 90000, 7000, 25000, 60000])
@@ -81,7 +66,7 @@ def body(checks, binary, work):
             tag = f"{profile}.{iterations}.{n}"
             result = distributed(binary, work, fasta, profile, n, iterations, tag)
             a, b = tmtest.read_json(single), tmtest.read_json(result)
-            diff = numbers(a, b)
+            diff = tmtest.profile_difference(a, b)
             checks.at_most(diff, 1e-9, f"{profile}: {iterations} EM iteration(s) over {n} shards equal the "
                                        f"single-process fit", SINGLE)
             checks.equal(b["name"], a["name"], f"{profile}: the distributed fit is named as fit names it", SINGLE)
@@ -115,7 +100,7 @@ def body(checks, binary, work):
         tmtest.run(binary, ["fit", long_fa, "-p", profile, "--max-iter", "2", "--tol", "0", "-o", single, "-q"])
         tag = f"{profile}.long"
         result = distributed(binary, work, long_fa, profile, 3, 2, tag, ["--block", "4096"], split=True)
-        checks.at_most(numbers(tmtest.read_json(single), tmtest.read_json(result)), 1e-9,
+        checks.at_most(tmtest.profile_difference(tmtest.read_json(single), tmtest.read_json(result)), 1e-9,
                        f"{profile}: 2 EM iterations over 3 shards with split records equal the single-process fit",
                        SINGLE)
         stats = [tmtest.read_json(os.path.join(work, f"{tag}.stats.1.{i}.json"))["counts"] for i in (1, 2, 3)]

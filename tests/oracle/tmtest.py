@@ -97,6 +97,22 @@ def longest_first(lengths, n):
     return shard
 
 
+def profile_difference(a, b, path=""):
+    """Largest relative difference over the numbers of two profile JSON documents (provenance,
+    sources and name left out); raises on a structural difference."""
+    if isinstance(a, dict):
+        assert set(a) == set(b), f"{path}: keys differ"
+        return max([profile_difference(a[k], b[k], f"{path}/{k}") for k in a
+                    if k not in ("provenance", "sources", "name")], default=0.0)
+    if isinstance(a, list):
+        assert len(a) == len(b), f"{path}: lengths differ"
+        return max([profile_difference(x, y, f"{path}[{i}]") for i, (x, y) in enumerate(zip(a, b))], default=0.0)
+    if isinstance(a, (int, float)) and not isinstance(a, bool):
+        return abs(a - b) / max(1.0, abs(a), abs(b))
+    assert a == b, f"{path}: {a!r} != {b!r}"
+    return 0.0
+
+
 def read_json(path):
     with open(path, encoding="utf-8") as f:
         return json.load(f)

@@ -19,20 +19,6 @@ FIT = "single-process fit -p cpg-island --max-iter 2 --tol 0"
 ITERATIONS = 2
 
 
-def numbers(a, b, path=""):
-    """Largest relative difference over the numbers of two profiles (provenance, sources, name aside)."""
-    if isinstance(a, dict):
-        assert set(a) == set(b), f"{path}: keys differ"
-        return max([numbers(a[k], b[k], f"{path}/{k}") for k in a if k not in ("provenance", "sources", "name")],
-                   default=0.0)
-    if isinstance(a, list):
-        assert len(a) == len(b), f"{path}: lengths differ"
-        return max([numbers(x, y, f"{path}[{i}]") for i, (x, y) in enumerate(zip(a, b))], default=0.0)
-    if isinstance(a, (int, float)) and not isinstance(a, bool):
-        return abs(a - b) / max(1.0, abs(a), abs(b))
-    assert a == b, f"{path}: {a!r} != {b!r}"
-    return 0.0
-
 
 def read_bytes(path):
     with open(path, "rb") as f:
@@ -80,7 +66,7 @@ def body(checks, binary, work):
 
     ref = os.path.join(work, "single-fit.json")
     tmtest.run(binary, ["fit", DEMO, "-p", "cpg-island", "--max-iter", str(ITERATIONS), "--tol", "0", "-o", ref, "-q"])
-    diff = numbers(tmtest.read_json(ref), tmtest.read_json(os.path.join(out, "fitted-profile.json")))
+    diff = tmtest.profile_difference(tmtest.read_json(ref), tmtest.read_json(os.path.join(out, "fitted-profile.json")))
     checks.at_most(diff, 1e-9, f"{ITERATIONS} distributed EM iterations over 3 shards equal single-process fit", FIT)
 
 
