@@ -20,10 +20,6 @@ ITERATIONS = 2
 
 
 
-def read_bytes(path):
-    with open(path, "rb") as f:
-        return f.read()
-
 
 def body(checks, binary, work):
     snakemake = shutil.which("snakemake")
@@ -47,7 +43,7 @@ def body(checks, binary, work):
                         "--report", "report.json", "--posteriors", "post", "-q", "--block", "4096"], cwd=single)
     for ours, theirs in (("calls.bed", "calls.bed"), ("summary.json", "summary.json"),
                          ("tracks/posteriors.cpg_island.bedgraph", "post.cpg_island.bedgraph")):
-        checks.check(read_bytes(os.path.join(out, ours)) == read_bytes(os.path.join(single, theirs)),
+        checks.check(tmtest.read_bytes(os.path.join(out, ours)) == tmtest.read_bytes(os.path.join(single, theirs)),
                      f"gathered {ours} equals the single run's", SINGLE)
     a = tmtest.read_json(os.path.join(single, "report.json"))
     b = tmtest.read_json(os.path.join(out, "report.json"))
