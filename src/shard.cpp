@@ -325,10 +325,15 @@ std::vector<ShardPiece> ShardFilter::my_pieces() const {
 
 size_t ShardFilter::segments() const { return split() ? plan_.pieces[static_cast<size_t>(current_)].back().last : 1; }
 
+bool ShardFilter::mine(size_t unit) const {
+    const auto& pieces = plan_.pieces[unit];
+    if (pieces.empty()) return plan_.shard_of[unit] == spec_.index - 1;
+    return std::any_of(pieces.begin(), pieces.end(), [&](const ShardPiece& p) { return p.shard == spec_.index - 1; });
+}
+
 bool ShardFilter::has_pieces() const {
-    for (const auto& pieces : plan_.pieces)
-        for (const auto& p : pieces)
-            if (p.shard == spec_.index - 1) return true;
+    for (size_t i = 0; i < plan_.units.size(); ++i)
+        if (!plan_.pieces[i].empty() && mine(i)) return true;
     return false;
 }
 
@@ -350,28 +355,25 @@ std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, cons
     // Only this shard's units of this input, through the index, in input order.
     sharing_ = true;
     const auto& units = plan_.units;
-    std::vector<Region> share;
-    size_t first = units.size();
-    for (size_t i = 0; i < units.size(); ++i) {
-        if (units[i].input != input) continue;
-        first = std::min(first, i);
-        const bool mine = plan_.pieces[i].empty()
-                              ? plan_.shard_of[i] == spec_.index - 1
-                              : std::any_of(plan_.pieces[i].begin(), plan_.pieces[i].end(),
-                                            [&](const ShardPiece& p) { return p.shard == spec_.index - 1; });
-        if (mine && (!pieces_only || !plan_.pieces[i].empty()))
-            share.push_back({units[i].name, units[i].begin, units[i].begin + units[i].length});
-    }
+    const size_t first = static_cast<size_t>(
+        std::find_if(units.begin(), units.end(), [&](const ShardUnit& u) { return u.input == input; }) -
+        units.begin());
     planned_ = first == units.size() ? planned_ : first;
     next_ = static_cast<int64_t>(planned_);
-    if (!regions.empty()) return open_regions(input, std::move(share));
+    const auto wanted = [&](size_t i) { return mine(i) && (!pieces_only || !plan_.pieces[i].empty()); };
+    if (!regions.empty()) {  // regions: through faidx
+        std::vector<Region> share;
+        for (size_t i = first; i < units.size() && units[i].input == input; ++i)
+            if (wanted(i)) share.push_back({units[i].name, units[i].begin, units[i].begin + units[i].length});
+        return open_regions(input, std::move(share));
+    }
     // Whole records are parsed as a stream from where each starts (faidx fetches are slower);
     // of a shared record only this shard's segments are read, with a few bases of context.
     std::vector<ShareSource::Item> items;
     std::vector<RecordStart> whole;
     for (size_t i = first; i < units.size() && units[i].input == input; ++i) {
+        if (!wanted(i)) continue;
         if (plan_.pieces[i].empty()) {
-            if (plan_.shard_of[i] != spec_.index - 1 || pieces_only) continue;
             items.push_back({false, units[i].name, units[i].length, {}, {}});
             whole.push_back(units[i].start);
             continue;
@@ -391,7 +393,7 @@ std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, cons
                 item.windows.push_back(w);
             }
         }
-        if (!item.windows.empty()) items.push_back(std::move(item));
+        items.push_back(std::move(item));
     }
     return std::make_unique<ShareSource>(input, std::move(items), std::move(whole));
 }
@@ -411,7 +413,7 @@ bool ShardFilter::take(const Contig& contig) {
         planned_ = i + 1;
         next_ = static_cast<int64_t>(i) + 1;
         current_ = static_cast<int64_t>(i);
-        return split() ? !my_pieces().empty() : plan_.shard_of[i] == spec_.index - 1;
+        return mine(i);
     }
     const size_t i = planned_;
     if (i < units_.size() && units_[i].name == contig.name) {
@@ -422,8 +424,7 @@ bool ShardFilter::take(const Contig& contig) {
                 "{}: record '{}' has {} bases, but the shard plan (from {}.fai or a first pass) says {}; "
                 "the index is out of date: delete it and rerun every shard",
                 units_[i].input, contig.name, contig.length, units_[i].input, units_[i].length));
-        if (split()) return !my_pieces().empty();
-        return plan_.shard_of[i] == spec_.index - 1;
+        return mine(i);
     }
     // faidx leaves empty records out of its index; they hold no bases, so shard 1 takes them.
     if (contig.length == 0) return spec_.index == 1;

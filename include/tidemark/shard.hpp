@@ -122,6 +122,8 @@ public:
     int64_t total_bases() const { return total_bases_; }
 
 private:
+    bool mine(size_t unit) const;  ///< this shard decodes the unit, wholly or in part
+
     ShardSpec spec_;
     ShardPlan plan_;
     int64_t segment_length_ = 0;
