@@ -243,7 +243,9 @@ void check_segments(const std::vector<ShardDoc>& docs, const SharedAssembly& a, 
     size_t reported = 0;
     for (bool r : model.region_report) reported += r;
     int64_t at = 0;
-    for (const auto& [doc, seg] : a.segments) {
+    for (const auto& entry : a.segments) {
+        const size_t doc = entry.first;  // not a structured binding: lambdas capture it (clang 14)
+        const SharedSegment* seg = entry.second;
         const auto bad = [&](const char* what) {
             return InputError(fmt::format("{}: record '{}' segment {} ({}-{}): {}; the file was edited or comes "
                                           "from another run",
