@@ -179,6 +179,26 @@ void Contig::append_unknown(int64_t n) {
     for (int64_t k = bulk; k < n; ++k) push(base_unknown);
 }
 
+Composition& Composition::operator+=(const Composition& o) {
+    a += o.a;
+    c += o.c;
+    g += o.g;
+    t += o.t;
+    unknown += o.unknown;
+    cpg += o.cpg;
+    return *this;
+}
+
+Composition& Composition::operator-=(const Composition& o) {
+    a -= o.a;
+    c -= o.c;
+    g -= o.g;
+    t -= o.t;
+    unknown -= o.unknown;
+    cpg -= o.cpg;
+    return *this;
+}
+
 double Composition::gc_fraction() const {
     const int64_t n = known();
     return n == 0 ? 0.0 : static_cast<double>(c + g) / static_cast<double>(n);

@@ -189,16 +189,6 @@ SharedContext shared_context(const ShardDoc& doc, const std::string& profile_ove
     return c;
 }
 
-Composition minus(Composition x, const Composition& y) {
-    x.a -= y.a;
-    x.c -= y.c;
-    x.g -= y.g;
-    x.t -= y.t;
-    x.unknown -= y.unknown;
-    x.cpg -= y.cpg;
-    return x;
-}
-
 // Composition of [begin, end) of a shared record from the segments' prefix marks: with G(p) the
 // composition of [0, p), it is G(end) - G(begin) less the CpG straddling begin - 1 and begin.
 class MarkedComposition {
@@ -210,12 +200,8 @@ public:
             Composition at_end = base;
             for (const CompositionMark& m : seg->marks) {
                 Composition g = base;
-                g.a += m.prefix.a;
-                g.c += m.prefix.c;
-                g.g += m.prefix.g;
-                g.t += m.prefix.t;
-                g.unknown += m.prefix.unknown;
-                g.cpg += m.prefix.cpg + (straddle && m.position > seg->begin ? 1 : 0);
+                g += m.prefix;
+                g.cpg += straddle && m.position > seg->begin ? 1 : 0;
                 marks_[m.position] = {g, m.cpg_before};
                 if (m.position == seg->end) at_end = g;
             }
@@ -228,7 +214,8 @@ public:
             throw InputError(fmt::format("a call {}-{} of a record shared between shards has no composition mark "
                                          "at its ends; the shard summaries were edited or come from another run",
                                          begin, end));
-        Composition c = minus(e->second.first, b->second.first);
+        Composition c = e->second.first;
+        c -= b->second.first;
         if (b->second.second) --c.cpg;
         return c;
     }

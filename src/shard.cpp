@@ -462,8 +462,7 @@ ordered_json contig_to_json(const ContigSummary& c) {
     o["length"] = c.length;
     o["unknown"] = c.unknown;
     o["soft_masked"] = c.soft_masked;
-    const Composition& k = c.composition;
-    o["composition"] = {k.a, k.c, k.g, k.t, k.unknown, k.cpg};
+    o["composition"] = composition_json(c.composition);
     o["log_likelihood"] = c.log_likelihood;
     o["expected_bases"] = vector_json(c.expected_bases);
     o["called_bases"] = c.called_bases;
@@ -485,9 +484,7 @@ ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where
         c.length = j.at("length").get<int64_t>();
         c.unknown = j.at("unknown").get<int64_t>();
         c.soft_masked = j.at("soft_masked").get<int64_t>();
-        const auto k = j.at("composition").get<std::vector<int64_t>>();
-        if (k.size() != 6) throw InputError(where + ": shard record 'composition' needs 6 counts");
-        c.composition = Composition{k[0], k[1], k[2], k[3], k[4], k[5]};
+        c.composition = composition_from(j.at("composition"));
         const auto& ll = j.at("log_likelihood");
         c.log_likelihood =
             ll.is_null() ? std::numeric_limits<double>::quiet_NaN() : ll.get<double>();

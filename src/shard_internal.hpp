@@ -19,6 +19,11 @@ ordered_json contig_to_json(const ContigSummary& contig);
 /// The inverse; throws InputError naming `where`.
 ContigSummary contig_from_json(const nlohmann::json& json, const std::string& where);
 
+/// A composition as its six counts [a, c, g, t, unknown, cpg], and back (throws a
+/// nlohmann::json exception for another shape).
+ordered_json composition_json(const Composition& composition);
+Composition composition_from(const nlohmann::json& json);
+
 /// A shared record (shard.hpp) and its inverse, every double at full precision.
 ordered_json shared_to_json(const SharedRecord& record);
 SharedRecord shared_from_json(const nlohmann::json& json, const std::string& where);

@@ -17,14 +17,6 @@ namespace {
 
 constexpr const char* seams_format = "tidemark-seams/1";
 
-ordered_json composition_json(const Composition& k) { return {k.a, k.c, k.g, k.t, k.unknown, k.cpg}; }
-
-Composition composition_from(const nlohmann::json& j) {
-    const auto k = j.get<std::vector<int64_t>>();
-    if (k.size() != 6) throw nlohmann::json::other_error::create(501, "a composition needs 6 counts", nullptr);
-    return Composition{k[0], k[1], k[2], k[3], k[4], k[5]};
-}
-
 ordered_json group_json(const IntervalCaller::Group& g) {
     return {g.begin, g.end, g.sum, g.min, g.core_begin, g.core_end};
 }
@@ -40,21 +32,19 @@ IntervalCaller::Group group_from(const nlohmann::json& j) {
     return g;
 }
 
-Composition operator+(Composition x, const Composition& y) {
-    x.a += y.a;
-    x.c += y.c;
-    x.g += y.g;
-    x.t += y.t;
-    x.unknown += y.unknown;
-    x.cpg += y.cpg;
-    return x;
-}
-
 bool cpg_straddles(const Contig& contig, int64_t position) {
     return position > 0 && position < contig.length && contig.base(position - 1) == 1 && contig.base(position) == 2;
 }
 
 }  // namespace
+
+ordered_json composition_json(const Composition& k) { return {k.a, k.c, k.g, k.t, k.unknown, k.cpg}; }
+
+Composition composition_from(const nlohmann::json& j) {
+    const auto k = j.get<std::vector<int64_t>>();
+    if (k.size() != 6) throw nlohmann::json::other_error::create(501, "a composition needs 6 counts", nullptr);
+    return Composition{k[0], k[1], k[2], k[3], k[4], k[5]};
+}
 
 std::string seams_identity(const std::vector<std::string>& inputs, const std::vector<std::string>& regions,
                            const std::string& regions_bed, const std::string& profile_crc32, int64_t block,
@@ -247,7 +237,7 @@ SharedSegment describe_segment(const Contig& contig, size_t index, int64_t begin
     for (const int64_t p : at) {
         if (p > from) {
             if (from > begin && cpg_straddles(contig, from)) ++prefix.cpg;
-            prefix = prefix + composition(contig, from, p);
+            prefix += composition(contig, from, p);
             from = p;
         }
         s.marks.push_back({p, prefix, cpg_straddles(contig, p)});

@@ -66,6 +66,9 @@ struct Composition {
     int64_t cpg = 0;  ///< positions i with C at i and G at i+1, both inside the interval
 
     int64_t known() const { return a + c + g + t; }
+    /// Count by count (for compositions of adjacent intervals, add the CpG across the seam).
+    Composition& operator+=(const Composition& o);
+    Composition& operator-=(const Composition& o);
     /// (C+G)/(A+C+G+T); 0 when no base is known.
     double gc_fraction() const;
     /// Observed/expected CpG ratio N(CpG)*L/(N(C)*N(G)) with L = known bases
