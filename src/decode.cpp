@@ -16,6 +16,7 @@
 
 #include "thread_pool.hpp"
 #include "tidemark/error.hpp"
+#include "tidemark/window.hpp"
 
 namespace tidemark {
 namespace {
@@ -65,7 +66,7 @@ inline int rescale(double* v, int S, double sum) {
         "contig '{}': the sequence is impossible under profile '{}' at or near position {} "
         "(every state path has probability 0); a state with a zero emission or transition "
         "probability cannot explain it",
-        c.name, m.name, c.offset + pos + 1));
+        c.name, m.name, c.offset + m.position_start(pos) + 1));
 }
 
 bool use_sparse(const Model& m) {
@@ -198,6 +199,7 @@ void SinkFanout::join(DecodeSink& later) {
 }
 
 std::vector<double> build_fast_emission_table(const Model& m) {
+    if (m.window > 0) return {};  // window emissions depend on the window's counts, not a context
     const size_t contexts = size_t{1} << (2 * m.max_order);
     const size_t entries = contexts * 4 * static_cast<size_t>(m.states);
     if (entries * sizeof(double) > (size_t{32} << 20)) return {};
@@ -210,8 +212,9 @@ std::vector<double> build_fast_emission_table(const Model& m) {
     return table;
 }
 
-void fill_emissions(const Model& m, const Contig& contig, int64_t begin, int64_t n,
-                    uint8_t* bases, double* emission, const std::vector<double>* fast_table) {
+double fill_emissions(const Model& m, const Contig& contig, int64_t begin, int64_t n,
+                      uint8_t* bases, double* emission, const std::vector<double>* fast_table) {
+    if (m.window > 0) return fill_window_emissions(m, contig, begin, n, bases, emission);
     const int S = m.states;
     const int K = m.max_order;
     const uint32_t mask = (1u << (2 * K)) - 1;
@@ -244,6 +247,7 @@ void fill_emissions(const Model& m, const Contig& contig, int64_t begin, int64_t
         }
         roll(b);
     }
+    return 0;
 }
 
 namespace {
@@ -388,6 +392,8 @@ PosteriorDecoder::PosteriorDecoder(const Model& model, DecoderOptions options)
 }
 
 DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink, TaskPool* pool) {
+    // Window models have few positions (one per window) and no emission table: the generic path.
+    if (model_.window > 0) return run_fixed<0>(contig, sink);
     if (splits(contig.length) && sink.fork()) {
         switch (model_.states) {
             case 1: return run_segmented<1>(contig, sink, pool);
@@ -415,7 +421,7 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     const Model& m = model_;
     const int S = Fixed > 0 ? Fixed : m.states;
     const bool sparse = use_sparse(m);
-    const int64_t N = contig.length;
+    const int64_t N = m.positions(contig.length);
     DecodeResult result;
     sink.begin_contig(contig);
     if (N == 0) {
@@ -455,18 +461,17 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     const auto fill_rows = [this, &m, &contig, &layout](int64_t start, int64_t n) {
         fill_rows_of(m, contig, layout, start, n, bases_.data(), rows_.data());
     };
-    // Emissions of the block (for the generic recursions and for the sinks).
-    const auto fill_block = [&](int64_t start, int64_t n) {
-        if (!table) {
-            fill_emissions(m, contig, start, n, bases_.data(), emission_.data());
-            return;
-        }
+    // Emissions of the block (for the generic recursions and for the sinks); returns the natural
+    // log of the factors divided out of window emissions (0 for per-base models).
+    const auto fill_block = [&](int64_t start, int64_t n) -> double {
+        if (!table) return fill_emissions(m, contig, start, n, bases_.data(), emission_.data());
         fill_rows(start, n);
         double* out = emission_.data();
         for (int64_t t = 0; t < n; ++t, out += S) {
             const double* src = table + static_cast<size_t>(rows_[t]) * S;
             for (int s = 0; s < S; ++s) out[s] = src[s];
         }
+        return 0.0;
     };
     // out = F_row v (backward step), and out = v F_row (forward step); sums in index order.
     const auto folded_back = [&](uint32_t row, const double* v, double* out) {
@@ -537,10 +542,11 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     // interleaving them lets the processor overlap their latencies.
     int64_t exponent = 0;
     double last_sum = 0;
+    double emission_scale = 0;  // natural log, window models only
     for (int64_t k = 0; k < blocks; ++k) {
         const int64_t start = k * B;
         const int64_t n = std::min(B, N - start);
-        fill_block(start, n);
+        emission_scale += fill_block(start, n);
         double* bw = backward_.data();
         double* fw = forward_.data();
         const double* em = emission_.data();
@@ -602,10 +608,11 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
         view.backward = bw;
         view.emission = em;
         view.forward_before = k == 0 ? nullptr : before_.data();
+        view.window = m.window;
         sink.block(view);
         copy_vec(fw + (n - 1) * S, S, before_.data());
     }
-    result.log_likelihood = std::log(last_sum) + static_cast<double>(exponent) * ln2;
+    result.log_likelihood = std::log(last_sum) + static_cast<double>(exponent) * ln2 + emission_scale;
     sink.end_contig(contig, result);
     return result;
 }
@@ -1121,7 +1128,7 @@ ViterbiDecoder::ViterbiDecoder(const Model& model, DecoderOptions options)
 DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
     const Model& m = model_;
     const int S = m.states;
-    const int64_t N = contig.length;
+    const int64_t N = m.positions(contig.length);
     DecodeResult result;
     sink.begin_contig(contig);
     if (N == 0) {
@@ -1147,13 +1154,15 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
     std::vector<double> prev(S), cur(S);
     std::vector<int32_t> pointers(static_cast<size_t>(B) * S);
     double offset = 0;  // sum of the maxima removed at block ends (keeps scores near 0)
+    double emission_scale = 0;  // window models: natural log of the factors divided out of emissions
 
     // Runs the recursion over block k from `prev` (the normalised scores at the end of block
     // k-1); records back-pointers when asked; leaves the normalised scores in `prev`.
     const auto run_block = [&](int64_t k, bool record) {
         const int64_t start = k * B;
         const int64_t n = std::min(B, N - start);
-        fill_emissions(m, contig, start, n, bases.data(), emission.data(), &fast_emission_);
+        const double removed = fill_emissions(m, contig, start, n, bases.data(), emission.data(), &fast_emission_);
+        if (!record) emission_scale += removed;
         for (int64_t t = 0; t < n; ++t) {
             const int64_t pos = start + t;
             const double* e = emission.data() + t * S;
@@ -1197,7 +1206,7 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
         offset += top;
         std::copy(prev.begin(), prev.end(), checkpoints.begin() + k * S);
     }
-    result.log_likelihood = offset;
+    result.log_likelihood = offset + emission_scale;
 
     // Trace back block by block from the end; the path is kept as runs of one state.
     struct Run {
@@ -1226,7 +1235,10 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
     for (int64_t k = 0; k < blocks; ++k) {
         const int64_t start = k * B;
         const int64_t n = std::min(B, N - start);
-        contig.unpack(start, n, bases.data());
+        if (m.window > 0)
+            fill_emissions(m, contig, start, n, bases.data(), emission.data());  // window flags
+        else
+            contig.unpack(start, n, bases.data());
         std::fill(indicator.begin(), indicator.end(), 0.0);
         for (int64_t t = 0; t < n; ++t) {
             while (r + 1 < runs.size() && runs[r + 1].begin <= start + t) ++r;
@@ -1238,6 +1250,7 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
         view.states = S;
         view.bases = bases.data();
         view.posterior = indicator.data();
+        view.window = m.window;
         sink.block(view);
     }
     sink.end_contig(contig, result);

@@ -118,6 +118,11 @@ void check_ties(const Profile& p, const Validator& v) {
                 v.fail(where + ".tie", fmt::format("tie group '{}' joins states of order {} ('{}') "
                                                    "and {}; tied states need the same order",
                                                    a.tie, b.order, b.name, a.order));
+            if (std::abs(a.gc.mean - b.gc.mean) > tie_tolerance ||
+                std::abs(a.gc.dispersion - b.gc.dispersion) > tie_tolerance)
+                v.fail(where + ".tie", fmt::format("tie group '{}': gc differs from '{}'; tied states must "
+                                                   "carry identical emissions",
+                                                   a.tie, b.name));
             for (size_t r = 0; r < a.emissions.size(); ++r)
                 for (int c = 0; c < 4; ++c)
                     if (std::abs(a.emissions[r][c] - b.emissions[r][c]) > tie_tolerance)
@@ -137,7 +142,7 @@ void check_chains(const Profile& p, const Validator& v) {
     for (size_t i = 0; i < p.states.size(); ++i) {
         const StateSpec& s = p.states[i];
         const RegionSpec& r = p.regions[s.region];
-        compiled += r.min_length;
+        compiled += p.chain_length(s.region);
         if (r.min_length <= 1) continue;
         double stay = 0;
         for (size_t j = 0; j < p.states.size(); ++j)
@@ -167,6 +172,11 @@ std::string read_file(const std::string& path) {
 
 }  // namespace
 
+int64_t Profile::chain_length(int r) const {
+    const int64_t bases = regions.at(r).min_length;
+    return window_size > 0 ? (bases + window_size - 1) / window_size : bases;
+}
+
 int Profile::state_index(std::string_view state) const {
     for (size_t i = 0; i < states.size(); ++i)
         if (states[i].name == state) return static_cast<int>(i);
@@ -189,7 +199,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     }
     v.only_fields(doc, "top level",
                   {"format", "name", "description", "sources", "regions", "states", "initial",
-                   "transitions", "calling", "provenance"});
+                   "transitions", "calling", "provenance", "window"});
     Profile p;
     const std::string format = v.string_field(doc, "format", "top level");
     if (format != profile_format)
@@ -209,6 +219,13 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     if (doc.contains("provenance")) {
         if (!doc["provenance"].is_object()) v.fail("provenance", "must be a JSON object");
         p.provenance_json = doc["provenance"].dump();
+    }
+
+    if (doc.contains("window")) {
+        const json& w = doc["window"];
+        v.only_fields(w, "window", {"size"});
+        p.window_size = v.nonnegative_integer(v.field(w, "size", "window"), "window.size");
+        if (p.window_size < 1) v.fail("window.size", "must be at least 1 base");
     }
 
     const json& regions = v.field(doc, "regions", "top level");
@@ -235,10 +252,11 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         }
         if (regions[i].contains("min_length")) {
             r.min_length = v.nonnegative_integer(regions[i]["min_length"], where + ".min_length");
-            if (r.min_length < 1 || r.min_length > max_compiled_states)
+            const int64_t unit = std::max<int64_t>(1, p.window_size);
+            if (r.min_length < 1 || r.min_length > max_compiled_states * unit)
                 v.fail(where + ".min_length",
-                       fmt::format("must be from 1 to {} (each base of the minimum is one "
-                                   "compiled state)", max_compiled_states));
+                       fmt::format("must be from 1 to {} (each {} of the minimum is one compiled state)",
+                                   max_compiled_states * unit, p.window_size > 0 ? "window" : "base"));
         }
         p.regions.push_back(std::move(r));
     }
@@ -249,8 +267,10 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     if (!states.is_array() || states.empty()) v.fail("states", "must be a non-empty array");
     for (size_t i = 0; i < states.size(); ++i) {
         std::string where = fmt::format("states[{}]", i);
-        v.only_fields(states[i], where,
-                      {"name", "region", "order", "emissions", "description", "tie"});
+        if (p.window_size > 0)
+            v.only_fields(states[i], where, {"name", "region", "gc", "description", "tie"});
+        else
+            v.only_fields(states[i], where, {"name", "region", "order", "emissions", "description", "tie"});
         StateSpec s;
         s.name = v.string_field(states[i], "name", where);
         if (s.name.empty()) v.fail(where + ".name", "must not be empty");
@@ -259,6 +279,20 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         const std::string region = v.string_field(states[i], "region", where);
         s.region = p.region_index(region);
         if (s.region < 0) v.fail(where + ".region", "names unknown region '" + region + "'");
+        if (p.window_size > 0) {
+            const json& gc = v.field(states[i], "gc", where);
+            v.only_fields(gc, where + ".gc", {"mean", "dispersion"});
+            const auto open_unit = [&](const char* key) {
+                const json& x = v.field(gc, key, where + ".gc");
+                const std::string at = where + ".gc." + key;
+                if (!x.is_number()) v.fail(at, "must be a number");
+                const double value = x.get<double>();
+                if (!(value > 0 && value < 1)) v.fail(at, fmt::format("must lie strictly between 0 and 1, not {}", value));
+                return value;
+            };
+            s.gc.mean = open_unit("mean");
+            s.gc.dispersion = open_unit("dispersion");
+        } else {
         const json& order = v.field(states[i], "order", where);
         if (!order.is_number_integer() || order.get<int64_t>() < 0 ||
             order.get<int64_t>() > max_emission_order)
@@ -283,6 +317,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
             }
             v.sums_to_one(sum, rw);
             s.emissions.push_back(row);
+        }
         }
         if (states[i].contains("tie")) {
             s.tie = v.string_field(states[i], "tie", where);
@@ -350,6 +385,7 @@ std::string to_json(const Profile& p) {
     doc["name"] = p.name;
     if (!p.description.empty()) doc["description"] = p.description;
     doc["sources"] = p.sources;
+    if (p.window_size > 0) doc["window"] = {{"size", p.window_size}};
     doc["regions"] = ordered_json::array();
     for (const auto& r : p.regions) {
         ordered_json o;
@@ -365,6 +401,12 @@ std::string to_json(const Profile& p) {
         ordered_json o;
         o["name"] = s.name;
         o["region"] = p.regions[s.region].name;
+        if (p.window_size > 0) {
+            if (!s.tie.empty()) o["tie"] = s.tie;
+            o["gc"] = {{"mean", s.gc.mean}, {"dispersion", s.gc.dispersion}};
+            doc["states"].push_back(o);
+            continue;
+        }
         o["order"] = s.order;
         if (!s.tie.empty()) o["tie"] = s.tie;
         o["emissions"] = s.emissions;
@@ -423,7 +465,7 @@ Model compile(const Profile& p) {
     // state, the copies of one state consecutive.
     std::vector<int> first(P + 1, 0);
     for (int s = 0; s < P; ++s)
-        first[s + 1] = first[s] + static_cast<int>(p.regions[p.states[s].region].min_length);
+        first[s + 1] = first[s] + static_cast<int>(p.chain_length(p.states[s].region));
     const int S = first[P];
     m.states = S;
     m.transitions.assign(static_cast<size_t>(S) * S, 0.0);
@@ -441,6 +483,7 @@ Model compile(const Profile& p) {
         tables.insert(tables.end(), mean.begin(), mean.end());
     }
     m.emission = std::move(tables);
+    m.window = p.window_size;
     for (int s = 0; s < P; ++s) {
         const StateSpec& st = p.states[s];
         const int L = first[s + 1] - first[s];
@@ -457,6 +500,13 @@ Model compile(const Profile& p) {
             m.chain_copy.push_back(c);
             m.chain_length.push_back(L);
             m.emission_offset.push_back(table_offset[s]);
+            if (p.window_size > 0) {
+                const double total = 1.0 / st.gc.dispersion - 1.0;
+                const double a = st.gc.mean * total, b = (1.0 - st.gc.mean) * total;
+                m.gc_alpha.push_back(a);
+                m.gc_beta.push_back(b);
+                m.gc_lbeta.push_back(std::lgamma(a) + std::lgamma(b) - std::lgamma(a + b));
+            }
             double* row = m.transitions.data() + static_cast<size_t>(from) * S;
             for (int u = 0; u < P; ++u) {
                 const double a = p.transitions[s][u];

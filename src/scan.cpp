@@ -12,6 +12,7 @@
 #include "tidemark/error.hpp"
 #include "tidemark/intervals.hpp"
 #include "tidemark/output.hpp"
+#include "tidemark/window.hpp"
 #include "thread_pool.hpp"
 
 namespace tidemark {
@@ -88,7 +89,12 @@ namespace {
 struct Decoder {
     std::unique_ptr<PosteriorDecoder> posterior;
     std::unique_ptr<ViterbiDecoder> viterbi;
+    const Model* window_model = nullptr;  ///< set for window models: sinks then see bases
     DecodeResult run(const Contig& c, DecodeSink& sink, TaskPool* pool = nullptr) {
+        if (window_model) {
+            WindowExpander bases(*window_model, sink);
+            return posterior ? posterior->run(c, bases, pool) : viterbi->run(c, bases);
+        }
         return posterior ? posterior->run(c, sink, pool) : viterbi->run(c, sink);
     }
     bool splits(int64_t length) const { return posterior && posterior->splits(length); }
@@ -195,7 +201,10 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     const Stopwatch clock;
     validate(o);
     const Profile profile = load_profile(o.profile);
-    const Model model = compile(profile);
+    const Model decoding_model = compile(profile);
+    // Window models decode one position per window; calls, tracks and totals see their
+    // posteriors base by base, one state per region (window.hpp).
+    const Model model = decoding_model.window > 0 ? region_view(decoding_model) : decoding_model;
 
     CallOptions call_options;
     call_options.min_posterior = o.min_posterior.value_or(profile.calling.min_posterior);
@@ -205,7 +214,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     call_options.criteria = o.criteria;
     log.detail(fmt::format("profile {}: {} states, {} regions, max order {}; calling: min posterior {}, "
                            "merge gap {}, min length {}",
-                           model.name, model.states, model.region_names.size(), model.max_order,
+                           model.name, decoding_model.states, model.region_names.size(), decoding_model.max_order,
                            call_options.min_posterior, call_options.merge_gap, call_options.min_length));
 
     DecoderOptions decoder_options;
@@ -226,9 +235,10 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     std::vector<Decoder> decoders(static_cast<size_t>(threads));
     for (auto& d : decoders) {
         if (o.decode == DecodeMode::posterior)
-            d.posterior = std::make_unique<PosteriorDecoder>(model, decoder_options);
+            d.posterior = std::make_unique<PosteriorDecoder>(decoding_model, decoder_options);
         else
-            d.viterbi = std::make_unique<ViterbiDecoder>(model, decoder_options);
+            d.viterbi = std::make_unique<ViterbiDecoder>(decoding_model, decoder_options);
+        if (decoding_model.window > 0) d.window_model = &decoding_model;
     }
     const int64_t segment_length =
         decoders[0].posterior && !o.whole_contigs ? decoders[0].posterior->segment_length() : 0;

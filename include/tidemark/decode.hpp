@@ -29,6 +29,9 @@ struct BlockView {
     const double* backward = nullptr;  ///< scaled backward vectors (each row has its own scale)
     const double* emission = nullptr;  ///< emission probability of the base at t in each state
     const double* forward_before = nullptr;  ///< scaled forward at begin-1; nullptr at begin 0
+    /// Window models: bases per position (positions are windows, begin and size count windows,
+    /// bases[t] is 0 for a window with known bases and base_unknown otherwise); 0 = per base.
+    int64_t window = 0;
 };
 
 struct DecodeResult {
@@ -199,7 +202,9 @@ private:
 
 /// Emission probabilities of bases [begin, begin+n) in every state (row-major n x S) and the
 /// base codes; the contexts look back before begin as needed. Exposed for tests and training.
-void fill_emissions(const Model& model, const Contig& contig, int64_t begin, int64_t n,
+/// Window models: positions are windows, rows are scaled (fill_window_emissions) and the return
+/// value is the natural log of the factors divided out; 0 for per-base models.
+double fill_emissions(const Model& model, const Contig& contig, int64_t begin, int64_t n,
                     uint8_t* bases, double* emission, const std::vector<double>* fast_table = nullptr);
 
 /// The combined table used by fill_emissions for positions with a full context (empty when

@@ -22,7 +22,8 @@ struct RegionSpec {
     bool report = false;      ///< calls and tracks are made for reportable regions only
     std::string description;  ///< optional free text
     std::string color;        ///< optional "R,G,B" for browser tracks ("" = tidemark's palette)
-    /// Shortest possible segment (a maximal run of this region's states), in bases. L > 1 is
+    /// Shortest possible segment (a maximal run of this region's states), in bases (window
+    /// profiles: rounded up to whole windows, L = ceil(min_length / window size)). L > 1 is
     /// compiled into a chain of L copies of each of the region's states: copies 1..L-1 can only
     /// step to the next copy (of any state of the region, with the in-region transitions
     /// renormalised), copy L has the state's own transitions, so after the chain the length is
@@ -30,13 +31,27 @@ struct RegionSpec {
     int64_t min_length = 1;
 };
 
-/// A hidden state with an order-k context model: emissions[ctx][base] = P(base | k preceding
-/// bases), ctx indexing the k preceding bases with A<C<G<T and the oldest most significant.
+/// Window-level emission of a state (profiles with a window size): the G+C count k of a window's
+/// n known bases is beta-binomial with mean `mean` and intra-window correlation `dispersion`
+/// (rho): alpha = mean (1/rho - 1), beta = (1 - mean)(1/rho - 1), so the variance of the window's
+/// GC fraction is mean (1 - mean) (1/n + rho (n-1)/n). rho -> 0 is the binomial (a homogeneous
+/// source); larger rho lets a domain's windows scatter around its mean, which bounds the evidence
+/// one window carries however many bases it has.
+struct WindowGC {
+    double mean = 0.5;        ///< in (0, 1)
+    double dispersion = 0.01;  ///< rho, in (0, 1)
+};
+
+/// A hidden state. Per-base profiles: an order-k context model, emissions[ctx][base] =
+/// P(base | k preceding bases), ctx indexing the k preceding bases with A<C<G<T and the oldest
+/// most significant. Window profiles (Profile::window_size > 0): a WindowGC distribution; order
+/// is 0 and emissions is empty.
 struct StateSpec {
     std::string name;
     int region = 0;  ///< index into Profile::regions
     int order = 0;   ///< 0..max_emission_order
     std::vector<std::array<double, 4>> emissions;  ///< 4^order rows, each summing to 1
+    WindowGC gc;     ///< window profiles only
     /// Tie group: states that name the same non-empty group share one emission table (same
     /// order, identical rows), and training estimates it from their pooled counts.
     std::string tie;
@@ -60,7 +75,13 @@ struct Profile {
     std::vector<std::vector<double>> transitions;  ///< [from][to], each row sums to 1
     CallingDefaults calling;
     std::string provenance_json;  ///< optional free-form object kept verbatim ("" when absent)
+    /// Window profiles: bases per window (the sequence is cut into windows of this size from each
+    /// contig's start; the last may be shorter). 0 = per-base emissions.
+    int64_t window_size = 0;
 
+    bool windowed() const { return window_size > 0; }
+    /// Compiled chain length of region r: min_length in bases, or in whole windows.
+    int64_t chain_length(int r) const;
     int state_index(std::string_view state) const;    ///< -1 when absent
     int region_index(std::string_view region) const;  ///< -1 when absent
 };
@@ -95,6 +116,11 @@ Profile load_profile(const std::string& name_or_path);
 struct Model {
     int states = 0;
     int max_order = 0;
+    /// Window profiles: bases per decoding position (positions are windows); 0 = per base.
+    int64_t window = 0;
+    /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
+    /// lbeta(alpha, beta) (the normaliser, precomputed).
+    std::vector<double> gc_alpha, gc_beta, gc_lbeta;
     std::string name;
     std::vector<std::string> state_names;  ///< chain copies are named "state[c/L]"
     std::vector<std::string> region_names;
@@ -121,6 +147,11 @@ struct Model {
     /// the table of the profile state they copy.
     std::vector<size_t> emission_offset;
     std::vector<double> emission;
+
+    /// Decoding positions of a contig of this many bases (windows, or bases).
+    int64_t positions(int64_t length) const { return window > 0 ? (length + window - 1) / window : length; }
+    /// First base of decoding position pos.
+    int64_t position_start(int64_t pos) const { return window > 0 ? pos * window : pos; }
 
     /// P(base | context) for state s; valid = number of consecutive known bases before the
     /// position, ctx = rolling code of the preceding bases (newest in the low 2 bits).

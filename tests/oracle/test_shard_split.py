@@ -13,6 +13,11 @@ import numpy as np
 
 import tmtest
 
+# The per-base isochore model that was built in before window profiles: a 5-state model whose
+# long records split into segments (window profiles never split).
+ISOCHORE_PER_BASE = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "data", "profiles",
+                                 "isochore-per-base.json")
+
 SINGLE = "single run of the same command (merged shards must equal it byte for byte)"
 PYTHON = "Python reading of the FASTA"
 RULE = "piece rule of plan_shards re-implemented in Python (shard.hpp)"
@@ -169,7 +174,7 @@ def body(checks, binary, work):
     # 3. A profile of several states per region type, binned tracks (segments end on bins).
     bin_segment = 65600  # 65536 rounded up to a multiple of --bin 100
     shards = scenario(checks, binary, work, "isochore", fasta, 4,
-                      ["-p", "isochore", "--block", "4096", "--bin", "100", "--posterior-digits", "2"], None)
+                      ["-p", ISOCHORE_PER_BASE, "--block", "4096", "--bin", "100", "--posterior-digits", "2"], None)
     check_plan(checks, "isochore", shards, lengths, 4, bin_segment)
 
     # 4. Regions of the indexed file.
@@ -230,7 +235,7 @@ def body(checks, binary, work):
                  "failed runs leave no output file", "documented error contract")
     merged = os.path.join(cpg, "merged")
     fails(checks, binary, merged, ["merge", "--shard-summaries", "../s1/summary.json", "../s2/summary.json",
-                                   "../s3/summary.json", "-p", "isochore", "--summary", "z.json"], 1,
+                                   "../s3/summary.json", "-p", ISOCHORE_PER_BASE, "--summary", "z.json"], 1,
           "not the one the shards used", "merge refuses a profile other than the shards'")
     s2 = tmtest.read_json(os.path.join(cpg, "s2", "summary.json"))
     s2["shard"]["shared"] = s2["shard"]["shared"][:-1]

@@ -1,0 +1,60 @@
+// Window-level emissions: the beta-binomial G+C count of fixed windows (profiles with a window
+// size), and the adapter that maps window posteriors onto bases for the base-level sinks.
+#pragma once
+
+#include <cstdint>
+#include <memory>
+#include <vector>
+
+#include "tidemark/decode.hpp"
+#include "tidemark/profile.hpp"
+#include "tidemark/sequence.hpp"
+
+namespace tidemark {
+
+/// What a window holds: its G+C count and its known (A, C, G, T) bases.
+struct WindowCount {
+    int64_t gc = 0;
+    int64_t known = 0;
+};
+
+/// Counts of window `pos` of a contig under a window model (bases [pos w, min((pos+1) w, L))).
+WindowCount window_count(const Model& model, const Contig& contig, int64_t pos);
+
+/// Natural log of the beta-binomial probability of k G+C among n known bases in compiled state s
+/// (with the binomial coefficient, so it is a distribution over k). n = 0 gives 0 (probability 1).
+double window_log_probability(const Model& model, int s, int64_t k, int64_t n);
+
+/// Emission rows of windows [first, first+count) (row-major count x S), each divided by its
+/// largest entry so that none underflows; known[t] is 0 for a window with known bases and
+/// base_unknown for an all-unknown one (whose row is all ones). Returns the natural log of the
+/// factors divided out (add it to the log-likelihood).
+double fill_window_emissions(const Model& model, const Contig& contig, int64_t first, int64_t count,
+                             uint8_t* known, double* emission);
+
+/// The model that base-level sinks see for a window model: one state per region (the region's
+/// posterior), with the window model's names, colours and report flags.
+Model region_view(const Model& model);
+
+/// Receives a window model's blocks (one position per window) and hands the base-level sink the
+/// same posteriors base by base, summed per region (the sink is built on region_view(model)):
+/// calls, tracks and summaries then work on windows unchanged. Forkable when the sink is.
+class WindowExpander final : public DecodeSink {
+public:
+    WindowExpander(const Model& window_model, DecodeSink& base_sink);
+    void begin_contig(const Contig& contig) override;
+    void block(const BlockView& view) override;
+    void end_contig(const Contig& contig, const DecodeResult& result) override;
+    std::unique_ptr<DecodeSink> fork() const override;
+    void join(DecodeSink& later) override;
+
+private:
+    const Model& model_;
+    DecodeSink& sink_;
+    std::unique_ptr<DecodeSink> owned_;  ///< a fork's own sink
+    const Contig* contig_ = nullptr;
+    std::vector<uint8_t> bases_;
+    std::vector<double> posterior_;
+};
+
+}  // namespace tidemark

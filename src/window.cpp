@@ -1,0 +1,145 @@
+// Window-level emissions (beta-binomial G+C counts) and the window-to-base adapter.
+#include "tidemark/window.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+#include "tidemark/error.hpp"
+
+namespace tidemark {
+namespace {
+
+// Bases handed to the base-level sink per block: bounds the adapter's buffers whatever the
+// window size.
+constexpr int64_t expand_block = int64_t{1} << 16;
+
+double log_choose(int64_t n, int64_t k) {
+    return std::lgamma(static_cast<double>(n) + 1) - std::lgamma(static_cast<double>(k) + 1) -
+           std::lgamma(static_cast<double>(n - k) + 1);
+}
+
+}  // namespace
+
+WindowCount window_count(const Model& m, const Contig& contig, int64_t pos) {
+    const int64_t begin = pos * m.window;
+    const int64_t end = std::min(contig.length, begin + m.window);
+    const Composition c = composition(contig, begin, end);
+    return {c.c + c.g, c.known()};
+}
+
+double window_log_probability(const Model& m, int s, int64_t k, int64_t n) {
+    if (n == 0) return 0;
+    const double a = m.gc_alpha[s], b = m.gc_beta[s];
+    // log B(k + a, n - k + b) - log B(a, b), the beta-binomial's kernel.
+    const double kernel = std::lgamma(static_cast<double>(k) + a) + std::lgamma(static_cast<double>(n - k) + b) -
+                          std::lgamma(static_cast<double>(n) + a + b) - m.gc_lbeta[s];
+    return log_choose(n, k) + kernel;
+}
+
+double fill_window_emissions(const Model& m, const Contig& contig, int64_t first, int64_t count,
+                             uint8_t* known, double* emission) {
+    const int S = m.states;
+    double removed = 0;
+    std::vector<double> logs(S);
+    for (int64_t t = 0; t < count; ++t) {
+        const WindowCount w = window_count(m, contig, first + t);
+        double* row = emission + t * S;
+        known[t] = w.known > 0 ? 0 : base_unknown;
+        if (w.known == 0) {
+            std::fill(row, row + S, 1.0);
+            continue;
+        }
+        // Chain copies share their profile state's distribution: compute each distinct one once.
+        double top = -INFINITY;
+        for (int s = 0; s < S; ++s) {
+            logs[s] = (s > 0 && m.profile_state[s] == m.profile_state[s - 1]) ? logs[s - 1]
+                                                                               : window_log_probability(m, s, w.gc, w.known);
+            top = std::max(top, logs[s]);
+        }
+        for (int s = 0; s < S; ++s) row[s] = std::exp(logs[s] - top);
+        removed += top;
+    }
+    return removed;
+}
+
+Model region_view(const Model& m) {
+    Model v;
+    const int R = static_cast<int>(m.region_names.size());
+    v.states = R;
+    v.name = m.name;
+    v.region_names = m.region_names;
+    v.region_report = m.region_report;
+    v.region_colors = m.region_colors;
+    for (int r = 0; r < R; ++r) {
+        v.state_names.push_back(m.region_names[r]);
+        v.region_of_state.push_back(r);
+        v.order_of_state.push_back(0);
+        v.profile_state.push_back(r);
+        v.chain_copy.push_back(1);
+        v.chain_length.push_back(1);
+    }
+    return v;
+}
+
+WindowExpander::WindowExpander(const Model& window_model, DecodeSink& base_sink)
+    : model_(window_model), sink_(base_sink) {
+    if (window_model.window <= 0) throw InternalError("WindowExpander needs a window model");
+}
+
+void WindowExpander::begin_contig(const Contig& contig) {
+    contig_ = &contig;
+    sink_.begin_contig(contig);
+}
+
+void WindowExpander::block(const BlockView& view) {
+    if (!contig_) throw InternalError("WindowExpander: block before begin_contig");
+    const int S = view.states;
+    const int R = static_cast<int>(model_.region_names.size());
+    const int64_t w = model_.window;
+    const int64_t first_base = view.begin * w;
+    const int64_t end_base = std::min(contig_->length, (view.begin + view.size) * w);
+    std::vector<double> region(R);
+    for (int64_t start = first_base; start < end_base; start += expand_block) {
+        const int64_t n = std::min(expand_block, end_base - start);
+        bases_.resize(n);
+        posterior_.resize(static_cast<size_t>(n) * R);
+        contig_->unpack(start, n, bases_.data());
+        int64_t t = 0;
+        while (t < n) {
+            const int64_t pos = (start + t) / w;  // the window of base start + t
+            const double* p = view.posterior + (pos - view.begin) * S;
+            std::fill(region.begin(), region.end(), 0.0);
+            for (int s = 0; s < S; ++s) region[model_.region_of_state[s]] += p[s];
+            const int64_t run_end = std::min(n, (pos + 1) * w - start);
+            for (; t < run_end; ++t) std::copy(region.begin(), region.end(), posterior_.begin() + t * R);
+        }
+        BlockView out;
+        out.begin = start;
+        out.size = n;
+        out.states = R;
+        out.bases = bases_.data();
+        out.posterior = posterior_.data();
+        sink_.block(out);
+    }
+}
+
+void WindowExpander::end_contig(const Contig& contig, const DecodeResult& result) {
+    sink_.end_contig(contig, result);
+    contig_ = nullptr;
+}
+
+std::unique_ptr<DecodeSink> WindowExpander::fork() const {
+    auto inner = sink_.fork();
+    if (!inner) return nullptr;
+    auto out = std::make_unique<WindowExpander>(model_, *inner);
+    out->owned_ = std::move(inner);
+    return out;
+}
+
+void WindowExpander::join(DecodeSink& later) {
+    auto* other = dynamic_cast<WindowExpander*>(&later);
+    if (!other) throw InternalError("WindowExpander::join: not a fork of this adapter");
+    sink_.join(other->sink_);
+}
+
+}  // namespace tidemark
