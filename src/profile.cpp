@@ -199,7 +199,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     }
     v.only_fields(doc, "top level",
                   {"format", "name", "description", "sources", "regions", "states", "initial",
-                   "transitions", "calling", "provenance", "window"});
+                   "transitions", "calling", "provenance", "window", "template"});
     Profile p;
     const std::string format = v.string_field(doc, "format", "top level");
     if (format != profile_format)
@@ -221,6 +221,10 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         p.provenance_json = doc["provenance"].dump();
     }
 
+    if (doc.contains("template")) {
+        if (!doc["template"].is_boolean()) v.fail("template", "must be true or false");
+        p.is_template = doc["template"].get<bool>();
+    }
     if (doc.contains("window")) {
         const json& w = doc["window"];
         v.only_fields(w, "window", {"size"});
@@ -385,6 +389,7 @@ std::string to_json(const Profile& p) {
     doc["name"] = p.name;
     if (!p.description.empty()) doc["description"] = p.description;
     doc["sources"] = p.sources;
+    if (p.is_template) doc["template"] = true;
     if (p.window_size > 0) doc["window"] = {{"size", p.window_size}};
     doc["regions"] = ordered_json::array();
     for (const auto& r : p.regions) {

@@ -105,6 +105,7 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
         bool in_gap = false;
         uint32_t ctx = 0;
         int64_t valid = 0;  // consecutive known bases before the position, as in the decoder
+        double urn_gc = 0, urn_known = 0;  // window models: G+C and known bases drawn in the window
         for (int64_t start = 0; start < length; start += block_positions) {
             const int64_t n = std::min(block_positions, length - start);
             for (int64_t t = 0; t < n; ++t) {
@@ -117,6 +118,8 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
                 }
                 if (state < 0) {
                     state = detail::sample_categorical(tables.initial.data(), m.states, rng.next53());
+                } else if (m.window > 0 && (start + t) % m.window != 0) {
+                    // window models move once per window
                 } else {
                     const int b = m.out_begin[state];
                     const int k = detail::sample_categorical(tables.transition.data() + b,
@@ -124,10 +127,26 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
                     state = m.out_to[b + k];
                 }
                 states[t] = state;
+                if (m.window > 0 && (start + t) % m.window == 0) urn_gc = urn_known = 0;
                 if (in_gap) {
                     bases[t] = base_unknown;
                     ctx = 0;
                     valid = 0;
+                    continue;
+                }
+                if (m.window > 0) {
+                    // Polya's urn: the next known base is G or C with probability
+                    // (alpha + gc so far) / (alpha + beta + known so far), which makes the window's
+                    // G+C count beta-binomial (Johnson, Kemp & Kotz 2005, Univariate Discrete
+                    // Distributions, 3rd ed., section 6.2.2, from memory); C or G (A or T) with
+                    // probability 1/2 each. IEEE division is exact to the last bit everywhere, so
+                    // the draws stay reproducible.
+                    const double p_gc = (m.gc_alpha[state] + urn_gc) / (m.gc_alpha[state] + m.gc_beta[state] + urn_known);
+                    const bool gc = rng.next53() < probability_threshold(p_gc);
+                    const bool second = (rng.next53() >> 52) != 0;
+                    bases[t] = gc ? (second ? base_g : base_c) : (second ? base_t : base_a);
+                    urn_gc += gc ? 1 : 0;
+                    urn_known += 1;
                     continue;
                 }
                 const int order = m.order_of_state[state];

@@ -110,7 +110,14 @@ Profile perturb(const Profile& start, const FreezeMask& freeze, uint64_t seed, i
                 }
         if (leader != s) {
             p.states[s].emissions = p.states[leader].emissions;
+            p.states[s].gc = p.states[leader].gc;
             continue;
+        }
+        if (p.windowed()) {  // mean on the logit scale, dispersion on the log scale
+            WindowGC& gc = p.states[s].gc;
+            const double logit = std::log(gc.mean / (1 - gc.mean)) + amount * (2 * rng.uniform() - 1);
+            gc.mean = 1 / (1 + std::exp(-logit));
+            gc.dispersion = std::clamp(gc.dispersion * std::exp(amount * (2 * rng.uniform() - 1)), 1e-9, 0.5);
         }
         for (auto& row : p.states[s].emissions) jitter(row.begin(), row.end(), rng, amount);
     }

@@ -10,6 +10,7 @@
 
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
+#include "tidemark/window.hpp"
 #include "thread_pool.hpp"
 
 namespace tidemark {
@@ -34,6 +35,7 @@ void TrainingCounts::add(const TrainingCounts& o) {
         for (size_t r = 0; r < emissions[i].size(); ++r)
             for (int b = 0; b < 4; ++b) emissions[i][r][b] += o.emissions[i][r][b];
     }
+    windows.insert(windows.end(), o.windows.begin(), o.windows.end());
     log_likelihood += o.log_likelihood;
     positions += o.positions;
     known += o.known;
@@ -122,6 +124,25 @@ void CountAccumulator::add_transitions(const BlockView& v) {
     for (size_t k = 0; k < edge_.size(); ++k) edge_[k] += part[k];
 }
 
+void CountAccumulator::add_window_emissions(const BlockView& v) {
+    const Model& m = model_;
+    const int S = v.states;
+    const size_t P = profile_.states.size();
+    for (int64_t t = 0; t < v.size; ++t) {
+        const double* post = v.posterior + t * S;
+        if (v.begin + t == 0)
+            for (int s = 0; s < S; ++s) counts_.initial[m.profile_state[s]] += post[s];
+        const WindowCount w = window_count(m, *contig_, v.begin + t);
+        if (w.known == 0) continue;
+        WindowTally tally{w.gc, w.known, std::vector<double>(P, 0.0)};
+        for (int s = 0; s < S; ++s) tally.weight[m.profile_state[s]] += post[s];
+        counts_.known += w.known;
+        counts_.windows.push_back(std::move(tally));
+    }
+    const int64_t first = v.begin * m.window;
+    counts_.positions += std::min(contig_->length, (v.begin + v.size) * m.window) - first;
+}
+
 void CountAccumulator::add_emissions(const BlockView& v) {
     const Model& m = model_;
     const int S = v.states;
@@ -198,6 +219,10 @@ void CountAccumulator::block(const BlockView& v) {
         case 5: add_transitions<5>(v); break;
         case 6: add_transitions<6>(v); break;
         default: add_transitions<0>(v); break;
+    }
+    if (v.window > 0) {
+        add_window_emissions(v);
+        return;
     }
     add_emissions(v);
     counts_.positions += v.size;

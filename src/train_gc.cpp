@@ -11,6 +11,7 @@ namespace tidemark {
 
 double state_gc(const StateSpec& s) {
     const size_t rows = s.emissions.size();
+    if (rows == 0) return s.gc.mean;  // a window state
     if (rows == 1) return s.emissions[0][base_c] + s.emissions[0][base_g];
     // Stationary distribution over contexts by power iteration on the lazy chain (I + P) / 2,
     // which has the same stationary vector and cannot oscillate.

@@ -12,6 +12,27 @@
 #include "tidemark/train.hpp"
 
 namespace tidemark {
+
+namespace {
+
+// What a fit of a window profile learned, one line per state: GC, dispersion and the mean length
+// of its segments (the min_length chain plus the geometric tail, in bases).
+std::string learned_classes(const Profile& p) {
+    std::string out = "fit: learned classes (window " + std::to_string(p.window_size) + " bases):";
+    for (size_t s = 0; s < p.states.size(); ++s) {
+        const StateSpec& st = p.states[s];
+        double stay = 0;
+        for (size_t u = 0; u < p.states.size(); ++u)
+            if (p.states[u].region == st.region) stay += p.transitions[s][u];
+        const double windows = static_cast<double>(p.chain_length(st.region) - 1) + 1 / std::max(1e-300, 1 - stay);
+        out += fmt::format("\n  {:<12} GC {:.4f}  dispersion {:.3g}  mean segment {:.1f} kb", st.name, st.gc.mean,
+                           st.gc.dispersion, windows * static_cast<double>(p.window_size) / 1000);
+    }
+    return out;
+}
+
+}  // namespace
+
 namespace {
 
 using ordered_json = nlohmann::ordered_json;
@@ -150,6 +171,10 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     if (!o.labels.empty()) {
         method = "labelled";
         const Profile start = load_profile(o.profile);
+        if (start.windowed())
+            throw UsageError(fmt::format("--labels counts per-base emissions; '{}' is a window profile (fit it by "
+                                         "Baum-Welch, without --labels)",
+                                         start.name));
         start_name = start.name;
         start_sources = start.sources;
         const std::string fallback = o.default_region.empty() ? default_region_of(start) : o.default_region;
@@ -182,9 +207,25 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
         Profile start = load_profile(o.profile);
         start_name = start.name;
         start_sources = start.sources;
-        if (o.init_from_data) start = seed_from_data(start, data, o.seed);
-        result = baum_welch(start, data, o.fit, log);
+        if (o.init_from_data || start.is_template) {
+            if (!o.init_from_data)
+                log.info(fmt::format("fit: profile '{}' is a template: its classes are seeded from the data first",
+                                     start.name));
+            start = seed_from_data(start, data, o.seed);
+        }
+        FitOptions fit = o.fit;
+        if (start.is_template) {
+            // A template's switch rates define what counts as a segment (how rare and how long);
+            // Baum-Welch would otherwise trade them for gene-scale switching. Only its classes'
+            // compositions are learned.
+            fit.freeze.transitions = true;
+            fit.freeze.initial = true;
+            log.info("fit: template: transitions and initial kept as given; class compositions fitted");
+        }
+        result = baum_welch(start, data, fit, log);
+        result.profile.is_template = false;
         warn_on_swaps(start, result.profile, log);
+        if (result.profile.windowed()) log.info(learned_classes(result.profile));
     }
 
     Profile& p = result.profile;

@@ -8,6 +8,7 @@
 
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
+#include "tidemark/window.hpp"
 
 namespace tidemark {
 namespace {
@@ -172,7 +173,74 @@ Profile class_template(TrainingData& data, int K, int order, const SeedOptions& 
     return parse_profile(to_json(p), "template " + p.name);
 }
 
+namespace {
+
+// Window profiles: each state (in increasing mean GC) gets a GC-ranked slice of the profile's own
+// windows as large as its stationary share; its mean is the slice's pooled G+C fraction and its
+// dispersion the method-of-moments value of the beta-binomial, rho = (V / (m (1 - m)) - 1/n) /
+// (1 - 1/n) with V the variance of the windows' GC fractions and n their mean size (common
+// practice for a starting value; Baum-Welch then fits both).
+Profile seed_window_profile(const Profile& profile, TrainingData& data) {
+    const size_t P = profile.states.size();
+    const int64_t W = profile.window_size;
+    std::vector<WindowCount> counts;
+    Windows w;
+    for_each_window(data, W, [&](const Contig& c, int64_t b, int64_t e, bool usable) {
+        if (!usable) return;
+        const Composition comp = composition(c, b, e);
+        counts.push_back({comp.c + comp.g, comp.known()});
+        w.gc.push_back(comp.gc_fraction());
+    });
+    if (w.gc.size() < 2 * P)
+        throw InputError(fmt::format("too little sequence to seed the {} states of profile '{}': {} window(s) of {} "
+                                     "bases with at least half of their bases known (at least {} needed)",
+                                     P, profile.name, w.gc.size(), W, 2 * P));
+    std::vector<size_t> rank(P);
+    std::iota(rank.begin(), rank.end(), size_t{0});
+    std::stable_sort(rank.begin(), rank.end(),
+                     [&](size_t a, size_t b) { return profile.states[a].gc.mean < profile.states[b].gc.mean; });
+    const std::vector<double> pi = stationary(profile);
+    std::vector<double> shares(P);
+    for (size_t g = 0; g < P; ++g) shares[g] = pi[rank[g]];
+    const std::vector<int> group = assign_groups(w, shares);
+    Profile q = profile;
+    for (size_t g = 0; g < P; ++g) {
+        double k = 0, n = 0, sum = 0, sum2 = 0, windows = 0;
+        for (size_t i = 0; i < counts.size(); ++i) {
+            if (group[i] != static_cast<int>(g)) continue;
+            k += static_cast<double>(counts[i].gc);
+            n += static_cast<double>(counts[i].known);
+            sum += w.gc[i];
+            sum2 += w.gc[i] * w.gc[i];
+            windows += 1;
+        }
+        if (windows < 2) continue;  // keeps its starting values
+        WindowGC& gc = q.states[rank[g]].gc;
+        gc.mean = std::clamp(k / n, 1e-6, 1 - 1e-6);
+        const double variance = std::max(0.0, sum2 / windows - (sum / windows) * (sum / windows));
+        const double size = n / windows;
+        gc.dispersion = std::clamp((variance / (gc.mean * (1 - gc.mean)) - 1 / size) / (1 - 1 / size), 1e-6, 0.5);
+    }
+    // Tied states share one distribution: the first member's.
+    for (size_t s = 0; s < P; ++s)
+        if (!q.states[s].tie.empty())
+            for (size_t u = 0; u < s; ++u)
+                if (q.states[u].tie == q.states[s].tie) {
+                    q.states[s].gc = q.states[u].gc;
+                    break;
+                }
+    q.sources.push_back(fmt::format(
+        "gc reseeded from the training sequences by tidemark fit: the profile's windows of {} bases ranked by GC, "
+        "each state (in increasing GC) given a slice as large as its stationary share (mean: the slice's G+C "
+        "fraction; dispersion: its method-of-moments value); then fitted as recorded under provenance.",
+        W));
+    return q;
+}
+
+}  // namespace
+
 Profile seed_from_data(const Profile& profile, TrainingData& data, const SeedOptions& o) {
+    if (profile.windowed()) return seed_window_profile(profile, data);
     check_window(o);
     const size_t P = profile.states.size();
     const Windows w = measure(data, o.window);

@@ -108,6 +108,11 @@ std::string counts_to_json(const TrainingCounts& c) {
         em.push_back(r);
     }
     o["emissions"] = em;
+    if (!c.windows.empty()) {
+        ordered_json windows = ordered_json::array();
+        for (const auto& t : c.windows) windows.push_back({t.gc, t.known, t.weight});
+        o["windows"] = windows;
+    }
     o["log_likelihood"] = c.log_likelihood;
     o["positions"] = c.positions;
     o["known"] = c.known;
@@ -147,6 +152,12 @@ TrainingCounts counts_from_json(const std::string& text, const Profile& profile,
                 std::copy(row.begin(), row.end(), c.emissions[s][r].begin());
             }
         }
+        if (j.contains("windows"))
+            for (const auto& t : j.at("windows")) {
+                WindowTally tally{t.at(0).get<int64_t>(), t.at(1).get<int64_t>(), t.at(2).get<std::vector<double>>()};
+                if (tally.weight.size() != P) throw bad("window weights");
+                c.windows.push_back(std::move(tally));
+            }
         c.log_likelihood = j.at("log_likelihood").get<double>();
         c.positions = j.at("positions").get<int64_t>();
         c.known = j.at("known").get<int64_t>();
@@ -194,6 +205,13 @@ void validate_distributed(const FitJobOptions& o) {
 
 FitResult emit_statistics(const FitJobOptions& o, const Logger& log) {
     const Profile profile = load_profile(o.profile);
+    if (profile.is_template)
+        throw UsageError(fmt::format(
+            "profile '{}' is a template, which fit seeds from the whole genome before its first E-step; seed it "
+            "once with 'tidemark fit GENOME -p {} --max-iter 0 -o start.json' and distribute the E-steps of "
+            "start.json (add --freeze transitions --freeze initial to the M-steps to keep the template's switch "
+            "rates, as fit does)",
+            profile.name, profile.name));
     const Model model = compile(profile);
     DecoderOptions decoder_options;
     decoder_options.block_size = o.fit.block_size;

@@ -78,6 +78,9 @@ struct Profile {
     /// Window profiles: bases per window (the sequence is cut into windows of this size from each
     /// contig's start; the last may be shorter). 0 = per-base emissions.
     int64_t window_size = 0;
+    /// A template: its emissions only fix the classes' order, and fit reseeds them from the data
+    /// before Baum-Welch (as --init-from-data does). Fitted profiles are not templates.
+    bool is_template = false;
 
     bool windowed() const { return window_size > 0; }
     /// Compiled chain length of region r: min_length in bases, or in whole windows.

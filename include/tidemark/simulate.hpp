@@ -19,6 +19,9 @@ namespace tidemark {
 ///    the chain: the decoder marginalises an unknown base, which is the same thing);
 ///  - a known base is drawn from the state's order-k row for the k preceding bases, or from
 ///    its mean row when fewer than k known bases precede it (contig start, after a gap);
+///  - window models move once per window (at positions that are multiples of the window size)
+///    and draw a window's known bases from Polya's urn, so that its G+C count is beta-binomial
+///    with the state's parameters; G+C bases are C or G, A+T bases A or T, with probability 1/2;
 ///  - gaps: an independent two-state chain over positions (known / unknown), started from its
 ///    stationary distribution, with geometric run lengths: unknown runs of mean
 ///    gap_mean_length, known runs of mean gap_mean_length * (1 - f) / f, so that the expected

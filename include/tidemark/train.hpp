@@ -77,6 +77,15 @@ private:
 // ---------------------------------------------------------------------------------------------
 // Sufficient statistics
 
+/// One window of a window profile in the E-step: its G+C count, its known bases, and the
+/// posterior of each profile state (chain copies pooled). The beta-binomial M-step needs the
+/// windows themselves (it has no fixed-size sufficient statistic); a genome has few of them.
+struct WindowTally {
+    int64_t gc = 0;
+    int64_t known = 0;
+    std::vector<double> weight;  ///< per profile state
+};
+
 /// Expected (or, from labels, observed) counts at the level of the profile's parameters.
 /// Chain copies of a state are pooled into that state.
 struct TrainingCounts {
@@ -87,6 +96,8 @@ struct TrainingCounts {
     std::vector<double> chain_steps;
     /// [profile state][context row][base], context rows as in StateSpec::emissions.
     std::vector<std::vector<std::array<double, 4>>> emissions;
+    /// Window profiles: every window with known bases, in input order (add appends).
+    std::vector<WindowTally> windows;
     double log_likelihood = 0;  ///< sum over contigs of ln P(contig)
     int64_t positions = 0;      ///< bases seen, known and unknown
     int64_t known = 0;          ///< bases A, C, G, T
@@ -128,6 +139,7 @@ private:
     template <int Fixed>
     void add_transitions(const BlockView& view);
     void add_emissions(const BlockView& view);
+    void add_window_emissions(const BlockView& view);
 
     const Profile& profile_;
     const Model& model_;
@@ -180,8 +192,11 @@ struct MStepOptions {
     double pseudocount = 1.0;
 };
 
-/// New parameters from counts. structure fixes which entries may be non-zero (normally the
-/// starting profile); current supplies frozen values and rows without any count. Rows are
+/// New parameters from counts. Window states: the beta-binomial maximum-likelihood estimate from
+/// the posterior-weighted windows by Minka's fixed-point iteration (Minka T (2000) "Estimating a
+/// Dirichlet distribution", technical report, the Polya (Dirichlet-multinomial) case with two
+/// categories), started from the current values, so EM never lowers the likelihood; no prior.
+/// structure fixes which entries may be non-zero (normally the starting profile); current supplies frozen values and rows without any count. Rows are
 /// normalised counts, except for states of a min_length region, whose row is the exact
 /// maximiser for the chain: in-region shares from all copies' counts, the in/out split from the
 /// tail copy's counts (in-region mass floored at 1e-12 so the chain stays defined). Tie groups
