@@ -237,6 +237,8 @@ void RegionTotals::block(const BlockView& view) {
         case 2: column_sums<2>(view, by_state_.data()); break;
         case 3: column_sums<3>(view, by_state_.data()); break;
         case 4: column_sums<4>(view, by_state_.data()); break;
+        case 5: column_sums<5>(view, by_state_.data()); break;
+        case 6: column_sums<6>(view, by_state_.data()); break;
         default: column_sums<0>(view, by_state_.data()); break;
     }
     for (int s = 0; s < S; ++s) expected_[model_.region_of_state[s]] += by_state_[s];
