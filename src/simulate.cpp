@@ -93,7 +93,6 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
     validate(o);
     const SamplingTables tables = build_tables(m);
     const GapChain gaps = build_gap_chain(o);
-    const uint32_t mask = (1u << (2 * m.max_order)) - 1;
     detail::Xoshiro256ss rng(o.seed);
     std::vector<int> states(block_positions);
     std::vector<uint8_t> bases(block_positions);
@@ -103,8 +102,7 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
         sink.begin_contig(fmt::format("{}{}", o.name_prefix, c + 1), length);
         int state = -1;
         bool in_gap = false;
-        uint32_t ctx = 0;
-        int64_t valid = 0;  // consecutive known bases before the position, as in the decoder
+        RollingContext ctx(m.max_order);  // as in the decoder
         double urn_gc = 0, urn_known = 0;  // window models: G+C and known bases drawn in the window
         for (int64_t start = 0; start < length; start += block_positions) {
             const int64_t n = std::min(block_positions, length - start);
@@ -130,8 +128,7 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
                 if (m.window > 0 && (start + t) % m.window == 0) urn_gc = urn_known = 0;
                 if (in_gap) {
                     bases[t] = base_unknown;
-                    ctx = 0;
-                    valid = 0;
+                    ctx.push(base_unknown);
                     continue;
                 }
                 if (m.window > 0) {
@@ -149,13 +146,11 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
                     urn_known += 1;
                     continue;
                 }
-                const int order = m.order_of_state[state];
-                const uint32_t row = valid >= order ? (ctx & ((1u << (2 * order)) - 1)) : (1u << (2 * order));
+                const uint32_t row = ctx.row(m.order_of_state[state]);
                 const uint64_t* th = tables.emission.data() + m.emission_offset[state] + row * 4;
                 const auto base = static_cast<uint8_t>(detail::sample_categorical(th, 4, rng.next53()));
                 bases[t] = base;
-                ctx = ((ctx << 2) | base) & mask;
-                ++valid;
+                ctx.push(base);
             }
             SimulatedBlock view;
             view.begin = start;

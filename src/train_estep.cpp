@@ -66,8 +66,7 @@ void CountAccumulator::begin_contig(const Contig& contig) {
     std::fill(edge_.begin(), edge_.end(), 0.0);
     contig_ = &contig;
     started_ = false;
-    ctx_ = 0;
-    valid_ = 0;
+    ctx_ = RollingContext(model_.max_order);
 }
 
 // Adds sum_t f_{t-1}(i) w_t(j) / Z_t per pair (i, j) with w = e * b; A_ij is multiplied in when
@@ -147,8 +146,6 @@ void CountAccumulator::add_emissions(const BlockView& v) {
     const Model& m = model_;
     const int S = v.states;
     const int P = static_cast<int>(profile_.states.size());
-    const int K = m.max_order;
-    const uint32_t mask = (1u << (2 * K)) - 1;
     const bool identity = S == P;  // no chains: compiled state s is profile state s
     for (int64_t t = 0; t < v.size; ++t) {
         const uint8_t base = v.bases[t];
@@ -156,8 +153,7 @@ void CountAccumulator::add_emissions(const BlockView& v) {
         if (v.begin + t == 0)
             for (int s = 0; s < S; ++s) counts_.initial[m.profile_state[s]] += post[s];
         if (base == base_unknown) {
-            ctx_ = 0;
-            valid_ = 0;
+            ctx_.push(base);
             continue;
         }
         ++counts_.known;
@@ -170,8 +166,8 @@ void CountAccumulator::add_emissions(const BlockView& v) {
         for (int p = 0; p < P; ++p) {
             const int k = profile_.states[p].order;
             auto& rows = counts_.emissions[p];
-            if (valid_ >= k) {
-                rows[ctx_ & ((1u << (2 * k)) - 1)][base] += g[p];
+            if (ctx_.complete(k)) {
+                rows[ctx_.row(k)][base] += g[p];
             } else if (g[p] > 0) {
                 // Latent context, uniform over the rows (that is what the mean row is): each row
                 // gets its share of the posterior in proportion to its probability of the base.
@@ -182,8 +178,7 @@ void CountAccumulator::add_emissions(const BlockView& v) {
                     for (size_t r = 0; r < em.size(); ++r) rows[r][base] += g[p] * em[r][base] / total;
             }
         }
-        ctx_ = ((ctx_ << 2) | base) & mask;
-        ++valid_;
+        ctx_.push(base);
     }
 }
 
@@ -194,22 +189,8 @@ void CountAccumulator::block(const BlockView& v) {
         throw InternalError("CountAccumulator: block view without forward_before");
     if (!started_) {
         started_ = true;
-        if (v.begin > 0 && contig_) {  // a later segment: the context from the bases before it
-            const int K = model_.max_order;
-            const int64_t look = std::min<int64_t>(K, v.begin);
-            uint8_t before[max_emission_order];
-            contig_->unpack(v.begin - look, look, before);
-            const uint32_t mask = (1u << (2 * K)) - 1;
-            for (int64_t k = 0; k < look; ++k) {
-                if (before[k] == base_unknown) {
-                    ctx_ = 0;
-                    valid_ = 0;
-                } else {
-                    ctx_ = ((ctx_ << 2) | before[k]) & mask;
-                    ++valid_;
-                }
-            }
-        }
+        // a later segment: the context from the bases before it
+        if (v.begin > 0 && contig_) ctx_ = context_before(*contig_, v.begin, model_.max_order);
     }
     switch (v.states) {
         case 1: add_transitions<1>(v); break;

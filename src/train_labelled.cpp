@@ -63,8 +63,6 @@ TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::
     }
 
     TrainingCounts c = TrainingCounts::zero(p);
-    const int K = max_emission_order;
-    const uint32_t mask = (1u << (2 * K)) - 1;
     std::vector<uint8_t> bases;
     size_t used = 0;
     data.for_each([&](const Contig& contig) {
@@ -78,8 +76,7 @@ TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::
         size_t li = 0;
         int prev_state = -1, copy = 0;
         int64_t segment_start = 0;
-        uint32_t ctx = 0;
-        int64_t valid = 0;
+        RollingContext ctx;
         constexpr int64_t chunk = int64_t{1} << 16;
         for (int64_t start = 0; start < N; start += chunk) {
             const int64_t n = std::min(chunk, N - start);
@@ -121,15 +118,13 @@ TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::
                 prev_state = s;
                 const uint8_t b = bases[static_cast<size_t>(t)];
                 if (b == base_unknown) {
-                    ctx = 0;
-                    valid = 0;
+                    ctx.push(b);
                     continue;
                 }
                 ++c.known;
                 const int k = p.states[s].order;
-                if (valid >= k) c.emissions[s][ctx & ((1u << (2 * k)) - 1)][b] += 1;
-                ctx = ((ctx << 2) | b) & mask;
-                ++valid;
+                if (ctx.complete(k)) c.emissions[s][ctx.row(k)][b] += 1;
+                ctx.push(b);
             }
         }
         if (!list.empty() && list.back().first.end > contig.offset + N)

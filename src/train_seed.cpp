@@ -66,8 +66,7 @@ std::vector<std::vector<std::array<double, 4>>> count_groups(TrainingData& data,
     size_t index = 0;
     std::vector<uint8_t> bases;
     data.for_each([&](const Contig& c) {
-        uint32_t ctx = 0;
-        int64_t valid = 0;
+        RollingContext ctx;
         for (int64_t begin = 0; begin < c.length; begin += W) {
             const int64_t end = std::min(c.length, begin + W);
             int g = -1;
@@ -75,17 +74,8 @@ std::vector<std::vector<std::array<double, 4>>> count_groups(TrainingData& data,
             bases.resize(static_cast<size_t>(end - begin));
             c.unpack(begin, end - begin, bases.data());
             for (uint8_t b : bases) {
-                if (b == base_unknown) {
-                    ctx = 0;
-                    valid = 0;
-                    continue;
-                }
-                if (g >= 0) {
-                    const int k = orders[g];
-                    if (valid >= k) counts[g][ctx & ((1u << (2 * k)) - 1)][b] += 1;
-                }
-                ctx = ((ctx << 2) | b) & ((1u << (2 * max_emission_order)) - 1);
-                ++valid;
+                if (g >= 0 && b != base_unknown && ctx.complete(orders[g])) counts[g][ctx.row(orders[g])][b] += 1;
+                ctx.push(b);
             }
         }
     });

@@ -8,6 +8,8 @@
 #include <string_view>
 #include <vector>
 
+#include "tidemark/sequence.hpp"
+
 namespace tidemark {
 
 inline constexpr const char* profile_format = "tidemark-profile/1";
@@ -114,6 +116,49 @@ const std::vector<BuiltinProfile>& builtin_profiles();
 /// A built-in by name, otherwise a file path. Throws ProfileError when neither exists.
 Profile load_profile(const std::string& name_or_path);
 
+/// The context of a position for order-k emissions: the codes of the known bases just before it
+/// (newest in the low 2 bits, at most max_order of them) and how many consecutive known bases
+/// precede it. Its rule picks a state's emission row: the row of the k preceding bases when at
+/// least k known bases precede the position, else the state's mean row (row 4^k: the contig
+/// start, just after an unknown base). Decoding, training, simulation and seeding all roll and
+/// select with it, so they cannot disagree.
+struct RollingContext {
+    uint32_t code = 0;
+    int64_t valid = 0;  ///< consecutive known bases just before the position
+
+    explicit RollingContext(int max_order = max_emission_order) : mask_((1u << (2 * max_order)) - 1) {}
+    /// Moves past one base; an unknown base empties the context.
+    void push(uint8_t base) {
+        if (base == base_unknown) {
+            code = 0;
+            valid = 0;
+        } else {
+            code = ((code << 2) | base) & mask_;
+            ++valid;
+        }
+    }
+    /// True when the k preceding bases are all known.
+    bool complete(int order) const { return valid >= order; }
+    /// The emission row of a state of this order.
+    uint32_t row(int order) const { return row_of(order, code, valid); }
+    static uint32_t row_of(int order, uint32_t code, int64_t valid) {
+        return valid >= order ? (code & ((1u << (2 * order)) - 1)) : (1u << (2 * order));
+    }
+
+private:
+    uint32_t mask_;
+};
+
+/// The context at position pos of a contig, from the (at most max_order) bases before it.
+inline RollingContext context_before(const Contig& contig, int64_t pos, int max_order) {
+    RollingContext ctx(max_order);
+    const int64_t look = pos < max_order ? pos : max_order;
+    uint8_t before[max_emission_order];
+    contig.unpack(pos - look, look, before);
+    for (int64_t k = 0; k < look; ++k) ctx.push(before[k]);
+    return ctx;
+}
+
 /// The flattened model: dense and sparse transitions, per-state emission tables with a
 /// precomputed mean row (used where fewer than k known bases precede a position).
 struct Model {
@@ -159,8 +204,7 @@ struct Model {
     /// P(base | context) for state s; valid = number of consecutive known bases before the
     /// position, ctx = rolling code of the preceding bases (newest in the low 2 bits).
     double emission_prob(int s, uint32_t ctx, int64_t valid, uint8_t base) const {
-        const int k = order_of_state[s];
-        const uint32_t row = valid >= k ? (ctx & ((1u << (2 * k)) - 1)) : (1u << (2 * k));
+        const uint32_t row = RollingContext::row_of(order_of_state[s], ctx, valid);
         return emission[emission_offset[s] + row * 4 + base];
     }
 };

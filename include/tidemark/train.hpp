@@ -151,8 +151,7 @@ private:
     std::vector<double> pooled_;    ///< per profile state posterior, scratch
     const Contig* contig_ = nullptr;
     bool started_ = false;          ///< a block of the current span was seen
-    uint32_t ctx_ = 0;              ///< rolling context over the largest order
-    int64_t valid_ = 0;             ///< known bases immediately before the current position
+    RollingContext ctx_;            ///< rolling context over the largest order
 };
 
 /// Runs the posterior engine over all of data with profile's compiled model and returns the
