@@ -69,27 +69,31 @@ double window_log_probability(const Model& m, int s, int64_t k, int64_t n) {
     return log_choose(n, k) + kernel;
 }
 
+void fill_window_log_emissions(const Model& m, const Contig& contig, int64_t first, int64_t count,
+                               uint8_t* known, double* log_emission) {
+    const int S = m.states;
+    for (int64_t t = 0; t < count; ++t) {
+        const WindowCount w = window_count(m, contig, first + t);
+        double* row = log_emission + t * S;
+        known[t] = w.known > 0 ? 0 : base_unknown;
+        // Chain copies share their profile state's distribution: compute each distinct one once.
+        for (int s = 0; s < S; ++s)
+            row[s] = w.known == 0 ? 0.0
+                     : (s > 0 && m.profile_state[s] == m.profile_state[s - 1])
+                         ? row[s - 1]
+                         : window_log_probability(m, s, w.gc, w.known);
+    }
+}
+
 double fill_window_emissions(const Model& m, const Contig& contig, int64_t first, int64_t count,
                              uint8_t* known, double* emission) {
     const int S = m.states;
+    fill_window_log_emissions(m, contig, first, count, known, emission);
     double removed = 0;
-    std::vector<double> logs(S);
     for (int64_t t = 0; t < count; ++t) {
-        const WindowCount w = window_count(m, contig, first + t);
         double* row = emission + t * S;
-        known[t] = w.known > 0 ? 0 : base_unknown;
-        if (w.known == 0) {
-            std::fill(row, row + S, 1.0);
-            continue;
-        }
-        // Chain copies share their profile state's distribution: compute each distinct one once.
-        double top = -INFINITY;
-        for (int s = 0; s < S; ++s) {
-            logs[s] = (s > 0 && m.profile_state[s] == m.profile_state[s - 1]) ? logs[s - 1]
-                                                                               : window_log_probability(m, s, w.gc, w.known);
-            top = std::max(top, logs[s]);
-        }
-        for (int s = 0; s < S; ++s) row[s] = std::exp(logs[s] - top);
+        const double top = *std::max_element(row, row + S);
+        for (int s = 0; s < S; ++s) row[s] = std::exp(row[s] - top);
         removed += top;
     }
     return removed;
