@@ -11,7 +11,7 @@ packages=(
   # sanitizer and fuzzing builds
   clang libclang-rt-14-dev
   # test oracles and open datasets
-  python3 python3-numpy python3-pomegranate python3-pybigwig python3-matplotlib
+  python3 python3-numpy python3-scipy python3-pomegranate python3-pybigwig python3-matplotlib
   tabix bedtools genometools gzip xz-utils bzip2 zstd
   bowtie2-examples smalt-examples bowtie-examples cct-examples sibelia-examples
   # benchmarks (scripts/bench.sh, scripts/bench-fit.sh: wall time and peak RSS)

@@ -134,8 +134,9 @@ PosteriorDecoder::PosteriorDecoder(const Model& model, DecoderOptions options)
 }
 
 DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink, TaskPool* pool) {
-    // Window models have few positions (one per window) and no emission table: the generic path.
-    if (model_.window > 0 || model_.states > max_fixed_states) return run_fixed<0>(contig, sink);
+    // Window models: few positions (one per window), emissions kept as logs (decode_windows).
+    if (model_.window > 0) return decode_windows(model_, block_, contig, sink);
+    if (model_.states > max_fixed_states) return run_fixed<0>(contig, sink);
     const bool segmented = splits(contig.length) && sink.fork();
     return with_fixed_states(model_.states, [&](auto fixed) {
         constexpr int S = decltype(fixed)::value;
@@ -148,7 +149,7 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     const Model& m = model_;
     const int S = Fixed > 0 ? Fixed : m.states;
     const bool sparse = use_sparse(m);
-    const int64_t N = m.positions(contig.length);
+    const int64_t N = contig.length;
     DecodeResult result;
     sink.begin_contig(contig);
     if (N == 0) {
@@ -188,17 +189,18 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     const auto fill_rows = [this, &m, &contig, &layout](int64_t start, int64_t n) {
         fill_rows_of(m, contig, layout, start, n, bases_.data(), rows_.data());
     };
-    // Emissions of the block (for the generic recursions and for the sinks); returns the natural
-    // log of the factors divided out of window emissions (0 for per-base models).
-    const auto fill_block = [&](int64_t start, int64_t n) -> double {
-        if (!table) return fill_emissions(m, contig, start, n, bases_.data(), emission_.data());
+    // Emissions of the block (for the generic recursions and for the sinks).
+    const auto fill_block = [&](int64_t start, int64_t n) {
+        if (!table) {
+            fill_emissions(m, contig, start, n, bases_.data(), emission_.data());
+            return;
+        }
         fill_rows(start, n);
         double* out = emission_.data();
         for (int64_t t = 0; t < n; ++t, out += S) {
             const double* src = table + static_cast<size_t>(rows_[t]) * S;
             for (int s = 0; s < S; ++s) out[s] = src[s];
         }
-        return 0.0;
     };
     // out = F_row v (the backward step of sweep 1); sums in index order.
     const auto folded_back = [&](uint32_t row, const double* v, double* out) {
@@ -263,11 +265,10 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     // interleaving them lets the processor overlap their latencies.
     int64_t exponent = 0;
     double last_sum = 0;
-    double emission_scale = 0;  // natural log, window models only
     for (int64_t k = 0; k < blocks; ++k) {
         const int64_t start = k * B;
         const int64_t n = std::min(B, N - start);
-        emission_scale += fill_block(start, n);
+        fill_block(start, n);
         double* bw = backward_.data();
         double* fw = forward_.data();
         copy_vec(checkpoints_.data() + k * S, S, bw + (n - 1) * S);
@@ -284,11 +285,10 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
         view.backward = bw;
         view.emission = emission_.data();
         view.forward_before = k == 0 ? nullptr : before_.data();
-        view.window = m.window;
         sink.block(view);
         copy_vec(fw + (n - 1) * S, S, before_.data());
     }
-    result.log_likelihood = std::log(last_sum) + static_cast<double>(exponent) * ln2 + emission_scale;
+    result.log_likelihood = std::log(last_sum) + static_cast<double>(exponent) * ln2;
     sink.end_contig(contig, result);
     return result;
 }

@@ -324,6 +324,14 @@ template <int Fixed>
     last_sum_io = last_sum;
 }
 
+// Posterior decoding of a window model (decode_windows.cpp), with the forward and backward
+// vectors kept as logs. One window's emissions can differ between states by thousands of nats (a
+// 20-kb window's G+C count under two narrow beta-binomials), so a path that a min_length chain
+// holds on to can fall more than 2^-1074 behind another and come back: scaled probabilities would
+// drop it (a wrong posterior, or an "impossible" contig). Same blocks and checkpoints as the
+// per-base sweeps; the sinks get probabilities.
+DecodeResult decode_windows(const Model& m, int64_t block, const Contig& contig, DecodeSink& sink);
+
 }  // namespace tidemark::detail
 
 namespace tidemark {

@@ -10,6 +10,7 @@
 #include <cstdio>
 #include <cmath>
 #include <fstream>
+#include <limits>
 #include <nlohmann/json.hpp>
 #include <set>
 #include <sstream>
@@ -143,7 +144,8 @@ void check_chains(const Profile& p, const Validator& v) {
         const StateSpec& s = p.states[i];
         const RegionSpec& r = p.regions[s.region];
         compiled += p.chain_length(s.region);
-        if (r.min_length <= 1) continue;
+        // (window profiles: a min_length within one window needs no chain)
+        if (p.chain_length(s.region) <= 1) continue;
         double stay = 0;
         for (size_t j = 0; j < p.states.size(); ++j)
             if (p.states[j].region == s.region) stay += p.transitions[i][j];
@@ -173,8 +175,9 @@ std::string read_file(const std::string& path) {
 }  // namespace
 
 int64_t Profile::chain_length(int r) const {
+    // min_length is at least 1; ceil(bases / window_size) written so that it cannot overflow
     const int64_t bases = regions.at(r).min_length;
-    return window_size > 0 ? (bases + window_size - 1) / window_size : bases;
+    return window_size > 0 ? (bases - 1) / window_size + 1 : bases;
 }
 
 int Profile::state_index(std::string_view state) const {
@@ -257,10 +260,15 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         if (regions[i].contains("min_length")) {
             r.min_length = v.nonnegative_integer(regions[i]["min_length"], where + ".min_length");
             const int64_t unit = std::max<int64_t>(1, p.window_size);
-            if (r.min_length < 1 || r.min_length > max_compiled_states * unit)
+            // The largest minimum, saturated: a huge window.size must not overflow it.
+            const int64_t most = unit > std::numeric_limits<int64_t>::max() / max_compiled_states
+                                     ? std::numeric_limits<int64_t>::max()
+                                     : max_compiled_states * unit;
+            if (r.min_length < 1 || r.min_length > most)
                 v.fail(where + ".min_length",
-                       fmt::format("must be from 1 to {} (each {} of the minimum is one compiled state)",
-                                   max_compiled_states * unit, p.window_size > 0 ? "window" : "base"));
+                       fmt::format(
+                           "must be from 1 to {} (each {} of the minimum is one compiled state)",
+                           most, p.window_size > 0 ? "window" : "base"));
         }
         p.regions.push_back(std::move(r));
     }
@@ -271,10 +279,21 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     if (!states.is_array() || states.empty()) v.fail("states", "must be a non-empty array");
     for (size_t i = 0; i < states.size(); ++i) {
         std::string where = fmt::format("states[{}]", i);
-        if (p.window_size > 0)
+        // The two emission kinds, each named in the error when the other's fields appear.
+        if (p.window_size > 0) {
+            for (const char* key : {"order", "emissions"})
+                if (states[i].contains(key))
+                    v.fail(fmt::format("{}.{}", where, key),
+                           "a window profile (window.size is set) gives each state 'gc', not "
+                           "'order' and 'emissions'");
             v.only_fields(states[i], where, {"name", "region", "gc", "description", "tie"});
-        else
+        } else {
+            if (states[i].contains("gc"))
+                v.fail(where + ".gc",
+                       "'gc' emissions need a window profile (set window.size), per-base "
+                       "states give 'order' and 'emissions'");
             v.only_fields(states[i], where, {"name", "region", "order", "emissions", "description", "tie"});
+        }
         StateSpec s;
         s.name = v.string_field(states[i], "name", where);
         if (s.name.empty()) v.fail(where + ".name", "must not be empty");
@@ -296,6 +315,15 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
             };
             s.gc.mean = open_unit("mean");
             s.gc.dispersion = open_unit("dispersion");
+            // compile() derives alpha = mean (1/rho - 1) and beta = (1 - mean)(1/rho - 1): a rho
+            // whose inverse overflows, or a mean that makes one of them 0, is no distribution.
+            const double total = 1.0 / s.gc.dispersion - 1.0;
+            const double alpha = s.gc.mean * total, beta = (1.0 - s.gc.mean) * total;
+            if (!(std::isfinite(total) && alpha > 0 && beta > 0))
+                v.fail(where + ".gc",
+                       fmt::format("mean {} and dispersion {} give beta-binomial alpha {} and beta "
+                                   "{}; both must be positive and finite",
+                                   s.gc.mean, s.gc.dispersion, alpha, beta));
         } else {
         const json& order = v.field(states[i], "order", where);
         if (!order.is_number_integer() || order.get<int64_t>() < 0 ||

@@ -3,6 +3,7 @@
 #include <limits>
 
 #include "decode_internal.hpp"
+#include "tidemark/window.hpp"
 
 namespace tidemark {
 
@@ -41,15 +42,17 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
     std::vector<double> prev(S), cur(S);
     std::vector<int32_t> pointers(static_cast<size_t>(B) * S);
     double offset = 0;  // sum of the maxima removed at block ends (keeps scores near 0)
-    double emission_scale = 0;  // window models: natural log of the factors divided out of emissions
 
     // Runs the recursion over block k from `prev` (the normalised scores at the end of block
     // k-1); records back-pointers when asked; leaves the normalised scores in `prev`.
     const auto run_block = [&](int64_t k, bool record) {
         const int64_t start = k * B;
         const int64_t n = std::min(B, N - start);
-        const double removed = fill_emissions(m, contig, start, n, bases.data(), emission.data(), &fast_emission_);
-        if (!record) emission_scale += removed;
+        // Window models: log emissions (a window's states can differ by more than a double spans).
+        if (m.window > 0)
+            fill_window_log_emissions(m, contig, start, n, bases.data(), emission.data());
+        else
+            fill_emissions(m, contig, start, n, bases.data(), emission.data(), &fast_emission_);
         for (int64_t t = 0; t < n; ++t) {
             const int64_t pos = start + t;
             const double* e = emission.data() + t * S;
@@ -76,7 +79,7 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
                         }
                     }
                 }
-                cur[j] = best + (e[j] > 0 ? std::log(e[j]) : neg_inf);
+                cur[j] = best + (m.window > 0 ? e[j] : e[j] > 0 ? std::log(e[j]) : neg_inf);
                 if (record) pointers[static_cast<size_t>(t) * S + j] = arg;
                 best_all = std::max(best_all, cur[j]);
             }
@@ -93,7 +96,7 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
         offset += top;
         std::copy(prev.begin(), prev.end(), checkpoints.begin() + k * S);
     }
-    result.log_likelihood = offset + emission_scale;
+    result.log_likelihood = offset;
 
     // Trace back block by block from the end; the path is kept as runs of one state.
     struct Run {

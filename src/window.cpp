@@ -19,6 +19,36 @@ double log_choose(int64_t n, int64_t k) {
            std::lgamma(static_cast<double>(n - k) + 1);
 }
 
+// Below this alpha or beta the kernel is taken from lgamma directly; from it on, from Stirling's
+// series, where the lgamma form loses digits (tidemark's choice of switch point: the series
+// terms left out in stirling_tail are below 2e-14 there).
+constexpr double stirling_from = 10;
+
+// log Gamma(x) - ((x - 1/2) log x - x + log(2 pi) / 2) = 1/(12x) - 1/(360x^3) + 1/(1260x^5)
+// - 1/(1680x^7) + 1/(1188x^9) - ... (Stirling's series; Abramowitz & Stegun 1964, Handbook of
+// Mathematical Functions, 6.1.41, from memory).
+double stirling_tail(double x) {
+    const double r = 1 / x, r2 = r * r;
+    return r * (1.0 / 12 - r2 * (1.0 / 360 - r2 * (1.0 / 1260 - r2 * (1.0 / 1680 - r2 / 1188))));
+}
+
+// log B(k + a, n - k + b) - log B(a, b) for a, b >= stirling_from. As lgamma differences this is
+// a sum of terms near n log(a + b) that cancel to a few nats: with the small dispersions a fit
+// can reach (a + b = 1/rho - 1 of 1e6 and more) that loses 1e-9 to 1e-3 nats per window. Here
+// each log Gamma(x + j) - log Gamma(x) is (x - 1/2) log1p(j/x) + j log(x + j) - j + tail terms;
+// the -j parts cancel and the j log(x + j) parts combine into logs of ratios near the window's
+// GC fraction, so no term is much larger than the result.
+double large_kernel(double a, double b, double k, double n) {
+    const double m = n - k, total = a + b;
+    double v = (a - 0.5) * std::log1p(k / a) + (b - 0.5) * std::log1p(m / b) -
+               (total - 0.5) * std::log1p(n / total);
+    if (k > 0) v += k * std::log((a + k) / (total + n));
+    if (m > 0) v += m * std::log((b + m) / (total + n));
+    return v + (stirling_tail(a + k) - stirling_tail(a)) +
+           (stirling_tail(b + m) - stirling_tail(b)) -
+           (stirling_tail(total + n) - stirling_tail(total));
+}
+
 }  // namespace
 
 WindowCount window_count(const Model& m, const Contig& contig, int64_t pos) {
@@ -32,32 +62,39 @@ double window_log_probability(const Model& m, int s, int64_t k, int64_t n) {
     if (n == 0) return 0;
     const double a = m.gc_alpha[s], b = m.gc_beta[s];
     // log B(k + a, n - k + b) - log B(a, b), the beta-binomial's kernel.
-    const double kernel = std::lgamma(static_cast<double>(k) + a) + std::lgamma(static_cast<double>(n - k) + b) -
-                          std::lgamma(static_cast<double>(n) + a + b) - m.gc_lbeta[s];
+    const double kernel = a >= stirling_from && b >= stirling_from
+                              ? large_kernel(a, b, static_cast<double>(k), static_cast<double>(n))
+                              : std::lgamma(static_cast<double>(k) + a) +
+                                    std::lgamma(static_cast<double>(n - k) + b) -
+                                    std::lgamma(static_cast<double>(n) + a + b) - m.gc_lbeta[s];
     return log_choose(n, k) + kernel;
+}
+
+void fill_window_log_emissions(const Model& m, const Contig& contig, int64_t first, int64_t count,
+                               uint8_t* known, double* log_emission) {
+    const int S = m.states;
+    for (int64_t t = 0; t < count; ++t) {
+        const WindowCount w = window_count(m, contig, first + t);
+        double* row = log_emission + t * S;
+        known[t] = w.known > 0 ? 0 : base_unknown;
+        // Chain copies share their profile state's distribution: compute each distinct one once.
+        for (int s = 0; s < S; ++s)
+            row[s] = w.known == 0 ? 0.0
+                     : (s > 0 && m.profile_state[s] == m.profile_state[s - 1])
+                         ? row[s - 1]
+                         : window_log_probability(m, s, w.gc, w.known);
+    }
 }
 
 double fill_window_emissions(const Model& m, const Contig& contig, int64_t first, int64_t count,
                              uint8_t* known, double* emission) {
     const int S = m.states;
+    fill_window_log_emissions(m, contig, first, count, known, emission);
     double removed = 0;
-    std::vector<double> logs(S);
     for (int64_t t = 0; t < count; ++t) {
-        const WindowCount w = window_count(m, contig, first + t);
         double* row = emission + t * S;
-        known[t] = w.known > 0 ? 0 : base_unknown;
-        if (w.known == 0) {
-            std::fill(row, row + S, 1.0);
-            continue;
-        }
-        // Chain copies share their profile state's distribution: compute each distinct one once.
-        double top = -INFINITY;
-        for (int s = 0; s < S; ++s) {
-            logs[s] = (s > 0 && m.profile_state[s] == m.profile_state[s - 1]) ? logs[s - 1]
-                                                                               : window_log_probability(m, s, w.gc, w.known);
-            top = std::max(top, logs[s]);
-        }
-        for (int s = 0; s < S; ++s) row[s] = std::exp(logs[s] - top);
+        const double top = *std::max_element(row, row + S);
+        for (int s = 0; s < S; ++s) row[s] = std::exp(row[s] - top);
         removed += top;
     }
     return removed;

@@ -197,7 +197,10 @@ struct Model {
     std::vector<double> emission;
 
     /// Decoding positions of a contig of this many bases (windows, or bases).
-    int64_t positions(int64_t length) const { return window > 0 ? (length + window - 1) / window : length; }
+    /// (ceil(length / window), written so that it cannot overflow)
+    int64_t positions(int64_t length) const {
+        return window > 0 && length > 0 ? (length - 1) / window + 1 : length;
+    }
     /// First base of decoding position pos.
     int64_t position_start(int64_t pos) const { return window > 0 ? pos * window : pos; }
 

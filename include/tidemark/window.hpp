@@ -25,6 +25,13 @@ WindowCount window_count(const Model& model, const Contig& contig, int64_t pos);
 /// (with the binomial coefficient, so it is a distribution over k). n = 0 gives 0 (probability 1).
 double window_log_probability(const Model& model, int s, int64_t k, int64_t n);
 
+/// Natural-log emission rows of windows [first, first+count) (row-major count x S): the
+/// window_log_probability of every state, 0 for an all-unknown window; known[t] as below. The
+/// decoders run on these: one window's states can differ by thousands of nats, beyond the range
+/// of scaled probabilities.
+void fill_window_log_emissions(const Model& model, const Contig& contig, int64_t first,
+                               int64_t count, uint8_t* known, double* log_emission);
+
 /// Emission rows of windows [first, first+count) (row-major count x S), each divided by its
 /// largest entry so that none underflows; known[t] is 0 for a window with known bases and
 /// base_unknown for an all-unknown one (whose row is all ones). Returns the natural log of the
