@@ -13,7 +13,7 @@ packages=(
   # test oracles and open datasets
   python3 python3-numpy python3-pomegranate python3-pybigwig python3-matplotlib
   tabix bedtools genometools gzip xz-utils bzip2 zstd
-  bowtie2-examples smalt-examples
+  bowtie2-examples smalt-examples bowtie-examples
   # benchmarks (scripts/bench.sh, scripts/bench-fit.sh: wall time and peak RSS)
   time
   # scale-out workflow (scripts/workflow/Snakefile) and its test (CTest label workflow)

@@ -179,7 +179,7 @@ std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::
     std::vector<DepletionWarning> out;
     if (std::find(model.region_names.begin(), model.region_names.end(), "cpg_island") == model.region_names.end())
         return out;
-    const auto warning = [&](const std::string& contig, const Composition& comp) {
+    const auto warning = [&](const std::string& contig, const Composition& comp, double limit) {
         DepletionWarning w;
         w.contig = contig;
         w.cpg_obs_exp = comp.cpg_obs_exp();
@@ -189,20 +189,22 @@ std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::
             "assumes a CpG-depleted (vertebrate) genome, so its calls there are GC-rich stretches rather than "
             "CpG islands",
             contig.empty() ? std::string("the input") : "contig '" + contig + "'", w.cpg_obs_exp, w.known_bases,
-            DepletionRule::max_obs_exp, model.name);
+            limit, model.name);
         out.push_back(std::move(w));
     };
     const ContigSummary total = genome_total(model, contigs);
     // NaN (no C or no G) compares false: nothing to judge.
-    if (total.composition.known() >= DepletionRule::min_genome_known &&
-        total.composition.cpg_obs_exp() > DepletionRule::max_obs_exp) {
-        warning("", total.composition);
+    const int64_t known = total.composition.known();
+    const double limit = known >= DepletionRule::min_genome_known ? DepletionRule::max_obs_exp
+                                                                  : DepletionRule::short_max_obs_exp;
+    if (known >= DepletionRule::short_min_known && total.composition.cpg_obs_exp() > limit) {
+        warning("", total.composition, limit);
         return out;
     }
     for (const auto& c : contigs)
         if (c.composition.known() >= DepletionRule::min_contig_known &&
             c.composition.cpg_obs_exp() > DepletionRule::max_obs_exp)
-            warning(c.name, c.composition);
+            warning(c.name, c.composition, DepletionRule::max_obs_exp);
     return out;
 }
 

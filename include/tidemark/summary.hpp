@@ -79,12 +79,16 @@ struct RunInfo {
 /// GRCh37). Where CpG is not depleted the profile's calls are not CpG islands. The rule: warn when
 /// the CpG o/e of all known bases exceeds 0.6 (the island threshold of Gardiner-Garden & Frommer
 /// 1987, J. Mol. Biol. 196:261-282: bulk DNA that passes it is, by that definition, not
-/// depleted) over at least 50 kb, or that of one contig with at least 1 Mbp of known bases.
-/// 50 kb: on human chrX (GRCh37) every window of 50 kb has o/e <= 0.59, while 45-kb windows
-/// reach 0.603 (CpG-island-dense stretches); 1 Mbp windows stay below 0.43 (measured).
+/// depleted) over at least 50 kb, or 0.8 over 20 to 50 kb; or when that of one contig with at
+/// least 1 Mbp of known bases exceeds 0.6. The lengths are measured on human chrX (GRCh37):
+/// every 50-kb window has o/e <= 0.595 (45-kb windows reach 0.603 in CpG-island-dense
+/// stretches), every 20-kb window <= 0.764, and 1-Mbp windows stay below 0.43; so human inputs
+/// of those lengths never warn, and shorter inputs are not judged.
 struct DepletionRule {
     static constexpr double max_obs_exp = 0.6;
     static constexpr int64_t min_genome_known = 50'000;
+    static constexpr double short_max_obs_exp = 0.8;
+    static constexpr int64_t short_min_known = 20'000;
     static constexpr int64_t min_contig_known = 1'000'000;
 };
 struct DepletionWarning {
