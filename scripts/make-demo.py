@@ -7,7 +7,7 @@ import json
 import random
 
 rng = random.Random(20261201)
-profile = json.load(open("data/profiles/cpg-island.json"))
+profile = json.load(open("data/profiles/cpg-island-2state.json"))  # the tables the demo was drawn from
 rows = {s["name"]: s["emissions"] for s in profile["states"]}
 ACGT = "ACGT"
 

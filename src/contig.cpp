@@ -7,6 +7,8 @@
 #include <cmath>
 #include <limits>
 
+#include "tidemark/error.hpp"
+
 namespace tidemark {
 
 namespace {
@@ -51,6 +53,12 @@ std::vector<UnknownRun>::const_iterator first_run_after(const std::vector<Unknow
     return it;
 }
 }  // namespace
+
+SoftMasked parse_soft_masked(const std::string& text) {
+    if (text == "base") return SoftMasked::base;
+    if (text == "unknown") return SoftMasked::unknown;
+    throw UsageError("--soft-masked must be base or unknown, not '" + text + "'");
+}
 
 uint8_t Contig::base(int64_t i) const {
     auto it = std::upper_bound(unknown.begin(), unknown.end(), i,

@@ -14,22 +14,7 @@
 namespace tidemark {
 namespace {
 
-// Per byte: base code (0..4) plus 8 when lowercase, or not_a_base for everything else; one lookup
-// per byte in the reader's inner loop instead of a class test and a case test.
-constexpr uint8_t not_a_base = 16;
-const std::array<uint8_t, 256>& sequence_bytes() {
-    static const std::array<uint8_t, 256> table = [] {
-        std::array<uint8_t, 256> t{};
-        const auto& classes = detail::byte_classes();
-        for (int ch = 0; ch < 256; ++ch) {
-            const uint8_t cls = classes[ch];
-            const bool lower = detail::is_lower_base(static_cast<unsigned char>(ch));
-            t[ch] = cls <= base_unknown ? static_cast<uint8_t>(cls | (lower ? 8 : 0)) : not_a_base;
-        }
-        return t;
-    }();
-    return table;
-}
+using detail::not_a_base;
 
 class FastaStream final : public SequenceSource {
 public:
@@ -142,7 +127,7 @@ private:
 
     void read_sequence(Contig& contig) {
         const auto& classes = detail::byte_classes();
-        const auto& fast = sequence_bytes();
+        const auto& fast = detail::sequence_codes(soft_masked_);
         int64_t column = 0;
         for (;;) {
             if (at_line_start_) {
@@ -167,7 +152,7 @@ private:
                     const uint8_t v = fast[p[j]];
                     if (v & not_a_base) break;
                     out[j] = v & 7;
-                    lower += v >> 3;
+                    lower += v >> 3;  // lowercase_flag
                 }
                 contig.append(out, static_cast<int64_t>(j));
                 contig.soft_masked += lower;
@@ -215,12 +200,12 @@ std::unique_ptr<SequenceSource> open_fasta(const std::string& path) {
 }
 
 void read_record_windows(const std::string& path, const std::string& name, int64_t length, const RecordLayout& layout,
-                         const std::vector<RecordWindow>& windows, Contig& contig) {
+                         const std::vector<RecordWindow>& windows, Contig& contig, SoftMasked soft) {
     if (layout.line_bases <= 0 || layout.line_bytes < layout.line_bases)
         throw InternalError("read_record_windows: no line layout for record " + name);
     const std::unique_ptr<detail::ByteSource> source = detail::open_byte_source(path);
     const auto& classes = detail::byte_classes();
-    const auto& fast = sequence_bytes();
+    const auto& fast = detail::sequence_codes(soft);
     constexpr size_t buf_size = size_t{1} << 20;
     std::unique_ptr<char[]> buf(new char[buf_size]);
     std::unique_ptr<uint8_t[]> codes(new uint8_t[buf_size]);

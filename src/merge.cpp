@@ -74,7 +74,7 @@ ShardDoc read_doc(const std::string& path, const char* format) {
 ordered_json run_identity(const ordered_json& doc) {
     ordered_json id;
     for (const char* key :
-         {"format", "tool_version", "inputs", "profile", "profile_crc32", "options", "decode"})
+         {"format", "tool_version", "inputs", "profile", "profile_crc32", "options", "decode", "soft_masked"})
         if (doc.contains(key)) id[key] = doc[key];
     if (id.contains("options") && id["options"].is_object()) id["options"].erase("posteriors");
     id["shard_options"] = doc["shard"].value("options", ordered_json::object());
@@ -401,6 +401,7 @@ RunInfo run_info(const ordered_json& doc) {
     info.command_line = doc.value("command", "");
     info.inputs = doc.value("inputs", std::vector<std::string>{});
     if (doc.contains("options")) info.options_json = doc["options"].dump();
+    info.soft_masked_unknown = doc.value("soft_masked", "base") == "unknown";
     return info;
 }
 
@@ -898,6 +899,7 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     }
     const Model model = region_model(plan[0].doc);
     warn_on_commands(plan, log);
+    for (const DepletionWarning& w : depletion_warnings(model, contigs)) log.warn(w.message);
 
     std::unique_ptr<OutputFile> summary, report;
     if (!o.summary_path.empty()) {

@@ -137,8 +137,8 @@ Region parse_region(const faidx_t* fai, const std::string& text) {
 // Appends bases [from, to) of sequence `name` to contig, fetched in bounded pieces (memory
 // stays flat on chromosomes); lowercase bases are counted when count_soft.
 void append_fetched(faidx_t* fai, const std::string& path, const std::string& name, int64_t from, int64_t to,
-                    bool count_soft, Contig& contig, std::vector<uint8_t>& codes) {
-    const auto& classes = detail::byte_classes();
+                    bool count_soft, SoftMasked soft, Contig& contig, std::vector<uint8_t>& codes) {
+    const auto& table = detail::sequence_codes(soft);
     constexpr int64_t piece = 1 << 20;
     for (int64_t pos = from; pos < to; pos += piece) {
         const int64_t last = std::min(to, pos + piece) - 1;
@@ -151,14 +151,14 @@ void append_fetched(faidx_t* fai, const std::string& path, const std::string& na
         codes.resize(static_cast<size_t>(got));
         for (hts_pos_t k = 0; k < got; ++k) {
             const unsigned char ch = static_cast<unsigned char>(seq[k]);
-            const uint8_t cls = classes[ch];
-            if (cls > base_unknown) {
+            const uint8_t v = table[ch];
+            if (v & detail::not_a_base) {
                 std::free(seq);
                 throw InputError(fmt::format("{}: record '{}': illegal character {} at position {}", path, name,
                                              detail::describe_byte(ch), pos + k + 1));
             }
-            codes[k] = cls;
-            if (count_soft) contig.soft_masked += detail::is_lower_base(ch);
+            codes[k] = v & 7;
+            if (count_soft) contig.soft_masked += v >> 3;  // lowercase_flag
         }
         std::free(seq);
         contig.append(codes.data(), got);
@@ -179,7 +179,7 @@ public:
         contig.name = r.contig;
         contig.offset = r.begin;
         contig.sequence_length = faidx_seq_len(fai_.get(), r.contig.c_str());
-        append_fetched(fai_.get(), path_, r.contig, r.begin, r.end, true, contig, codes_);
+        append_fetched(fai_.get(), path_, r.contig, r.begin, r.end, true, soft_masked_, contig, codes_);
         return true;
     }
 

@@ -119,6 +119,7 @@ std::string options_json(const ScanOptions& o, const CallOptions& c) {
     j["bin"] = o.tracks.bin;
     j["track_format"] = o.tracks.format == TrackFormat::bedgraph ? "bedgraph" : "bigwig";
     j["block"] = o.block_size;
+    if (o.soft_masked == SoftMasked::unknown) j["soft_masked"] = "unknown";  // absent: as before (base)
     return j.dump();
 }
 
@@ -245,6 +246,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
 
     // Planned before any output exists, like the regions; every shard makes the same plan.
     ShardFilter shard(o.shard, o.inputs, regions, segment_length);
+    shard.set_soft_masked(o.soft_masked);
     const std::string identity = seams_identity(o.inputs, o.regions, o.regions_bed, profile_checksum(profile),
                                                 o.block_size, o.tracks.bin, segment_length);
     if (!o.emit_seams.empty()) return emit_seams(o, shard, identity, decoders[0], threads, log, regions);
@@ -428,7 +430,10 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     info.command_line = o.command_line;
     info.inputs = o.inputs;
     info.options_json = options_json(o, call_options);
+    info.soft_masked_unknown = o.soft_masked == SoftMasked::unknown;
     if (o.shard.active()) info.shard_json = shard_json(shard, info.options_json, info.profile_checksum, summaries, shared);
+    if (!o.shard.active())  // a shard sees part of the input: merge judges the whole
+        for (const DepletionWarning& w : depletion_warnings(model, summaries)) log.warn(w.message);
     std::unique_ptr<OutputFile> summary, report;
     if (!o.summary_path.empty()) {
         summary = std::make_unique<OutputFile>(o.summary_path);

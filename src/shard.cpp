@@ -232,6 +232,10 @@ public:
         : path_(std::move(path)), items_(std::move(items)),
           stream_(whole.empty() ? nullptr : open_fasta_records(path_, std::move(whole))) {}
     const std::string& path() const override { return path_; }
+    void set_soft_masked(SoftMasked mode) override {
+        soft_masked_ = mode;
+        if (stream_) stream_->set_soft_masked(mode);
+    }
     bool next(Contig& contig) override {
         if (next_ == items_.size()) return false;
         const Item& item = items_[next_++];
@@ -242,7 +246,7 @@ public:
                                              path_, item.name));
             return true;
         }
-        read_record_windows(path_, item.name, item.length, item.layout, item.windows, contig);
+        read_record_windows(path_, item.name, item.length, item.layout, item.windows, contig, soft_masked_);
         return true;
     }
 
@@ -348,6 +352,13 @@ std::vector<std::string> ShardFilter::split_records() const {
 
 std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, const std::vector<Region>& regions,
                                                   bool pieces_only) {
+    std::unique_ptr<SequenceSource> source = open_reader(input, regions, pieces_only);
+    source->set_soft_masked(soft_masked_);
+    return source;
+}
+
+std::unique_ptr<SequenceSource> ShardFilter::open_reader(const std::string& input, const std::vector<Region>& regions,
+                                                         bool pieces_only) {
     if (!spec_.active() || !read_share_) {
         sharing_ = false;
         return regions.empty() ? open_fasta(input) : open_regions(input, regions);

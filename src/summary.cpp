@@ -97,7 +97,7 @@ ordered_json call_histograms(const ContigSummary& g, size_t r) {
             {"confidence_histogram", histogram(confidence_edges, g.call_confidences[r])}};
 }
 
-ordered_json contig_json(const Model& model, const ContigSummary& c, bool report) {
+ordered_json contig_json(const Model& model, const ContigSummary& c, bool report, bool masked) {
     ordered_json o;
     o["name"] = c.name;
     o["input_index"] = c.input_index;  // lets merge restore input order from shard outputs
@@ -105,6 +105,7 @@ ordered_json contig_json(const Model& model, const ContigSummary& c, bool report
     o["length"] = c.length;
     o["unknown_bases"] = c.unknown;
     o["soft_masked_bases"] = c.soft_masked;
+    if (masked) o["masked_bases"] = c.soft_masked;  // read as unknown: included in unknown_bases
     o["gc_fraction"] = c.composition.gc_fraction();
     o["cpg_obs_exp"] = number_or_null(c.composition.cpg_obs_exp());
     o["log_likelihood"] = c.log_likelihood;
@@ -144,8 +145,9 @@ ordered_json document(const char* format, const RunInfo& info, const Model& mode
         doc["options"] = info.options_json.empty() ? ordered_json::object() : ordered_json::parse(info.options_json);
     }
     doc["decode"] = info.decode_mode;
+    if (info.soft_masked_unknown) doc["soft_masked"] = "unknown";
     const ContigSummary total = genome_total(model, contigs);
-    doc["genome"] = contig_json(model, total, report);
+    doc["genome"] = contig_json(model, total, report, info.soft_masked_unknown);
     doc["genome"].erase("name");
     doc["genome"].erase("input_index");
     if (report)
@@ -154,13 +156,57 @@ ordered_json document(const char* format, const RunInfo& info, const Model& mode
                 doc["genome"]["regions"][model.region_names[r]].update(call_histograms(total, r));
     doc["genome"]["contigs"] = contigs.size();
     ordered_json list = ordered_json::array();
-    for (const auto& c : contigs) list.push_back(contig_json(model, c, report));
+    for (const auto& c : contigs) list.push_back(contig_json(model, c, report, info.soft_masked_unknown));
     doc["contigs"] = list;
+    const std::vector<DepletionWarning> warnings = depletion_warnings(model, contigs);
+    if (!warnings.empty()) {  // absent otherwise, so that earlier summaries stay as they were
+        ordered_json w = ordered_json::array();
+        for (const auto& x : warnings)
+            w.push_back({{"kind", "cpg_not_depleted"},
+                         {"contig", x.contig.empty() ? ordered_json(nullptr) : ordered_json(x.contig)},
+                         {"cpg_obs_exp", x.cpg_obs_exp},
+                         {"known_bases", x.known_bases},
+                         {"message", x.message}});
+        doc["warnings"] = w;
+    }
     if (!info.shard_json.empty()) doc["shard"] = ordered_json::parse(info.shard_json);
     return doc;
 }
 
 }  // namespace
+
+std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::vector<ContigSummary>& contigs) {
+    std::vector<DepletionWarning> out;
+    if (std::find(model.region_names.begin(), model.region_names.end(), "cpg_island") == model.region_names.end())
+        return out;
+    const auto warning = [&](const std::string& contig, const Composition& comp, double limit) {
+        DepletionWarning w;
+        w.contig = contig;
+        w.cpg_obs_exp = comp.cpg_obs_exp();
+        w.known_bases = comp.known();
+        w.message = fmt::format(
+            "{} has CpG o/e {:.3f} over {} known bases, above {}: CpG is not depleted there, but profile '{}' "
+            "assumes a CpG-depleted (vertebrate) genome, so its calls there are GC-rich stretches rather than "
+            "CpG islands",
+            contig.empty() ? std::string("the input") : "contig '" + contig + "'", w.cpg_obs_exp, w.known_bases,
+            limit, model.name);
+        out.push_back(std::move(w));
+    };
+    const ContigSummary total = genome_total(model, contigs);
+    // NaN (no C or no G) compares false: nothing to judge.
+    const int64_t known = total.composition.known();
+    const double limit = known >= DepletionRule::min_genome_known ? DepletionRule::max_obs_exp
+                                                                  : DepletionRule::short_max_obs_exp;
+    if (known >= DepletionRule::short_min_known && total.composition.cpg_obs_exp() > limit) {
+        warning("", total.composition, limit);
+        return out;
+    }
+    for (const auto& c : contigs)
+        if (c.composition.known() >= DepletionRule::min_contig_known &&
+            c.composition.cpg_obs_exp() > DepletionRule::max_obs_exp)
+            warning(c.name, c.composition, DepletionRule::max_obs_exp);
+    return out;
+}
 
 void ContigSummary::reset_calls(size_t regions) {
     expected_bases.resize(regions, 0.0);

@@ -8,8 +8,8 @@ namespace tidemark {
 
 FastaTrainingData::FastaTrainingData(std::vector<std::string> inputs,
                                      const std::vector<std::string>& regions,
-                                     const std::string& regions_bed)
-    : inputs_(std::move(inputs)) {
+                                     const std::string& regions_bed, SoftMasked soft_masked)
+    : inputs_(std::move(inputs)), soft_masked_(soft_masked) {
     if (inputs_.empty()) throw UsageError("fit needs at least one FASTA file");
     for (const auto& in : inputs_)
         if (in == "-")
@@ -28,6 +28,7 @@ void FastaTrainingData::for_each(const std::function<void(const Contig&)>& fn) {
     for (const auto& input : inputs_) {
         std::unique_ptr<SequenceSource> source =
             regions_.empty() ? open_fasta(input) : open_regions(input, regions_);
+        source->set_soft_masked(soft_masked_);
         while (source->next(contig_)) {
             if (!recorded_)
                 seen.push_back({input, contig_.name, contig_.offset, contig_.length, contig_.unknown_count()});

@@ -159,7 +159,7 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     validate(o);
     if (!o.from_stats.empty()) return fit_from_statistics(o, log);
     if (!o.emit_stats.empty() || !o.emit_seams.empty()) return emit_statistics(o, log);
-    FastaTrainingData data(o.inputs, o.regions, o.regions_bed);
+    FastaTrainingData data(o.inputs, o.regions, o.regions_bed, o.soft_masked);
     // Open the output before the long work so that an unwritable path fails at once; it is
     // committed only at the end.
     OutputFile out(o.output);

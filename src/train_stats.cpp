@@ -24,13 +24,14 @@ constexpr const char* stats_format = "tidemark-stats/1";
 class ShardTrainingData final : public TrainingData {
 public:
     ShardTrainingData(const FitJobOptions& o, int64_t segment_length)
-        : inner_(o.inputs, o.regions, o.regions_bed), inputs_(o.inputs) {
+        : inner_(o.inputs, o.regions, o.regions_bed, o.soft_masked), inputs_(o.inputs) {
         if (!o.regions.empty() || !o.regions_bed.empty()) {
             const std::vector<Interval> bed =
                 o.regions_bed.empty() ? std::vector<Interval>{} : read_bed(o.regions_bed);
             regions_ = resolve_regions(o.inputs[0], o.regions, bed);
         }
         if (o.shard.active()) plan_ = ShardFilter(o.shard, o.inputs, regions_, segment_length);
+        plan_.set_soft_masked(o.soft_masked);
     }
     void use_seams(SeamsTable seams) { seams_ = std::move(seams); }
     const ShardFilter* current_shard() const override { return live_; }

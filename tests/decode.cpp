@@ -8,6 +8,7 @@
 #include "test_util.hpp"
 #include "tidemark/decode.hpp"
 #include "tidemark/error.hpp"
+#include "tidemark/profile.hpp"
 
 using namespace tidemark;
 
@@ -120,6 +121,39 @@ TEST_CASE("posterior decoding equals exhaustive enumeration over all state paths
         ++cases;
     }
     CHECK(cases == 60);
+}
+
+TEST_CASE("built-in CpG-island profiles equal exhaustive enumeration over all state paths", "[decode]") {
+    // The default cpg-island (several background states) and the two-state textbook model, on
+    // short sequences with lowercase and unknown bases: every S^n path summed from the profile
+    // definition alone.
+    std::mt19937_64 rng(20261202);
+    for (const char* name : {"cpg-island", "cpg-island-2state"}) {
+        const Profile p = load_profile(name);
+        const int S = static_cast<int>(p.states.size());
+        const Model m = compile(p);
+        for (int trial = 0; trial < 12; ++trial) {
+            const size_t n = S > 4 ? 1 + rng() % 7 : 1 + rng() % 8;
+            const std::string seq = random_sequence(rng, n);
+            const Enumeration truth = enumerate_paths(p, seq);
+            const Contig c = test::contig_from(seq);
+            for (int64_t block : {0, 1, 3}) {
+                DecoderOptions opt;
+                opt.block_size = block;
+                PosteriorDecoder dec(m, opt);
+                Collect sink;
+                const DecodeResult r = dec.run(c, sink);
+                REQUIRE(sink.posterior.size() == truth.posterior.size());
+                for (size_t i = 0; i < truth.posterior.size(); ++i)
+                    REQUIRE(sink.posterior[i] == Approx(truth.posterior[i]).margin(1e-12));
+                REQUIRE(r.log_likelihood == Approx(std::log(truth.total)).epsilon(0).margin(1e-12));
+                ViterbiDecoder vit(m, opt);
+                Collect vsink;
+                const DecodeResult vr = vit.run(c, vsink);
+                REQUIRE(vr.log_likelihood == Approx(std::log(truth.best)).epsilon(0).margin(1e-12));
+            }
+        }
+    }
 }
 
 TEST_CASE("exhaustive enumeration with zero transitions and emissions", "[decode]") {

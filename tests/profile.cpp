@@ -1,4 +1,4 @@
-// Profile parsing and validation (field-level errors), the built-in cpg-island numbers against
+// Profile parsing and validation (field-level errors), the built-in cpg-island-2state numbers against
 // the published tables, canonical JSON round trip, and compilation.
 #include <catch2/catch.hpp>
 
@@ -101,7 +101,7 @@ TEST_CASE("a NaN in a profile is rejected", "[profile]") {
     CHECK_THROWS_AS(parse_profile(text, "p.json"), ProfileError);
 }
 
-TEST_CASE("built-in cpg-island carries the published first-order tables", "[profile]") {
+TEST_CASE("built-in cpg-island-2state carries the published first-order tables", "[profile]") {
     // Durbin, Eddy, Krogh & Mitchison (1998), Biological Sequence Analysis, section 3.1: the
     // '+' and '-' tables as printed (row = preceding base A C G T, column = next base).
     const double plus[4][4] = {{0.180, 0.274, 0.426, 0.120},
@@ -112,7 +112,7 @@ TEST_CASE("built-in cpg-island carries the published first-order tables", "[prof
                                 {0.322, 0.298, 0.078, 0.302},
                                 {0.248, 0.246, 0.298, 0.208},
                                 {0.177, 0.239, 0.292, 0.292}};
-    const Profile p = load_profile("cpg-island");
+    const Profile p = load_profile("cpg-island-2state");
     const int island = p.state_index("island");
     const int bulk = p.state_index("bulk");
     REQUIRE(island >= 0);

@@ -20,6 +20,7 @@ struct ScanOptions {
     std::string output = "-";               ///< calls as BED, "-" = stdout
     std::vector<std::string> regions;       ///< region strings (faidx)
     std::string regions_bed;                ///< BED of regions (faidx)
+    SoftMasked soft_masked = SoftMasked::base;  ///< lowercase bases: as their base, or unknown
     DecodeMode decode = DecodeMode::posterior;
     std::optional<double> min_posterior;    ///< unset: the profile's calling default
     std::optional<int64_t> merge_gap;       ///< unset: the profile's calling default

@@ -14,6 +14,13 @@ namespace tidemark {
 /// Base codes used everywhere inside tidemark (A<C<G<T, as in profile context indices).
 enum BaseCode : uint8_t { base_a = 0, base_c = 1, base_g = 2, base_t = 3, base_unknown = 4 };
 
+/// How readers take lowercase (soft-masked) bases: as their base (A, C, G, T), or as unknown
+/// bases (emission 1, context reset), as annotators often do with repeat-masked assemblies.
+enum class SoftMasked : uint8_t { base, unknown };
+
+/// Parses "base" or "unknown"; throws UsageError otherwise.
+SoftMasked parse_soft_masked(const std::string& text);
+
 /// A maximal run of unknown bases (N or another IUPAC ambiguity code), contig coordinates.
 struct UnknownRun {
     int64_t begin = 0;
@@ -35,7 +42,7 @@ struct Contig {
                                   ///< region of it (faidx); 0 for streamed records
     /// Length of the whole named sequence (for chrom-sizes files and track headers).
     int64_t full_length() const { return sequence_length > 0 ? sequence_length : offset + length; }
-    int64_t soft_masked = 0; ///< lowercase bases seen (kept as their base)
+    int64_t soft_masked = 0; ///< lowercase bases seen (their base, or unknown with SoftMasked::unknown)
     std::vector<UnknownRun> unknown;  ///< sorted, disjoint, non-adjacent
 
     /// Code 0..4 of base i (0 <= i < length).
@@ -95,6 +102,12 @@ public:
     virtual bool next(Contig& contig) = 0;
     /// The path as the user gave it ("-" for stdin).
     virtual const std::string& path() const = 0;
+    /// How lowercase bases of the records read from now on are taken [SoftMasked::base].
+    virtual void set_soft_masked(SoftMasked mode) { soft_masked_ = mode; }
+    SoftMasked soft_masked() const { return soft_masked_; }
+
+protected:
+    SoftMasked soft_masked_ = SoftMasked::base;
 };
 
 /// Streams every record of a FASTA file. path "-" is stdin. Plain, gzip and bgzip are read
@@ -125,14 +138,16 @@ struct RecordLayout {
 /// the windows are unknown and never read (a shard's segments of a record split between shards,
 /// with a few bases of context). Each window is read by seeking to its first base (plain or
 /// bgzip with .gzi) and parsing as the FASTA stream does. Lowercase bases are counted in
-/// soft_masked only inside [count_begin, count_end) of each window. Windows are sorted and
-/// disjoint. Throws InputError naming the record and position of a byte that is not a base.
+/// soft_masked only inside [count_begin, count_end) of each window, and read as `soft` says.
+/// Windows are sorted and disjoint. Throws InputError naming the record and position of a byte
+/// that is not a base.
 struct RecordWindow {
     int64_t begin = 0, end = 0;
     int64_t count_begin = 0, count_end = 0;
 };
 void read_record_windows(const std::string& path, const std::string& name, int64_t length, const RecordLayout& layout,
-                         const std::vector<RecordWindow>& windows, Contig& contig);
+                         const std::vector<RecordWindow>& windows, Contig& contig,
+                         SoftMasked soft = SoftMasked::base);
 
 /// Makes sure PATH.fai (and PATH.gzi for bgzip) exist and are at least as new as PATH: builds
 /// them under temporary names and renames them into place, so that concurrent processes never

@@ -90,6 +90,8 @@ public:
     /// otherwise every record, and take() picks. pieces_only: only records split between shards.
     std::unique_ptr<SequenceSource> open(const std::string& input, const std::vector<Region>& regions,
                                          bool pieces_only = false);
+    /// How the sources that open() returns read lowercase bases [SoftMasked::base].
+    void set_soft_masked(SoftMasked mode) { soft_masked_ = mode; }
     /// True while the source last opened yields only this shard's records.
     bool reading_share() const { return sharing_; }
     /// Advances to the next record; true when it belongs to this shard, wholly or in part.
@@ -123,11 +125,14 @@ public:
 
 private:
     bool mine(size_t unit) const;  ///< this shard decodes the unit, wholly or in part
+    std::unique_ptr<SequenceSource> open_reader(const std::string& input, const std::vector<Region>& regions,
+                                                bool pieces_only);
 
     ShardSpec spec_;
     ShardPlan plan_;
     int64_t segment_length_ = 0;
     int64_t current_ = -1;  ///< planned unit of the record last taken; -1 = none (empty record)
+    SoftMasked soft_masked_ = SoftMasked::base;
     bool read_share_ = false;  ///< inputs can be read through their index (see open)
     bool sharing_ = false;     ///< the current source yields only this shard's units
     int64_t next_ = 0;    ///< records seen

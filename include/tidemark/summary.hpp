@@ -70,7 +70,37 @@ struct RunInfo {
     std::vector<std::string> inputs;
     std::string options_json;      ///< the effective options as a JSON object
     std::string shard_json;        ///< shard runs: what merge needs (shard.hpp); "" = not sharded
+    bool soft_masked_unknown = false;  ///< lowercase bases were read as unknown (--soft-masked unknown)
 };
+
+/// The CpG-depletion guard. A profile with a `cpg_island` region contrasts CpG-rich islands with
+/// a CpG-depleted background, as in vertebrate genomes (bulk CpG o/e about 0.2: one fifth of the
+/// expected frequency, IHGSC 2001, Nature 409:860-921, from memory; 0.22 measured on human chrX,
+/// GRCh37). Where CpG is not depleted the profile's calls are not CpG islands. The rule: warn when
+/// the CpG o/e of all known bases exceeds 0.6 (the island threshold of Gardiner-Garden & Frommer
+/// 1987, J. Mol. Biol. 196:261-282: bulk DNA that passes it is, by that definition, not
+/// depleted) over at least 50 kb, or 0.8 over 20 to 50 kb; or when that of one contig with at
+/// least 1 Mbp of known bases exceeds 0.6. The lengths are measured on human chrX (GRCh37):
+/// every 50-kb window has o/e <= 0.595 (45-kb windows reach 0.603 in CpG-island-dense
+/// stretches), every 20-kb window <= 0.764, and 1-Mbp windows stay below 0.43; so human inputs
+/// of those lengths never warn, and shorter inputs are not judged.
+struct DepletionRule {
+    static constexpr double max_obs_exp = 0.6;
+    static constexpr int64_t min_genome_known = 50'000;
+    static constexpr double short_max_obs_exp = 0.8;
+    static constexpr int64_t short_min_known = 20'000;
+    static constexpr int64_t min_contig_known = 1'000'000;
+};
+struct DepletionWarning {
+    std::string contig;  ///< "" = the whole input
+    double cpg_obs_exp = 0;
+    int64_t known_bases = 0;
+    std::string message;
+};
+/// The guard's warnings for this model and these contigs (none unless the model has a
+/// `cpg_island` region): the whole input first, then contigs in input order (contigs only when
+/// the whole input does not warn).
+std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::vector<ContigSummary>& contigs);
 
 /// The summary as JSON (tidemark-summary/1): run info, genome-wide totals, one entry per
 /// contig. Deterministic: the same input gives the same text.

@@ -51,7 +51,7 @@ struct SequenceRecord {
 class FastaTrainingData final : public TrainingData {
 public:
     FastaTrainingData(std::vector<std::string> inputs, const std::vector<std::string>& regions,
-                      const std::string& regions_bed);
+                      const std::string& regions_bed, SoftMasked soft_masked = SoftMasked::base);
     void for_each(const std::function<void(const Contig&)>& fn) override;
     /// The records of the first complete pass, in order.
     const std::vector<SequenceRecord>& records() const { return records_; }
@@ -59,6 +59,7 @@ public:
 private:
     std::vector<std::string> inputs_;
     std::vector<Region> regions_;
+    SoftMasked soft_masked_ = SoftMasked::base;
     Contig contig_;
     std::vector<SequenceRecord> records_;
     bool recorded_ = false;
@@ -331,6 +332,7 @@ struct FitJobOptions {
     std::vector<std::string> inputs;   ///< FASTA paths (read once per pass, so not stdin)
     std::vector<std::string> regions;  ///< region strings (faidx)
     std::string regions_bed;           ///< BED of regions (faidx)
+    SoftMasked soft_masked = SoftMasked::base;  ///< lowercase bases: as their base, or unknown
     std::string profile;               ///< starting profile: built-in or file ("" = none)
     int classes_min = 0;               ///< template class counts (0 = no template)
     int classes_max = 0;

@@ -12,6 +12,7 @@ void add_fit(CLI::App& app, Context& ctx) {
     auto verbose = std::make_shared<bool>(false);
     auto quiet = std::make_shared<bool>(false);
     auto shard = std::make_shared<std::string>();
+    auto soft_masked = std::make_shared<std::string>("base");
 
     CLI::App* cmd = app.add_subcommand(
         "fit", "Learn a profile from sequences: Baum-Welch from a profile or a K-class template, or "
@@ -24,6 +25,11 @@ void add_fit(CLI::App& app, Context& ctx) {
                     "train only on this region: NAME or NAME:BEG-END, 1-based inclusive (repeatable)")
         ->allow_extra_args(false);  // -r A genome.fa: genome.fa is the input, not a second region
     cmd->add_option("--regions-bed", opts->regions_bed, "train only on the intervals of this BED file");
+    cmd->add_option("--soft-masked", *soft_masked,
+                    "lowercase (soft-masked) bases: base (read as A, C, G, T) or unknown (like N: they contribute "
+                    "nothing)")
+        ->check(CLI::IsMember({"base", "unknown"}))
+        ->capture_default_str();
     cmd->add_option("--classes", *classes,
                     "start from a template of K composition classes seeded from the data; A..B fits each "
                     "count (with --select)");
@@ -85,6 +91,7 @@ void add_fit(CLI::App& app, Context& ctx) {
 
     cmd->callback([=, &ctx] {
         opts->command_line = recorded_command_line(ctx.command_line);
+        opts->soft_masked = parse_soft_masked(*soft_masked);
         const LogLevel level = *quiet ? LogLevel::quiet : *verbose ? LogLevel::verbose : LogLevel::normal;
         // Parsing that can throw tidemark errors runs in the action, where main maps them to exit codes.
         ctx.action = [opts, classes, freeze, shard, level] {

@@ -17,6 +17,7 @@ void add_scan(CLI::App& app, Context& ctx) {
     auto merge_gap = std::make_shared<int64_t>(0);
     auto min_length = std::make_shared<int64_t>(0);
     auto shard = std::make_shared<std::string>();
+    auto soft_masked = std::make_shared<std::string>("base");
 
     CLI::App* cmd = app.add_subcommand(
         "scan", "Decode FASTA sequences with a profile: per-base region posteriors and BED calls");
@@ -33,6 +34,12 @@ void add_scan(CLI::App& app, Context& ctx) {
         ->allow_extra_args(false)  // -r A genome.fa: genome.fa is the input, not a second region
         ->group(input);
     cmd->add_option("--regions-bed", opts->regions_bed, "decode only the intervals of this BED file")->group(input);
+    cmd->add_option("--soft-masked", *soft_masked,
+                    "lowercase (soft-masked) bases: base (read as A, C, G, T) or unknown (like N; counted as masked "
+                    "in the summary)")
+        ->check(CLI::IsMember({"base", "unknown"}))
+        ->capture_default_str()
+        ->group(input);
     cmd->add_option("--shard", *shard,
                     "decode only share I of N (1-based) of the records, balanced by length; combine the N "
                     "outputs with 'tidemark merge'")
@@ -123,6 +130,7 @@ void add_scan(CLI::App& app, Context& ctx) {
         if (ml->count()) opts->min_length = *min_length;
         opts->decode = *decode == "viterbi" ? DecodeMode::viterbi : DecodeMode::posterior;
         opts->criteria = parse_island_criteria(*criteria);
+        opts->soft_masked = parse_soft_masked(*soft_masked);
         opts->bed_style = *bed_style == "browser" ? BedStyle::browser : BedStyle::plain;
         opts->tracks.format = *track_format == "bigwig" ? TrackFormat::bigwig : TrackFormat::bedgraph;
         // Every shard records the single-run command, so merged outputs equal a single run's.

@@ -142,13 +142,20 @@ def to_text(codes):
     return "".join(BASES[c] for c in codes)
 
 
+def island_and_bulk_states(t):
+    """The CpG-island profiles' states: those of region cpg_island, and the others (background)."""
+    island = [s for s in range(len(t.states)) if t.regions[t.region_of[s]] == "cpg_island"]
+    bulk = [s for s in range(len(t.states)) if t.regions[t.region_of[s]] != "cpg_island"]
+    return island, bulk
+
+
 def random_cpg_contigs(rng, t):
-    island = t.states.index("island")
-    bulk = t.states.index("bulk")
+    islands, bulks = island_and_bulk_states(t)
     contigs = []
-    # Background from the bulk chain with GC/CpG-rich stretches from the island chain planted in it,
-    # so that posteriors run from near 0 to near 1.
+    # Background from a bulk chain with GC/CpG-rich stretches from an island chain planted in it,
+    # so that posteriors run from near 0 to near 1 (each background state in turn).
     for k in range(3):
+        island, bulk = islands[k % len(islands)], bulks[k % len(bulks)]
         n = int(rng.integers(10_000, 50_001))
         seq = markov_chain(rng, t, bulk, n)
         for _ in range(int(rng.integers(1, 4))):
@@ -168,8 +175,8 @@ def random_cpg_contigs(rng, t):
 def unknown_contig(rng, t):
     """Bulk - island - bulk (8 + 4 + 8 kb) with N at the very start and runs of 1 to 250 N, some
     inside the island stretch where the posterior is high and a broken context matters most."""
-    island = t.states.index("island")
-    bulk = t.states.index("bulk")
+    islands, bulks = island_and_bulk_states(t)
+    island, bulk = islands[0], bulks[0]
     seq = np.concatenate([markov_chain(rng, t, bulk, 8_000), markov_chain(rng, t, island, 4_000),
                           markov_chain(rng, t, bulk, 8_000)])
     s = list(to_text(seq))
@@ -254,26 +261,29 @@ def compare(checks, binary, workdir, tag, t, contigs, profile_arg, build):
 def body(checks, binary, workdir):
     rng = np.random.default_rng(20240611)
 
-    # --- the built-in first-order profile, read from tidemark's own profile output
-    cpg = Tables(json.loads(tmtest.run(binary, ["profiles", "show", "cpg-island"])))
-    checks.check(all(o == 1 for o in cpg.order) and set(cpg.states) == {"island", "bulk"},
-                 "cpg-island is the first-order island/bulk model this test expands", "test design")
+    # --- the built-in first-order CpG-island profiles, read from tidemark's own profile output:
+    # the default (several background states) and the textbook two-state model
+    for name in ("cpg-island", "cpg-island-2state"):
+        cpg = Tables(json.loads(tmtest.run(binary, ["profiles", "show", name])))
+        islands, bulks = island_and_bulk_states(cpg)
+        checks.check(all(o == 1 for o in cpg.order) and islands and bulks,
+                     f"{name} is a first-order island/background model this test expands", "test design")
 
-    random_contigs = random_cpg_contigs(rng, cpg)
-    top = compare(checks, binary, workdir, "random", cpg, random_contigs, "cpg-island", expanded_hmm)
-    # Test design: the planted stretches must give the comparison posteriors well away from 0.
-    checks.check(all(top[f"planted{k}"] > 0.9 for k in range(3)),
-                 "planted contigs reach P(cpg_island) > 0.9 somewhere", "test design (oracle posteriors)",
-                 ", ".join(f"{k} {v:.3f}" for k, v in top.items()))
+        random_contigs = random_cpg_contigs(rng, cpg)
+        top = compare(checks, binary, workdir, f"{name}.random", cpg, random_contigs, name, expanded_hmm)
+        # Test design: the planted stretches must give the comparison posteriors well away from 0.
+        checks.check(all(top[f"planted{k}"] > 0.9 for k in range(3)),
+                     f"{name}: planted contigs reach P(cpg_island) > 0.9 somewhere",
+                     "test design (oracle posteriors)", ", ".join(f"{k} {v:.3f}" for k, v in top.items()))
 
-    lam = tmtest.read_fasta(LAMBDA)[0][1]
-    pieces = [(0, 12_000), (12_000, 42_000), (30_000, 48_502), (0, 48_502)]
-    lambda_contigs = [(f"lambda_{b}_{e}", lam[b:e]) for b, e in pieces]
-    compare(checks, binary, workdir, "lambda", cpg, lambda_contigs, "cpg-island", expanded_hmm)
+        lam = tmtest.read_fasta(LAMBDA)[0][1]
+        pieces = [(0, 12_000), (12_000, 42_000), (30_000, 48_502), (0, 48_502)]
+        lambda_contigs = [(f"lambda_{b}_{e}", lam[b:e]) for b, e in pieces]
+        compare(checks, binary, workdir, f"{name}.lambda", cpg, lambda_contigs, name, expanded_hmm)
 
-    # --- unknown bases: N emits 1 in every state and breaks the context (see expanded_hmm)
-    n_contigs = [("with_n", unknown_contig(rng, cpg))]
-    compare(checks, binary, workdir, "unknown", cpg, n_contigs, "cpg-island", expanded_hmm)
+        # --- unknown bases: N emits 1 in every state and breaks the context (see expanded_hmm)
+        n_contigs = [("with_n", unknown_contig(rng, cpg))]
+        compare(checks, binary, workdir, f"{name}.unknown", cpg, n_contigs, name, expanded_hmm)
 
     # --- a random order-0 profile with three states in two reported regions
     S = 3

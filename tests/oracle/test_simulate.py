@@ -1,5 +1,5 @@
 """Oracle: `tidemark simulate` output against the profile it was drawn from (the published
-cpg-island tables), tiling of the truth BED, byte-identical reruns, line width, gaps, bounded memory."""
+cpg-island-2state tables), tiling of the truth BED, byte-identical reruns, line width, gaps, bounded memory."""
 
 import json
 import math
@@ -15,10 +15,10 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import tmtest  # noqa: E402
 
 PROFILE_FILE = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", "data", "profiles",
-                            "cpg-island.json")
+                            "cpg-island-2state.json")
 # The profile file's emission rows are Durbin, Eddy, Krogh & Mitchison (1998), Biological Sequence
 # Analysis, section 3.1 (as cited inside the file); its switch probabilities are cited there too.
-DURBIN = "cpg-island.json: Durbin et al. (1998) section 3.1 tables, binomial sampling error"
+DURBIN = "cpg-island-2state.json: Durbin et al. (1998) section 3.1 tables, binomial sampling error"
 BINOMIAL_Z = 5  # two-sided normal tail 5.7e-7 per cell; about 40 cells below -> false alarm < 3e-5
 CODE = {ord("A"): 0, ord("C"): 1, ord("G"): 2, ord("T"): 3}
 
@@ -28,7 +28,7 @@ def profile_tables():
         p = json.load(f)
     regions = [r["name"] for r in p["regions"]]
     states = {s["name"]: s for s in p["states"]}
-    # cpg-island has one state per region, so a region label is a state label.
+    # cpg-island-2state has one state per region, so a region label is a state label.
     assert len(states) == len(regions)
     region_of = {s["name"]: s["region"] for s in p["states"]}
     emissions = {region_of[n]: np.array(s["emissions"], dtype=float) for n, s in states.items()}
@@ -105,7 +105,8 @@ def peak_hwm_kb(binary, args, cwd):
 def body(checks, tm, work):
     regions, emissions, switch = profile_tables()
     fa, bed = os.path.join(work, "s.fa"), os.path.join(work, "t.bed")
-    tmtest.run(tm, ["simulate", "--lengths", "5000000", "--seed", "2024", "-o", fa, "--truth", bed])
+    tmtest.run(tm, ["simulate", "-p", "cpg-island-2state", "--lengths", "5000000", "--seed", "2024", "-o", fa,
+                    "--truth", bed])
     records = tmtest.read_fasta(fa)
     rows = tmtest.read_bed(bed)
     lengths = {n: len(s) for n, s in records}
