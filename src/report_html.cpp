@@ -465,7 +465,9 @@ struct Page {
                 grouped(g.called_bases[ri]),
                 num(100.0 * static_cast<double>(g.called_bases[ri]) / len, 3),
                 num(100.0 * g.expected_bases[ri] / len, 3), any ? grouped(ls.min) : "\u2013",
-                any ? num(ls.median, ls.median == std::floor(ls.median) ? 0 : 1) : "\u2013",
+                !any ? "\u2013"
+                     : ls.median == std::floor(ls.median) ? grouped(static_cast<int64_t>(ls.median))
+                                                          : num(ls.median, 1),
                 any ? grouped(ls.max) : "\u2013",
                 any ? num(g.confidence_sum[ri] / static_cast<double>(g.calls[ri]), 4) : "\u2013");
         }
@@ -552,7 +554,7 @@ struct Page {
         }
         out += fmt::format(
             "<text x=\"{}\" y=\"{}\" class=\"tick\" text-anchor=\"end\">band height: P {}</text>\n",
-            px(label_w - 8), px(top - 12), full);
+            px(label_w - 18), px(top - 12), full);
         for (size_t i = 0; i < n; ++i) {
             const SequenceSketch& s = shown[i];
             const double y = top + row_h * static_cast<double>(i);
@@ -667,7 +669,7 @@ struct Page {
     void bar_chart(const std::string& title, const std::string& xlabel,
                    const std::vector<std::string>& labels,
                    const std::vector<std::vector<int64_t>>& counts, size_t label_every) {
-        const double W = 540, H = 270, left = 58, right = 14, top = 30, bottom = 52;
+        const double W = 540, H = 270, left = 58, right = 26, top = 30, bottom = 52;
         const size_t n = labels.size() - 1;  // labels are bin edges
         int64_t highest = 1;
         for (size_t i = 0; i < n; ++i) {
@@ -778,7 +780,7 @@ struct Page {
     }
 
     void window_figure(const CallWindow& w, size_t rank) {
-        const double W = 540, H = 200, left = 44, right = 12, top = 40, ph = 104,
+        const double W = 540, H = 200, left = 44, right = 30, top = 40, ph = 104,
                      strip_y = top + ph + 8;
         const double pw = W - left - right;
         const size_t R = reported.size();
@@ -873,13 +875,12 @@ struct Page {
             return;
         }
         out += fmt::format(
-            "<p class=\"note\">The {} calls with the highest mean posterior (ties: the longer, "
-            "then "
-            "the earlier), each with at least 1 kb on either side. Stacked posterior of the "
-            "reported "
+            "<p class=\"note\">{} with the highest mean posterior (ties: the longer, then the "
+            "earlier), each with at least 1 kb on either side. Stacked posterior of the reported "
             "region types; dashed line: the calling threshold; below: the calls (thick = core, "
             "P &ge; {}). Positions are 1-based.</p>\n",
-            windows.size(), num(in.calling->high_posterior, 2));
+            windows.size() == 1 ? std::string("The call") : fmt::format("The {} calls", windows.size()),
+            num(in.calling->high_posterior, 2));
         legend(false);
         out += "<div class=\"figs\">\n";
         for (size_t i = 0; i < windows.size(); ++i) window_figure(windows[i], i + 1);
@@ -903,14 +904,15 @@ struct Page {
                 "{}.</p>\n",
                 grouped(static_cast<int64_t>(shown.size())),
                 grouped(static_cast<int64_t>(contigs.size())));
-        out +=
-            "<table class=\"seqs\">\n<tr><th>#</th><th>sequence</th><th>length "
-            "(bp)</th><th>unknown</th><th>GC</th>"
-            "<th>CpG o/e</th><th>log-likelihood</th>";
+        // Wide tables (profiles with many reported regions) scroll instead of overflowing.
+        out += "<div class=\"wide\"><table>\n<tr><th>#</th><th>sequence</th><th>length (bp)</th>"
+               "<th>unknown</th><th>GC</th><th>CpG o/e</th><th>log-likelihood</th>";
         for (const int r : reported)
             out += fmt::format(
-                "<th><b class=\"sw\" style=\"color:{}\">\u25a0</b>{} expected %</th><th>calls</th>",
-                rgb(model, r), esc(model.region_names[static_cast<size_t>(r)]));
+                "<th><b class=\"sw\" style=\"color:{}\">\u25a0</b>{}<br>expected %</th>"
+                "<th>{}<br>calls</th>",
+                rgb(model, r), esc(model.region_names[static_cast<size_t>(r)]),
+                esc(model.region_names[static_cast<size_t>(r)]));
         out += "</tr>\n";
         const auto row = [&](const ContigSummary& c, const std::string& index, bool total) {
             const double len = c.length > 0 ? static_cast<double>(c.length) : 1.0;
@@ -938,7 +940,7 @@ struct Page {
             if (static_cast<size_t>(s.ordinal) < contigs.size())
                 row(contigs[static_cast<size_t>(s.ordinal)], std::to_string(s.ordinal + 1), false);
         row(g, "", true);
-        out += "</table>\n</section>\n";
+        out += "</table></div>\n</section>\n";
     }
 };
 
@@ -979,6 +981,8 @@ svg .band{fill:#fafafa}
 svg .seq{fill:#d9d9d9}
 svg rect.unk{fill:#9a9a9a;fill-opacity:.45}
 details{font-size:13px;margin:6px 0}
+div.wide{overflow-x:auto}
+th{white-space:nowrap}
 footer{margin-top:30px;color:#777;font-size:12px;border-top:1px solid #ddd;padding-top:6px}
 )css";
 

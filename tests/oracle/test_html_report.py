@@ -153,7 +153,29 @@ def body(checks, tm, work):
         checks.check(island >= 300, "the cpg_island colour (0,110,120) fills at least 300 pixels", "PIL",
                      f"{island} pixels")
 
-    # 6. Markup in the inputs comes out as text and runs nothing.
+    # 6. A fragmented assembly: 230 sequences, the 200 longest are drawn and listed, in input order.
+    lengths = [1000 + (i * 97) % 230 * 20 for i in range(230)]  # distinct: 97 is prime to 230
+    tmtest.run(tm, ["simulate", "--lengths", ",".join(map(str, lengths)), "--seed", "3", "-o", "frag.fa"], cwd=work)
+    tmtest.run(tm, ["scan", "frag.fa", "-q", "-o", "/dev/null", "--html", "frag.html"], cwd=work)
+    ftree = parse_strict(os.path.join(work, "frag.html"))
+    along = next(s for s in ftree.iter(SVG + "svg") if "along each sequence" in s.get("aria-label", ""))
+    drawn = [g.find(SVG + "title").text.split(":")[0] for g in along.iter(SVG + "g")]
+    longest = sorted(range(230), key=lambda i: -lengths[i])[:200]
+    checks.equal(drawn, [f"sim{i + 1}" for i in sorted(longest)], "the 200 longest of 230 sequences are drawn, "
+                 "in input order", "lengths given to simulate")
+    checks.check("The 200 longest of 230 sequences" in text_of(ftree), "the page says how many are shown",
+                 "page text")
+    rows = [tr for t in ftree.iter(XHTML + "table") for tr in t.iter(XHTML + "tr")
+            if any(td.text and td.text.startswith("sim") for td in tr.iter(XHTML + "td"))]
+    checks.equal(len(rows), 200, "the sequences table lists the same 200", "page DOM")
+
+    # 7. Not with --shard: a usage error (exit 2), and no file.
+    proc = subprocess.run([tm, "scan", DEMO, "--shard", "1/2", "-o", "/dev/null", "--html", "shard.html"], cwd=work,
+                          capture_output=True, text=True)
+    checks.check(proc.returncode == 2 and "--html" in proc.stderr and not os.path.exists(os.path.join(work, "shard.html")),
+                 "--html with --shard is a usage error naming --html", "README exit codes", proc.stderr.strip())
+
+    # 8. Markup in the inputs comes out as text and runs nothing.
     evil_name = "<script>alert(1)</script>"
     evil_file = os.path.join(work, "a&b'<i>.fa")
     seq = records[0][1][80000:100000]
