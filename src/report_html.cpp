@@ -23,11 +23,12 @@ HtmlReport::HtmlReport(const Model& model, HtmlReportOptions options, bool /*for
     : model_(model), options_(options) {
     for (size_t r = 0; r < model.region_names.size(); ++r)
         if (model.region_report[r]) reported_.push_back(static_cast<int>(r));
-    slot_of_state_.assign(static_cast<size_t>(model.states), -1);
     for (int s = 0; s < model.states; ++s)
         for (size_t k = 0; k < reported_.size(); ++k)
-            if (model.region_of_state[static_cast<size_t>(s)] == reported_[k])
-                slot_of_state_[static_cast<size_t>(s)] = static_cast<int>(k);
+            if (model.region_of_state[static_cast<size_t>(s)] == reported_[k]) {
+                summed_states_.push_back(s);
+                slot_of_summed_.push_back(k);
+            }
 }
 
 void HtmlReport::begin_contig(const Contig& contig) {
@@ -69,11 +70,19 @@ void HtmlReport::block(const BlockView& view) {
         }
         // Positions of this bin inside the block, summed in position order.
         const int64_t stop = std::min(view.size, (bin + 1) * resolution_ - view.begin);
-        for (; t < stop; ++t) {
-            const double* p = view.posterior + t * S;
-            for (int s = 0; s < S; ++s) {
-                const int k = slot_of_state_[static_cast<size_t>(s)];
-                if (k >= 0) pending_[static_cast<size_t>(k)] += p[s];
+        const size_t n = summed_states_.size();
+        if (reported_.size() ==
+            1) {  // one sum in a register (the common case: one reported region)
+            double sum = 0;
+            for (; t < stop; ++t) {
+                const double* p = view.posterior + t * S;
+                for (size_t i = 0; i < n; ++i) sum += p[summed_states_[i]];
+            }
+            pending_[0] += sum;
+        } else {
+            for (; t < stop; ++t) {
+                const double* p = view.posterior + t * S;
+                for (size_t i = 0; i < n; ++i) pending_[slot_of_summed_[i]] += p[summed_states_[i]];
             }
         }
     }
@@ -465,9 +474,9 @@ struct Page {
                 grouped(g.called_bases[ri]),
                 num(100.0 * static_cast<double>(g.called_bases[ri]) / len, 3),
                 num(100.0 * g.expected_bases[ri] / len, 3), any ? grouped(ls.min) : "\u2013",
-                !any ? "\u2013"
-                     : ls.median == std::floor(ls.median) ? grouped(static_cast<int64_t>(ls.median))
-                                                          : num(ls.median, 1),
+                !any                                 ? "\u2013"
+                : ls.median == std::floor(ls.median) ? grouped(static_cast<int64_t>(ls.median))
+                                                     : num(ls.median, 1),
                 any ? grouped(ls.max) : "\u2013",
                 any ? num(g.confidence_sum[ri] / static_cast<double>(g.calls[ri]), 4) : "\u2013");
         }
@@ -879,7 +888,8 @@ struct Page {
             "earlier), each with at least 1 kb on either side. Stacked posterior of the reported "
             "region types; dashed line: the calling threshold; below: the calls (thick = core, "
             "P &ge; {}). Positions are 1-based.</p>\n",
-            windows.size() == 1 ? std::string("The call") : fmt::format("The {} calls", windows.size()),
+            windows.size() == 1 ? std::string("The call")
+                                : fmt::format("The {} calls", windows.size()),
             num(in.calling->high_posterior, 2));
         legend(false);
         out += "<div class=\"figs\">\n";
@@ -905,8 +915,9 @@ struct Page {
                 grouped(static_cast<int64_t>(shown.size())),
                 grouped(static_cast<int64_t>(contigs.size())));
         // Wide tables (profiles with many reported regions) scroll instead of overflowing.
-        out += "<div class=\"wide\"><table>\n<tr><th>#</th><th>sequence</th><th>length (bp)</th>"
-               "<th>unknown</th><th>GC</th><th>CpG o/e</th><th>log-likelihood</th>";
+        out +=
+            "<div class=\"wide\"><table>\n<tr><th>#</th><th>sequence</th><th>length (bp)</th>"
+            "<th>unknown</th><th>GC</th><th>CpG o/e</th><th>log-likelihood</th>";
         for (const int r : reported)
             out += fmt::format(
                 "<th><b class=\"sw\" style=\"color:{}\">\u25a0</b>{}<br>expected %</th>"

@@ -91,8 +91,9 @@ private:
 
     const Model& model_;
     HtmlReportOptions options_;
-    std::vector<int> reported_;       ///< reported region indices
-    std::vector<int> slot_of_state_;  ///< per state: index into reported_, or -1
+    std::vector<int> reported_;           ///< reported region indices
+    std::vector<int> summed_states_;      ///< states of reported regions
+    std::vector<size_t> slot_of_summed_;  ///< their region's index into reported_
     // The sequence in progress.
     bool begun_ = false, ended_ = false;
     int64_t length_ = 0;
