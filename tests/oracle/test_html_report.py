@@ -183,11 +183,17 @@ def body(checks, tm, work):
     profile = json.loads(tmtest.run(tm, ["profiles", "show", "cpg-island"]))
     profile["description"] = 'quote " amp & lt < gt > <script>alert(2)</script>'
     profile["regions"][0]["description"] = "<img src=x onerror=alert(3)>"
+    profile["name"] = 'name<b>&"x"</b>'
+    for st in profile["states"]:  # a region name with markup (the unreported one)
+        if st["region"] == "background":
+            st["region"] = "back<u>ground</u>&"
+    profile["regions"][1]["name"] = "back<u>ground</u>&"
     with open(os.path.join(work, "evil.json"), "w") as f:
         json.dump(profile, f)
     tmtest.run(tm, ["scan", evil_file, "-q", "-p", "evil.json", "-o", "/dev/null", "--html", "evil.html"], cwd=work)
     raw = tmtest.read_bytes(os.path.join(work, "evil.html")).decode("utf-8")
-    checks.check(not re.search(r"<\s*script", raw, re.I) and "<img" not in raw and "<b>bold" not in raw,
+    injected = ["<img src=x", "name<b>", "back<u>", "plain&<b>", "<i>.fa"]
+    checks.check(not re.search(r"<\s*script", raw, re.I) and not any(x in raw for x in injected),
                  "no markup from the inputs reaches the page unescaped", "page text")
     try:
         etree = parse_strict(os.path.join(work, "evil.html"))
@@ -196,7 +202,7 @@ def body(checks, tm, work):
         checks.equal(len(list(etree.iter(XHTML + "script"))) + len(list(etree.iter(SVG + "script"))), 0,
                      "no script element in the DOM", "html5lib DOM")
         for s in (evil_name, "plain&<b>bold</b>", profile["description"], profile["regions"][0]["description"],
-                  "a&b'<i>.fa"):
+                  "a&b'<i>.fa", profile["name"], profile["regions"][1]["name"]):
             checks.check(s in etext, f"{s!r} is shown as text", "html5lib DOM text")
     except Exception as e:
         checks.check(False, "the report of hostile inputs parses strictly", "html5lib 1.1", str(e))
