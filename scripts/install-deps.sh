@@ -13,6 +13,8 @@ packages=(
   # test oracles and open datasets
   python3 python3-numpy python3-scipy python3-pomegranate python3-pybigwig python3-matplotlib
   tabix bedtools genometools gzip xz-utils bzip2 zstd
+  # the HTML report (scan --html): rendered by a real browser, validated by two HTML parsers
+  chromium python3-pil python3-html5lib tidy
   bowtie2-examples smalt-examples bowtie-examples cct-examples sibelia-examples
   # benchmarks (scripts/bench.sh, scripts/bench-fit.sh: wall time and peak RSS)
   time

@@ -12,6 +12,7 @@
 #include "tidemark/error.hpp"
 #include "tidemark/intervals.hpp"
 #include "tidemark/output.hpp"
+#include "tidemark/report_html.hpp"
 #include "tidemark/window.hpp"
 #include "thread_pool.hpp"
 
@@ -79,6 +80,8 @@ void validate(const ScanOptions& o) {
         throw UsageError("--emit-seams is the first step and --seams the second: give one of them");
     if (o.whole_contigs && (!o.emit_seams.empty() || !o.seams.empty()))
         throw UsageError("--whole-contigs keeps every record on one shard, so there are no seams");
+    if (!o.html_path.empty() && o.shard.active())
+        throw UsageError("--html is written by a run over the whole input; merge does not build it from shards");
     if (!o.emit_seams.empty() && (o.output != "-" || !o.summary_path.empty() || !o.report_path.empty() ||
                                   !o.gff3_path.empty() || !o.chrom_sizes_path.empty() || !o.tracks.prefix.empty()))
         throw UsageError("--emit-seams writes only the seams file; give the outputs to the second step (--seams)");
@@ -281,6 +284,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     IntervalCaller caller(model, call_options);
     RegionTotals totals(model);
     ProgressMeter progress(o.progress, total_bases);
+    std::unique_ptr<HtmlReport> html;
+    if (!o.html_path.empty()) html = std::make_unique<HtmlReport>(model);
 
     // Contigs are decoded in a pool, each into forks of the sinks above, and joined back in
     // input order; at most threads + 1 contigs are held at once.
@@ -288,7 +293,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         Contig contig;
         std::string input;
         int64_t input_index = 0;
-        std::unique_ptr<DecodeSink> caller, totals, tracks, progress;
+        std::unique_ptr<DecodeSink> caller, totals, tracks, progress, html;
         DecodeResult result;
         std::future<void> done;
     };
@@ -309,6 +314,10 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         caller.join(*job.caller);
         totals.join(*job.totals);
         if (tracks) tracks->join(*job.tracks);
+        if (html) {
+            html->join(*job.html);
+            html->finish_sequence(contig, caller.calls());
+        }
         if (contig.length == 0) {
             progress.finish();
             log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(job.input), contig.name));
@@ -384,11 +393,13 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             job->totals = totals.fork();
             if (tracks) job->tracks = tracks->fork();
             job->progress = progress.fork();
+            if (html) job->html = html->fork();
             Job* j = job.get();
             const auto decode = [j, &decoders](int worker, TaskPool* segment_pool) {
                 std::vector<DecodeSink*> sinks = {j->caller.get(), j->totals.get()};
                 if (j->tracks) sinks.push_back(j->tracks.get());
                 sinks.push_back(j->progress.get());
+                if (j->html) sinks.push_back(j->html.get());
                 SinkFanout fanout(sinks);
                 j->result = decoders[static_cast<size_t>(worker)].run(j->contig, fanout, segment_pool);
             };
@@ -439,11 +450,17 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         summary = std::make_unique<OutputFile>(o.summary_path);
         summary->write(summary_json(info, model, summaries));
     }
+    std::unique_ptr<OutputFile> page;
+    if (html) {
+        page = std::make_unique<OutputFile>(o.html_path);
+        page->write(format_html_report({&info, &profile, &model, &call_options, &summaries, html.get()}));
+    }
     // Commit only after everything has been computed and written.
     if (tracks) tracks->close();
     if (gff3) gff3->commit();
     if (sizes) sizes->commit();
     if (summary) summary->commit();
+    if (page) page->commit();
     bed.commit();
     const ResourceUsage usage = clock.now();
     if (!o.report_path.empty()) {

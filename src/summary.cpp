@@ -11,9 +11,6 @@
 #include "tidemark/error.hpp"
 
 namespace tidemark {
-namespace {
-
-using ordered_json = nlohmann::ordered_json;
 
 ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs) {
     const size_t R = model.region_names.size();
@@ -47,12 +44,13 @@ ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>&
     return total;
 }
 
+namespace {
+
+using ordered_json = nlohmann::ordered_json;
+
 ordered_json number_or_null(double x) { return std::isfinite(x) ? ordered_json(x) : ordered_json(nullptr); }
 
-struct LengthStats {
-    int64_t min = 0, max = 0;
-    double median = 0;
-};
+}  // namespace
 
 LengthStats length_stats(std::vector<int64_t> lengths) {
     LengthStats s;
@@ -66,6 +64,8 @@ LengthStats length_stats(std::vector<int64_t> lengths) {
     return s;
 }
 
+namespace {
+
 ordered_json length_distribution(const std::vector<int64_t>& lengths) {
     if (lengths.empty()) return nullptr;
     const LengthStats s = length_stats(lengths);
@@ -74,7 +74,7 @@ ordered_json length_distribution(const std::vector<int64_t>& lengths) {
 
 // Counts of values v with edges[i] <= v < edges[i+1] (the last bin includes its upper edge).
 template <typename T>
-ordered_json histogram(const std::vector<double>& edges, const std::vector<T>& values) {
+std::vector<int64_t> counts_in(const std::vector<double>& edges, const std::vector<T>& values) {
     std::vector<int64_t> counts(edges.size() - 1, 0);
     for (const T v : values) {
         const auto x = static_cast<double>(v);
@@ -82,19 +82,19 @@ ordered_json histogram(const std::vector<double>& edges, const std::vector<T>& v
         size_t bin = it == edges.begin() ? 0 : static_cast<size_t>(it - edges.begin()) - 1;
         counts[std::min(bin, counts.size() - 1)]++;
     }
-    return {{"edges", edges}, {"counts", counts}};
+    return counts;
+}
+
+template <typename T>
+ordered_json histogram(const std::vector<double>& edges, const std::vector<T>& values) {
+    return {{"edges", edges}, {"counts", counts_in(edges, values)}};
 }
 
 ordered_json call_histograms(const ContigSummary& g, size_t r) {
-    std::vector<double> length_edges = {1};
     int64_t longest = 1;
     for (const int64_t l : g.call_lengths[r]) longest = std::max(longest, l);
-    for (double decade = 1; length_edges.back() <= static_cast<double>(longest); decade *= 10)
-        for (const double step : {2.0, 5.0, 10.0}) length_edges.push_back(decade * step);
-    std::vector<double> confidence_edges;
-    for (int i = 0; i <= 20; ++i) confidence_edges.push_back(i / 20.0);
-    return {{"call_length_histogram", histogram(length_edges, g.call_lengths[r])},
-            {"confidence_histogram", histogram(confidence_edges, g.call_confidences[r])}};
+    return {{"call_length_histogram", histogram(call_length_edges(longest), g.call_lengths[r])},
+            {"confidence_histogram", histogram(confidence_edges(), g.call_confidences[r])}};
 }
 
 ordered_json contig_json(const Model& model, const ContigSummary& c, bool report, bool masked) {
@@ -206,6 +206,27 @@ std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::
             c.composition.cpg_obs_exp() > DepletionRule::max_obs_exp)
             warning(c.name, c.composition, DepletionRule::max_obs_exp);
     return out;
+}
+
+std::vector<double> call_length_edges(int64_t longest) {
+    std::vector<double> edges = {1};
+    for (double decade = 1; edges.back() <= static_cast<double>(longest); decade *= 10)
+        for (const double step : {2.0, 5.0, 10.0}) edges.push_back(decade * step);
+    return edges;
+}
+
+std::vector<double> confidence_edges() {
+    std::vector<double> edges;
+    for (int i = 0; i <= 20; ++i) edges.push_back(i / 20.0);
+    return edges;
+}
+
+std::vector<int64_t> histogram_counts(const std::vector<double>& edges, const std::vector<int64_t>& values) {
+    return counts_in(edges, values);
+}
+
+std::vector<int64_t> histogram_counts(const std::vector<double>& edges, const std::vector<double>& values) {
+    return counts_in(edges, values);
 }
 
 void ContigSummary::reset_calls(size_t regions) {

@@ -34,6 +34,7 @@ struct ScanOptions {
     TrackOptions tracks;                    ///< posterior tracks; prefix "" = none
     std::string summary_path;               ///< deterministic JSON summary; "" = none
     std::string report_path;                ///< JSON run report with resources; "" = none
+    std::string html_path;                  ///< self-contained HTML report; "" = none
     int64_t block_size = 0;                 ///< decoder block (0 = automatic)
     int threads = 0;                        ///< decoding threads (0 = every core); outputs do not
                                             ///< depend on it

@@ -102,6 +102,23 @@ struct DepletionWarning {
 /// the whole input does not warn).
 std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::vector<ContigSummary>& contigs);
 
+/// Genome-wide totals of the contigs (name "(all)"; call lengths and confidences of all contigs).
+ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs);
+
+struct LengthStats {
+    int64_t min = 0, max = 0;
+    double median = 0;  ///< of an even count: the mean of the two middle values
+};
+LengthStats length_stats(std::vector<int64_t> lengths);
+
+/// Histogram bin edges of the run report: call lengths on a 1-2-5 scale from 1 to beyond the
+/// longest, and confidences 0, 0.05, ..., 1.
+std::vector<double> call_length_edges(int64_t longest);
+std::vector<double> confidence_edges();
+/// Counts of values with edges[i] <= v < edges[i+1]; the last bin includes its upper edge.
+std::vector<int64_t> histogram_counts(const std::vector<double>& edges, const std::vector<int64_t>& values);
+std::vector<int64_t> histogram_counts(const std::vector<double>& edges, const std::vector<double>& values);
+
 /// The summary as JSON (tidemark-summary/1): run info, genome-wide totals, one entry per
 /// contig. Deterministic: the same input gives the same text.
 std::string summary_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs);

@@ -118,6 +118,9 @@ void add_scan(CLI::App& app, Context& ctx) {
     cmd->add_option("--summary", opts->summary_path, "JSON summary (deterministic)")->group(output);
     cmd->add_option("--report", opts->report_path, "JSON run report: summary, call statistics, time and memory")
         ->group(output);
+    cmd->add_option("--html", opts->html_path,
+                    "self-contained HTML report: tables, calls along the sequences, histograms, top calls")
+        ->group(output);
 
     const char* talk = "Messages";
     cmd->add_flag("-v,--verbose", *verbose, "per-contig details and a summary table on stderr")->group(talk);

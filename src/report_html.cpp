@@ -1,0 +1,1044 @@
+// The HTML report: a bounded posterior sketch collected while decoding, and the page writer
+// (tables and inline SVG figures drawn here, without any plotting library or script).
+#include "tidemark/report_html.hpp"
+
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <cmath>
+#include <tuple>
+
+#include "tidemark/error.hpp"
+#include "tidemark/track.hpp"
+
+namespace tidemark {
+
+// ---------------------------------------------------------------------------------------------
+// The sketch sink.
+
+HtmlReport::HtmlReport(const Model& model, HtmlReportOptions options)
+    : HtmlReport(model, options, false) {}
+
+HtmlReport::HtmlReport(const Model& model, HtmlReportOptions options, bool /*forked*/)
+    : model_(model), options_(options) {
+    for (size_t r = 0; r < model.region_names.size(); ++r)
+        if (model.region_report[r]) reported_.push_back(static_cast<int>(r));
+    for (int s = 0; s < model.states; ++s)
+        for (size_t k = 0; k < reported_.size(); ++k)
+            if (model.region_of_state[static_cast<size_t>(s)] == reported_[k]) {
+                summed_states_.push_back(s);
+                slot_of_summed_.push_back(k);
+            }
+}
+
+void HtmlReport::begin_contig(const Contig& contig) {
+    begun_ = true;
+    ended_ = false;
+    length_ = contig.length;
+    const auto R = static_cast<int64_t>(reported_.size());
+    const int64_t budget = std::max<int64_t>(options_.sketch_values, 1);
+    resolution_ = std::max<int64_t>(1, (length_ * R + budget - 1) / budget);
+    first_bin_ = -1;
+    sketch_.clear();
+    pending_.assign(reported_.size(), 0.0);
+    pending_bin_ = -1;
+}
+
+void HtmlReport::flush_bin() {
+    if (pending_bin_ < 0) return;
+    const size_t R = reported_.size();
+    if (first_bin_ < 0) first_bin_ = pending_bin_;
+    const auto at = static_cast<size_t>(pending_bin_ - first_bin_) * R;
+    if (sketch_.size() < at + R) sketch_.resize(at + R, 0.0f);
+    for (size_t k = 0; k < R; ++k) {
+        sketch_[at + k] += static_cast<float>(pending_[k]);
+        pending_[k] = 0.0;
+    }
+    pending_bin_ = -1;
+}
+
+void HtmlReport::block(const BlockView& view) {
+    if (reported_.empty()) return;
+    const int S = view.states;
+    int64_t t = 0;
+    while (t < view.size) {
+        const int64_t pos = view.begin + t;
+        const int64_t bin = pos / resolution_;
+        if (bin != pending_bin_) {
+            flush_bin();
+            pending_bin_ = bin;
+        }
+        // Positions of this bin inside the block, summed in position order.
+        const int64_t stop = std::min(view.size, (bin + 1) * resolution_ - view.begin);
+        const size_t n = summed_states_.size();
+        if (reported_.size() ==
+            1) {  // one sum in a register (the common case: one reported region)
+            double sum = 0;
+            for (; t < stop; ++t) {
+                const double* p = view.posterior + t * S;
+                for (size_t i = 0; i < n; ++i) sum += p[summed_states_[i]];
+            }
+            pending_[0] += sum;
+        } else {
+            for (; t < stop; ++t) {
+                const double* p = view.posterior + t * S;
+                for (size_t i = 0; i < n; ++i) pending_[slot_of_summed_[i]] += p[summed_states_[i]];
+            }
+        }
+    }
+}
+
+std::unique_ptr<DecodeSink> HtmlReport::fork() const {
+    return std::unique_ptr<DecodeSink>(new HtmlReport(model_, options_, true));
+}
+
+void HtmlReport::join(DecodeSink& later) {
+    auto* other = dynamic_cast<HtmlReport*>(&later);
+    if (!other) throw InternalError("HtmlReport::join: not a fork of an HtmlReport");
+    other->flush_bin();
+    if (other->ended_ || !begun_ || ended_) {  // a whole later sequence
+        begun_ = other->begun_;
+        ended_ = other->ended_;
+        length_ = other->length_;
+        resolution_ = other->resolution_;
+        first_bin_ = other->first_bin_;
+        sketch_ = std::move(other->sketch_);
+        pending_.assign(reported_.size(), 0.0);
+        pending_bin_ = -1;
+        return;
+    }
+    // A later segment of the sequence in progress: its bins follow ours; a bin cut by the seam
+    // gets both parts.
+    flush_bin();
+    if (other->first_bin_ < 0) return;
+    if (first_bin_ < 0) {
+        first_bin_ = other->first_bin_;
+        sketch_ = std::move(other->sketch_);
+        return;
+    }
+    const size_t R = reported_.size();
+    const auto at = static_cast<size_t>(other->first_bin_ - first_bin_) * R;
+    // The sequence's whole sketch at once, rather than doubling segment by segment.
+    const auto whole = static_cast<size_t>((length_ + resolution_ - 1) / resolution_) * R;
+    if (sketch_.capacity() < whole) sketch_.reserve(whole);
+    if (sketch_.size() < at + other->sketch_.size())
+        sketch_.resize(at + other->sketch_.size(), 0.0f);
+    for (size_t i = 0; i < other->sketch_.size(); ++i) sketch_[at + i] += other->sketch_[i];
+}
+
+namespace {
+
+// Ranking of calls for the top windows: higher mean posterior, then longer, then earlier.
+bool more_confident(const CallWindow& a, const CallWindow& b) {
+    return std::make_tuple(-a.call.mean_posterior, -(a.call.end - a.call.begin), a.ordinal,
+                           a.call.begin, a.call.region) <
+           std::make_tuple(-b.call.mean_posterior, -(b.call.end - b.call.begin), b.ordinal,
+                           b.call.begin, b.call.region);
+}
+
+}  // namespace
+
+void HtmlReport::finish_sequence(const Contig& contig, const std::vector<Call>& calls) {
+    flush_bin();
+    const int64_t ordinal = seen_++;
+    const size_t R = reported_.size();
+    const int64_t length = contig.length;
+    if (length == 0 || R == 0) {
+        sketch_.clear();
+        return;
+    }
+    if (!begun_ || length_ != length || first_bin_ > 0)
+        throw InternalError("HtmlReport: the sketch does not match sequence " + contig.name);
+    const int64_t bins = (length + resolution_ - 1) / resolution_;
+    sketch_.resize(static_cast<size_t>(bins) * R, 0.0f);
+    const auto slot = [&](int region) {
+        return static_cast<size_t>(std::find(reported_.begin(), reported_.end(), region) -
+                                   reported_.begin());
+    };
+    // Mean posterior of slot k over sketch bins [lo, hi).
+    const auto mean = [&](int64_t lo, int64_t hi, size_t k) {
+        double sum = 0;
+        for (int64_t b = lo; b < hi; ++b) sum += sketch_[static_cast<size_t>(b) * R + k];
+        const int64_t bases = std::min(hi * resolution_, length) - lo * resolution_;
+        return bases > 0 ? static_cast<float>(sum / static_cast<double>(bases)) : 0.0f;
+    };
+
+    // The along-sequence figure keeps the longest sequences (ties: the earlier one).
+    const auto limit = static_cast<size_t>(std::max(options_.shown_sequences, 0));
+    bool keep = limit > 0;
+    if (keep && shown_.size() >= limit) {
+        auto shortest =
+            std::min_element(shown_.begin(), shown_.end(), [](const auto& a, const auto& b) {
+                return a.length != b.length ? a.length < b.length : a.ordinal > b.ordinal;
+            });
+        keep = shortest->length < length;
+        if (keep) shown_.erase(shortest);
+    }
+    if (keep) {
+        SequenceSketch sk;
+        sk.name = contig.name;
+        sk.ordinal = ordinal;
+        sk.offset = contig.offset;
+        sk.length = length;
+        const int64_t wanted = std::max<int64_t>(1, options_.overview_bins);
+        const int64_t per =
+            ((length + wanted - 1) / wanted + resolution_ - 1) / resolution_;  // sketch bins
+        sk.bin = per * resolution_;
+        const int64_t n = (length + sk.bin - 1) / sk.bin;
+        sk.posterior.resize(static_cast<size_t>(n) * R);
+        sk.called.assign(static_cast<size_t>(n) * R, 0);
+        sk.unknown.assign(static_cast<size_t>(n), 0.0f);
+        for (int64_t i = 0; i < n; ++i)
+            for (size_t k = 0; k < R; ++k)
+                sk.posterior[static_cast<size_t>(i) * R + k] =
+                    mean(i * per, std::min((i + 1) * per, bins), k);
+        for (const Call& c : calls)
+            for (int64_t i = c.begin / sk.bin; i <= (c.end - 1) / sk.bin; ++i)
+                sk.called[static_cast<size_t>(i) * R + slot(c.region)] = 1;
+        for (const UnknownRun& u : contig.unknown) {
+            for (int64_t i = u.begin / sk.bin; i <= (u.begin + u.length - 1) / sk.bin && i < n;
+                 ++i) {
+                const int64_t lo = std::max(u.begin, i * sk.bin),
+                              hi = std::min(u.begin + u.length, (i + 1) * sk.bin);
+                const int64_t width = std::min((i + 1) * sk.bin, length) - i * sk.bin;
+                sk.unknown[static_cast<size_t>(i)] +=
+                    static_cast<float>(hi - lo) / static_cast<float>(width);
+            }
+        }
+        shown_.insert(
+            std::upper_bound(shown_.begin(), shown_.end(), sk,
+                             [](const auto& a, const auto& b) { return a.ordinal < b.ordinal; }),
+            std::move(sk));
+    }
+
+    // Windows around the calls that rank among the most confident so far.
+    const auto top = static_cast<size_t>(std::max(options_.top_calls, 0));
+    for (const Call& c : calls) {
+        if (top == 0) break;
+        CallWindow w;
+        w.name = contig.name;
+        w.ordinal = ordinal;
+        w.offset = contig.offset;
+        w.call = c;
+        if (windows_.size() >= top && !more_confident(w, windows_.back())) continue;
+        const int64_t flank = std::max<int64_t>(c.end - c.begin, 1000);
+        const int64_t lo = std::max<int64_t>(0, c.begin - flank) / resolution_;
+        const int64_t hi =
+            std::min(bins, (std::min(length, c.end + flank) + resolution_ - 1) / resolution_);
+        const int64_t points = std::max<int64_t>(1, options_.window_points);
+        const int64_t per = (hi - lo + points - 1) / points;
+        w.bin = per * resolution_;
+        w.begin = lo * resolution_;
+        w.end = std::min(length, hi * resolution_);
+        for (int64_t b = lo; b < hi; b += per)
+            for (size_t k = 0; k < R; ++k) w.posterior.push_back(mean(b, std::min(b + per, hi), k));
+        for (const Call& other : calls) {
+            if (other.begin >= w.end) break;
+            if (other.end > w.begin && w.nearby.size() < 200) w.nearby.push_back(other);
+        }
+        windows_.insert(std::upper_bound(windows_.begin(), windows_.end(), w, more_confident),
+                        std::move(w));
+        if (windows_.size() > top) windows_.pop_back();
+    }
+    sketch_.clear();
+    sketch_.shrink_to_fit();  // a long sequence's sketch is not kept while short ones follow
+}
+
+// ---------------------------------------------------------------------------------------------
+// The page.
+
+std::string html_escape(std::string_view text) {
+    std::string out;
+    out.reserve(text.size());
+    for (const char ch : text) {
+        switch (ch) {
+            case '&':
+                out += "&amp;";
+                break;
+            case '<':
+                out += "&lt;";
+                break;
+            case '>':
+                out += "&gt;";
+                break;
+            case '"':
+                out += "&quot;";
+                break;
+            case '\'':
+                out += "&#39;";
+                break;
+            default:
+                out += ch;
+        }
+    }
+    return out;
+}
+
+namespace {
+
+std::string esc(std::string_view s) {
+    return html_escape(s);
+}
+
+// 1234567 -> "1,234,567".
+std::string grouped(int64_t v) {
+    std::string digits = std::to_string(v < 0 ? -v : v);
+    std::string out;
+    for (size_t i = 0; i < digits.size(); ++i) {
+        if (i > 0 && (digits.size() - i) % 3 == 0) out += ',';
+        out += digits[i];
+    }
+    return v < 0 ? "-" + out : out;
+}
+
+// Base counts for axes: 0, 500, 1 kb, 2.5 kb, 10 Mb.
+std::string bases_label(double v) {
+    const auto trim = [](std::string s) {
+        if (s.find('.') != std::string::npos) {
+            while (s.back() == '0') s.pop_back();
+            if (s.back() == '.') s.pop_back();
+        }
+        return s;
+    };
+    if (v >= 1e6) return trim(fmt::format("{:.2f}", v / 1e6)) + " Mb";
+    if (v >= 1e3) return trim(fmt::format("{:.2f}", v / 1e3)) + " kb";
+    return trim(fmt::format("{:.0f}", v));
+}
+
+// A 1-2-5 step giving at most `most` intervals over [0, span].
+double nice_step(double span, int most) {
+    if (span <= 0) return 1;
+    double step = std::pow(10.0, std::floor(std::log10(span / most)));
+    for (const double m : {1.0, 2.0, 2.5, 5.0, 10.0})
+        if (span / (step * m) <= most) return step * m;
+    return step * 10;
+}
+
+std::string num(double v, int decimals) {
+    return std::isfinite(v) ? fmt::format("{:.{}f}", v, decimals) : "NA";
+}
+
+// SVG coordinates with one decimal (enough at screen resolution; keeps the file small).
+std::string px(double v) {
+    std::string s = fmt::format("{:.1f}", v);
+    if (s.size() > 2 && s.compare(s.size() - 2, 2, ".0") == 0) s.resize(s.size() - 2);
+    if (s == "-0") s = "0";
+    return s;
+}
+
+std::string rgb(const Model& model, int region) {
+    return "rgb(" + region_color(model, region) + ")";
+}
+
+// A name cut to `most` bytes at a UTF-8 character boundary, with an ellipsis.
+std::string shortened(const std::string& name, size_t most) {
+    if (name.size() <= most) return name;
+    size_t cut = most - 1;
+    while (cut > 0 && (static_cast<unsigned char>(name[cut]) & 0xC0) == 0x80) --cut;
+    return name.substr(0, cut) + "\u2026";
+}
+
+const char* criteria_name(IslandCriteria c) {
+    switch (c) {
+        case IslandCriteria::ggf1987:
+            return "ggf1987 (Gardiner-Garden &amp; Frommer 1987)";
+        case IslandCriteria::tj2002:
+            return "tj2002 (Takai &amp; Jones 2002)";
+        default:
+            return "none";
+    }
+}
+
+// A stepped outline of stacked values along x: the top of layer k over bins [x_i, x_{i+1}).
+// Consecutive bins of the same height share one segment.
+std::string step_area(const std::vector<double>& xs, const std::vector<double>& lower,
+                      const std::vector<double>& upper, double y0, double height) {
+    const size_t n = upper.size();
+    if (n == 0) return "";
+    const auto y = [&](double v) { return px(y0 + height * (1.0 - std::clamp(v, 0.0, 1.0))); };
+    std::string d = "M" + px(xs[0]) + " " + y(lower[0]);
+    std::string last_y;
+    // Upper edge, left to right.
+    for (size_t i = 0; i < n; ++i) {
+        const std::string yi = y(upper[i]);
+        if (yi != last_y) d += "V" + yi;
+        d += "H" + px(xs[i + 1]);
+        last_y = yi;
+    }
+    // Lower edge, right to left.
+    for (size_t i = n; i-- > 0;) {
+        const std::string yi = y(lower[i]);
+        if (yi != last_y) d += "V" + yi;
+        d += "H" + px(xs[i]);
+        last_y = yi;
+    }
+    return d + "Z";
+}
+
+struct Page {
+    const HtmlReportInput& in;
+    const Model& model;
+    const std::vector<int>& reported;
+    std::string out;
+
+    void legend(bool unknown) {
+        out += "<p class=\"legend\">";
+        for (const int r : reported)
+            out += fmt::format("<span><b class=\"sw\" style=\"color:{}\">\u25a0</b>{}</span>",
+                               rgb(model, r), esc(model.region_names[static_cast<size_t>(r)]));
+        if (unknown) out += "<span><b class=\"sw unk\">\u25a0</b>unknown bases (N)</span>";
+        out += "</p>\n";
+    }
+
+    void run_section() {
+        const RunInfo& info = *in.info;
+        const Profile& profile = *in.profile;
+        const CallOptions& c = *in.calling;
+        out += "<section id=\"run\">\n<h2>Run</h2>\n<table class=\"kv\">\n";
+        const auto row = [&](const char* key, const std::string& value_html) {
+            out += fmt::format("<tr><th>{}</th><td>{}</td></tr>\n", key, value_html);
+        };
+        std::string inputs;
+        for (const auto& f : info.inputs)
+            inputs += (inputs.empty() ? "" : "<br>") +
+                      ("<code>" + esc(f == "-" ? "standard input" : f) + "</code>");
+        row("input", inputs);
+        std::string prof = "<b>" + esc(profile.name) + "</b>";
+        if (!profile.description.empty()) prof += " \u2014 " + esc(profile.description);
+        prof += " <span class=\"dim\">(CRC-32 " + esc(info.profile_checksum) + ")</span>";
+        row("profile", prof);
+        row("decoding",
+            esc(info.decode_mode) + (info.decode_mode == "posterior"
+                                         ? " (exact posterior of every region type at every base)"
+                                         : " (single most probable state path)"));
+        row("calling",
+            fmt::format(
+                "P(region) &ge; {} in runs merged across gaps &lt; {} bp, calls &ge; {} bp; "
+                "core P &ge; {}; island criteria {}",
+                num(c.min_posterior, 3), grouped(c.merge_gap), grouped(c.min_length),
+                num(c.high_posterior, 3), criteria_name(c.criteria)));
+        row("command", "<code>" + esc(info.command_line) + "</code>");
+        row("tool", "tidemark " TIDEMARK_VERSION);
+        out +=
+            "</table>\n<h3>Region "
+            "types</h3>\n<table>\n<tr><th></th><th>region</th><th>reported</th>"
+            "<th>colour (R,G,B)</th><th>description</th></tr>\n";
+        for (size_t r = 0; r < profile.regions.size(); ++r) {
+            const RegionSpec& spec = profile.regions[r];
+            out += fmt::format(
+                "<tr><td><b class=\"sw\" style=\"color:{}\">\u25a0</b></td><td>{}</td><td>{}</td>"
+                "<td>{}</td><td>{}</td></tr>\n",
+                rgb(model, static_cast<int>(r)), esc(spec.name), spec.report ? "yes" : "no",
+                esc(region_color(model, static_cast<int>(r))), esc(spec.description));
+        }
+        out += "</table>\n";
+        if (!profile.sources.empty()) {
+            out += "<details><summary>Sources of the profile's numbers</summary>\n<ul>\n";
+            for (const auto& s : profile.sources) out += "<li>" + esc(s) + "</li>\n";
+            out += "</ul>\n</details>\n";
+        }
+        out += "</section>\n";
+    }
+
+    void genome_section(const ContigSummary& g) {
+        const double len = g.length > 0 ? static_cast<double>(g.length) : 1.0;
+        out +=
+            "<section "
+            "id=\"genome\">\n<h2>Genome-wide</h2>\n<table>\n<tr><th>sequences</th><th>length "
+            "(bp)</th>"
+            "<th>unknown (bp)</th><th>soft-masked (bp)</th><th>GC</th><th>CpG "
+            "o/e</th><th>log-likelihood</th></tr>\n";
+        out += fmt::format(
+            "<tr "
+            "class=\"num\"><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</"
+            "td><td>{}</td></tr>\n",
+            grouped(static_cast<int64_t>(in.contigs->size())), grouped(g.length),
+            grouped(g.unknown), grouped(g.soft_masked),
+            g.composition.known() ? num(g.composition.gc_fraction(), 4) : "NA",
+            num(g.composition.cpg_obs_exp(), 4), num(g.log_likelihood, 2));
+        out +=
+            "</table>\n<table>\n<tr><th>region</th><th>calls</th><th>called (bp)</th><th>called "
+            "%</th>"
+            "<th>expected %</th><th>shortest</th><th>median</th><th>longest</th><th>mean "
+            "confidence</th></tr>\n";
+        for (const int r : reported) {
+            const auto ri = static_cast<size_t>(r);
+            const LengthStats ls = length_stats(g.call_lengths[ri]);
+            const bool any = g.calls[ri] > 0;
+            out += fmt::format(
+                "<tr class=\"num\"><td class=\"txt\"><b class=\"sw\" "
+                "style=\"color:{}\">\u25a0</b>{}</td><td>{}</td>"
+                "<td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></"
+                "tr>\n",
+                rgb(model, r), esc(model.region_names[ri]), grouped(g.calls[ri]),
+                grouped(g.called_bases[ri]),
+                num(100.0 * static_cast<double>(g.called_bases[ri]) / len, 3),
+                num(100.0 * g.expected_bases[ri] / len, 3), any ? grouped(ls.min) : "\u2013",
+                !any                                 ? "\u2013"
+                : ls.median == std::floor(ls.median) ? grouped(static_cast<int64_t>(ls.median))
+                                                     : num(ls.median, 1),
+                any ? grouped(ls.max) : "\u2013",
+                any ? num(g.confidence_sum[ri] / static_cast<double>(g.calls[ri]), 4) : "\u2013");
+        }
+        out +=
+            "</table>\n<p class=\"note\">expected % = sum of the posterior over all bases, as a "
+            "share of the "
+            "length; called % = bases inside calls. Confidence of a call = its mean "
+            "posterior.</p>\n</section>\n";
+    }
+
+    void along_section() {
+        const auto& shown = in.sketch->shown();
+        const int64_t seen = in.sketch->sequences_seen();
+        const size_t R = reported.size();
+        out += "<section id=\"along\">\n<h2>Calls along the sequences</h2>\n";
+        int64_t shown_bases = 0, all_bases = 0, longest = 1;
+        for (const auto& s : shown) {
+            shown_bases += s.length;
+            longest = std::max(longest, s.length);
+        }
+        for (const auto& c : *in.contigs) all_bases += c.length;
+        if (static_cast<int64_t>(shown.size()) < seen)
+            out += fmt::format(
+                "<p class=\"note\">The {} longest of {} sequences ({:.1f} % of the bases), in "
+                "input "
+                "order. The summary (<code>--summary</code>) lists every sequence.</p>\n",
+                grouped(static_cast<int64_t>(shown.size())), grouped(seen),
+                all_bases
+                    ? 100.0 * static_cast<double>(shown_bases) / static_cast<double>(all_bases)
+                    : 0.0);
+        else
+            out += seen == 1 ? std::string("<p class=\"note\">The one sequence of the run.</p>\n")
+                             : fmt::format(
+                                   "<p class=\"note\">All {} sequences, in input order, drawn to "
+                                   "one scale.</p>\n",
+                                   grouped(seen));
+        if (shown.empty()) {
+            out += "<p>No sequence to draw.</p>\n</section>\n";
+            return;
+        }
+        bool any_unknown = false;
+        for (const auto& s : shown)
+            for (const float u : s.unknown) any_unknown |= u > 0;
+        legend(any_unknown);
+        const size_t n = shown.size();
+        const double area = n <= 3    ? 64
+                            : n <= 12 ? 40
+                            : n <= 50 ? 22
+                                      : 10;  // posterior band height
+        // The band's full height: the highest bin (stacked) rounded up to 1, 2 or 5 x 10^k, so
+        // that rare regions (CpG islands are about 1 % of a chromosome) stay visible.
+        double highest = 0;
+        for (const auto& s : shown)
+            for (size_t b = 0; b < s.unknown.size(); ++b) {
+                double stack = 0;
+                for (size_t k = 0; k < R; ++k) stack += s.posterior[b * R + k];
+                highest = std::max(highest, stack);
+            }
+        double full = 1;
+        for (const double v : {0.01, 0.02, 0.05, 0.1, 0.2, 0.5, 1.0})
+            if (highest <= v + 1e-9) {
+                full = v;
+                break;
+            }
+        const double strip = n <= 12 ? 8 : n <= 50 ? 6 : 3;  // call strip height
+        const double gap = n <= 12 ? 16 : n <= 50 ? 8 : 4;
+        const double label_w = 210, track_w = 860, top = 34, row_h = area + strip + gap + 2;
+        const double width = label_w + track_w + 30,
+                     height = top + row_h * static_cast<double>(n) + 6;
+        const double scale = track_w / static_cast<double>(longest);
+        out += fmt::format(
+            "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{0}\" height=\"{1}\" viewBox=\"0 0 "
+            "{0} {1}\" "
+            "role=\"img\" aria-label=\"calls and posteriors along each sequence\">\n",
+            px(width), px(height));
+        // Axis: positions on the scale of the longest sequence, grid lines through all rows.
+        const double step = nice_step(static_cast<double>(longest), 10);
+        for (double v = 0; v <= static_cast<double>(longest) + 0.5; v += step) {
+            const double x = label_w + v * scale;
+            out += fmt::format(
+                "<line x1=\"{0}\" y1=\"{1}\" x2=\"{0}\" y2=\"{2}\" class=\"grid\"/>"
+                "<text x=\"{0}\" y=\"{3}\" class=\"tick\" text-anchor=\"middle\">{4}</text>\n",
+                px(x), px(top - 6), px(height - 4), px(top - 12), bases_label(v));
+        }
+        out += fmt::format(
+            "<text x=\"{}\" y=\"{}\" class=\"tick\" text-anchor=\"end\">band height: P {}</text>\n",
+            px(label_w - 18), px(top - 12), full);
+        for (size_t i = 0; i < n; ++i) {
+            const SequenceSketch& s = shown[i];
+            const double y = top + row_h * static_cast<double>(i);
+            const double w = static_cast<double>(s.length) * scale;
+            const std::string where = s.offset ? fmt::format(" ({}\u2013{})", grouped(s.offset + 1),
+                                                             grouped(s.offset + s.length))
+                                               : "";
+            out += fmt::format("<g><title>{}{}: {} bp</title>\n", esc(s.name), where,
+                               grouped(s.length));
+            out += fmt::format(
+                "<text x=\"{}\" y=\"{}\" class=\"lab\" text-anchor=\"end\">{}</text>\n",
+                px(label_w - 8), px(y + area * 0.5 + strip * 0.5 + 4), esc(shortened(s.name, 30)));
+            if (n <= 50)
+                out += fmt::format(
+                    "<text x=\"{}\" y=\"{}\" class=\"sub\" text-anchor=\"end\">{}</text>\n",
+                    px(label_w - 8), px(y + area * 0.5 + strip * 0.5 + 16),
+                    bases_label(static_cast<double>(s.length)));
+            // Background of the posterior band and the sequence bar.
+            out +=
+                fmt::format("<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" class=\"band\"/>\n",
+                            px(label_w), px(y), px(std::max(w, 0.5)), px(area));
+            out +=
+                fmt::format("<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" class=\"seq\"/>\n",
+                            px(label_w), px(y + area + 1), px(std::max(w, 0.5)), px(strip));
+            // Bins merged so that each drawn bin is at least one pixel wide.
+            const auto bins = static_cast<int64_t>(s.unknown.size());
+            const int64_t group = std::max<int64_t>(
+                1, static_cast<int64_t>(std::ceil(static_cast<double>(bins) / std::max(w, 1.0))));
+            std::vector<double> xs;
+            std::vector<std::vector<double>> layer(R);
+            std::vector<std::vector<char>> hit(R);
+            std::vector<double> unknown;
+            for (int64_t b = 0; b < bins; b += group) {
+                const int64_t e = std::min(bins, b + group);
+                xs.push_back(label_w + static_cast<double>(b * s.bin) * scale);
+                double weight = 0, u = 0;
+                std::vector<double> sums(R, 0.0);
+                std::vector<char> called(R, 0);
+                for (int64_t j = b; j < e; ++j) {
+                    const double bw =
+                        static_cast<double>(std::min((j + 1) * s.bin, s.length) - j * s.bin);
+                    weight += bw;
+                    u += s.unknown[static_cast<size_t>(j)] * bw;
+                    for (size_t k = 0; k < R; ++k) {
+                        sums[k] += s.posterior[static_cast<size_t>(j) * R + k] * bw;
+                        called[k] |= static_cast<char>(s.called[static_cast<size_t>(j) * R + k]);
+                    }
+                }
+                unknown.push_back(u / weight);
+                for (size_t k = 0; k < R; ++k) {
+                    layer[k].push_back(sums[k] / weight);
+                    hit[k].push_back(called[k]);
+                }
+            }
+            xs.push_back(label_w + w);
+            std::vector<double> lower(xs.size() - 1, 0.0);
+            for (size_t k = 0; k < R; ++k) {
+                std::vector<double> upper(lower);
+                for (size_t j = 0; j < upper.size(); ++j) upper[j] += layer[k][j] / full;
+                out += fmt::format("<path d=\"{}\" fill=\"{}\"/>\n",
+                                   step_area(xs, lower, upper, y, area), rgb(model, reported[k]));
+                lower = std::move(upper);
+            }
+            // Unknown stretches: grey over both bands.
+            for (size_t j = 0; j < unknown.size();) {
+                if (unknown[j] < 0.5) {
+                    ++j;
+                    continue;
+                }
+                size_t e = j;
+                while (e < unknown.size() && unknown[e] >= 0.5) ++e;
+                out += fmt::format(
+                    "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" class=\"unk\"/>\n",
+                    px(xs[j]), px(y), px(std::max(xs[e] - xs[j], 0.6)), px(area + strip + 1));
+                j = e;
+            }
+            // Calls: runs of drawn bins touched by a call, at least 1.2 px wide so single
+            // calls stay visible on long sequences.
+            for (size_t k = 0; k < R; ++k)
+                for (size_t j = 0; j < hit[k].size();) {
+                    if (!hit[k][j]) {
+                        ++j;
+                        continue;
+                    }
+                    size_t e = j;
+                    while (e < hit[k].size() && hit[k][e]) ++e;
+                    out += fmt::format(
+                        "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" fill=\"{}\"/>\n",
+                        px(xs[j]), px(y + area + 1), px(std::max(xs[e] - xs[j], 1.2)), px(strip),
+                        rgb(model, reported[k]));
+                    j = e;
+                }
+            out += "</g>\n";
+        }
+        out += "</svg>\n";
+        int64_t bin = 1;
+        for (const auto& s : shown)
+            if (s.length == longest) bin = s.bin;
+        out += fmt::format(
+            "<p class=\"note\">Upper band: the mean posterior of each region type per bin "
+            "(stacked; "
+            "full height = {}), that is the expected fraction of the bin's bases in the region. "
+            "Lower "
+            "strip: where the calls are (every call is drawn at least one pixel wide); grey: "
+            "unknown "
+            "bases. Bins of {} on the longest sequence.</p>\n</section>\n",
+            full == 1 ? std::string("1") : fmt::format("<b>{}</b>", full),
+            bin == 1 ? "1 base" : grouped(bin) + " bases");
+    }
+
+    // A stacked bar chart of counts per category for each reported region.
+    void bar_chart(const std::string& title, const std::string& xlabel,
+                   const std::vector<std::string>& labels,
+                   const std::vector<std::vector<int64_t>>& counts, size_t label_every) {
+        const double W = 540, H = 270, left = 58, right = 26, top = 30, bottom = 52;
+        const size_t n = labels.size() - 1;  // labels are bin edges
+        int64_t highest = 1;
+        for (size_t i = 0; i < n; ++i) {
+            int64_t stack = 0;
+            for (const auto& c : counts) stack += c[i];
+            highest = std::max(highest, stack);
+        }
+        const double ystep =
+            std::max(1.0, nice_step(static_cast<double>(highest), 5));  // counts: whole numbers
+        const double ymax = std::ceil(static_cast<double>(highest) / ystep) * ystep;
+        const double pw = W - left - right, ph = H - top - bottom, bw = pw / static_cast<double>(n);
+        out += fmt::format(
+            "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{0}\" height=\"{1}\" viewBox=\"0 0 "
+            "{0} {1}\" "
+            "role=\"img\" aria-label=\"{2}\">\n<text x=\"{3}\" y=\"18\" class=\"ttl\">{2}</text>\n",
+            px(W), px(H), esc(title), px(left));
+        for (double v = 0; v <= ymax + 0.5; v += ystep) {
+            const double y = top + ph * (1 - v / ymax);
+            out += fmt::format(
+                "<line x1=\"{0}\" y1=\"{1}\" x2=\"{2}\" y2=\"{1}\" class=\"grid\"/><text x=\"{3}\" "
+                "y=\"{4}\" "
+                "class=\"tick\" text-anchor=\"end\">{5}</text>\n",
+                px(left), px(y), px(W - right), px(left - 6), px(y + 4),
+                grouped(static_cast<int64_t>(v)));
+        }
+        for (size_t i = 0; i < n; ++i) {
+            double base = 0;
+            for (size_t k = 0; k < counts.size(); ++k) {
+                const auto c = static_cast<double>(counts[k][i]);
+                if (c <= 0) continue;
+                const double y1 = top + ph * (1 - (base + c) / ymax),
+                             y0 = top + ph * (1 - base / ymax);
+                out += fmt::format(
+                    "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" "
+                    "fill=\"{}\"><title>{}\u2013{}: {} "
+                    "{}</title></rect>\n",
+                    px(left + bw * static_cast<double>(i) + 1), px(y1), px(std::max(bw - 2, 1.0)),
+                    px(y0 - y1), rgb(model, reported[k]), esc(labels[i]), esc(labels[i + 1]),
+                    grouped(counts[k][i]),
+                    esc(model.region_names[static_cast<size_t>(reported[k])]));
+                base += c;
+            }
+        }
+        for (size_t i = 0; i <= n; i += label_every)
+            out += fmt::format(
+                "<text x=\"{}\" y=\"{}\" class=\"tick\" text-anchor=\"middle\">{}</text>\n",
+                px(left + bw * static_cast<double>(i)), px(top + ph + 16), esc(labels[i]));
+        out += fmt::format("<line x1=\"{0}\" y1=\"{1}\" x2=\"{2}\" y2=\"{1}\" class=\"axis\"/>\n",
+                           px(left), px(top + ph), px(W - right));
+        out +=
+            fmt::format("<text x=\"{}\" y=\"{}\" class=\"lab\" text-anchor=\"middle\">{}</text>\n",
+                        px(left + pw / 2), px(H - 10), esc(xlabel));
+        out += fmt::format(
+            "<text transform=\"translate(14 {}) rotate(-90)\" class=\"lab\" "
+            "text-anchor=\"middle\">calls</text>\n",
+            px(top + ph / 2));
+        out += "</svg>\n";
+    }
+
+    void distribution_section(const ContigSummary& g) {
+        out += "<section id=\"calls\">\n<h2>Call length and confidence</h2>\n";
+        int64_t total = 0, longest = 1;
+        double lowest = 1;
+        for (const int r : reported) {
+            const auto ri = static_cast<size_t>(r);
+            total += g.calls[ri];
+            for (const int64_t l : g.call_lengths[ri]) longest = std::max(longest, l);
+            for (const double c : g.call_confidences[ri]) lowest = std::min(lowest, c);
+        }
+        if (total == 0) {
+            out += "<p>No calls.</p>\n</section>\n";
+            return;
+        }
+        legend(false);
+        out += "<div class=\"figs\">\n";
+        // Lengths on the report's 1-2-5 scale, from the first to the last bin holding a call.
+        const std::vector<double> edges = call_length_edges(longest);
+        std::vector<std::vector<int64_t>> counts;
+        for (const int r : reported)
+            counts.push_back(histogram_counts(edges, g.call_lengths[static_cast<size_t>(r)]));
+        size_t first = edges.size(), last = 0;
+        for (const auto& c : counts)
+            for (size_t i = 0; i < c.size(); ++i)
+                if (c[i]) {
+                    first = std::min(first, i);
+                    last = std::max(last, i);
+                }
+        std::vector<std::string> labels;
+        for (size_t i = first; i <= last + 1; ++i) labels.push_back(bases_label(edges[i]));
+        for (auto& c : counts)
+            c = std::vector<int64_t>(c.begin() + static_cast<std::ptrdiff_t>(first),
+                                     c.begin() + static_cast<std::ptrdiff_t>(last) + 1);
+        bar_chart("call length (bins on a 1-2-5 scale)", "call length (bp)", labels, counts,
+                  labels.size() > 16 ? 3 : 1);
+        // Confidence in steps of 0.05 from 0.5 (or the lowest call) to 1.
+        const std::vector<double> cedges = confidence_edges();
+        const size_t from = std::min<size_t>(10, static_cast<size_t>(std::floor(lowest * 20)));
+        counts.clear();
+        for (const int r : reported) {
+            const auto all = histogram_counts(cedges, g.call_confidences[static_cast<size_t>(r)]);
+            counts.emplace_back(all.begin() + static_cast<std::ptrdiff_t>(from), all.end());
+        }
+        labels.clear();
+        for (size_t i = from; i < cedges.size(); ++i) labels.push_back(num(cedges[i], 2));
+        bar_chart("call confidence (mean posterior of the call)", "mean posterior", labels, counts,
+                  2);
+        out += "</div>\n</section>\n";
+    }
+
+    void window_figure(const CallWindow& w, size_t rank) {
+        const double W = 540, H = 200, left = 44, right = 30, top = 40, ph = 104,
+                     strip_y = top + ph + 8;
+        const double pw = W - left - right;
+        const size_t R = reported.size();
+        const Call& c = w.call;
+        const auto xpos = [&](int64_t p) {
+            return left + pw * static_cast<double>(p - w.begin) /
+                              static_cast<double>(std::max<int64_t>(1, w.end - w.begin));
+        };
+        const std::string region = model.region_names[static_cast<size_t>(c.region)];
+        out += fmt::format(
+            "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{0}\" height=\"{1}\" viewBox=\"0 0 "
+            "{0} {1}\" "
+            "role=\"img\" aria-label=\"posterior around call {2}\">\n",
+            px(W), px(H), rank);
+        out += fmt::format("<text x=\"{}\" y=\"16\" class=\"ttl\">{}. {}:{}\u2013{}</text>\n",
+                           px(left), rank, esc(shortened(w.name, 40)),
+                           grouped(w.offset + c.begin + 1), grouped(w.offset + c.end));
+        out += fmt::format(
+            "<text x=\"{}\" y=\"31\" class=\"sub\">{} \u00b7 {} bp \u00b7 mean P {} \u00b7 min P "
+            "{} \u00b7 "
+            "GC {} \u00b7 CpG o/e {}</text>\n",
+            px(left), esc(region), grouped(c.end - c.begin), num(c.mean_posterior, 4),
+            num(c.min_posterior, 4), num(c.composition.gc_fraction(), 3),
+            num(c.composition.cpg_obs_exp(), 2));
+        // Axes and the calling threshold.
+        for (const double v : {0.0, 0.5, 1.0}) {
+            const double y = top + ph * (1 - v);
+            out += fmt::format(
+                "<line x1=\"{0}\" y1=\"{1}\" x2=\"{2}\" y2=\"{1}\" class=\"grid\"/><text x=\"{3}\" "
+                "y=\"{4}\" "
+                "class=\"tick\" text-anchor=\"end\">{5}</text>\n",
+                px(left), px(y), px(W - right), px(left - 5), px(y + 4), num(v, 1));
+        }
+        // Stacked posterior of the reported regions, one step per point.
+        const size_t points = w.posterior.size() / std::max<size_t>(R, 1);
+        std::vector<double> xs;
+        for (size_t i = 0; i <= points; ++i)
+            xs.push_back(xpos(std::min(w.end, w.begin + static_cast<int64_t>(i) * w.bin)));
+        std::vector<double> lower(points, 0.0);
+        for (size_t k = 0; k < R; ++k) {
+            std::vector<double> upper(lower);
+            for (size_t i = 0; i < points; ++i) upper[i] += w.posterior[i * R + k];
+            out += fmt::format("<path d=\"{}\" fill=\"{}\" fill-opacity=\"0.85\"/>\n",
+                               step_area(xs, lower, upper, top, ph), rgb(model, reported[k]));
+            lower = std::move(upper);
+        }
+        const double threshold_y = top + ph * (1 - in.calling->min_posterior);
+        out += fmt::format(
+            "<line x1=\"{0}\" y1=\"{1}\" x2=\"{2}\" y2=\"{1}\" class=\"thr\"><title>calling "
+            "threshold "
+            "P = {3}</title></line>\n",
+            px(left), px(threshold_y), px(W - right), num(in.calling->min_posterior, 3));
+        // Calls in the window: thin over their length, thick over their core.
+        for (const Call& o : w.nearby) {
+            const double x0 = xpos(std::max(o.begin, w.begin)), x1 = xpos(std::min(o.end, w.end));
+            const bool focal = o.begin == c.begin && o.end == c.end && o.region == c.region;
+            const std::string colour = rgb(model, o.region);
+            out +=
+                fmt::format("<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"4\" fill=\"{}\"{}/>\n",
+                            px(x0), px(strip_y + 4), px(std::max(x1 - x0, 1.0)), colour,
+                            focal ? "" : " fill-opacity=\"0.45\"");
+            if (o.core_end > o.core_begin) {
+                const double c0 = xpos(std::max(o.core_begin, w.begin)),
+                             c1 = xpos(std::min(o.core_end, w.end));
+                out += fmt::format(
+                    "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"12\" fill=\"{}\"{}/>\n", px(c0),
+                    px(strip_y), px(std::max(c1 - c0, 1.0)), colour,
+                    focal ? "" : " fill-opacity=\"0.45\"");
+            }
+        }
+        // Position ticks (1-based, as in region strings).
+        const double span = static_cast<double>(w.end - w.begin);
+        const double step = nice_step(span, 5);
+        const double first = std::ceil(static_cast<double>(w.offset + w.begin) / step) * step;
+        for (double v = first; v <= static_cast<double>(w.offset + w.end); v += step) {
+            const double x = left + pw * (v - static_cast<double>(w.offset + w.begin)) / span;
+            out += fmt::format(
+                "<line x1=\"{0}\" y1=\"{1}\" x2=\"{0}\" y2=\"{2}\" class=\"axis\"/><text x=\"{0}\" "
+                "y=\"{3}\" "
+                "class=\"tick\" text-anchor=\"middle\">{4}</text>\n",
+                px(x), px(strip_y + 14), px(strip_y + 18), px(strip_y + 30),
+                grouped(static_cast<int64_t>(v)));
+        }
+        out += "</svg>\n";
+    }
+
+    void windows_section() {
+        const auto& windows = in.sketch->top_windows();
+        out += "<section id=\"top\">\n<h2>Posterior around the most confident calls</h2>\n";
+        if (windows.empty()) {
+            out += "<p>No calls.</p>\n</section>\n";
+            return;
+        }
+        out += fmt::format(
+            "<p class=\"note\">{} with the highest mean posterior (ties: the longer, then the "
+            "earlier), each with at least 1 kb on either side. Stacked posterior of the reported "
+            "region types; dashed line: the calling threshold; below: the calls (thick = core, "
+            "P &ge; {}). Positions are 1-based.</p>\n",
+            windows.size() == 1 ? std::string("The call")
+                                : fmt::format("The {} calls", windows.size()),
+            num(in.calling->high_posterior, 2));
+        legend(false);
+        out += "<div class=\"figs\">\n";
+        for (size_t i = 0; i < windows.size(); ++i) window_figure(windows[i], i + 1);
+        out += "</div>\n";
+        const int64_t bin = windows.front().bin;
+        if (bin > 1)
+            out += fmt::format(
+                "<p class=\"note\">The posterior is averaged over {} bases per step in the first "
+                "window (at most {} steps across a window).</p>\n",
+                grouped(bin), 600);
+        out += "</section>\n";
+    }
+
+    void sequences_section(const ContigSummary& g) {
+        const auto& shown = in.sketch->shown();
+        const auto& contigs = *in.contigs;
+        out += "<section id=\"sequences\">\n<h2>Sequences</h2>\n";
+        if (shown.size() < contigs.size())
+            out += fmt::format(
+                "<p class=\"note\">The {} sequences of the figure above; the summary lists all "
+                "{}.</p>\n",
+                grouped(static_cast<int64_t>(shown.size())),
+                grouped(static_cast<int64_t>(contigs.size())));
+        // Wide tables (profiles with many reported regions) scroll instead of overflowing.
+        out +=
+            "<div class=\"wide\"><table>\n<tr><th>#</th><th>sequence</th><th>length (bp)</th>"
+            "<th>unknown</th><th>GC</th><th>CpG o/e</th><th>log-likelihood</th>";
+        for (const int r : reported)
+            out += fmt::format(
+                "<th><b class=\"sw\" style=\"color:{}\">\u25a0</b>{}<br>expected %</th>"
+                "<th>{}<br>calls</th>",
+                rgb(model, r), esc(model.region_names[static_cast<size_t>(r)]),
+                esc(model.region_names[static_cast<size_t>(r)]));
+        out += "</tr>\n";
+        const auto row = [&](const ContigSummary& c, const std::string& index, bool total) {
+            const double len = c.length > 0 ? static_cast<double>(c.length) : 1.0;
+            std::string name = esc(c.name);
+            if (c.offset)
+                name += fmt::format(" <span class=\"dim\">{}\u2013{}</span>", grouped(c.offset + 1),
+                                    grouped(c.offset + c.length));
+            out += fmt::format(
+                "<tr class=\"num{}\"><td>{}</td><td "
+                "class=\"txt\">{}</td><td>{}</td><td>{}</td><td>{}</td>"
+                "<td>{}</td><td>{}</td>",
+                total ? " total" : "", index, total ? "all sequences" : name, grouped(c.length),
+                grouped(c.unknown),
+                c.composition.known() ? num(c.composition.gc_fraction(), 4) : "NA",
+                num(c.composition.cpg_obs_exp(), 3), num(c.log_likelihood, 2));
+            for (const int r : reported) {
+                const auto ri = static_cast<size_t>(r);
+                const double e = ri < c.expected_bases.size() ? c.expected_bases[ri] : 0.0;
+                out += fmt::format("<td>{}</td><td>{}</td>", num(100.0 * e / len, 3),
+                                   grouped(ri < c.calls.size() ? c.calls[ri] : 0));
+            }
+            out += "</tr>\n";
+        };
+        for (const auto& s : shown)
+            if (static_cast<size_t>(s.ordinal) < contigs.size())
+                row(contigs[static_cast<size_t>(s.ordinal)], std::to_string(s.ordinal + 1), false);
+        row(g, "", true);
+        out += "</table></div>\n</section>\n";
+    }
+};
+
+const char* style_sheet = R"css(
+body{font-family:system-ui,-apple-system,"Segoe UI",Roboto,"Helvetica Neue",Arial,sans-serif;color:#1d1d1f;background:#fff;margin:0;line-height:1.45}
+main{max-width:1120px;margin:0 auto;padding:18px 24px 40px}
+header{border-bottom:3px solid #1d1d1f;margin-bottom:8px}
+h1{font-size:26px;margin:0 0 2px}
+h2{font-size:19px;margin:26px 0 8px;border-bottom:1px solid #ddd;padding-bottom:3px}
+h3{font-size:15px;margin:14px 0 6px}
+p.lead{margin:0 0 10px;color:#444;font-size:15px}
+table{border-collapse:collapse;margin:6px 0 8px;font-size:13.5px}
+th,td{padding:3px 10px;border-bottom:1px solid #e4e4e4;text-align:left;vertical-align:top}
+th{background:#f4f4f4;font-weight:600}
+tr.num td{text-align:right;font-variant-numeric:tabular-nums}
+tr.num td.txt{text-align:left}
+tr.total td{font-weight:600;border-top:2px solid #bbb}
+table.kv th{width:90px;background:none;color:#555}
+table.kv td code{word-break:break-all}
+code{font-family:ui-monospace,"DejaVu Sans Mono",Menlo,Consolas,monospace;font-size:12.5px;background:#f6f6f6;padding:1px 3px}
+.dim{color:#777}
+.note{color:#555;font-size:13px;margin:4px 0 8px}
+b.sw{font-size:17px;line-height:1;margin-right:5px;vertical-align:-2px;font-weight:normal}
+p.legend{font-size:13px;margin:6px 0}
+p.legend span{margin-right:18px}
+b.unk{color:#c2c2c2}
+.figs{display:flex;flex-wrap:wrap;gap:8px 18px}
+svg{display:block;font-family:inherit}
+svg text{fill:#333}
+svg .tick{font-size:11px;fill:#555}
+svg .lab{font-size:12px}
+svg .sub{font-size:11px;fill:#666}
+svg .ttl{font-size:13px;font-weight:600}
+svg .grid{stroke:#e6e6e6;stroke-width:1}
+svg .axis{stroke:#888;stroke-width:1}
+svg .thr{stroke:#333;stroke-width:1;stroke-dasharray:4 3}
+svg .band{fill:#fafafa}
+svg .seq{fill:#d9d9d9}
+svg rect.unk{fill:#9a9a9a;fill-opacity:.45}
+details{font-size:13px;margin:6px 0}
+div.wide{overflow-x:auto}
+th{white-space:nowrap}
+footer{margin-top:30px;color:#777;font-size:12px;border-top:1px solid #ddd;padding-top:6px}
+)css";
+
+}  // namespace
+
+std::string format_html_report(const HtmlReportInput& in) {
+    if (!in.info || !in.profile || !in.model || !in.calling || !in.contigs || !in.sketch)
+        throw InternalError("format_html_report: missing input");
+    const Model& model = *in.model;
+    Page page{in, model, in.sketch->reported_regions(), {}};
+    std::string& out = page.out;
+    const ContigSummary g = genome_total(model, *in.contigs);
+    std::string inputs;
+    for (const auto& f : in.info->inputs)
+        inputs += (inputs.empty() ? "" : ", ") + (f == "-" ? std::string("stdin") : f);
+    out +=
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+        // No scripts, no requests: the page is only text, styles and inline SVG.
+        "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src "
+        "'unsafe-inline'\">\n"
+        "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n";
+    out += "<title>tidemark report: " + esc(in.profile->name) + " on " + esc(inputs) + "</title>\n";
+    out += "<style>" + std::string(style_sheet) +
+           "</style>\n</head>\n<body>\n<main>\n<header>\n<h1>tidemark report</h1>\n";
+    int64_t calls = 0;
+    for (const int r : page.reported) calls += g.calls[static_cast<size_t>(r)];
+    out += fmt::format(
+        "<p class=\"lead\">Profile <b>{}</b> on <b>{}</b>: {} sequence{}, {} bp, {} "
+        "call{}.</p>\n</header>\n",
+        esc(in.profile->name), esc(inputs), grouped(static_cast<int64_t>(in.contigs->size())),
+        in.contigs->size() == 1 ? "" : "s", grouped(g.length), grouped(calls),
+        calls == 1 ? "" : "s");
+    page.run_section();
+    page.genome_section(g);
+    page.along_section();
+    page.distribution_section(g);
+    page.windows_section();
+    page.sequences_section(g);
+    out += "<footer>Written by tidemark " TIDEMARK_VERSION
+           " (scan --html). Calls and probabilities are predictions from a statistical model, for "
+           "research "
+           "use. The same numbers are in <code>--summary</code> and "
+           "<code>--report</code>.</footer>\n</main>\n"
+           "</body>\n</html>\n";
+    return out;
+}
+
+}  // namespace tidemark

@@ -1,0 +1,173 @@
+// The HTML report's posterior sketch against the per-base posteriors it summarises (bin means
+// recomputed here from every row), decoded whole and in parallel segments; which sequences and
+// calls it keeps; escaping against the HTML standard's character references.
+#include <catch2/catch.hpp>
+
+#include <random>
+
+#include "test_util.hpp"
+#include "thread_pool.hpp"
+#include "tidemark/decode.hpp"
+#include "tidemark/report_html.hpp"
+
+using namespace tidemark;
+
+namespace {
+
+// P(region 0) at every position, forkable like the report's sink.
+struct RegionRows : DecodeSink {
+    const Model* model = nullptr;
+    std::vector<double> p;
+    void block(const BlockView& v) override {
+        for (int64_t t = 0; t < v.size; ++t) {
+            double sum = 0;
+            for (int s = 0; s < v.states; ++s)
+                if (model->region_of_state[static_cast<size_t>(s)] == 0) sum += v.posterior[t * v.states + s];
+            p.push_back(sum);
+        }
+    }
+    std::unique_ptr<DecodeSink> fork() const override {
+        auto f = std::make_unique<RegionRows>();
+        f->model = model;
+        return f;
+    }
+    void join(DecodeSink& later) override {
+        auto& o = dynamic_cast<RegionRows&>(later);
+        p.insert(p.end(), o.p.begin(), o.p.end());
+    }
+};
+
+Contig random_contig(std::mt19937_64& rng, int64_t n, const std::string& name) {
+    std::string bases;
+    std::uniform_int_distribution<int> pick(0, 99);
+    for (int64_t i = 0; i < n; ++i) {
+        const int x = pick(rng);
+        // CpG-rich stretches every few thousand bases, so that the posterior moves.
+        const bool rich = (i / 1500) % 4 == 1;
+        bases += x < 2 ? 'N' : rich ? "CGCGATGC"[x % 8] : "ACGTAATT"[x % 8];
+    }
+    return test::contig_from(bases, name);
+}
+
+Call make_call(int64_t begin, int64_t end, double mean) {
+    Call c;
+    c.begin = begin;
+    c.end = end;
+    c.mean_posterior = mean;
+    c.min_posterior = mean;
+    return c;
+}
+
+}  // namespace
+
+TEST_CASE("html_escape replaces the five characters markup needs", "[report_html]") {
+    // HTML Living Standard, named and numeric character references.
+    CHECK(html_escape("<script>alert(1)</script>") == "&lt;script&gt;alert(1)&lt;/script&gt;");
+    CHECK(html_escape("a&b \"c\" 'd'") == "a&amp;b &quot;c&quot; &#39;d&#39;");
+    CHECK(html_escape("chr1\xc3\xa9") == "chr1\xc3\xa9");  // UTF-8 passes unchanged
+}
+
+TEST_CASE("the sketch's bins are the means of the per-base posteriors, whole or in segments",
+          "[report_html]") {
+    const Model model = compile(load_profile("cpg-island"));
+    std::mt19937_64 rng(11);
+    const Contig contig = random_contig(rng, 30011, "c1");
+    HtmlReportOptions options;
+    options.sketch_values = 4000;  // bins of ceil(30011 / 4000) = 8 bases
+    options.overview_bins = 500;   // 61 bases rounded up to whole sketch bins: 64
+    options.window_points = 50;
+
+    // Reference: every row, sequential decoding.
+    RegionRows rows;
+    rows.model = &model;
+    PosteriorDecoder whole(model, DecoderOptions{1024, -1, 1});
+    whole.run(contig, rows);
+
+    for (const bool segmented : {false, true}) {
+        DYNAMIC_SECTION((segmented ? "segments of 4096 bases on 2 threads" : "one sweep")) {
+            HtmlReport report(model, options);
+            auto fork = report.fork();
+            PosteriorDecoder decoder(model, DecoderOptions{1024, segmented ? 4096 : -1, 1});
+            TaskPool pool(2);
+            REQUIRE(decoder.splits(contig.length) == segmented);
+            decoder.run(contig, *fork, segmented ? &pool : nullptr);
+            report.join(*fork);
+            const std::vector<Call> calls = {make_call(1500, 3000, 0.9), make_call(7500, 9000, 0.95)};
+            report.finish_sequence(contig, calls);
+
+            REQUIRE(report.shown().size() == 1);
+            const SequenceSketch& s = report.shown()[0];
+            CHECK(s.bin == 64);
+            REQUIRE(s.posterior.size() == static_cast<size_t>((contig.length + 63) / 64));
+            double worst = 0;
+            for (size_t b = 0; b < s.posterior.size(); ++b) {
+                const int64_t lo = static_cast<int64_t>(b) * 64, hi = std::min(lo + 64, contig.length);
+                double sum = 0;
+                for (int64_t i = lo; i < hi; ++i) sum += rows.p[static_cast<size_t>(i)];
+                worst = std::max(worst, std::abs(sum / static_cast<double>(hi - lo) - s.posterior[b]));
+            }
+            CHECK(worst < 1e-5);  // float storage
+            // Calls mark the bins they touch: 1500..2999 -> bins 23..46.
+            CHECK(s.called[22] == 0);
+            CHECK(s.called[23] == 1);
+            CHECK(s.called[46] == 1);
+            CHECK(s.called[47] == 0);
+            // Unknown fraction per bin, counted here from the bases.
+            for (size_t b = 0; b < s.unknown.size(); b += 37) {
+                const int64_t lo = static_cast<int64_t>(b) * 64, hi = std::min(lo + 64, contig.length);
+                int64_t n = 0;
+                for (int64_t i = lo; i < hi; ++i) n += contig.base(i) == 4;
+                CHECK(s.unknown[b] == Approx(static_cast<double>(n) / static_cast<double>(hi - lo)));
+            }
+            // The most confident call's window: at least 1 kb each side, points of whole bins.
+            REQUIRE(report.top_windows().size() == 2);
+            const CallWindow& w = report.top_windows()[0];
+            CHECK(w.call.begin == 7500);
+            CHECK(w.begin <= 6500);
+            CHECK(w.end >= 10000);
+            CHECK(w.bin % 8 == 0);
+            for (size_t i = 0; i < w.posterior.size(); ++i) {
+                const int64_t lo = w.begin + static_cast<int64_t>(i) * w.bin;
+                const int64_t hi = std::min(lo + w.bin, w.end);
+                double sum = 0;
+                for (int64_t j = lo; j < hi; ++j) sum += rows.p[static_cast<size_t>(j)];
+                CHECK(w.posterior[i] == Approx(sum / static_cast<double>(hi - lo)).margin(1e-5));
+            }
+        }
+    }
+}
+
+TEST_CASE("the report keeps the longest sequences and the most confident calls", "[report_html]") {
+    const Model model = compile(load_profile("cpg-island"));
+    std::mt19937_64 rng(5);
+    HtmlReportOptions options;
+    options.shown_sequences = 2;
+    options.top_calls = 3;
+    HtmlReport report(model, options);
+    const std::vector<int64_t> lengths = {3000, 5000, 4000, 5000};
+    // Calls: (sequence, begin, end, mean posterior).
+    const std::vector<std::vector<Call>> calls = {
+        {make_call(100, 400, 0.99), make_call(1000, 1300, 0.97)},
+        {make_call(200, 400, 0.99)},  // same confidence as the first, shorter
+        {make_call(100, 900, 0.98)},
+        {make_call(100, 400, 0.99)},  // ties the first one exactly: the earlier sequence wins
+    };
+    PosteriorDecoder decoder(model);
+    for (size_t i = 0; i < lengths.size(); ++i) {
+        const Contig contig = random_contig(rng, lengths[i], "s" + std::to_string(i + 1));
+        auto fork = report.fork();
+        decoder.run(contig, *fork);
+        report.join(*fork);
+        report.finish_sequence(contig, calls[i]);
+    }
+    CHECK(report.sequences_seen() == 4);
+    // The two longest (5000 and 5000; the 4000 one is pushed out by the last), in input order.
+    REQUIRE(report.shown().size() == 2);
+    CHECK(report.shown()[0].name == "s2");
+    CHECK(report.shown()[1].name == "s4");
+    // 0.99 x 300 bp (s1 before s4), then 0.99 x 200 bp.
+    REQUIRE(report.top_windows().size() == 3);
+    CHECK(report.top_windows()[0].name == "s1");
+    CHECK(report.top_windows()[1].name == "s4");
+    CHECK(report.top_windows()[2].name == "s2");
+}
