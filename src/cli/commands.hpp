@@ -22,5 +22,7 @@ void add_fit(CLI::App& app, Context& ctx);
 void add_simulate(CLI::App& app, Context& ctx);
 void add_compare(CLI::App& app, Context& ctx);
 void add_merge(CLI::App& app, Context& ctx);
+/// Hidden `_generate man|bash-completion`: documentation made from the options above.
+void add_docs(CLI::App& app, Context& ctx);
 
 }  // namespace tidemark::cli

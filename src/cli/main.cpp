@@ -37,6 +37,7 @@ int main(int argc, char** argv) {
     cli::add_simulate(app, ctx);
     cli::add_compare(app, ctx);
     cli::add_merge(app, ctx);
+    cli::add_docs(app, ctx);
     // One handler for everything: option callbacks may throw tidemark errors while parsing.
     try {
         app.parse(argc, argv);
