@@ -13,6 +13,7 @@
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/sequence.hpp"
+#include "tidemark/suggest.hpp"
 
 namespace tidemark {
 namespace {
@@ -97,7 +98,20 @@ int64_t parse_position(const std::string& text, const std::string& region) {
     return std::strtoll(digits.c_str(), nullptr, 10);
 }
 
-Region parse_region(const faidx_t* fai, const std::string& text) {
+// "no sequence named 'X' in FILE; closest names: a, b, c (of N)".
+std::string no_such_sequence(const faidx_t* fai, const std::string& path, const std::string& name) {
+    std::vector<std::string> names;
+    for (int i = 0; i < faidx_nseq(fai); ++i) names.emplace_back(faidx_iseq(fai, i));
+    const std::vector<std::string> closest = closest_names(name, names, 3, false);
+    std::string list;
+    for (const auto& n : closest) list += (list.empty() ? "" : ", ") + n;
+    return fmt::format("no sequence named '{}' in {}{}", name, path,
+                       closest.empty() ? std::string(" (it has no sequences)")
+                                       : fmt::format("; closest names: {} (of {} sequence{})", list, names.size(),
+                                                     names.size() == 1 ? "" : "s"));
+}
+
+Region parse_region(const faidx_t* fai, const std::string& path, const std::string& text) {
     if (text.empty()) throw InputError("empty region string");
     Region r;
     if (faidx_has_seq(fai, text.c_str())) {
@@ -108,12 +122,10 @@ Region parse_region(const faidx_t* fai, const std::string& text) {
     }
     const size_t colon = text.rfind(':');
     if (colon == std::string::npos)
-        throw InputError(fmt::format("region '{}': no sequence of that name in the index",
-                                     text));
+        throw InputError(fmt::format("region '{}': {}", text, no_such_sequence(fai, path, text)));
     r.contig = text.substr(0, colon);
     if (!faidx_has_seq(fai, r.contig.c_str()))
-        throw InputError(fmt::format("region '{}': no sequence named '{}' in the index", text,
-                                     r.contig));
+        throw InputError(fmt::format("region '{}': {}", text, no_such_sequence(fai, path, r.contig)));
     const int64_t length = faidx_seq_len(fai, r.contig.c_str());
     const std::string range = text.substr(colon + 1);
     const size_t dash = range.find('-');
@@ -121,13 +133,20 @@ Region parse_region(const faidx_t* fai, const std::string& text) {
     int64_t last = length;
     if (dash != std::string::npos && dash + 1 < range.size())
         last = parse_position(range.substr(dash + 1), text);
+    // Positions in these messages are the region string's: 1-based, inclusive.
     if (first < 1)
-        throw InputError(fmt::format("region '{}': start must be at least 1 (1-based)", text));
+        throw InputError(fmt::format("region '{}': start must be at least 1 (region strings are 1-based, inclusive)",
+                                     text));
+    if (first > length)
+        throw InputError(fmt::format("region '{}': start {} is past the end of '{}', which has {} bp (region strings "
+                                     "are 1-based, inclusive)",
+                                     text, first, r.contig, length));
     if (last < first)
-        throw InputError(fmt::format("region '{}': end {} is before start {}", text, last,
-                                     first));
+        throw InputError(fmt::format("region '{}': end {} is before start {} (region strings are 1-based, inclusive)",
+                                     text, last, first));
     if (last > length)
-        throw InputError(fmt::format("region '{}': end {} is past the end of '{}' ({} bp)",
+        throw InputError(fmt::format("region '{}': end {} is past the end of '{}', which has {} bp (region strings "
+                                     "are 1-based, inclusive)",
                                      text, last, r.contig, length));
     r.begin = first - 1;
     r.end = last;
@@ -146,7 +165,8 @@ void append_fetched(faidx_t* fai, const std::string& path, const std::string& na
         char* seq = faidx_fetch_seq64(fai, name.c_str(), pos, last, &got);
         if (!seq || got != last - pos + 1) {
             std::free(seq);
-            throw InputError(fmt::format("{}: cannot read {}:{}-{} through the index", path, name, pos + 1, last + 1));
+            throw InputError(fmt::format("{}: cannot read {}:{}-{} (1-based, inclusive) through the index", path, name,
+                                         pos + 1, last + 1));
         }
         codes.resize(static_cast<size_t>(got));
         for (hts_pos_t k = 0; k < got; ++k) {
@@ -154,7 +174,7 @@ void append_fetched(faidx_t* fai, const std::string& path, const std::string& na
             const uint8_t cls = classes[ch];
             if (cls > base_unknown) {
                 std::free(seq);
-                throw InputError(fmt::format("{}: record '{}': illegal character {} at position {}", path, name,
+                throw InputError(fmt::format("{}: record '{}': illegal character {} at position {} (1-based)", path, name,
                                              detail::describe_byte(ch), pos + k + 1));
             }
             codes[k] = cls;
@@ -205,14 +225,14 @@ std::vector<Region> resolve_regions(const std::string& path,
                                     const std::vector<Interval>& bed_regions) {
     FaiPtr fai = load_index(path);
     std::vector<Region> regions;
-    for (const auto& s : region_strings) regions.push_back(parse_region(fai.get(), s));
+    for (const auto& s : region_strings) regions.push_back(parse_region(fai.get(), path, s));
     for (const auto& iv : bed_regions) {
         if (!faidx_has_seq(fai.get(), iv.chrom.c_str()))
-            throw InputError(fmt::format("regions BED: no sequence named '{}' in {}", iv.chrom,
-                                         path));
+            throw InputError(fmt::format("regions BED: {}", no_such_sequence(fai.get(), path, iv.chrom)));
         const int64_t length = faidx_seq_len(fai.get(), iv.chrom.c_str());
         if (iv.end > length)
-            throw InputError(fmt::format("regions BED: {}:{}-{} is past the end of '{}' ({} bp)",
+            throw InputError(fmt::format("regions BED: interval '{} {} {}' (0-based, half-open) ends past the end of "
+                                         "'{}', which has {} bp",
                                          iv.chrom, iv.begin, iv.end, iv.chrom, length));
         if (iv.end > iv.begin) regions.push_back({iv.chrom, iv.begin, iv.end});
     }
@@ -232,8 +252,8 @@ std::vector<Region> resolve_regions(const std::string& path,
         const Region& r = regions[i];
         if (!sorted.empty() && sorted.back().contig == r.contig && r.begin < sorted.back().end)
             throw InputError(fmt::format(
-                "regions {}:{}-{} and {}:{}-{} overlap; give disjoint regions (decoding each "
-                "region separately would report the overlap twice)",
+                "regions {}:{}-{} and {}:{}-{} (1-based, inclusive) overlap; give disjoint regions (decoding "
+                "each region separately would report the overlap twice)",
                 sorted.back().contig, sorted.back().begin + 1, sorted.back().end, r.contig,
                 r.begin + 1, r.end));
         sorted.push_back(r);

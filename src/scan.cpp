@@ -410,6 +410,9 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     while (!jobs.empty()) finish_oldest();
     progress.finish();
     shard.finish();
+    // Nothing decoded is a wrong input, not a result (a shard may hold no record of a small input).
+    if (summaries.empty() && shared.empty() && !o.shard.active())
+        throw InputError(fmt::format("no FASTA records in {}: nothing to decode", join_words(o.inputs)));
 
     RunInfo info;
     info.profile_name = model.name;
