@@ -65,7 +65,10 @@ void IntervalCaller::finish(const Group& g, int region) {
     call.core_end = g.core_begin < 0 ? g.begin : g.core_end;
     call.composition = composition_source_ ? composition_source_(call.begin, call.end)
                                            : composition(*contig_, call.begin, call.end);
-    if (!meets_island_criteria(options_.criteria, length, call.composition)) return;
+    // CpG-island criteria judge CpG islands only; other region types keep their calls.
+    if (model_.region_names[static_cast<size_t>(region)] == island_region_name &&
+        !meets_island_criteria(options_.criteria, length, call.composition))
+        return;
     calls_.push_back(call);
 }
 

@@ -843,6 +843,7 @@ void validate(const MergeOptions& o) {
         throw UsageError("--report needs the shards' reports (--shard-reports)");
     if (!o.output.empty() && o.shard_beds.empty())
         throw UsageError("-o/--output needs the shards' BED files (--shard-beds)");
+    if (o.bgzip) check_bgzip_name(o.output, "-o/--output");
     if (o.gff3_path.empty() != o.shard_gff3.empty())
         throw UsageError(
             "--gff3 and --shard-gff3 go together: the merged file and every shard's GFF3");
@@ -912,6 +913,8 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     OutputFormat format;
     format.bgzip = o.bgzip;
     format.tabix = o.bgzip;
+    if (o.bgzip && !o.shard_beds.empty() && (o.output.empty() || o.output == "-"))
+        log.warn(bgzip_to_stdout("-o/--output"));
     std::vector<std::unique_ptr<OutputFile>> texts;
     if (!o.shard_beds.empty()) {
         std::vector<std::string> lines;  // of the shared records

@@ -8,9 +8,15 @@
 #include <cstdlib>
 #include <cstring>
 #include <sys/stat.h>
+#include <unistd.h>
+
+#include <map>
+#include <memory>
+#include <mutex>
 
 #include "base_table.hpp"
 #include "tidemark/error.hpp"
+#include "tidemark/log.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/sequence.hpp"
 #include "tidemark/suggest.hpp"
@@ -57,6 +63,39 @@ bool build_index(const std::string& path) {
     }
 }
 
+// The index of a FASTA whose folder cannot be written (and whose own .fai is missing or older
+// than it): built once per process in a temporary folder, removed at exit.
+struct TemporaryIndex {
+    std::string folder, fai, gzi;
+    ~TemporaryIndex() {
+        std::remove(fai.c_str());
+        std::remove(gzi.c_str());
+        rmdir(folder.c_str());
+    }
+};
+
+const TemporaryIndex* temporary_index(const std::string& path) {
+    static std::mutex mutex;
+    static std::map<std::string, std::unique_ptr<TemporaryIndex>> built;
+    const std::lock_guard<std::mutex> lock(mutex);
+    auto& slot = built[path];
+    if (slot) return slot.get();
+    const char* tmp = std::getenv("TMPDIR");
+    std::string folder = std::string(tmp && *tmp ? tmp : "/tmp") + "/tidemark-index-XXXXXX";
+    if (!mkdtemp(folder.data())) return nullptr;
+    auto index = std::make_unique<TemporaryIndex>();
+    index->folder = folder;
+    index->fai = folder + "/index.fai";
+    index->gzi = folder + "/index.gzi";
+    if (fai_build3(path.c_str(), index->fai.c_str(), index->gzi.c_str()) != 0) return nullptr;
+    Logger().warn(fmt::format("{}: cannot write its index beside it ({}.fai; a read-only folder?), so it is "
+                              "indexed in a temporary folder for this run only; index it once where it can be "
+                              "written to save that time",
+                              path, path));
+    slot = std::move(index);
+    return slot.get();
+}
+
 FaiPtr load_index(const std::string& path) {
     if (path == "-")
         throw InputError("--region needs a file: standard input cannot be read by region");
@@ -75,8 +114,16 @@ FaiPtr load_index(const std::string& path) {
                          "package) or drop --region to stream the whole file");
     // Built here under temporary names first, so that concurrent runs (shards) never read a
     // half-written index; FAI_CREATE remains for a read-only folder, where nothing is written.
-    ensure_fasta_index(path);
-    faidx_t* fai = fai_load3(path.c_str(), nullptr, nullptr, FAI_CREATE);
+    faidx_t* fai = nullptr;
+    if (ensure_fasta_index(path)) {
+        fai = fai_load3(path.c_str(), nullptr, nullptr, 0);
+    } else if (indexable(path) >= 0) {  // FASTA, but its folder cannot take the index
+        if (const TemporaryIndex* t = temporary_index(path)) {
+            struct stat gz {};
+            const bool has_gzi = stat(t->gzi.c_str(), &gz) == 0 && gz.st_size > 0;
+            fai = fai_load3(path.c_str(), t->fai.c_str(), has_gzi ? t->gzi.c_str() : nullptr, 0);
+        }
+    }
     if (!fai)
         throw InputError(path +
                          ": cannot load or build the faidx index (.fai); is the file FASTA "

@@ -9,6 +9,7 @@
 #include <algorithm>
 #include <fstream>
 #include <numeric>
+#include <unordered_map>
 #include <sstream>
 
 #include "shard_internal.hpp"
@@ -303,6 +304,16 @@ ShardFilter::ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
     if (!spec_.active()) return;
     bool by_index = false;
     plan_ = plan_shards(list_units(inputs, regions, &by_index), spec_.count, segment_length);
+    if (regions.empty()) {  // names key the outputs: unique across inputs, checked before any output
+        std::unordered_map<std::string, const std::string*> first_input;
+        for (const auto& u : plan_.units) {
+            const auto [at, inserted] = first_input.emplace(u.name, &u.input);
+            if (!inserted && *at->second != u.input)
+                throw InputError(fmt::format("{}: record '{}' has the same name as a record of {}; record names must "
+                                             "be unique across all inputs (outputs name records by name)",
+                                             u.input, u.name, *at->second));
+        }
+    }
     read_share_ = by_index;
     for (size_t i = 0; i < plan_.units.size(); ++i) {
         const int64_t length = plan_.units[i].length;
