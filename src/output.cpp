@@ -92,6 +92,9 @@ StagedPath::StagedPath(std::string target) : target_(std::move(target)) {
     if (base.empty()) throw IoError(target_ + ": output path names a folder, not a file");
     temp_ = dir + "." + base + ".tidemark-XXXXXX";
     fd_ = mkstemp(temp_.data());
+    if (fd_ < 0 && errno == ENOENT)
+        throw IoError(target_ + ": cannot create output file: its folder '" + (dir.empty() ? "." : dir) +
+                      "' does not exist");
     if (fd_ < 0) throw IoError(target_ + ": cannot create output file: " + error_text());
     slot_ = register_temp(temp_);
 }
