@@ -1,26 +1,39 @@
 #!/usr/bin/env bash
-# Installs every Debian 12 package tidemark needs to build, test and benchmark; idempotent.
+# Installs the Debian 12 packages tidemark needs; idempotent.
+#   install-deps.sh          everything: build, run, test, benchmark (scripts/test.sh, CI)
+#   install-deps.sh --tool   only what building and running the tool needs (scripts/demo.sh)
 set -euo pipefail
 
-packages=(
-  # build
-  build-essential cmake pkg-config git ca-certificates
-  # libraries (see README "Dependencies")
+# Building and running the tool (see README "Dependencies").
+tool_packages=(
+  build-essential cmake pkg-config
   libhts-dev zlib1g-dev libeigen3-dev libboost-iostreams-dev libcli11-dev
-  nlohmann-json3-dev libfmt-dev catch2 libbigwig-dev libcurl4-gnutls-dev
+  nlohmann-json3-dev libfmt-dev libbigwig-dev libcurl4-gnutls-dev
+)
+# Tests, sanitizer and fuzzing builds, benchmarks and the scale-out workflow.
+test_packages=(
+  git ca-certificates catch2
   # sanitizer and fuzzing builds
   clang libclang-rt-14-dev
   # test oracles and open datasets
   python3 python3-numpy python3-scipy python3-pomegranate python3-pybigwig python3-matplotlib
   tabix bedtools genometools gzip xz-utils bzip2 zstd
+  bowtie2-examples smalt-examples bowtie-examples cct-examples sibelia-examples
   # the HTML report (scan --html): rendered by a real browser, validated by two HTML parsers
   chromium python3-pil python3-html5lib tidy
-  bowtie2-examples smalt-examples bowtie-examples cct-examples sibelia-examples
+  # the install test renders the man page (man -l, groff)
+  man-db groff-base
   # benchmarks (scripts/bench.sh, scripts/bench-fit.sh: wall time and peak RSS)
   time
   # scale-out workflow (scripts/workflow/Snakefile) and its test (CTest label workflow)
   snakemake
 )
+
+case "${1:-}" in
+  --tool) packages=("${tool_packages[@]}") ;;
+  "") packages=("${tool_packages[@]}" "${test_packages[@]}") ;;
+  *) echo "usage: install-deps.sh [--tool]" >&2; exit 2 ;;
+esac
 
 missing=()
 for p in "${packages[@]}"; do

@@ -10,7 +10,7 @@ bash scripts/install-deps.sh
 jobs=$(nproc)
 
 echo "== test: release build" >&2
-cmake -S . -B build -DCMAKE_BUILD_TYPE=Release -DTIDEMARK_WERROR=ON
+cmake -S . -B build -DCMAKE_BUILD_TYPE=Release -DTIDEMARK_WERROR=ON -DTIDEMARK_BUILD_TESTS=ON
 cmake --build build -j"$jobs"
 ctest --test-dir build --output-on-failure --no-tests=error -j"$jobs"
 [ "${TIDEMARK_QUICK:-0}" = 1 ] && exit 0

@@ -65,11 +65,14 @@ void IntervalCaller::finish(const Group& g, int region) {
     call.core_end = g.core_begin < 0 ? g.begin : g.core_end;
     call.composition = composition_source_ ? composition_source_(call.begin, call.end)
                                            : composition(*contig_, call.begin, call.end);
-    if (!meets_island_criteria(options_.criteria, length, call.composition)) return;
+    // CpG-island criteria judge CpG islands only; other region types keep their calls.
+    if (model_.region_names[static_cast<size_t>(region)] == island_region_name &&
+        !meets_island_criteria(options_.criteria, length, call.composition))
+        return;
     // A stretch without a CpG (in particular one without C or without G, whose o/e is undefined)
     // cannot be a CpG island, whatever the model says: purine-rich low-complexity repeats such as
     // (GGGA)n can look closer to an island table than to any background. Such a call is dropped.
-    if (model_.region_names[static_cast<size_t>(region)] == "cpg_island" && call.composition.cpg == 0) return;
+    if (model_.region_names[static_cast<size_t>(region)] == island_region_name && call.composition.cpg == 0) return;
     calls_.push_back(call);
 }
 

@@ -786,17 +786,17 @@ std::unique_ptr<BigWigWriter> merge_bigwig(const std::vector<ShardDoc>& docs, co
                     throw InputError(fmt::format("{} and {}: sequence '{}' has lengths {} and {}", files[source],
                                                  files[doc], name, length, lengths[doc].at(name)));
         const int sequence = out->add_sequence(name, length);
-        // The intervals of [from, to) in file k must tile it, as scan writes them; anything else
-        // means a file of another shard or run.
+        // The intervals of [from, to) in file k must follow in order inside it, as scan writes them
+        // (tiling it but for long unknown runs); anything else means a file of another shard or run.
         bool held = false;
         BigWigReader::Interval last;
         const auto copy = [&](size_t k, int64_t from, int64_t to, bool stitch) {
             int64_t at = from;
             readers[k]->intervals(name, from, to, [&](const BigWigReader::Interval& iv) {
-                if (iv.start != at || iv.end > to || iv.end <= iv.start)
+                if (iv.start < at || iv.end > to || iv.end <= iv.start)
                     throw InputError(fmt::format(
-                        "{}: interval {}:{}-{} does not continue the track of {}:{}-{} at {}; the file does not "
-                        "belong to {}",
+                        "{}: interval {}:{}-{} (0-based, half-open) does not continue the track of {}:{}-{} at {}; "
+                        "the file does not belong to {}",
                         files[k], name, iv.start, iv.end, name, from, to, at, shard_label(docs[k])));
                 at = iv.end;
                 if (!stitch) {
@@ -809,9 +809,6 @@ std::unique_ptr<BigWigWriter> merge_bigwig(const std::vector<ShardDoc>& docs, co
                     held = true;
                 }
             });
-            if (at != to)
-                throw InputError(fmt::format("{}: the track of {}:{}-{} stops at {}; the file does not belong to {}",
-                                             files[k], name, from, to, at, shard_label(docs[k])));
         };
         if (slot.shared < 0) {
             const ContigSummary& c = docs[slot.doc].contigs[slot.index];
@@ -844,6 +841,7 @@ void validate(const MergeOptions& o) {
         throw UsageError("--report needs the shards' reports (--shard-reports)");
     if (!o.output.empty() && o.shard_beds.empty())
         throw UsageError("-o/--output needs the shards' BED files (--shard-beds)");
+    if (o.bgzip) check_bgzip_name(o.output, "-o/--output");
     if (o.gff3_path.empty() != o.shard_gff3.empty())
         throw UsageError(
             "--gff3 and --shard-gff3 go together: the merged file and every shard's GFF3");
@@ -914,6 +912,8 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     OutputFormat format;
     format.bgzip = o.bgzip;
     format.tabix = o.bgzip;
+    if (o.bgzip && !o.shard_beds.empty() && (o.output.empty() || o.output == "-"))
+        log.warn(bgzip_to_stdout("-o/--output"));
     std::vector<std::unique_ptr<OutputFile>> texts;
     if (!o.shard_beds.empty()) {
         std::vector<std::string> lines;  // of the shared records

@@ -61,6 +61,23 @@ void set_default_mode(const std::string& path) {
 
 }  // namespace
 
+void check_bgzip_name(const std::string& path, const std::string& option) {
+    const auto ends_with = [&](const char* end) {
+        const size_t n = std::strlen(end);
+        return path.size() > n && path.compare(path.size() - n, n, end) == 0;
+    };
+    if (path.empty() || path == "-" || ends_with(".gz") || ends_with(".bgz")) return;
+    throw UsageError(option + " '" + path + "': --bgzip writes it compressed (BGZF), so name it '" + path +
+                     ".gz': browsers, tabix and zcat recognise compressed files by that ending");
+}
+
+std::string bgzip_to_stdout(const std::string& option) {
+    if (isatty(STDOUT_FILENO))
+        throw UsageError("--bgzip would write compressed bytes to the terminal; give " + option + " FILE.gz");
+    return "--bgzip to standard output: compressed (BGZF) without a tabix index, which needs a file; give " +
+           option + " FILE.gz for both, or index the stream's file with 'tabix -p bed'";
+}
+
 void install_output_signal_handlers() {
     std::signal(SIGINT, remove_temps_and_die);
     std::signal(SIGTERM, remove_temps_and_die);
@@ -75,6 +92,9 @@ StagedPath::StagedPath(std::string target) : target_(std::move(target)) {
     if (base.empty()) throw IoError(target_ + ": output path names a folder, not a file");
     temp_ = dir + "." + base + ".tidemark-XXXXXX";
     fd_ = mkstemp(temp_.data());
+    if (fd_ < 0 && errno == ENOENT)
+        throw IoError(target_ + ": cannot create output file: its folder '" + (dir.empty() ? "." : dir) +
+                      "' does not exist");
     if (fd_ < 0) throw IoError(target_ + ": cannot create output file: " + error_text());
     slot_ = register_temp(temp_);
 }

@@ -16,6 +16,7 @@
 #include <sstream>
 
 #include "tidemark/error.hpp"
+#include "tidemark/suggest.hpp"
 
 namespace tidemark {
 namespace {
@@ -478,9 +479,13 @@ Profile load_profile(const std::string& name_or_path) {
     struct stat st{};
     if (stat(name_or_path.c_str(), &st) != 0) {
         std::string names;
-        for (const auto& b : builtin_profiles()) names += (names.empty() ? "" : ", ") + std::string(b.name);
-        throw ProfileError(fmt::format(
-            "'{}' is neither a built-in profile ({}) nor a readable file", name_or_path, names));
+        std::vector<std::string> builtins;
+        for (const auto& b : builtin_profiles()) {
+            names += (names.empty() ? "" : ", ") + std::string(b.name);
+            builtins.emplace_back(b.name);
+        }
+        throw ProfileError(fmt::format("'{}' is neither a built-in profile ({}) nor a readable file{}", name_or_path,
+                                       names, did_you_mean(name_or_path, builtins)));
     }
     return parse_profile(read_file(name_or_path), name_or_path);
 }

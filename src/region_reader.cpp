@@ -8,11 +8,18 @@
 #include <cstdlib>
 #include <cstring>
 #include <sys/stat.h>
+#include <unistd.h>
+
+#include <map>
+#include <memory>
+#include <mutex>
 
 #include "base_table.hpp"
 #include "tidemark/error.hpp"
+#include "tidemark/log.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/sequence.hpp"
+#include "tidemark/suggest.hpp"
 
 namespace tidemark {
 namespace {
@@ -56,6 +63,39 @@ bool build_index(const std::string& path) {
     }
 }
 
+// The index of a FASTA whose folder cannot be written (and whose own .fai is missing or older
+// than it): built once per process in a temporary folder, removed at exit.
+struct TemporaryIndex {
+    std::string folder, fai, gzi;
+    ~TemporaryIndex() {
+        std::remove(fai.c_str());
+        std::remove(gzi.c_str());
+        rmdir(folder.c_str());
+    }
+};
+
+const TemporaryIndex* temporary_index(const std::string& path) {
+    static std::mutex mutex;
+    static std::map<std::string, std::unique_ptr<TemporaryIndex>> built;
+    const std::lock_guard<std::mutex> lock(mutex);
+    auto& slot = built[path];
+    if (slot) return slot.get();
+    const char* tmp = std::getenv("TMPDIR");
+    std::string folder = std::string(tmp && *tmp ? tmp : "/tmp") + "/tidemark-index-XXXXXX";
+    if (!mkdtemp(folder.data())) return nullptr;
+    auto index = std::make_unique<TemporaryIndex>();
+    index->folder = folder;
+    index->fai = folder + "/index.fai";
+    index->gzi = folder + "/index.gzi";
+    if (fai_build3(path.c_str(), index->fai.c_str(), index->gzi.c_str()) != 0) return nullptr;
+    Logger().warn(fmt::format("{}: cannot write its index beside it ({}.fai; a read-only folder?), so it is "
+                              "indexed in a temporary folder for this run only; index it once where it can be "
+                              "written to save that time",
+                              path, path));
+    slot = std::move(index);
+    return slot.get();
+}
+
 FaiPtr load_index(const std::string& path) {
     if (path == "-")
         throw InputError("--region needs a file: standard input cannot be read by region");
@@ -74,8 +114,16 @@ FaiPtr load_index(const std::string& path) {
                          "package) or drop --region to stream the whole file");
     // Built here under temporary names first, so that concurrent runs (shards) never read a
     // half-written index; FAI_CREATE remains for a read-only folder, where nothing is written.
-    ensure_fasta_index(path);
-    faidx_t* fai = fai_load3(path.c_str(), nullptr, nullptr, FAI_CREATE);
+    faidx_t* fai = nullptr;
+    if (ensure_fasta_index(path)) {
+        fai = fai_load3(path.c_str(), nullptr, nullptr, 0);
+    } else if (indexable(path) >= 0) {  // FASTA, but its folder cannot take the index
+        if (const TemporaryIndex* t = temporary_index(path)) {
+            struct stat gz {};
+            const bool has_gzi = stat(t->gzi.c_str(), &gz) == 0 && gz.st_size > 0;
+            fai = fai_load3(path.c_str(), t->fai.c_str(), has_gzi ? t->gzi.c_str() : nullptr, 0);
+        }
+    }
     if (!fai)
         throw InputError(path +
                          ": cannot load or build the faidx index (.fai); is the file FASTA "
@@ -97,7 +145,20 @@ int64_t parse_position(const std::string& text, const std::string& region) {
     return std::strtoll(digits.c_str(), nullptr, 10);
 }
 
-Region parse_region(const faidx_t* fai, const std::string& text) {
+// "no sequence named 'X' in FILE; closest names: a, b, c (of N)".
+std::string no_such_sequence(const faidx_t* fai, const std::string& path, const std::string& name) {
+    std::vector<std::string> names;
+    for (int i = 0; i < faidx_nseq(fai); ++i) names.emplace_back(faidx_iseq(fai, i));
+    const std::vector<std::string> closest = closest_names(name, names, 3, false);
+    std::string list;
+    for (const auto& n : closest) list += (list.empty() ? "" : ", ") + n;
+    return fmt::format("no sequence named '{}' in {}{}", name, path,
+                       closest.empty() ? std::string(" (it has no sequences)")
+                                       : fmt::format("; closest names: {} (of {} sequence{})", list, names.size(),
+                                                     names.size() == 1 ? "" : "s"));
+}
+
+Region parse_region(const faidx_t* fai, const std::string& path, const std::string& text) {
     if (text.empty()) throw InputError("empty region string");
     Region r;
     if (faidx_has_seq(fai, text.c_str())) {
@@ -108,12 +169,10 @@ Region parse_region(const faidx_t* fai, const std::string& text) {
     }
     const size_t colon = text.rfind(':');
     if (colon == std::string::npos)
-        throw InputError(fmt::format("region '{}': no sequence of that name in the index",
-                                     text));
+        throw InputError(fmt::format("region '{}': {}", text, no_such_sequence(fai, path, text)));
     r.contig = text.substr(0, colon);
     if (!faidx_has_seq(fai, r.contig.c_str()))
-        throw InputError(fmt::format("region '{}': no sequence named '{}' in the index", text,
-                                     r.contig));
+        throw InputError(fmt::format("region '{}': {}", text, no_such_sequence(fai, path, r.contig)));
     const int64_t length = faidx_seq_len(fai, r.contig.c_str());
     const std::string range = text.substr(colon + 1);
     const size_t dash = range.find('-');
@@ -121,13 +180,20 @@ Region parse_region(const faidx_t* fai, const std::string& text) {
     int64_t last = length;
     if (dash != std::string::npos && dash + 1 < range.size())
         last = parse_position(range.substr(dash + 1), text);
+    // Positions in these messages are the region string's: 1-based, inclusive.
     if (first < 1)
-        throw InputError(fmt::format("region '{}': start must be at least 1 (1-based)", text));
+        throw InputError(fmt::format("region '{}': start must be at least 1 (region strings are 1-based, inclusive)",
+                                     text));
+    if (first > length)
+        throw InputError(fmt::format("region '{}': start {} is past the end of '{}', which has {} bp (region strings "
+                                     "are 1-based, inclusive)",
+                                     text, first, r.contig, length));
     if (last < first)
-        throw InputError(fmt::format("region '{}': end {} is before start {}", text, last,
-                                     first));
+        throw InputError(fmt::format("region '{}': end {} is before start {} (region strings are 1-based, inclusive)",
+                                     text, last, first));
     if (last > length)
-        throw InputError(fmt::format("region '{}': end {} is past the end of '{}' ({} bp)",
+        throw InputError(fmt::format("region '{}': end {} is past the end of '{}', which has {} bp (region strings "
+                                     "are 1-based, inclusive)",
                                      text, last, r.contig, length));
     r.begin = first - 1;
     r.end = last;
@@ -146,7 +212,8 @@ void append_fetched(faidx_t* fai, const std::string& path, const std::string& na
         char* seq = faidx_fetch_seq64(fai, name.c_str(), pos, last, &got);
         if (!seq || got != last - pos + 1) {
             std::free(seq);
-            throw InputError(fmt::format("{}: cannot read {}:{}-{} through the index", path, name, pos + 1, last + 1));
+            throw InputError(fmt::format("{}: cannot read {}:{}-{} (1-based, inclusive) through the index", path, name,
+                                         pos + 1, last + 1));
         }
         codes.resize(static_cast<size_t>(got));
         for (hts_pos_t k = 0; k < got; ++k) {
@@ -154,7 +221,7 @@ void append_fetched(faidx_t* fai, const std::string& path, const std::string& na
             const uint8_t v = table[ch];
             if (v & detail::not_a_base) {
                 std::free(seq);
-                throw InputError(fmt::format("{}: record '{}': illegal character {} at position {}", path, name,
+                throw InputError(fmt::format("{}: record '{}': illegal character {} at position {} (1-based)", path, name,
                                              detail::describe_byte(ch), pos + k + 1));
             }
             codes[k] = v & 7;
@@ -205,14 +272,14 @@ std::vector<Region> resolve_regions(const std::string& path,
                                     const std::vector<Interval>& bed_regions) {
     FaiPtr fai = load_index(path);
     std::vector<Region> regions;
-    for (const auto& s : region_strings) regions.push_back(parse_region(fai.get(), s));
+    for (const auto& s : region_strings) regions.push_back(parse_region(fai.get(), path, s));
     for (const auto& iv : bed_regions) {
         if (!faidx_has_seq(fai.get(), iv.chrom.c_str()))
-            throw InputError(fmt::format("regions BED: no sequence named '{}' in {}", iv.chrom,
-                                         path));
+            throw InputError(fmt::format("regions BED: {}", no_such_sequence(fai.get(), path, iv.chrom)));
         const int64_t length = faidx_seq_len(fai.get(), iv.chrom.c_str());
         if (iv.end > length)
-            throw InputError(fmt::format("regions BED: {}:{}-{} is past the end of '{}' ({} bp)",
+            throw InputError(fmt::format("regions BED: interval '{} {} {}' (0-based, half-open) ends past the end of "
+                                         "'{}', which has {} bp",
                                          iv.chrom, iv.begin, iv.end, iv.chrom, length));
         if (iv.end > iv.begin) regions.push_back({iv.chrom, iv.begin, iv.end});
     }
@@ -232,8 +299,8 @@ std::vector<Region> resolve_regions(const std::string& path,
         const Region& r = regions[i];
         if (!sorted.empty() && sorted.back().contig == r.contig && r.begin < sorted.back().end)
             throw InputError(fmt::format(
-                "regions {}:{}-{} and {}:{}-{} overlap; give disjoint regions (decoding each "
-                "region separately would report the overlap twice)",
+                "regions {}:{}-{} and {}:{}-{} (1-based, inclusive) overlap; give disjoint regions (decoding "
+                "each region separately would report the overlap twice)",
                 sorted.back().contig, sorted.back().begin + 1, sorted.back().end, r.contig,
                 r.begin + 1, r.end));
         sorted.push_back(r);

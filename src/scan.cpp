@@ -3,11 +3,13 @@
 
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <deque>
 #include <limits>
 #include <future>
 #include <memory>
 #include <nlohmann/json.hpp>
+#include <unordered_map>
 
 #include "tidemark/error.hpp"
 #include "tidemark/intervals.hpp"
@@ -59,6 +61,10 @@ void validate(const ScanOptions& o) {
     int stdin_count = 0;
     for (const auto& in : o.inputs) stdin_count += (in == "-");
     if (stdin_count > 1) throw UsageError("standard input (-) can be given only once");
+    for (size_t i = 0; i < o.inputs.size(); ++i)
+        for (size_t k = 0; k < i; ++k)
+            if (o.inputs[i] == o.inputs[k] && o.inputs[i] != "-")
+                throw UsageError(fmt::format("'{}' is given twice; its records would be decoded twice", o.inputs[i]));
     if (o.min_posterior && (!(*o.min_posterior > 0) || *o.min_posterior > 1))
         throw UsageError("--min-posterior must be in (0, 1]");
     if (!(o.high_posterior > 0) || o.high_posterior > 1) throw UsageError("--core-posterior must be in (0, 1]");
@@ -66,6 +72,7 @@ void validate(const ScanOptions& o) {
     if (o.min_length && *o.min_length < 1) throw UsageError("--min-length must be >= 1");
     if (o.tracks.digits < 0 || o.tracks.digits > 12) throw UsageError("--posterior-digits must be from 0 to 12");
     if (o.tracks.bin < 1) throw UsageError("--bin must be at least 1");
+    if (o.bgzip) check_bgzip_name(o.output, "-o/--output");
     if (o.tracks.format == TrackFormat::bigwig && o.tracks.prefix.empty())
         throw UsageError("--track-format bigwig needs --posteriors PREFIX");
     if (o.tracks.format == TrackFormat::bigwig && o.tracks.track_line)
@@ -132,6 +139,17 @@ std::string join_words(const std::vector<std::string>& words) {
     std::string out;
     for (const auto& w : words) out += (out.empty() ? "" : ", ") + w;
     return out;
+}
+
+// Record names key every output (BED, tracks, summary), so they must be unique across all inputs,
+// as the reader checks within one file.
+void check_unique_name(std::unordered_map<std::string, std::string>& first_input, const std::string& input,
+                       const std::string& name) {
+    const auto [at, inserted] = first_input.emplace(name, input);
+    if (!inserted && at->second != input)
+        throw InputError(fmt::format("{}: record '{}' has the same name as a record of {}; record names must be "
+                                     "unique across all inputs (outputs name records by name)",
+                                     display(input), name, display(at->second)));
 }
 
 // Step 1 for shared records: the seams of this shard's segments, and nothing else.
@@ -204,12 +222,18 @@ SharedRecord decode_shared(const Contig& contig, int64_t input_index, const Shar
 std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     const Stopwatch clock;
     validate(o);
+    if (o.bgzip && o.output == "-" && o.emit_seams.empty()) log.warn(bgzip_to_stdout("-o/--output"));
     const Profile profile = load_profile(o.profile);
     const Model decoding_model = compile(profile);
     // Window models decode one position per window; calls, tracks and totals see their
     // posteriors base by base, one state per region (window.hpp).
     const Model model = decoding_model.window > 0 ? region_view(decoding_model) : decoding_model;
 
+    if (o.criteria != IslandCriteria::none &&
+        std::find(model.region_names.begin(), model.region_names.end(), island_region_name) == model.region_names.end())
+        throw UsageError(fmt::format("--island-criteria judges calls of the region type '{}', which profile '{}' does "
+                                     "not have; drop the option (its regions: {})",
+                                     island_region_name, model.name, join_words(model.region_names)));
     CallOptions call_options;
     call_options.min_posterior = o.min_posterior.value_or(profile.calling.min_posterior);
     call_options.merge_gap = o.merge_gap.value_or(profile.calling.merge_gap);
@@ -356,6 +380,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         jobs.pop_front();
     };
 
+    std::unordered_map<std::string, std::string> names;  // record name -> the input it came from
     for (const auto& input : o.inputs) {
         std::unique_ptr<SequenceSource> source = shard.open(input, regions);
         int64_t records = 0;
@@ -375,6 +400,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             }
             if (!more) break;
             ++records;
+            if (regions.empty() && o.inputs.size() > 1) check_unique_name(names, input, job->contig.name);
             if (!shard.take(job->contig)) continue;  // another shard's record
             job->input = input;
             job->input_index = shard.index();
@@ -433,6 +459,9 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     while (!jobs.empty()) finish_oldest();
     progress.finish();
     shard.finish();
+    // Nothing decoded is a wrong input, not a result (a shard may hold no record of a small input).
+    if (summaries.empty() && shared.empty() && !o.shard.active())
+        throw InputError(fmt::format("no FASTA records in {}: nothing to decode", join_words(o.inputs)));
 
     RunInfo info;
     info.profile_name = model.name;

@@ -9,9 +9,11 @@
 #include <algorithm>
 #include <fstream>
 #include <numeric>
+#include <unordered_map>
 #include <sstream>
 
 #include "shard_internal.hpp"
+#include "tidemark/track.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/profile.hpp"
@@ -307,6 +309,16 @@ ShardFilter::ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
     if (!spec_.active()) return;
     bool by_index = false;
     plan_ = plan_shards(list_units(inputs, regions, &by_index), spec_.count, segment_length);
+    if (regions.empty()) {  // names key the outputs: unique across inputs, checked before any output
+        std::unordered_map<std::string, const std::string*> first_input;
+        for (const auto& u : plan_.units) {
+            const auto [at, inserted] = first_input.emplace(u.name, &u.input);
+            if (!inserted && *at->second != u.input)
+                throw InputError(fmt::format("{}: record '{}' has the same name as a record of {}; record names must "
+                                             "be unique across all inputs (outputs name records by name)",
+                                             u.input, u.name, *at->second));
+        }
+    }
     read_share_ = by_index;
     for (size_t i = 0; i < plan_.units.size(); ++i) {
         const int64_t length = plan_.units[i].length;
@@ -390,13 +402,17 @@ std::unique_ptr<SequenceSource> ShardFilter::open_reader(const std::string& inpu
             continue;
         }
         ShareSource::Item item{true, units[i].name, units[i].length, {}, units[i].layout};
-        const int64_t length = units[i].length, context = max_emission_order + 1;
+        // Context before: the emission order's, and enough to see whether an unknown run at the
+        // piece's edges is long enough to be left out of tracks (track_gap_min_length), as a
+        // single run sees it.
+        const int64_t length = units[i].length,
+                      context = std::max<int64_t>(max_emission_order + 1, track_gap_min_length);
         for (const ShardPiece& p : plan_.pieces[i]) {
             if (p.shard != spec_.index - 1) continue;
             const int64_t b = static_cast<int64_t>(p.first) * segment_length_;
             const int64_t e = std::min(length, static_cast<int64_t>(p.last) * segment_length_);
-            // One base after the piece too: a CpG may straddle its end.
-            RecordWindow w{std::max<int64_t>(0, b - context), std::min(length, e + 1), b, e};
+            // Bases after the piece too: a CpG may straddle its end, and a gap may continue.
+            RecordWindow w{std::max<int64_t>(0, b - context), std::min(length, e + track_gap_min_length), b, e};
             if (!item.windows.empty() && w.begin < item.windows.back().end) {  // adjacent pieces
                 item.windows.back().end = w.end;
                 item.windows.back().count_end = w.count_end;

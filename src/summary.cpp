@@ -353,10 +353,12 @@ std::string summary_table(const Model& model, const std::vector<ContigSummary>& 
 
 std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs, const ResourceUsage& usage) {
     const ContigSummary g = genome_total(model, contigs);
-    std::string out = fmt::format(
-        "tidemark: {} contigs, {} bp ({} unknown), GC {:.4f}, CpG o/e {:.4f}, log-likelihood {:.4f}\n",
-        contigs.size(), g.length, g.unknown, g.composition.gc_fraction(), g.composition.cpg_obs_exp(),
-        g.log_likelihood);
+    const double obs_exp = g.composition.cpg_obs_exp();  // NaN without C or G: NA, as in the BED
+    std::string out = fmt::format("tidemark: {} contig{}, {} bp ({} unknown), GC {:.4f}, CpG o/e {}, log-likelihood {:.4f}\n",
+                                  contigs.size(), contigs.size() == 1 ? "" : "s", g.length, g.unknown,
+                                  g.composition.gc_fraction(),
+                                  std::isnan(obs_exp) ? std::string("NA") : fmt::format("{:.4f}", obs_exp),
+                                  g.log_likelihood);
     out += fmt::format("tidemark: {:<16} {:>10} {:>9} {:>14} {:>8} {:>8} {:>8} {:>10}\n", "region", "calls",
                        "called%", "expected%", "min_len", "med_len", "max_len", "mean_conf");
     for (size_t r = 0; r < model.region_names.size(); ++r) {

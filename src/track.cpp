@@ -159,8 +159,9 @@ struct PosteriorTracks::Track {
     std::string buffer;
     int64_t run_begin = 0, run_end = 0;
     int64_t run_value = -1;  ///< quantised value of the open run, -1 = none
-    double bin_sum = 0;      ///< posterior sum of the open bin
+    double bin_sum = 0;      ///< posterior sum of the open bin (its bases outside long gaps)
     int64_t bin_begin = 0, bin_fill = 0;
+    int64_t bin_known = 0;   ///< bases of the open bin outside long gaps
     bool holding = false;    ///< the next flushed run is the span's first: keep it back
     bool held = false;       ///< held_* is the span's first run, not yet written
     int64_t held_begin = 0, held_end = 0, held_value = -1;
@@ -288,6 +289,7 @@ void PosteriorTracks::join(DecodeSink& later) {
         mine.bin_sum = theirs.bin_sum;
         mine.bin_begin = theirs.bin_begin;
         mine.bin_fill = theirs.bin_fill;
+        mine.bin_known = theirs.bin_known;
     }
     if (whole) {
         if (forked_)
@@ -309,6 +311,7 @@ void PosteriorTracks::begin_contig(const Contig& contig) {
     for (auto& t : tracks_) {
         t->run_value = -1;
         t->bin_fill = 0;
+        t->bin_known = 0;
         t->bin_sum = 0;
         if (t->bigwig) sequence_ = t->bigwig->add_sequence(contig.name, contig.full_length());
     }
@@ -358,6 +361,27 @@ void PosteriorTracks::add_value(Track& t, int64_t begin, int64_t end, double p) 
     t.run_end = end;
 }
 
+void PosteriorTracks::gaps_in(int64_t begin, int64_t end, std::vector<std::pair<int64_t, int64_t>>& out) const {
+    out.clear();
+    const std::vector<UnknownRun>& runs = contig_->unknown;
+    auto it = std::upper_bound(runs.begin(), runs.end(), begin,
+                               [](int64_t pos, const UnknownRun& r) { return pos < r.begin + r.length; });
+    for (; it != runs.end() && it->begin < end; ++it)
+        if (it->length >= track_gap_min_length)
+            out.emplace_back(std::max(begin, it->begin), std::min(end, it->begin + it->length));
+}
+
+// Closes the open bin at `end`: its mean over the bases outside long gaps, or no data.
+void PosteriorTracks::end_bin(Track& t, int64_t end) {
+    if (t.bin_known > 0)
+        add_value(t, t.bin_begin, end, t.bin_sum / static_cast<double>(t.bin_known));
+    else
+        flush_run(t);
+    t.bin_fill = 0;
+    t.bin_known = 0;
+    t.bin_sum = 0;
+}
+
 void PosteriorTracks::block(const BlockView& view) {
     const int S = view.states;
     if (!started_) {
@@ -368,24 +392,34 @@ void PosteriorTracks::block(const BlockView& view) {
                 t->held = false;
             }
     }
+    gaps_in(view.begin, view.begin + view.size, gaps_);
     for (auto& tp : tracks_) {
         Track& t = *tp;
+        size_t gap = 0;
         for (int64_t i = 0; i < view.size; ++i) {
-            double p = 0;
-            for (int s = 0; s < S; ++s)
-                if (model_.region_of_state[s] == t.region) p += view.posterior[i * S + s];
             const int64_t pos = view.begin + i;
+            while (gap < gaps_.size() && gaps_[gap].second <= pos) ++gap;
+            const bool no_data = gap < gaps_.size() && gaps_[gap].first <= pos;
             if (options_.bin == 1) {
+                if (no_data) {
+                    flush_run(t);  // the run before the gap ends; the one after starts anew
+                    continue;
+                }
+                double p = 0;
+                for (int s = 0; s < S; ++s)
+                    if (model_.region_of_state[s] == t.region) p += view.posterior[i * S + s];
                 add_value(t, pos, pos + 1, p);
                 continue;
             }
             if (t.bin_fill == 0) t.bin_begin = pos;
-            t.bin_sum += p;
-            if (++t.bin_fill == options_.bin) {
-                add_value(t, t.bin_begin, pos + 1, t.bin_sum / static_cast<double>(t.bin_fill));
-                t.bin_fill = 0;
-                t.bin_sum = 0;
+            if (!no_data) {
+                double p = 0;
+                for (int s = 0; s < S; ++s)
+                    if (model_.region_of_state[s] == t.region) p += view.posterior[i * S + s];
+                t.bin_sum += p;
+                ++t.bin_known;
             }
+            if (++t.bin_fill == options_.bin) end_bin(t, pos + 1);
         }
     }
 }
@@ -393,9 +427,9 @@ void PosteriorTracks::block(const BlockView& view) {
 void PosteriorTracks::end_contig(const Contig&, const DecodeResult&) {
     ended_ = true;
     for (auto& t : tracks_) {
-        if (t->bin_fill > 0)  // the last, shorter bin
-            add_value(*t, t->bin_begin, t->bin_begin + t->bin_fill, t->bin_sum / static_cast<double>(t->bin_fill));
+        if (t->bin_fill > 0) end_bin(*t, t->bin_begin + t->bin_fill);  // the last, shorter bin
         t->bin_fill = 0;
+        t->bin_known = 0;
         t->bin_sum = 0;
         flush_run(*t);
     }

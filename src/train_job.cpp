@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <nlohmann/json.hpp>
 #include <numeric>
 
@@ -155,6 +156,40 @@ void validate(const FitJobOptions& o) {
     if (o.fit.block_size < 0) throw UsageError("--block must be >= 0");
 }
 
+namespace {
+
+// A fit that stopped at --max-iter warns; every fit ends with one line: where the profile went,
+// iterations, converged or not, final log-likelihood.
+void log_fit_outcome(const FitJobOptions& o, const std::string& method, const FitResult& result, const Logger& log) {
+    const std::string where = o.output == "-" ? "standard output" : o.output;
+    if (method != "baum-welch") {
+        log.info(fmt::format("fit: wrote {}: labelled counts (no iterations), log-likelihood {:.6f}", where,
+                             result.log_likelihood));
+        return;
+    }
+    std::string state = result.converged ? "converged" : "not converged";
+    if (!result.converged && result.iterations == 0) {
+        state = "start evaluated only (--max-iter 0)";
+    } else if (!result.converged) {
+        // The last relative change of the kept run, as the per-iteration lines show it.
+        double change = std::numeric_limits<double>::quiet_NaN();
+        const IterationRecord* previous = nullptr;
+        for (const auto& h : result.history) {
+            if (h.restart != result.best_restart) continue;
+            if (previous) change = (h.log_likelihood - previous->log_likelihood) / std::abs(previous->log_likelihood);
+            previous = &h;
+        }
+        log.warn(fmt::format("fit: stopped at --max-iter {} without converging: the last relative log-likelihood "
+                             "change {:+.3e} is not below --tol {:g}; the profile may still improve with a larger "
+                             "--max-iter",
+                             result.iterations, change, o.fit.tol));
+    }
+    log.info(fmt::format("fit: wrote {}: {} iteration{}, {}, log-likelihood {:.6f}", where, result.iterations,
+                         result.iterations == 1 ? "" : "s", state, result.log_likelihood));
+}
+
+}  // namespace
+
 FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     validate(o);
     if (!o.from_stats.empty()) return fit_from_statistics(o, log);
@@ -304,6 +339,7 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     parse_profile(text, "fitted profile");
     out.write(text);
     out.commit();
+    log_fit_outcome(o, method, result, log);
     return result;
 }
 

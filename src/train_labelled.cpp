@@ -6,6 +6,7 @@
 #include <map>
 
 #include "tidemark/error.hpp"
+#include "tidemark/suggest.hpp"
 #include "tidemark/train.hpp"
 
 namespace tidemark {
@@ -17,7 +18,8 @@ struct Label {
 };
 
 std::string describe(const Interval& iv) {
-    return fmt::format("{}:{}-{} ('{}')", iv.chrom, iv.begin, iv.end, iv.name);
+    // As the BED line has it: 0-based, half-open.
+    return fmt::format("'{} {} {} {}' (BED: 0-based, half-open)", iv.chrom, iv.begin, iv.end, iv.name);
 }
 
 }  // namespace
@@ -44,14 +46,19 @@ TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::
         throw UsageError(fmt::format("--default-region '{}' is not a region of profile '{}'", default_region, p.name));
 
     std::string region_list;
-    for (const auto& r : p.regions) region_list += (region_list.empty() ? "" : ", ") + r.name;
+    std::vector<std::string> region_names;
+    for (const auto& r : p.regions) {
+        region_list += (region_list.empty() ? "" : ", ") + r.name;
+        region_names.push_back(r.name);
+    }
     std::map<std::string, std::vector<std::pair<Label, const Interval*>>> by_chrom;
     for (const Interval& iv : labels) {
         const int r = p.region_index(iv.name);
         if (r < 0)
             throw InputError(fmt::format("labels: interval {} names region '{}', which profile '{}' does not "
-                                         "have (regions: {})",
-                                         describe(iv), iv.name, p.name, region_list));
+                                         "have (regions: {}){}",
+                                         describe(iv), iv.name, p.name, region_list,
+                                         did_you_mean(iv.name, region_names)));
         if (iv.end > iv.begin) by_chrom[iv.chrom].push_back({{iv.begin, iv.end, r}, &iv});
     }
     for (auto& [chrom, list] : by_chrom) {

@@ -381,9 +381,9 @@ FitResult fit_from_statistics(const FitJobOptions& o, const Logger& log) {
     parse_profile(text, "fitted profile");
     out.write(text);
     out.commit();
-    log.info(fmt::format(
-        "fit: M-step from {} shards: {} known bases, log-likelihood of the input profile {:.6f}",
-        count, total.known, total.log_likelihood));
+    log.info(fmt::format("fit: wrote {}: 1 iteration (M-step from {} shards; convergence is judged across "
+                         "iterations by the caller), {} known bases, log-likelihood of the input profile {:.6f}",
+                         o.output == "-" ? "standard output" : o.output, count, total.known, total.log_likelihood));
     FitResult r;
     r.profile = p;
     r.log_likelihood = total.log_likelihood;

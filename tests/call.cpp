@@ -10,10 +10,10 @@ using namespace tidemark;
 
 namespace {
 
-Model two_region_model() {
+Model two_region_model(const std::string& reported = "isle") {
     Profile p;
     p.name = "t";
-    p.regions = {{"isle", true, ""}, {"sea", false, ""}};
+    p.regions = {{reported, true, ""}, {"sea", false, ""}};
     p.states = {{"i", 0, 0, {{0.25, 0.25, 0.25, 0.25}}}, {"s", 1, 0, {{0.25, 0.25, 0.25, 0.25}}}};
     p.initial = {0.5, 0.5};
     p.transitions = {{0.5, 0.5}, {0.5, 0.5}};
@@ -22,8 +22,8 @@ Model two_region_model() {
 
 // Feeds P(isle) values to the caller in blocks of `block` positions.
 std::vector<Call> call(const std::vector<double>& p_isle, CallOptions opt, size_t block = 3,
-                       const std::string& seq = "") {
-    const Model m = two_region_model();
+                       const std::string& seq = "", const std::string& reported = "isle") {
+    const Model m = two_region_model(reported);
     const Contig c = test::contig_from(seq.empty() ? std::string(p_isle.size(), 'A') : seq);
     IntervalCaller caller(m, opt);
     caller.begin_contig(c);
@@ -131,12 +131,14 @@ TEST_CASE("criteria filter applies to the called interval's own bases", "[call]"
     for (size_t i = 10; i < 220; ++i) p[i] = 0.9;
     CallOptions opt;
     opt.criteria = IslandCriteria::ggf1987;
-    const auto calls = call(p, opt, 64, seq);
+    const auto calls = call(p, opt, 64, seq, "cpg_island");
     REQUIRE(calls.size() == 1);
     CHECK(calls[0].composition.cpg == 105);
     CHECK(calls[0].composition.gc_fraction() == 1.0);
     opt.criteria = IslandCriteria::tj2002;  // 210 bp is too short for > 500
-    CHECK(call(p, opt, 64, seq).empty());
+    CHECK(call(p, opt, 64, seq, "cpg_island").empty());
+    // CpG-island criteria judge cpg_island calls only: another region type keeps its call.
+    CHECK(call(p, opt, 64, seq, "isle").size() == 1);
 }
 
 TEST_CASE("BED line layout", "[call]") {

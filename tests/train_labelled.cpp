@@ -92,7 +92,7 @@ TEST_CASE("Labelled counting reports unusable labels", "[train]") {
     const Profile p = labelled_profile(1, 1);
     MemoryTrainingData data(contigs());
     CHECK_THROWS_WITH(labelled_counts(p, data, {{"c1", 2, 6, "exon"}}, "bg", quiet),
-                      Contains("c1:2-6 ('exon')") && Contains("regions: isl, bg"));
+                      Contains("interval 'c1 2 6 exon' (BED: 0-based, half-open)") && Contains("regions: isl, bg"));
     CHECK_THROWS_WITH(labelled_counts(p, data, {{"c1", 2, 6, "isl"}, {"c1", 5, 8, "bg"}}, "bg", quiet),
                       Contains("overlap"));
     CHECK_THROWS_AS(labelled_counts(p, data, {}, "nosuch", quiet), UsageError);

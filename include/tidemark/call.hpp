@@ -23,6 +23,9 @@ enum class IslandCriteria {
 /// Parses "none", "ggf1987" or "tj2002"; throws UsageError otherwise.
 IslandCriteria parse_island_criteria(const std::string& text);
 
+/// The region type the island criteria apply to; calls of other types are never filtered by them.
+inline constexpr const char* island_region_name = "cpg_island";
+
 /// True when a call of this length and composition meets the criteria.
 bool meets_island_criteria(IslandCriteria criteria, int64_t length, const Composition& comp);
 

@@ -74,6 +74,15 @@ private:
     bool direct_ = false;  ///< target is a device or FIFO: written in place
 };
 
+/// A BGZF output (--bgzip) must be named FILE.gz or FILE.bgz, the endings by which browsers,
+/// tabix and gzip tools recognise compressed files: throws UsageError naming `option` otherwise.
+/// "-" (standard output) passes; see bgzip_to_stdout.
+void check_bgzip_name(const std::string& path, const std::string& option);
+
+/// --bgzip to standard output: throws UsageError when it is a terminal (compressed bytes would
+/// fill the screen); otherwise returns the warning to show (no tabix index can be written there).
+std::string bgzip_to_stdout(const std::string& option);
+
 /// On SIGINT, SIGTERM or SIGHUP: remove every uncommitted temporary file, then die by the
 /// signal. SIGPIPE is ignored so that a closed pipe surfaces as a reported write error.
 void install_output_signal_handlers();

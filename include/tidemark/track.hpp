@@ -95,6 +95,12 @@ private:
 
 enum class TrackFormat { bedgraph, bigwig };
 
+/// Runs of unknown bases (N, other IUPAC codes) at least this long are left out of posterior
+/// tracks: no data, as for an assembly gap, rather than the prior's posterior. 100 is the length
+/// assemblies use for a gap of unknown size (NCBI AGP specification v2.0; from memory), so every
+/// such gap is left out, while short ambiguity runs inside sequence keep their values.
+inline constexpr int64_t track_gap_min_length = 100;
+
 struct TrackOptions {
     std::string prefix;          ///< files are PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw
     int digits = 3;              ///< decimals kept (0..12)
@@ -105,7 +111,9 @@ struct TrackOptions {
 };
 
 /// Writes one posterior track per reportable region: P(region) per base (or bin mean), rounded
-/// to `digits` decimals, consecutive equal values merged; intervals tile each decoded contig.
+/// to `digits` decimals, consecutive equal values merged; intervals tile each decoded contig
+/// except its runs of at least track_gap_min_length unknown bases (a bin wholly inside such runs
+/// is left out; a bin partly inside takes the mean over its other bases).
 /// Files appear at close().
 ///
 /// A fork writes no file: it keeps its intervals (text, or bigWig records) in memory and, past
@@ -135,6 +143,9 @@ private:
     };
     PosteriorTracks(const Model& model, TrackOptions options, bool forked);
     void add_value(Track& track, int64_t begin, int64_t end, double p);
+    void end_bin(Track& track, int64_t end);
+    /// The parts of [begin, end) inside unknown runs of at least track_gap_min_length bases.
+    void gaps_in(int64_t begin, int64_t end, std::vector<std::pair<int64_t, int64_t>>& out) const;
     void flush_run(Track& track);
     void append_output(Track& mine, Track& theirs, const PosteriorTracks& other, int64_t sequence);
 
@@ -148,6 +159,7 @@ private:
     int sequence_ = -1;  ///< bigWig sequence index of the current contig (a fork: into sequences_)
     std::vector<Sequence> sequences_;  ///< a fork's contigs, for the bigWig sequence list at join
     std::vector<std::unique_ptr<Track>> tracks_;
+    std::vector<std::pair<int64_t, int64_t>> gaps_;  ///< of the current block
 };
 
 }  // namespace tidemark

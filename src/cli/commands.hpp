@@ -22,5 +22,13 @@ void add_fit(CLI::App& app, Context& ctx);
 void add_simulate(CLI::App& app, Context& ctx);
 void add_compare(CLI::App& app, Context& ctx);
 void add_merge(CLI::App& app, Context& ctx);
+/// A parse error in tidemark's words: the wrong word named, the closest subcommand, option or
+/// value suggested.
+std::string explain_usage_error(const CLI::App& app, const CLI::ParseError& e, int argc, char** argv);
+/// Where to look next: 'tidemark --help' or 'tidemark SUBCOMMAND --help'.
+std::string help_hint(const CLI::App& app);
+
+/// Hidden `_generate man|bash-completion`: documentation made from the options above.
+void add_docs(CLI::App& app, Context& ctx);
 
 }  // namespace tidemark::cli

@@ -37,6 +37,7 @@ int main(int argc, char** argv) {
     cli::add_simulate(app, ctx);
     cli::add_compare(app, ctx);
     cli::add_merge(app, ctx);
+    cli::add_docs(app, ctx);
     // One handler for everything: option callbacks may throw tidemark errors while parsing.
     try {
         app.parse(argc, argv);
@@ -48,8 +49,8 @@ int main(int argc, char** argv) {
     } catch (const CLI::CallForVersion& e) {
         return app.exit(e);
     } catch (const CLI::ParseError& e) {
-        std::fprintf(stderr, "tidemark: usage error: %s\n(run 'tidemark --help' or 'tidemark SUBCOMMAND --help')\n",
-                     e.what());
+        std::fprintf(stderr, "tidemark: usage error: %s\n(%s)\n", cli::explain_usage_error(app, e, argc, argv).c_str(),
+                     cli::help_hint(app).c_str());
         return static_cast<int>(ExitCode::usage);
     } catch (const Error& e) {
         std::fflush(stdout);

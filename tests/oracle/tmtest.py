@@ -168,6 +168,18 @@ def read_bedgraph(path, lengths):
     return values
 
 
+def long_unknown_runs(seq, at_least=100):
+    """Boolean mask of the bases in runs of at least `at_least` unknown bases (not A, C, G, T in
+    either case): what posterior tracks leave out (track_gap_min_length, README)."""
+    known = np.isin(np.frombuffer(seq.upper().encode(), dtype=np.uint8), np.frombuffer(b"ACGT", dtype=np.uint8))
+    mask = np.zeros(len(seq), dtype=bool)
+    edges = np.flatnonzero(np.diff(np.concatenate(([1], known.astype(np.int8), [1]))))
+    for begin, end in zip(edges[::2], edges[1::2]):  # runs of unknown bases: [begin, end)
+        if end - begin >= at_least:
+            mask[begin:end] = True
+    return mask
+
+
 def read_bed(path):
     """Data lines of a BED file as lists of column strings (header lines starting with # skipped)."""
     rows = []

@@ -1,0 +1,145 @@
+"""Install test: `cmake --install BUILD --prefix TMP` puts the binary, the man page, the bash
+completion, the built-in profiles' JSON and the plotting scripts in place; the man page renders
+with man-db (`man -l`) and groff, and it and the completion name every subcommand and option that
+`--help` lists.
+
+Usage: test_install.py CMAKE BUILD_DIR SOURCE_DIR
+"""
+
+import os
+import re
+import subprocess
+import sys
+import tempfile
+
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "oracle"))
+import tmtest  # noqa: E402  (Checks only; the binary comes from the install)
+
+
+def run(args, **kw):
+    return subprocess.run(args, capture_output=True, text=True, **kw)
+
+
+def help_items(binary, path):
+    """The subcommands, options and positionals that `tidemark PATH --help` lists (CLI11's layout:
+    sections 'Options:', 'Positionals:', 'Subcommands:' and indented rows)."""
+    text = run([binary, *path, "--help"]).stdout
+    options, positionals, subcommands = [], [], []
+    section = None
+    for line in text.splitlines():
+        if line and not line.startswith(" "):
+            section = line.rstrip(":").strip()
+            continue
+        m = re.match(r"^  (\S+)", line)
+        if not m:
+            continue
+        word = m.group(1)
+        if section == "Subcommands":
+            subcommands.append(word)
+        elif section == "Positionals":
+            positionals.append(word)
+        elif word.startswith("-"):
+            options += [w for w in word.split(",") if w.startswith("-")]
+    return options, positionals, subcommands
+
+
+def plain(text):
+    """Rendered man text without overstriking and with typographic hyphens as '-'."""
+    text = re.sub(".\b", "", text)
+    return text.replace("\u2212", "-").replace("\u2010", "-")
+
+
+def complete(completion, words, cursor_word):
+    """Runs the completion function the way bash does: COMP_WORDS and COMP_CWORD set, _tidemark called."""
+    script = (f"source {completion!r}; COMP_WORDS=({' '.join(repr(w) for w in words)} {cursor_word!r}); "
+              f"COMP_CWORD={len(words)}; _tidemark; printf '%s\\n' \"${{COMPREPLY[@]}}\"")
+    return run(["bash", "--norc", "--noprofile", "-c", script]).stdout.split()
+
+
+def body(checks, cmake, build, source):
+    with tempfile.TemporaryDirectory(prefix="tidemark-install-") as prefix:
+        r = run([cmake, "--install", build, "--prefix", prefix])
+        checks.check(r.returncode == 0, "cmake --install into a temporary prefix", "CMake install", r.stderr[-500:])
+        binary = os.path.join(prefix, "bin", "tidemark")
+        man_page = os.path.join(prefix, "share", "man", "man1", "tidemark.1")
+        completion = os.path.join(prefix, "share", "bash-completion", "completions", "tidemark")
+        for path in (binary, man_page, completion):
+            checks.check(os.path.isfile(path), f"installed {os.path.relpath(path, prefix)}", "CMake install")
+        checks.check(os.access(binary, os.X_OK), "the binary is executable", "CMake install")
+        profiles = sorted(f for f in os.listdir(os.path.join(source, "data", "profiles")) if f.endswith(".json"))
+        for p in profiles:
+            checks.check(os.path.isfile(os.path.join(prefix, "share", "tidemark", "profiles", p)),
+                         f"installed profile {p}", "CMake install")
+        listed = run([binary, "profiles"]).stdout.split("\n")
+        for p in profiles:
+            name = p[:-5]
+            checks.check(any(line.split()[:1] == [name] for line in listed),
+                         f"installed profile {name} is a built-in of the installed binary", "tidemark profiles")
+            r = run([binary, "profiles", "check", os.path.join(prefix, "share", "tidemark", "profiles", p)])
+            checks.check(r.returncode == 0, f"installed {p} validates", "tidemark profiles check", r.stderr)
+        scripts = sorted(f for f in os.listdir(os.path.join(source, "scripts")) if re.match(r"plot-.*\.py$", f))
+        for s in scripts:
+            path = os.path.join(prefix, "share", "tidemark", "scripts", s)
+            checks.check(os.path.isfile(path) and os.access(path, os.X_OK), f"installed script {s}", "CMake install")
+        r = run([binary, "--version"])
+        checks.check(r.returncode == 0 and r.stdout.startswith("tidemark "), "installed binary runs", "--version")
+
+        # Rendered by two independent formatters: man-db's man -l and groff's man macros.
+        env = dict(os.environ, MANWIDTH="100", MAN_KEEP_FORMATTING="0", LC_ALL="C.UTF-8")
+        rendered = run(["man", "-l", man_page], env=env)
+        man_text = plain(rendered.stdout)
+        checks.check(rendered.returncode == 0 and "TIDEMARK(1)" in man_text, "man -l renders the page",
+                     "man-db", rendered.stderr[-300:])
+        lint = run(["groff", "-man", "-Tutf8", "-ww", "-z", man_page])
+        checks.check(lint.returncode == 0 and not lint.stderr.strip(), "groff formats the page without warnings",
+                     "groff -man -ww", lint.stderr[-500:])
+        for section in ("NAME", "SYNOPSIS", "DESCRIPTION", "OPTIONS", "SUBCOMMANDS", "EXIT STATUS"):
+            checks.check(re.search(rf"^{section}$", man_text, re.M), f"man page has section {section}", "man-pages(7)")
+
+        # Every subcommand, positional and option of --help, at every level, in the page and the completion.
+        pending, seen = [[]], 0
+        while pending:
+            path = pending.pop(0)
+            options, positionals, subcommands = help_items(binary, path)
+            seen += len(options) + len(subcommands)
+            heading = "tidemark " + " ".join(path) if path else "tidemark"
+            for s in subcommands:
+                pending.append(path + [s])
+                checks.check(re.search(rf"^\s*{re.escape(heading + ' ' + s)}$", man_text, re.M),
+                             f"man page has a section for '{heading} {s}'", "tidemark --help")
+                checks.check(s in complete(completion, ["tidemark", *path], s[:2]),
+                             f"completion offers '{s}' after '{heading}'", "bash complete -F")
+            if path:
+                section = man_text.split(f"\n   {heading}\n", 1)[-1]
+                section = re.split(r"^ {0,3}\S", section, maxsplit=1, flags=re.M)[0]  # up to the next heading
+                for o in options:
+                    checks.check(re.search(rf"(^|[\s,]){re.escape(o)}([\s,]|$)", section, re.M),
+                                 f"man page lists {o} of '{heading}'", "tidemark --help")
+                for p in positionals:
+                    checks.check(p in section, f"man page lists argument {p} of '{heading}'", "tidemark --help")
+            offered = complete(completion, ["tidemark", *path], "-")
+            for o in options:
+                checks.check(o in offered, f"completion offers {o} for '{heading}'", "bash complete -F")
+        checks.check(seen > 40, f"--help listed {seen} options and subcommands", "tidemark --help")
+
+        # Option values: choices, profiles, files.
+        checks.equal(complete(completion, ["tidemark", "scan", "--decode"], ""), ["posterior", "viterbi"],
+                     "completion of --decode values", "scan --help: {posterior,viterbi}")
+        checks.check("cpg-island" in complete(completion, ["tidemark", "scan", "-p"], "cpg"),
+                     "completion of -p offers built-in profiles", "tidemark profiles")
+        checks.check(complete(completion, ["tidemark", "scan", "-p", "x.json"], "--bgz") == ["--bgzip"],
+                     "completion skips an option's value", "bash complete -F")
+
+
+if __name__ == "__main__":
+    if len(sys.argv) != 4:
+        print(__doc__, file=sys.stderr)
+        sys.exit(2)
+    checks = tmtest.Checks("install")
+    try:
+        body(checks, sys.argv[1], os.path.abspath(sys.argv[2]), os.path.abspath(sys.argv[3]))
+    except Exception:
+        import traceback
+        traceback.print_exc()
+        checks.failed += 1
+    checks.finish()
