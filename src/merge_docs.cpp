@@ -6,6 +6,7 @@
 #include <sstream>
 
 #include "merge_internal.hpp"
+#include "summary_internal.hpp"
 #include "tidemark/error.hpp"
 
 namespace tidemark::merging {
@@ -127,7 +128,7 @@ RunInfo run_info(const ordered_json& doc) {
     info.decode_mode = doc.value("decode", "");
     info.command_line = doc.value("command", "");
     info.inputs = doc.value("inputs", std::vector<std::string>{});
-    if (doc.contains("options")) info.options_json = doc["options"].dump();
+    if (doc.contains("options")) info.options = run_options_from_json(doc["options"], "options");
     return info;
 }
 

@@ -3,6 +3,7 @@
 #include <fmt/format.h>
 
 #include "merge_internal.hpp"
+#include "summary_internal.hpp"
 #include "tidemark/error.hpp"
 
 namespace tidemark::merging {
@@ -27,18 +28,8 @@ SharedContext shared_context(const ShardDoc& doc, const std::string& profile_ove
             "{}: profile '{}' is not the one the shards used (checksum {} vs {}); give the "
             "run's profile with --profile",
             doc.path, name, profile_checksum(profile), recorded));
-    SharedContext c{compile(profile), {}, BedStyle::plain};
-    try {
-        c.calling.min_posterior = opt.at("min_posterior").get<double>();
-        c.calling.merge_gap = opt.at("merge_gap").get<int64_t>();
-        c.calling.min_length = opt.at("min_length").get<int64_t>();
-        c.calling.high_posterior = opt.at("core_posterior").get<double>();
-        c.calling.criteria = parse_island_criteria(opt.at("island_criteria").get<std::string>());
-        c.style = opt.at("bed_style").get<std::string>() == "browser" ? BedStyle::browser
-                                                                      : BedStyle::plain;
-    } catch (const nlohmann::json::exception& e) {
-        throw InputError(fmt::format("{}: malformed 'options': {}", doc.path, e.what()));
-    }
+    const RunOptions options = run_options_from_json(opt, doc.path);
+    SharedContext c{compile(profile), options.calling, options.bed_style};
     return c;
 }
 

@@ -12,6 +12,7 @@
 #include "tidemark/error.hpp"
 #include "tidemark/intervals.hpp"
 #include "tidemark/output.hpp"
+#include "tidemark/shard.hpp"
 #include "tidemark/window.hpp"
 #include "thread_pool.hpp"
 
@@ -100,26 +101,21 @@ struct Decoder {
     bool splits(int64_t length) const { return posterior && posterior->splits(length); }
 };
 
-std::string options_json(const ScanOptions& o, const CallOptions& c) {
-    nlohmann::ordered_json j;
-    j["profile"] = o.profile;
-    j["decode"] = o.decode == DecodeMode::posterior ? "posterior" : "viterbi";
-    j["regions"] = o.regions;
-    j["regions_bed"] = o.regions_bed;
-    j["min_posterior"] = c.min_posterior;
-    j["merge_gap"] = c.merge_gap;
-    j["min_length"] = c.min_length;
-    j["core_posterior"] = c.high_posterior;
-    const char* criteria[] = {"none", "ggf1987", "tj2002"};
-    j["island_criteria"] = criteria[static_cast<int>(c.criteria)];
-    j["bed_style"] = o.bed_style == BedStyle::plain ? "plain" : "browser";
-    j["bgzip"] = o.bgzip;
-    j["posteriors"] = o.tracks.prefix;
-    j["posterior_digits"] = o.tracks.digits;
-    j["bin"] = o.tracks.bin;
-    j["track_format"] = o.tracks.format == TrackFormat::bedgraph ? "bedgraph" : "bigwig";
-    j["block"] = o.block_size;
-    return j.dump();
+RunOptions run_options(const ScanOptions& o, const CallOptions& c) {
+    RunOptions r;
+    r.profile = o.profile;
+    r.decode = o.decode == DecodeMode::posterior ? "posterior" : "viterbi";
+    r.regions = o.regions;
+    r.regions_bed = o.regions_bed;
+    r.calling = c;
+    r.bed_style = o.bed_style;
+    r.bgzip = o.bgzip;
+    r.posteriors = o.tracks.prefix;
+    r.posterior_digits = o.tracks.digits;
+    r.bin = o.tracks.bin;
+    r.track_format = o.tracks.format;
+    r.block = o.block_size;
+    return r;
 }
 
 std::string display(const std::string& path) { return path == "-" ? "<stdin>" : path; }
@@ -427,8 +423,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     info.decode_mode = o.decode == DecodeMode::posterior ? "posterior" : "viterbi";
     info.command_line = o.command_line;
     info.inputs = o.inputs;
-    info.options_json = options_json(o, call_options);
-    if (o.shard.active()) info.shard_json = shard_json(shard, info.options_json, info.profile_checksum, summaries, shared);
+    info.options = run_options(o, call_options);
+    if (o.shard.active()) info.shard_json = shard_json(shard, *info.options, info.profile_checksum, summaries, shared);
     std::unique_ptr<OutputFile> summary, report;
     if (!o.summary_path.empty()) {
         summary = std::make_unique<OutputFile>(o.summary_path);

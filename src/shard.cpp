@@ -12,6 +12,7 @@
 #include <sstream>
 
 #include "shard_internal.hpp"
+#include "summary_internal.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/profile.hpp"
@@ -506,14 +507,13 @@ ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where
     }
 }
 
-std::string shard_json(const ShardFilter& filter, const std::string& options_json, const std::string& profile_crc32,
+std::string shard_json(const ShardFilter& filter, const RunOptions& options, const std::string& profile_crc32,
                        const std::vector<ContigSummary>& contigs, const std::vector<SharedRecord>& shared) {
     ordered_json o;
     o["index"] = filter.spec().index;
     o["count"] = filter.spec().count;
     o["records"] = filter.records();
-    o["options"] =
-        options_json.empty() ? ordered_json::object() : ordered_json::parse(options_json);
+    o["options"] = run_options_json(options);
     o["profile_crc32"] = profile_crc32;
     o["bases"] = filter.shard_bases();
     o["total_bases"] = filter.total_bases();

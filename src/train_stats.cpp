@@ -9,6 +9,7 @@
 
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
+#include "tidemark/shard.hpp"
 #include "tidemark/train.hpp"
 #include "thread_pool.hpp"
 
@@ -33,8 +34,18 @@ public:
         if (o.shard.active()) plan_ = ShardFilter(o.shard, o.inputs, regions_, segment_length);
     }
     void use_seams(SeamsTable seams) { seams_ = std::move(seams); }
-    const ShardFilter* current_shard() const override { return live_; }
-    const SeamsTable* seams() const override { return seams_.empty() ? nullptr : &seams_; }
+    bool current_is_split() const override { return live_ && live_->split(); }
+    SplitRecordPart split_part(const Contig& c) const override {
+        if (seams_.empty())
+            throw UsageError(fmt::format("record '{}' is shared between shards: run fit --emit-seams for every "
+                                         "shard first and pass the files with --seams",
+                                         c.name));
+        SplitRecordPart part;
+        part.segments = live_->segments();
+        part.seams = seams_.record(live_->index(), c.name, c.length, part.segments);
+        for (const ShardPiece& piece : live_->my_pieces()) part.pieces.emplace_back(piece.first, piece.last);
+        return part;
+    }
     const std::vector<Region>& regions() const { return regions_; }
     void for_each(const std::function<void(const Contig&)>& fn) override {
         ShardFilter filter = plan_;  // a fresh copy per pass: it counts records

@@ -9,19 +9,10 @@
 
 #include "tidemark/decode.hpp"
 #include "tidemark/sequence.hpp"
+#include "tidemark/shard_spec.hpp"
 #include "tidemark/summary.hpp"
 
 namespace tidemark {
-
-/// Shard I of N (1-based). count 0 means "no sharding": everything is decoded.
-struct ShardSpec {
-    int index = 0;  ///< 1..count
-    int count = 0;  ///< 0 = not sharded
-    bool active() const { return count > 0; }
-};
-
-/// Parses "I/N" with 1 <= I <= N <= 100000. Throws UsageError naming the text.
-ShardSpec parse_shard(const std::string& text);
 
 /// One unit of work: a FASTA record (whole-file input) or one resolved region.
 struct ShardUnit {
@@ -232,7 +223,7 @@ SharedSegment describe_segment(const Contig& contig, size_t index, int64_t begin
 /// (what merge needs to rebuild the genome-wide totals exactly). Returned as JSON text.
 /// Also the profile checksum (merge checks the profile it loads for shared records against it);
 /// shared records go under "shared".
-std::string shard_json(const ShardFilter& filter, const std::string& options_json, const std::string& profile_crc32,
+std::string shard_json(const ShardFilter& filter, const RunOptions& options, const std::string& profile_crc32,
                        const std::vector<ContigSummary>& contigs, const std::vector<SharedRecord>& shared);
 
 }  // namespace tidemark
