@@ -5,6 +5,7 @@
 #include <fstream>
 #include <sstream>
 
+#include "json_file.hpp"
 #include "merge_internal.hpp"
 #include "summary_internal.hpp"
 #include "tidemark/error.hpp"
@@ -12,17 +13,9 @@
 namespace tidemark::merging {
 
 ShardDoc read_doc(const std::string& path, const char* format) {
-    std::ifstream in(path);
-    if (!in) throw InputError(path + ": cannot open");
-    std::stringstream text;
-    text << in.rdbuf();
     ShardDoc d;
     d.path = path;
-    try {
-        d.doc = ordered_json::parse(text.str());
-    } catch (const nlohmann::json::exception& e) {
-        throw InputError(fmt::format("{}: not JSON: {}", path, e.what()));
-    }
+    d.doc = read_json_file(path);
     if (!d.doc.is_object() || d.doc.value("format", "") != format)
         throw InputError(fmt::format("{}: not a {} file", path, format));
     if (!d.doc.contains("shard") || !d.doc["shard"].is_object())

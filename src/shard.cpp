@@ -31,10 +31,20 @@ bool parse_int(const std::string& s, int& out) {
 }
 
 
-std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai_path) {
+// One line of a faidx index: NAME, LENGTH, OFFSET, LINEBASES, LINEWIDTH (tab-separated).
+struct FaiEntry {
+    std::string name;
+    int64_t length = 0;
+    bool has_layout = false;  ///< OFFSET, LINEBASES and LINEWIDTH read, LINEBASES > 0
+    int64_t offset = 0, line_bases = 0, line_bytes = 0;
+};
+
+// The index's lines. Throws InputError naming the line when NAME or LENGTH is missing or bad
+// (the index must be rebuilt); a line without a usable layout has has_layout false.
+std::vector<FaiEntry> read_fai(const std::string& fai_path) {
     std::ifstream in(fai_path);
     if (!in) throw InputError(fai_path + ": cannot open the index");
-    std::vector<ShardUnit> units;
+    std::vector<FaiEntry> entries;
     std::string line;
     int64_t number = 0;
     while (std::getline(in, line)) {
@@ -46,41 +56,32 @@ std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai
                 fmt::format("{}: line {}: not a faidx index line (NAME<TAB>LENGTH...); delete "
                             "the index and rerun",
                             fai_path, number));
-        ShardUnit u{input, line.substr(0, tab), 0, 0, {}, {}};
+        FaiEntry e;
+        e.name = line.substr(0, tab);
         try {
-            u.length = std::stoll(line.substr(
+            e.length = std::stoll(line.substr(
                 tab + 1, tab2 == std::string::npos ? std::string::npos : tab2 - tab - 1));
         } catch (const std::exception&) {
             throw InputError(fmt::format(
                 "{}: line {}: bad sequence length; delete the index and rerun", fai_path, number));
         }
-        units.push_back(std::move(u));
+        if (tab2 != std::string::npos) {
+            std::istringstream layout(line.substr(tab2 + 1));
+            e.has_layout = static_cast<bool>(layout >> e.offset >> e.line_bases >> e.line_bytes) && e.line_bases > 0;
+        }
+        entries.push_back(std::move(e));
     }
-    return units;
+    return entries;
 }
 
-
-// True when PATH.fai lists every record of PATH, so that a shard may read only its own records
+// True when the index lists every record of PATH, so that a shard may read only its own records
 // through the index: the bytes between one record's sequence and the next one's hold exactly one
 // header line (an empty record, which faidx leaves out, adds another), and only line ends follow
-// the last record. Reads just those bytes.
-bool index_lists_every_record(const std::string& path, const std::string& fai_path, std::vector<ShardUnit>& units) {
-    struct Entry {
-        int64_t length = 0, offset = 0, line_bases = 0, line_bytes = 0;
-    };
-    std::vector<Entry> entries;
-    {
-        std::ifstream in(fai_path);
-        std::string line;
-        while (std::getline(in, line)) {
-            std::istringstream fields(line);
-            std::string name;
-            Entry e;
-            if (!(fields >> name >> e.length >> e.offset >> e.line_bases >> e.line_bytes) || e.line_bases <= 0)
-                return false;
-            entries.push_back(e);
-        }
-    }
+// the last record. Reads just those bytes. Sets the units' starts and layouts.
+bool index_lists_every_record(const std::string& path, const std::vector<FaiEntry>& entries,
+                              std::vector<ShardUnit>& units) {
+    for (const FaiEntry& e : entries)
+        if (!e.has_layout) return false;
     BGZF* fp = bgzf_open(path.c_str(), "r");
     if (!fp) return false;
     const auto close = [&](bool result) {
@@ -111,7 +112,7 @@ bool index_lists_every_record(const std::string& path, const std::string& fai_pa
     int64_t end = 0;   // of the previous record's sequence
     int64_t line = 1;  // number of the line that starts at `end`
     for (size_t i = 0; i < entries.size(); ++i) {
-        const Entry& e = entries[i];
+        const FaiEntry& e = entries[i];
         if (e.length == 0 || headers_in(end, e.offset) != 1) return close(false);
         units[i].start = RecordStart{end, line};
         units[i].layout = RecordLayout{e.offset, e.line_bases, e.line_bytes};
@@ -122,7 +123,7 @@ bool index_lists_every_record(const std::string& path, const std::string& fai_pa
     if (entries.empty()) return close(false);
     // The tail, read from the last base (a seek to the very end of a file may fail; the last
     // line may lack its line end).
-    const Entry& last = entries.back();
+    const FaiEntry& last = entries.back();
     return close(headers_in(end - (last.line_bytes - last.line_bases) - 1, -1) == 0);
 }
 
@@ -135,8 +136,10 @@ std::vector<ShardUnit> record_lengths(const std::string& path, bool& by_index) {
             "standard input (-) can be read only once");
     const std::string fai = path + ".fai";
     if (ensure_fasta_index(path)) {
-        std::vector<ShardUnit> units = read_fai(path, fai);
-        by_index = index_lists_every_record(path, fai, units);
+        const std::vector<FaiEntry> entries = read_fai(fai);
+        std::vector<ShardUnit> units;
+        for (const FaiEntry& e : entries) units.push_back({path, e.name, e.length, 0, {}, {}});
+        by_index = index_lists_every_record(path, entries, units);
         return units;
     }
     // Plain gzip and the other compressions cannot be indexed: one pass over the records.

@@ -8,6 +8,7 @@
 #include <limits>
 #include <sstream>
 
+#include "json_file.hpp"
 #include "shard_internal.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/shard.hpp"
@@ -133,16 +134,7 @@ SeamsTable::SeamsTable(const std::vector<std::string>& paths, const std::string&
     : paths_(paths) {
     const nlohmann::json want = nlohmann::json::parse(identity);
     for (const auto& path : paths) {
-        std::ifstream in(path);
-        if (!in) throw InputError(path + ": cannot open the seams file");
-        std::stringstream text;
-        text << in.rdbuf();
-        nlohmann::json doc;
-        try {
-            doc = nlohmann::json::parse(text.str());
-        } catch (const nlohmann::json::exception& e) {
-            throw InputError(fmt::format("{}: not JSON: {}", path, e.what()));
-        }
+        const nlohmann::json doc = read_json_file<nlohmann::json>(path, "the seams file");
         if (!doc.is_object() || doc.value("format", "") != seams_format)
             throw InputError(fmt::format("{}: not a {} file (written by scan --emit-seams)", path, seams_format));
         try {

@@ -7,6 +7,7 @@
 #include <nlohmann/json.hpp>
 #include <sstream>
 
+#include "json_file.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/shard.hpp"
@@ -92,18 +93,6 @@ private:
     ordered_json records_;
     int64_t records_total_ = 0;
 };
-
-ordered_json read_json(const std::string& path) {
-    std::ifstream in(path);
-    if (!in) throw InputError(path + ": cannot open");
-    std::stringstream text;
-    text << in.rdbuf();
-    try {
-        return ordered_json::parse(text.str());
-    } catch (const nlohmann::json::exception& e) {
-        throw InputError(fmt::format("{}: not JSON: {}", path, e.what()));
-    }
-}
 
 }  // namespace
 
@@ -304,7 +293,7 @@ FitResult fit_from_statistics(const FitJobOptions& o, const Logger& log) {
     };
     std::vector<Stats> files;
     for (const auto& path : o.from_stats) {
-        Stats s{path, read_json(path), 0};
+        Stats s{path, read_json_file(path), 0};
         if (!s.doc.is_object() || s.doc.value("format", "") != stats_format)
             throw InputError(
                 fmt::format("{}: not a {} file (written by fit --emit-stats)", path, stats_format));
@@ -350,14 +339,7 @@ FitResult fit_from_statistics(const FitJobOptions& o, const Logger& log) {
 
     // Named as fit names the result of the same start, whatever the iteration.
     const std::string start_name = structure.name;
-    const std::string suffix = "-fit";
-    if (!o.name.empty())
-        p.name = o.name;
-    else if (start_name.size() >= suffix.size() &&
-             start_name.compare(start_name.size() - suffix.size(), suffix.size(), suffix) == 0)
-        p.name = start_name;
-    else
-        p.name = start_name + suffix;
+    p.name = o.name.empty() ? fitted_profile_name(start_name, true) : o.name;
     std::vector<std::string> sources = {fmt::format(
         "Parameters fitted by tidemark {} fit (distributed Baum-Welch, {} shards) to the sequences "
         "listed under provenance, starting from profile '{}'.",

@@ -364,6 +364,12 @@ struct FitJobOptions {
     std::string command_line;          ///< recorded in provenance (without --shard)
 };
 
+/// The name of a fitted profile when --name is not given: the starting profile's name with
+/// "-fit" appended, once per fit. A distributed fit's M-step (fit --from-stats) may start from
+/// the profile of its previous iteration, whose name already ends in "-fit"; with
+/// may_continue it keeps such a name, so that every iteration names the result alike.
+std::string fitted_profile_name(const std::string& start_name, bool may_continue = false);
+
 /// Parses "K" or "A..B" (1 <= A <= B <= 64). Throws UsageError.
 void parse_class_range(const std::string& text, int& lo, int& hi);
 
