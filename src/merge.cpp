@@ -94,7 +94,7 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     std::vector<std::unique_ptr<OutputFile>> texts;
     if (!o.shard_beds.empty()) {
         std::vector<std::string> lines;  // of the shared records
-        for (const SharedAssembly& a : run.shared) {
+        for (const SplitAssembly& a : run.split) {
             lines.emplace_back();
             for (const Call& call : a.calls)
                 lines.back() +=
@@ -118,7 +118,7 @@ void run_merge(const MergeOptions& o, const Logger& log) {
                     track_format = "bigwig";
         }
         const bool bigwig = track_format == "bigwig";
-        if (bigwig && !run.shared.empty()) {
+        if (bigwig && !run.split.empty()) {
             const int digits = recorded.is_object() ? recorded.value("posterior_digits", 3) : 3;
             if (digits > 6)
                 throw InputError(
@@ -140,7 +140,7 @@ void run_merge(const MergeOptions& o, const Logger& log) {
                 const std::string base = prefix + "." + model.region_names[r];
                 if (bigwig) {
                     const size_t k = files.size();
-                    if (plan[k].contigs.empty() && plan[k].shared.empty()) {  // wrote no bigWig
+                    if (plan[k].contigs.empty() && plan[k].split.empty()) {  // wrote no bigWig
                         files.push_back("");
                         continue;
                     }
@@ -175,7 +175,7 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     int64_t bases = 0;
     for (const auto& c : contigs) bases += c.length;
     log.info(fmt::format("merge: {} shards, {} records ({} shared between shards), {} bp",
-                         plan.size(), contigs.size(), run.shared.size(), bases));
+                         plan.size(), contigs.size(), run.split.size(), bases));
 }
 
 }  // namespace tidemark

@@ -28,7 +28,7 @@ ShardDoc read_doc(const std::string& path, const char* format) {
         d.records = s.at("records").get<int64_t>();
         for (const auto& c : s.at("contigs")) d.contigs.push_back(contig_from_json(c, path));
         if (s.contains("shared"))
-            for (const auto& r : s.at("shared")) d.shared.push_back(shared_from_json(r, path));
+            for (const auto& r : s.at("shared")) d.split.push_back(split_record_from_json(r, path));
     } catch (const nlohmann::json::exception& e) {
         throw InputError(fmt::format("{}: malformed 'shard' object: {}", path, e.what()));
     }
@@ -143,7 +143,7 @@ std::vector<std::vector<std::pair<int64_t, std::string>>> shard_records(
     std::vector<std::vector<std::pair<int64_t, std::string>>> out(docs.size());
     for (size_t k = 0; k < docs.size(); ++k) {
         for (const ContigSummary& c : docs[k].contigs) out[k].emplace_back(c.input_index, c.name);
-        for (const SharedRecord& r : docs[k].shared)
+        for (const SplitRecord& r : docs[k].split)
             out[k].emplace_back(r.whole.input_index, r.whole.name);
         std::sort(out[k].begin(), out[k].end());
     }

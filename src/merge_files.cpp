@@ -82,13 +82,13 @@ bool coordinates(const std::string& line, std::string& chrom, int64_t& start, in
 // Streams the shard files (files[k] belongs to docs[k]) into out in input order. The lines of a
 // record are those that follow in its shard's file with its name and coordinates inside it,
 // each starting at or after the previous line's end (calls are disjoint, tracks tile). Shared
-// records: shared_lines (BED: formatted by merge), else (tracks) the lines of each segment from
+// records: split_lines (BED: formatted by merge), else (tracks) the lines of each segment from
 // the shard that decoded it.
 // Returns the output uncommitted, so that nothing appears unless every merge succeeds.
 std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs, const MergedRun& run,
                                        const std::vector<std::string>& files,
                                        const std::string& target, const OutputFormat& base_format,
-                                       const std::vector<std::string>* shared_lines) {
+                                       const std::vector<std::string>* split_lines) {
     std::vector<std::unique_ptr<LineReader>> readers;
     for (const auto& f : files) readers.push_back(std::make_unique<LineReader>(f));
     std::string header, first_compared;
@@ -158,14 +158,14 @@ std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs, const 
         }
     };
     for (const Slot& slot : run.slots) {
-        if (slot.shared < 0) {
+        if (slot.split < 0) {
             const ContigSummary& c = docs[slot.doc].contigs[slot.index];
             copy_lines(*readers[slot.doc], c.name, c.offset, c.offset + c.length, false);
             continue;
         }
-        const SharedAssembly& a = run.shared[static_cast<size_t>(slot.shared)];
-        if (shared_lines) {
-            buffer += (*shared_lines)[static_cast<size_t>(slot.shared)];
+        const SplitAssembly& a = run.split[static_cast<size_t>(slot.split)];
+        if (split_lines) {
+            buffer += (*split_lines)[static_cast<size_t>(slot.split)];
             continue;
         }
         // Segments come from the shards that decoded them, in order.
@@ -194,7 +194,7 @@ std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs, const 
 
 // GFF3: after the version line, each record is a ##sequence-region line (one per record, as
 // scan writes it) followed by its features. Blocks go back into input order and the feature
-// IDs (REGION_SERIAL, numbered through the run) are renumbered in that order. Shared records
+// IDs (REGION_SERIAL, numbered through the run) are renumbered in that order. Split records
 // are formatted here.
 std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs, const MergedRun& run,
                                        const std::vector<std::string>& files,
@@ -227,8 +227,8 @@ std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs, const 
     std::string text = header;
     int64_t serial = 0;
     for (const Slot& slot : run.slots) {
-        if (slot.shared >= 0) {  // formatted here, numbered on through the run
-            const SharedAssembly& a = run.shared[static_cast<size_t>(slot.shared)];
+        if (slot.split >= 0) {  // formatted here, numbered on through the run
+            const SplitAssembly& a = run.split[static_cast<size_t>(slot.split)];
             text += format_gff3_sequence_region(a.contig);
             for (const Call& call : a.calls)
                 text += format_gff3_feature(run.context->model, a.contig, call, ++serial);
@@ -319,7 +319,7 @@ std::unique_ptr<OutputFile> merge_chrom_sizes(const std::vector<ShardDoc>& docs,
 
 // bigWig tracks: the shards' intervals go through BigWigWriter in input order, which gives the
 // single run's file byte for byte (the writer's output depends only on the sequence list and
-// the interval stream). A shared record's pieces end their last run at the piece's end, where a
+// the interval stream). A split record's pieces end their last run at the piece's end, where a
 // single run may have continued it, so adjacent equal values across pieces are joined again.
 // Returns the writer unclosed: close() writes and commits the file.
 std::unique_ptr<BigWigWriter> merge_bigwig(const std::vector<ShardDoc>& docs, const MergedRun& run,
@@ -353,8 +353,8 @@ std::unique_ptr<BigWigWriter> merge_bigwig(const std::vector<ShardDoc>& docs, co
         const std::string name = record_name(docs, run, slot);
         const size_t source = source_doc(run, slot);
         const int64_t length = lengths[source].at(name);
-        if (slot.shared >= 0)
-            for (const auto& [doc, seg] : run.shared[static_cast<size_t>(slot.shared)].segments)
+        if (slot.split >= 0)
+            for (const auto& [doc, seg] : run.split[static_cast<size_t>(slot.split)].segments)
                 if (lengths[doc].at(name) != length)
                     throw InputError(fmt::format("{} and {}: sequence '{}' has lengths {} and {}",
                                                  files[source], files[doc], name, length,
@@ -390,12 +390,12 @@ std::unique_ptr<BigWigWriter> merge_bigwig(const std::vector<ShardDoc>& docs, co
                     "{}: the track of {}:{}-{} stops at {}; the file does not belong to {}",
                     files[k], name, from, to, at, shard_label(docs[k])));
         };
-        if (slot.shared < 0) {
+        if (slot.split < 0) {
             const ContigSummary& c = docs[slot.doc].contigs[slot.index];
             copy(slot.doc, c.offset, c.offset + c.length, false);
             continue;
         }
-        const SharedAssembly& a = run.shared[static_cast<size_t>(slot.shared)];
+        const SplitAssembly& a = run.split[static_cast<size_t>(slot.split)];
         const int64_t offset = a.record.whole.offset;
         for (size_t k = 0;
              k < a.segments.size();) {  // consecutive segments of one shard: one piece

@@ -1,7 +1,7 @@
 // Internal to `tidemark merge` (src/merge*.cpp) and its unit tests: the three steps of a merge.
 //   merge_docs.cpp     reads and checks the shards' summaries and reports (ShardDoc);
 //   merge_records.cpp  lays out every record of the input in input order and restores split
-//                      records from their segments (MergedRun, SharedAssembly);
+//                      records from their segments (MergedRun, SplitAssembly);
 //   merge_files.cpp    streams the shards' BED, GFF3, bedGraph, bigWig and chrom-sizes files
 //                      back in input order.
 #pragma once
@@ -37,7 +37,7 @@ struct ShardDoc {
     int index = 0, count = 0;
     int64_t records = 0;
     std::vector<ContigSummary> contigs;  ///< this shard's whole records, in input order
-    std::vector<SharedRecord> shared;    ///< its segments of records split between shards
+    std::vector<SplitRecord> split;      ///< its segments of records split between shards
 };
 
 /// Reads one summary or report (`format`: "tidemark-summary/1" or "tidemark-report/1") written
@@ -79,9 +79,9 @@ std::string shard_label(const ShardDoc& doc);
 
 /// A record split between shards, put back together: every segment from the shard that
 /// decoded it, joined in order as a single run joins them.
-struct SharedAssembly {
-    SharedRecord record;  ///< whole-record fields (log-likelihood from the last segment's shard)
-    std::vector<std::pair<size_t, const SharedSegment*>> segments;  ///< (doc, segment) in order
+struct SplitAssembly {
+    SplitRecord record;  ///< whole-record fields (log-likelihood from the last segment's shard)
+    std::vector<std::pair<size_t, const SplitSegment*>> segments;  ///< (doc, segment) in order
     ContigSummary summary;
     std::vector<Call> calls;
     Contig contig;  ///< name and coordinates only, for formatting
@@ -90,11 +90,11 @@ struct SharedAssembly {
 /// Where each record of the input comes from: a whole record of one shard, or an assembly.
 struct Slot {
     size_t doc = SIZE_MAX, index = 0;  ///< docs[doc].contigs[index]
-    int shared = -1;                   ///< >= 0: MergedRun::shared[shared]
+    int split = -1;                    ///< >= 0: MergedRun::split[split]
 };
 
 /// What the calls of split records need: the run's compiled profile and its calling options.
-struct SharedContext {
+struct SplitContext {
     Model model;
     CallOptions calling;
     BedStyle style = BedStyle::plain;
@@ -102,36 +102,36 @@ struct SharedContext {
 
 /// The profile of the run (the shards' own, or profile_override), checked against the recorded
 /// checksum, and the calling options the shards recorded. Throws InputError naming the file.
-SharedContext shared_context(const ShardDoc& doc, const std::string& profile_override);
+SplitContext split_context(const ShardDoc& doc, const std::string& profile_override);
 
 /// Composition of [begin, end) of a split record from its segments' prefix compositions: with
 /// G(p) the composition of [0, p), it is G(end) - G(begin) less the CpG straddling begin - 1
 /// and begin. Throws InputError for a position with no prefix composition.
-class MarkedComposition {
+class PrefixCompositions {
 public:
-    explicit MarkedComposition(const SharedAssembly& assembly);
+    explicit PrefixCompositions(const SplitAssembly& assembly);
     Composition operator()(int64_t begin, int64_t end) const;
 
 private:
-    std::map<int64_t, std::pair<Composition, bool>> marks_;  ///< G(p), CpG straddling p - 1 and p
+    std::map<int64_t, std::pair<Composition, bool>> at_;  ///< G(p), CpG straddling p - 1 and p
 };
 
 /// The segments must tile the record in order, and what each holds must lie inside it (calls of
 /// reported regions, prefix compositions from its start to its end); anything else is an edited
 /// or foreign file (InputError).
-void check_segments(const std::vector<ShardDoc>& docs, const SharedAssembly& assembly,
+void check_segments(const std::vector<ShardDoc>& docs, const SplitAssembly& assembly,
                     const Model& model);
 
 /// Joins the segments' caller and totals states in order, as the single run does: fills the
 /// assembly's calls, summary and contig.
-void join_segments(SharedAssembly& assembly, const SharedContext& context);
+void join_segments(SplitAssembly& assembly, const SplitContext& context);
 
 /// Every record of the input, in input order, and the split records put back together.
 struct MergedRun {
     std::vector<Slot> slots;
-    std::vector<SharedAssembly> shared;
+    std::vector<SplitAssembly> split;
     std::vector<ContigSummary> contigs;
-    std::optional<SharedContext> context;  ///< when there are split records
+    std::optional<SplitContext> context;  ///< when there are split records
 };
 
 /// Lays the shards' records out in input order and restores the split ones; checks that the
@@ -173,13 +173,13 @@ private:
 bool coordinates(const std::string& line, std::string& chrom, int64_t& start, int64_t& end);
 
 /// Streams the shard files (files[k] belongs to docs[k]) into `target` in input order: BED
-/// (with shared_lines, the formatted calls of each split record) or bedGraph tracks (split
+/// (with split_lines, the formatted calls of each split record) or bedGraph tracks (split
 /// records: each piece from the shard that decoded it, equal runs joined across pieces).
 /// Returns the output uncommitted, so that nothing appears unless every merge succeeds.
 std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs, const MergedRun& run,
                                        const std::vector<std::string>& files,
                                        const std::string& target, const OutputFormat& base_format,
-                                       const std::vector<std::string>* shared_lines);
+                                       const std::vector<std::string>* split_lines);
 
 /// GFF3 blocks in input order, feature IDs renumbered through the run (uncommitted).
 std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs, const MergedRun& run,

@@ -9,7 +9,7 @@
 namespace tidemark::merging {
 
 // The profile of the run (the shards' own, or --profile), checked against the recorded checksum.
-SharedContext shared_context(const ShardDoc& doc, const std::string& profile_override) {
+SplitContext split_context(const ShardDoc& doc, const std::string& profile_override) {
     const ordered_json& opt = doc.doc["shard"]["options"];
     const std::string name = profile_override.empty() ? opt.value("profile", "") : profile_override;
     Profile profile;
@@ -29,31 +29,31 @@ SharedContext shared_context(const ShardDoc& doc, const std::string& profile_ove
             "run's profile with --profile",
             doc.path, name, profile_checksum(profile), recorded));
     const RunOptions options = run_options_from_json(opt, doc.path);
-    SharedContext c{compile(profile), options.calling, options.bed_style};
+    SplitContext c{compile(profile), options.calling, options.bed_style};
     return c;
 }
 
-// Composition of [begin, end) of a shared record from the segments' prefix marks: with G(p) the
-// composition of [0, p), it is G(end) - G(begin) less the CpG straddling begin - 1 and begin.
-MarkedComposition::MarkedComposition(const SharedAssembly& a) {
+// Composition of [begin, end) of a split record from the segments' prefix compositions: with G(p)
+// the composition of [0, p), it is G(end) - G(begin) less the CpG straddling begin - 1 and begin.
+PrefixCompositions::PrefixCompositions(const SplitAssembly& a) {
     Composition base;
     for (const auto& [doc, seg] : a.segments) {
-        const bool straddle = !seg->marks.empty() && seg->marks.front().cpg_before;
+        const bool straddle = !seg->prefixes.empty() && seg->prefixes.front().cpg_before;
         Composition at_end = base;
-        for (const CompositionMark& m : seg->marks) {
+        for (const PrefixComposition& m : seg->prefixes) {
             Composition g = base;
             g += m.prefix;
             g.cpg += straddle && m.position > seg->begin ? 1 : 0;
-            marks_[m.position] = {g, m.cpg_before};
+            at_[m.position] = {g, m.cpg_before};
             if (m.position == seg->end) at_end = g;
         }
         base = at_end;
     }
 }
 
-Composition MarkedComposition::operator()(int64_t begin, int64_t end) const {
-    const auto b = marks_.find(begin), e = marks_.find(end);
-    if (b == marks_.end() || e == marks_.end())
+Composition PrefixCompositions::operator()(int64_t begin, int64_t end) const {
+    const auto b = at_.find(begin), e = at_.find(end);
+    if (b == at_.end() || e == at_.end())
         throw InputError(
             fmt::format("a call {}-{} of a record shared between shards has no composition mark "
                         "at its ends; the shard summaries were edited or come from another run",
@@ -65,15 +65,15 @@ Composition MarkedComposition::operator()(int64_t begin, int64_t end) const {
 }
 
 // The segments must tile the record in order, and what each holds must lie inside it (calls of
-// reported regions, marks from its start to its end); anything else is an edited or foreign file.
-void check_segments(const std::vector<ShardDoc>& docs, const SharedAssembly& a,
-                    const Model& model) {
+// reported regions, prefix compositions from its start to its end); anything else is an edited or
+// foreign file.
+void check_segments(const std::vector<ShardDoc>& docs, const SplitAssembly& a, const Model& model) {
     size_t reported = 0;
     for (bool r : model.region_report) reported += r;
     int64_t at = 0;
     for (const auto& entry : a.segments) {
         const size_t doc = entry.first;  // not a structured binding: lambdas capture it (clang 14)
-        const SharedSegment* seg = entry.second;
+        const SplitSegment* seg = entry.second;
         const auto bad = [&](const char* what) {
             return InputError(fmt::format(
                 "{}: record '{}' segment {} ({}-{}): {}; the file was edited or comes "
@@ -90,11 +90,11 @@ void check_segments(const std::vector<ShardDoc>& docs, const SharedAssembly& a,
                 static_cast<size_t>(c.region) >= model.region_names.size() ||
                 !model.region_report[c.region])
                 throw bad("has a call outside it or of an unreported region");
-        if (seg->marks.empty() || seg->marks.front().position != seg->begin ||
-            seg->marks.back().position != seg->end)
+        if (seg->prefixes.empty() || seg->prefixes.front().position != seg->begin ||
+            seg->prefixes.back().position != seg->end)
             throw bad("lacks its composition marks");
-        for (size_t m = 1; m < seg->marks.size(); ++m)
-            if (seg->marks[m].position <= seg->marks[m - 1].position)
+        for (size_t m = 1; m < seg->prefixes.size(); ++m)
+            if (seg->prefixes[m].position <= seg->prefixes[m - 1].position)
                 throw bad("has composition marks out of order");
     }
     if (at != a.record.whole.length)
@@ -105,7 +105,7 @@ void check_segments(const std::vector<ShardDoc>& docs, const SharedAssembly& a,
 }
 
 // Joins the segments' caller and totals states in order, as the single run does.
-void join_segments(SharedAssembly& a, const SharedContext& ctx) {
+void join_segments(SplitAssembly& a, const SplitContext& ctx) {
     const Model& model = ctx.model;
     Contig& stub = a.contig;
     stub.name = a.record.whole.name;
@@ -113,7 +113,7 @@ void join_segments(SharedAssembly& a, const SharedContext& ctx) {
     stub.length = a.record.whole.length;
     stub.sequence_length = a.record.full_length;
     IntervalCaller caller(model, ctx.calling);
-    caller.use_composition_source(MarkedComposition(a));
+    caller.use_composition_source(PrefixCompositions(a));
     RegionTotals totals(model);
     caller.begin_contig(stub);
     totals.begin_contig(stub);
@@ -133,7 +133,7 @@ void join_segments(SharedAssembly& a, const SharedContext& ctx) {
     a.calls = caller.calls();
     ContigSummary& s = a.summary;
     s = a.record.whole;
-    s.composition = MarkedComposition(a)(0, stub.length);  // the whole record, from every segment
+    s.composition = PrefixCompositions(a)(0, stub.length);  // the whole record, from every segment
     s.unknown = s.composition.unknown;
     const size_t regions = model.region_names.size();
     s.expected_bases = totals.expected_bases();
@@ -167,32 +167,32 @@ MergedRun assemble(const std::vector<ShardDoc>& docs, const std::string& profile
         seen_shard[static_cast<size_t>(d.index)] = true;
         for (size_t j = 0; j < d.contigs.size(); ++j) {
             Slot& slot = claim(d, d.contigs[j].input_index, d.contigs[j].name);
-            if (slot.doc != SIZE_MAX || slot.shared >= 0)
+            if (slot.doc != SIZE_MAX || slot.split >= 0)
                 throw overlap(d, d.contigs[j].name, d.contigs[j].input_index);
             slot.doc = k;
             slot.index = j;
         }
-        for (const SharedRecord& r : d.shared) {
+        for (const SplitRecord& r : d.split) {
             bool created = false;
             Slot& slot = claim(d, r.whole.input_index, r.whole.name);
             if (slot.doc != SIZE_MAX) throw overlap(d, r.whole.name, r.whole.input_index);
-            if (slot.shared < 0) {
+            if (slot.split < 0) {
                 created = true;
-                slot.shared = static_cast<int>(run.shared.size());
-                SharedAssembly a;
+                slot.split = static_cast<int>(run.split.size());
+                SplitAssembly a;
                 a.record = r;
                 a.record.done.clear();
                 a.segments.assign(r.segments, {SIZE_MAX, nullptr});
-                run.shared.push_back(std::move(a));
+                run.split.push_back(std::move(a));
             }
-            SharedAssembly& a = run.shared[static_cast<size_t>(slot.shared)];
+            SplitAssembly& a = run.split[static_cast<size_t>(slot.split)];
             if (a.record.whole.name != r.whole.name || a.record.segments != r.segments ||
                 a.record.whole.length != r.whole.length)
                 throw InputError(fmt::format(
                     "{}: shared record {} differs from the other shards' ({} vs {})", d.path,
                     r.whole.input_index + 1, r.whole.name, a.record.whole.name));
             if (!created) a.record.whole.soft_masked += r.whole.soft_masked;  // each shard's share
-            for (const SharedSegment& seg : r.done) {
+            for (const SplitSegment& seg : r.done) {
                 if (seg.index >= a.segments.size() || a.segments[seg.index].second)
                     throw InputError(fmt::format(
                         "{}: record '{}' segment {} is out of range or in another shard too",
@@ -204,13 +204,13 @@ MergedRun assemble(const std::vector<ShardDoc>& docs, const std::string& profile
         }
     }
     for (size_t i = 0; i < run.slots.size(); ++i)
-        if (run.slots[i].doc == SIZE_MAX && run.slots[i].shared < 0)
+        if (run.slots[i].doc == SIZE_MAX && run.slots[i].split < 0)
             throw InputError(fmt::format(
                 "record {} of the input is in no shard; the shards were planned differently",
                 i + 1));
-    if (!run.shared.empty()) {
-        const SharedContext ctx = shared_context(first_shard(docs), profile_override);
-        for (SharedAssembly& a : run.shared) {
+    if (!run.split.empty()) {
+        const SplitContext ctx = split_context(first_shard(docs), profile_override);
+        for (SplitAssembly& a : run.split) {
             std::string missing;
             for (size_t k = 0; k < a.segments.size(); ++k)
                 if (!a.segments[k].second)
@@ -225,22 +225,21 @@ MergedRun assemble(const std::vector<ShardDoc>& docs, const std::string& profile
         run.context = ctx;
     }
     for (const Slot& slot : run.slots)
-        run.contigs.push_back(slot.shared >= 0
-                                  ? run.shared[static_cast<size_t>(slot.shared)].summary
-                                  : docs[slot.doc].contigs[slot.index]);
+        run.contigs.push_back(slot.split >= 0 ? run.split[static_cast<size_t>(slot.split)].summary
+                                              : docs[slot.doc].contigs[slot.index]);
     return run;
 }
 
 // The shard whose file gives a record's sequence entry: the record's own, or for a shared
 // record the shard of its first segment.
 size_t source_doc(const MergedRun& run, const Slot& slot) {
-    return slot.shared < 0 ? slot.doc
-                           : run.shared[static_cast<size_t>(slot.shared)].segments.at(0).first;
+    return slot.split < 0 ? slot.doc
+                          : run.split[static_cast<size_t>(slot.split)].segments.at(0).first;
 }
 
 std::string record_name(const std::vector<ShardDoc>& docs, const MergedRun& run, const Slot& slot) {
-    return slot.shared < 0 ? docs[slot.doc].contigs[slot.index].name
-                           : run.shared[static_cast<size_t>(slot.shared)].record.whole.name;
+    return slot.split < 0 ? docs[slot.doc].contigs[slot.index].name
+                          : run.split[static_cast<size_t>(slot.split)].record.whole.name;
 }
 
 }  // namespace tidemark::merging

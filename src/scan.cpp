@@ -145,12 +145,12 @@ std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard, 
 
 // Step 2 for a shared record: this shard's segments, decoded from every shard's seams; each
 // segment's caller and totals are kept for merge, the tracks are written for the pieces.
-SharedRecord decode_shared(const Contig& contig, int64_t input_index, const ShardFilter& shard,
+SplitRecord decode_split(const Contig& contig, int64_t input_index, const ShardFilter& shard,
                            const SeamsTable& seams, PosteriorDecoder& decoder, const IntervalCaller& caller,
                            const RegionTotals& totals, PosteriorTracks* tracks, const ProgressMeter& progress,
                            TaskPool* pool) {
     const std::vector<SegmentSeam> all = seams.record(input_index, contig.name, contig.length, shard.segments());
-    SharedRecord record;
+    SplitRecord record;
     ContigSummary& s = record.whole;
     s.name = contig.name;
     s.input_index = input_index;
@@ -291,7 +291,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     TaskPool pool(threads);  // after jobs and decoders: destroyed first, while they still exist
 
     std::vector<ContigSummary> summaries;
-    std::vector<SharedRecord> shared;
+    std::vector<SplitRecord> shared;
     std::string lines, gff_lines;
     int64_t serial = 0;
     std::string last_sized;
@@ -362,10 +362,10 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             ++records;
             if (!shard.take(job->contig)) continue;  // another shard's record
             job->input = input;
-            job->input_index = shard.index();
+            job->input_index = shard.record_index();
             if (shard.split()) {  // this shard's segments of a shared record
                 while (!jobs.empty()) finish_oldest();
-                shared.push_back(decode_shared(job->contig, job->input_index, shard, seams, *decoders[0].posterior,
+                shared.push_back(decode_split(job->contig, job->input_index, shard, seams, *decoders[0].posterior,
                                                caller, totals, tracks.get(), progress, threads > 1 ? &pool : nullptr));
                 if (sizes && job->contig.name != last_sized) {
                     sizes->write(fmt::format("{}\t{}\n", job->contig.name, job->contig.full_length()));

@@ -1,5 +1,6 @@
-// Sharding: record lengths (faidx or one pass), longest-first assignment, the record filter,
-// the shard-free command line, and the exact per-contig record merge reads back.
+// Sharding: record lengths (faidx or one pass), the shard plan (longest-first assignment, split
+// records cut into pieces), the record filter that reads a shard's share, and the "shard" object
+// of a shard's summary (every ContigSummary at full precision, which merge reads back).
 #include "tidemark/shard.hpp"
 
 #include <fmt/format.h>
@@ -222,7 +223,7 @@ std::vector<int> assign_shards(const std::vector<int64_t>& lengths, int count) {
 namespace {
 
 // One shard's records of one input, in input order: whole records parsed from where they start,
-// pieces of shared records read as windows through the index.
+// pieces of split records read as windows through the index.
 class ShareSource final : public SequenceSource {
 public:
     struct Item {
@@ -372,7 +373,7 @@ std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, cons
         return open_regions(input, std::move(share));
     }
     // Whole records are parsed as a stream from where each starts (faidx fetches are slower);
-    // of a shared record only this shard's segments are read, with a few bases of context.
+    // of a split record only this shard's segments are read, with a few bases of context.
     std::vector<ShareSource::Item> items;
     std::vector<RecordStart> whole;
     for (size_t i = first; i < units.size() && units[i].input == input; ++i) {
@@ -511,7 +512,7 @@ ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where
 }
 
 std::string shard_json(const ShardFilter& filter, const RunOptions& options, const std::string& profile_crc32,
-                       const std::vector<ContigSummary>& contigs, const std::vector<SharedRecord>& shared) {
+                       const std::vector<ContigSummary>& contigs, const std::vector<SplitRecord>& shared) {
     ordered_json o;
     o["index"] = filter.spec().index;
     o["count"] = filter.spec().count;
@@ -524,7 +525,7 @@ std::string shard_json(const ShardFilter& filter, const RunOptions& options, con
     for (const auto& c : contigs) list.push_back(contig_to_json(c));
     o["contigs"] = list;
     ordered_json parts = ordered_json::array();
-    for (const auto& r : shared) parts.push_back(shared_to_json(r));
+    for (const auto& r : shared) parts.push_back(split_record_to_json(r));
     o["shared"] = parts;
     return o.dump();
 }

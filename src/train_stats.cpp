@@ -43,7 +43,7 @@ public:
                                          c.name));
         SplitRecordPart part;
         part.segments = live_->segments();
-        part.seams = seams_.record(live_->index(), c.name, c.length, part.segments);
+        part.seams = seams_.record(live_->record_index(), c.name, c.length, part.segments);
         for (const ShardPiece& piece : live_->my_pieces()) part.pieces.emplace_back(piece.first, piece.last);
         return part;
     }
@@ -58,7 +58,7 @@ public:
             // segment; its unknown bases are known only when this shard read all of it.
             const bool shared = filter.split();
             if (!shared || filter.my_pieces().front().first == 0)
-                seen.push_back({{"input_index", filter.index()},
+                seen.push_back({{"input_index", filter.record_index()},
                                 {"name", c.name},
                                 {"offset", c.offset},
                                 {"length", c.length},

@@ -150,7 +150,7 @@ TEST_CASE("merge restores a record split into segments exactly as one process jo
     joined.begin_contig(contig);
     joined_totals.begin_contig(contig);
     // And what shards write for the same segments (describe_segment), the shard of each segment.
-    std::vector<SharedSegment> described;
+    std::vector<SplitSegment> described;
     for (size_t k = 0; k < segments; ++k) {
         auto caller = joined.fork();
         auto totals = joined_totals.fork();
@@ -178,7 +178,7 @@ TEST_CASE("merge restores a record split into segments exactly as one process jo
     std::vector<ShardDoc> docs(2);
     docs[0].path = "shard1.json";
     docs[1].path = "shard2.json";
-    SharedAssembly a;
+    SplitAssembly a;
     a.record.whole.name = contig.name;
     a.record.whole.offset = contig.offset;
     a.record.whole.length = length;
@@ -186,7 +186,7 @@ TEST_CASE("merge restores a record split into segments exactly as one process jo
     a.record.full_length = contig.full_length();
     a.record.segments = segments;
     for (size_t k = 0; k < segments; ++k) a.segments.emplace_back(k == 1 ? 1 : 0, &described[k]);
-    const SharedContext context{model, calling, BedStyle::plain};
+    const SplitContext context{model, calling, BedStyle::plain};
     check_segments(docs, a, model);
     join_segments(a, context);
 
@@ -232,15 +232,15 @@ TEST_CASE("prefix compositions give the composition of any span between their po
     const Model model = compile(load_profile("cpg-island"));
     // Segments with prefix compositions at their bounds and at a few inner positions (the
     // positions a caller's groups would put there).
-    std::vector<SharedSegment> segs;
+    std::vector<SplitSegment> segs;
     IntervalCaller caller(model, CallOptions{});
     RegionTotals totals(model);
     for (size_t k = 0; k < 3; ++k)
         segs.push_back(describe_segment(contig, k, static_cast<int64_t>(k) * segment,
                                         static_cast<int64_t>(k + 1) * segment, caller, totals));
-    SharedAssembly a;
+    SplitAssembly a;
     for (size_t k = 0; k < 3; ++k) a.segments.emplace_back(0, &segs[k]);
-    const MarkedComposition compositions(a);
+    const PrefixCompositions compositions(a);
     const std::vector<int64_t> at = {0, segment, 2 * segment, 3 * segment};
     for (int64_t b : at)
         for (int64_t e : at)
@@ -255,11 +255,11 @@ TEST_CASE("merge refuses segments that do not tile the record") {
     IntervalCaller caller(model, CallOptions{});
     RegionTotals totals(model);
     caller.begin_contig(contig);
-    std::vector<SharedSegment> segs = {describe_segment(contig, 0, 0, 1000, caller, totals),
-                                       describe_segment(contig, 1, 1000, 2000, caller, totals)};
+    std::vector<SplitSegment> segs = {describe_segment(contig, 0, 0, 1000, caller, totals),
+                                      describe_segment(contig, 1, 1000, 2000, caller, totals)};
     std::vector<ShardDoc> docs(1);
     docs[0].path = "edited.json";
-    SharedAssembly a;
+    SplitAssembly a;
     a.record.whole.name = "chrE";
     a.record.whole.length = 2000;
     a.record.segments = 2;
@@ -272,7 +272,7 @@ TEST_CASE("merge refuses segments that do not tile the record") {
     segs[1].calls.push_back(Call{1500, 2500, 0});  // a call past the segment's end
     REQUIRE_THROWS_WITH(check_segments(docs, a, model), Catch::Contains("call outside it"));
     segs[1].calls.clear();
-    segs[1].marks.pop_back();  // the prefix composition at its end removed
+    segs[1].prefixes.pop_back();  // the prefix composition at its end removed
     REQUIRE_THROWS_WITH(check_segments(docs, a, model),
                         Catch::Contains("lacks its composition marks"));
 }
@@ -392,16 +392,16 @@ TEST_CASE("merge joins equal track runs where the pieces of a split record meet"
     RegionTotals totals(model);
     caller.begin_contig(contig);
     for (int k = 0; k < 2; ++k) {
-        SharedRecord r;
+        SplitRecord r;
         r.whole = record("chrT", 0, 3000);
         r.segments = 3;
         for (size_t s = (k == 0 ? 0 : 2); s < (k == 0 ? 2u : 3u); ++s)
             r.done.push_back(describe_segment(contig, s, static_cast<int64_t>(s) * 1000,
                                               static_cast<int64_t>(s + 1) * 1000, caller, totals));
-        docs[static_cast<size_t>(k)].shared.push_back(r);
+        docs[static_cast<size_t>(k)].split.push_back(r);
     }
     const MergedRun run = assemble(docs, "cpg-island");
-    REQUIRE(run.shared.size() == 1);
+    REQUIRE(run.split.size() == 1);
     TempFile t1("chrT\t0\t1500\t0.100\nchrT\t1500\t2000\t0.900\n", ".bedgraph");
     TempFile t2("chrT\t2000\t2600\t0.900\nchrT\t2600\t3000\t0.100\n", ".bedgraph");
     const std::string target = t1.dir() + "/merged.bedgraph";
