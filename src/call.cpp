@@ -1,4 +1,5 @@
-// Interval calling from region posteriors, published island criteria, and region totals.
+// Interval calling from region posteriors (with the joining of spans across segments) and the
+// published island criteria.
 #include "tidemark/call.hpp"
 
 #include <algorithm>

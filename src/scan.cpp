@@ -15,6 +15,7 @@
 #include "tidemark/intervals.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/report_html.hpp"
+#include "tidemark/shard.hpp"
 #include "tidemark/window.hpp"
 #include "thread_pool.hpp"
 
@@ -110,27 +111,22 @@ struct Decoder {
     bool splits(int64_t length) const { return posterior && posterior->splits(length); }
 };
 
-std::string options_json(const ScanOptions& o, const CallOptions& c) {
-    nlohmann::ordered_json j;
-    j["profile"] = o.profile;
-    j["decode"] = o.decode == DecodeMode::posterior ? "posterior" : "viterbi";
-    j["regions"] = o.regions;
-    j["regions_bed"] = o.regions_bed;
-    j["min_posterior"] = c.min_posterior;
-    j["merge_gap"] = c.merge_gap;
-    j["min_length"] = c.min_length;
-    j["core_posterior"] = c.high_posterior;
-    const char* criteria[] = {"none", "ggf1987", "tj2002"};
-    j["island_criteria"] = criteria[static_cast<int>(c.criteria)];
-    j["bed_style"] = o.bed_style == BedStyle::plain ? "plain" : "browser";
-    j["bgzip"] = o.bgzip;
-    j["posteriors"] = o.tracks.prefix;
-    j["posterior_digits"] = o.tracks.digits;
-    j["bin"] = o.tracks.bin;
-    j["track_format"] = o.tracks.format == TrackFormat::bedgraph ? "bedgraph" : "bigwig";
-    j["block"] = o.block_size;
-    if (o.soft_masked == SoftMasked::unknown) j["soft_masked"] = "unknown";  // absent: as before (base)
-    return j.dump();
+RunOptions run_options(const ScanOptions& o, const CallOptions& c) {
+    RunOptions r;
+    r.profile = o.profile;
+    r.decode = o.decode == DecodeMode::posterior ? "posterior" : "viterbi";
+    r.regions = o.regions;
+    r.regions_bed = o.regions_bed;
+    r.calling = c;
+    r.bed_style = o.bed_style;
+    r.bgzip = o.bgzip;
+    r.posteriors = o.tracks.prefix;
+    r.posterior_digits = o.tracks.digits;
+    r.bin = o.tracks.bin;
+    r.track_format = o.tracks.format;
+    r.block = o.block_size;
+    r.soft_masked_unknown = o.soft_masked == SoftMasked::unknown;
+    return r;
 }
 
 std::string display(const std::string& path) { return path == "-" ? "<stdin>" : path; }
@@ -171,12 +167,12 @@ std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard, 
 
 // Step 2 for a shared record: this shard's segments, decoded from every shard's seams; each
 // segment's caller and totals are kept for merge, the tracks are written for the pieces.
-SharedRecord decode_shared(const Contig& contig, int64_t input_index, const ShardFilter& shard,
+SplitRecord decode_split(const Contig& contig, int64_t input_index, const ShardFilter& shard,
                            const SeamsTable& seams, PosteriorDecoder& decoder, const IntervalCaller& caller,
                            const RegionTotals& totals, PosteriorTracks* tracks, const ProgressMeter& progress,
                            TaskPool* pool) {
     const std::vector<SegmentSeam> all = seams.record(input_index, contig.name, contig.length, shard.segments());
-    SharedRecord record;
+    SplitRecord record;
     ContigSummary& s = record.whole;
     s.name = contig.name;
     s.input_index = input_index;
@@ -326,7 +322,7 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     TaskPool pool(threads);  // after jobs and decoders: destroyed first, while they still exist
 
     std::vector<ContigSummary> summaries;
-    std::vector<SharedRecord> shared;
+    std::vector<SplitRecord> shared;
     std::string lines, gff_lines;
     int64_t serial = 0;
     std::string last_sized;
@@ -403,10 +399,10 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             if (regions.empty() && o.inputs.size() > 1) check_unique_name(names, input, job->contig.name);
             if (!shard.take(job->contig)) continue;  // another shard's record
             job->input = input;
-            job->input_index = shard.index();
+            job->input_index = shard.record_index();
             if (shard.split()) {  // this shard's segments of a shared record
                 while (!jobs.empty()) finish_oldest();
-                shared.push_back(decode_shared(job->contig, job->input_index, shard, seams, *decoders[0].posterior,
+                shared.push_back(decode_split(job->contig, job->input_index, shard, seams, *decoders[0].posterior,
                                                caller, totals, tracks.get(), progress, threads > 1 ? &pool : nullptr));
                 if (sizes && job->contig.name != last_sized) {
                     sizes->write(fmt::format("{}\t{}\n", job->contig.name, job->contig.full_length()));
@@ -469,9 +465,9 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     info.decode_mode = o.decode == DecodeMode::posterior ? "posterior" : "viterbi";
     info.command_line = o.command_line;
     info.inputs = o.inputs;
-    info.options_json = options_json(o, call_options);
+    info.options = run_options(o, call_options);
     info.soft_masked_unknown = o.soft_masked == SoftMasked::unknown;
-    if (o.shard.active()) info.shard_json = shard_json(shard, info.options_json, info.profile_checksum, summaries, shared);
+    if (o.shard.active()) info.shard_json = shard_json(shard, *info.options, info.profile_checksum, summaries, shared);
     if (!o.shard.active())  // a shard sees part of the input: merge judges the whole
         for (const DepletionWarning& w : depletion_warnings(model, summaries)) log.warn(w.message);
     std::unique_ptr<OutputFile> summary, report;

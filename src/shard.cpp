@@ -1,5 +1,6 @@
-// Sharding: record lengths (faidx or one pass), longest-first assignment, the record filter,
-// the shard-free command line, and the exact per-contig record merge reads back.
+// Sharding: record lengths (faidx or one pass), the shard plan (longest-first assignment, split
+// records cut into pieces), the record filter that reads a shard's share, and the "shard" object
+// of a shard's summary (every ContigSummary at full precision, which merge reads back).
 #include "tidemark/shard.hpp"
 
 #include <fmt/format.h>
@@ -14,6 +15,7 @@
 
 #include "shard_internal.hpp"
 #include "tidemark/track.hpp"
+#include "summary_internal.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/profile.hpp"
@@ -32,10 +34,20 @@ bool parse_int(const std::string& s, int& out) {
 }
 
 
-std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai_path) {
+// One line of a faidx index: NAME, LENGTH, OFFSET, LINEBASES, LINEWIDTH (tab-separated).
+struct FaiEntry {
+    std::string name;
+    int64_t length = 0;
+    bool has_layout = false;  ///< OFFSET, LINEBASES and LINEWIDTH read, LINEBASES > 0
+    int64_t offset = 0, line_bases = 0, line_bytes = 0;
+};
+
+// The index's lines. Throws InputError naming the line when NAME or LENGTH is missing or bad
+// (the index must be rebuilt); a line without a usable layout has has_layout false.
+std::vector<FaiEntry> read_fai(const std::string& fai_path) {
     std::ifstream in(fai_path);
     if (!in) throw InputError(fai_path + ": cannot open the index");
-    std::vector<ShardUnit> units;
+    std::vector<FaiEntry> entries;
     std::string line;
     int64_t number = 0;
     while (std::getline(in, line)) {
@@ -47,41 +59,32 @@ std::vector<ShardUnit> read_fai(const std::string& input, const std::string& fai
                 fmt::format("{}: line {}: not a faidx index line (NAME<TAB>LENGTH...); delete "
                             "the index and rerun",
                             fai_path, number));
-        ShardUnit u{input, line.substr(0, tab), 0, 0, {}, {}};
+        FaiEntry e;
+        e.name = line.substr(0, tab);
         try {
-            u.length = std::stoll(line.substr(
+            e.length = std::stoll(line.substr(
                 tab + 1, tab2 == std::string::npos ? std::string::npos : tab2 - tab - 1));
         } catch (const std::exception&) {
             throw InputError(fmt::format(
                 "{}: line {}: bad sequence length; delete the index and rerun", fai_path, number));
         }
-        units.push_back(std::move(u));
+        if (tab2 != std::string::npos) {
+            std::istringstream layout(line.substr(tab2 + 1));
+            e.has_layout = static_cast<bool>(layout >> e.offset >> e.line_bases >> e.line_bytes) && e.line_bases > 0;
+        }
+        entries.push_back(std::move(e));
     }
-    return units;
+    return entries;
 }
 
-
-// True when PATH.fai lists every record of PATH, so that a shard may read only its own records
+// True when the index lists every record of PATH, so that a shard may read only its own records
 // through the index: the bytes between one record's sequence and the next one's hold exactly one
 // header line (an empty record, which faidx leaves out, adds another), and only line ends follow
-// the last record. Reads just those bytes.
-bool index_lists_every_record(const std::string& path, const std::string& fai_path, std::vector<ShardUnit>& units) {
-    struct Entry {
-        int64_t length = 0, offset = 0, line_bases = 0, line_bytes = 0;
-    };
-    std::vector<Entry> entries;
-    {
-        std::ifstream in(fai_path);
-        std::string line;
-        while (std::getline(in, line)) {
-            std::istringstream fields(line);
-            std::string name;
-            Entry e;
-            if (!(fields >> name >> e.length >> e.offset >> e.line_bases >> e.line_bytes) || e.line_bases <= 0)
-                return false;
-            entries.push_back(e);
-        }
-    }
+// the last record. Reads just those bytes. Sets the units' starts and layouts.
+bool index_lists_every_record(const std::string& path, const std::vector<FaiEntry>& entries,
+                              std::vector<ShardUnit>& units) {
+    for (const FaiEntry& e : entries)
+        if (!e.has_layout) return false;
     BGZF* fp = bgzf_open(path.c_str(), "r");
     if (!fp) return false;
     const auto close = [&](bool result) {
@@ -112,7 +115,7 @@ bool index_lists_every_record(const std::string& path, const std::string& fai_pa
     int64_t end = 0;   // of the previous record's sequence
     int64_t line = 1;  // number of the line that starts at `end`
     for (size_t i = 0; i < entries.size(); ++i) {
-        const Entry& e = entries[i];
+        const FaiEntry& e = entries[i];
         if (e.length == 0 || headers_in(end, e.offset) != 1) return close(false);
         units[i].start = RecordStart{end, line};
         units[i].layout = RecordLayout{e.offset, e.line_bases, e.line_bytes};
@@ -123,7 +126,7 @@ bool index_lists_every_record(const std::string& path, const std::string& fai_pa
     if (entries.empty()) return close(false);
     // The tail, read from the last base (a seek to the very end of a file may fail; the last
     // line may lack its line end).
-    const Entry& last = entries.back();
+    const FaiEntry& last = entries.back();
     return close(headers_in(end - (last.line_bytes - last.line_bases) - 1, -1) == 0);
 }
 
@@ -136,8 +139,10 @@ std::vector<ShardUnit> record_lengths(const std::string& path, bool& by_index) {
             "standard input (-) can be read only once");
     const std::string fai = path + ".fai";
     if (ensure_fasta_index(path)) {
-        std::vector<ShardUnit> units = read_fai(path, fai);
-        by_index = index_lists_every_record(path, fai, units);
+        const std::vector<FaiEntry> entries = read_fai(fai);
+        std::vector<ShardUnit> units;
+        for (const FaiEntry& e : entries) units.push_back({path, e.name, e.length, 0, {}, {}});
+        by_index = index_lists_every_record(path, entries, units);
         return units;
     }
     // Plain gzip and the other compressions cannot be indexed: one pass over the records.
@@ -220,7 +225,7 @@ std::vector<int> assign_shards(const std::vector<int64_t>& lengths, int count) {
 namespace {
 
 // One shard's records of one input, in input order: whole records parsed from where they start,
-// pieces of shared records read as windows through the index.
+// pieces of split records read as windows through the index.
 class ShareSource final : public SequenceSource {
 public:
     struct Item {
@@ -391,7 +396,7 @@ std::unique_ptr<SequenceSource> ShardFilter::open_reader(const std::string& inpu
         return open_regions(input, std::move(share));
     }
     // Whole records are parsed as a stream from where each starts (faidx fetches are slower);
-    // of a shared record only this shard's segments are read, with a few bases of context.
+    // of a split record only this shard's segments are read, with a few bases of context.
     std::vector<ShareSource::Item> items;
     std::vector<RecordStart> whole;
     for (size_t i = first; i < units.size() && units[i].input == input; ++i) {
@@ -533,14 +538,13 @@ ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where
     }
 }
 
-std::string shard_json(const ShardFilter& filter, const std::string& options_json, const std::string& profile_crc32,
-                       const std::vector<ContigSummary>& contigs, const std::vector<SharedRecord>& shared) {
+std::string shard_json(const ShardFilter& filter, const RunOptions& options, const std::string& profile_crc32,
+                       const std::vector<ContigSummary>& contigs, const std::vector<SplitRecord>& shared) {
     ordered_json o;
     o["index"] = filter.spec().index;
     o["count"] = filter.spec().count;
     o["records"] = filter.records();
-    o["options"] =
-        options_json.empty() ? ordered_json::object() : ordered_json::parse(options_json);
+    o["options"] = run_options_json(options);
     o["profile_crc32"] = profile_crc32;
     o["bases"] = filter.shard_bases();
     o["total_bases"] = filter.total_bases();
@@ -548,7 +552,7 @@ std::string shard_json(const ShardFilter& filter, const std::string& options_jso
     for (const auto& c : contigs) list.push_back(contig_to_json(c));
     o["contigs"] = list;
     ordered_json parts = ordered_json::array();
-    for (const auto& r : shared) parts.push_back(shared_to_json(r));
+    for (const auto& r : shared) parts.push_back(split_record_to_json(r));
     o["shared"] = parts;
     return o.dump();
 }

@@ -1,4 +1,4 @@
-// Internal: the JSON forms of a ContigSummary and of a shared record inside a shard's summary
+// Internal: the JSON forms of a ContigSummary and of a split record inside a shard's summary
 // (written by scan, read by merge).
 #pragma once
 
@@ -24,8 +24,8 @@ ContigSummary contig_from_json(const nlohmann::json& json, const std::string& wh
 ordered_json composition_json(const Composition& composition);
 Composition composition_from(const nlohmann::json& json);
 
-/// A shared record (shard.hpp) and its inverse, every double at full precision.
-ordered_json shared_to_json(const SharedRecord& record);
-SharedRecord shared_from_json(const nlohmann::json& json, const std::string& where);
+/// A split record (shard.hpp) and its inverse, every double at full precision.
+ordered_json split_record_to_json(const SplitRecord& record);
+SplitRecord split_record_from_json(const nlohmann::json& json, const std::string& where);
 
 }  // namespace tidemark

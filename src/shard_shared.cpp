@@ -1,4 +1,4 @@
-// Records shared between shards: seams files (scan --emit-seams / --seams) and the per-segment
+// Records split between shards: seams files (scan --emit-seams / --seams) and the per-segment
 // sink states a shard records for merge, with their JSON forms.
 #include <fmt/format.h>
 #include <sys/stat.h>
@@ -8,6 +8,7 @@
 #include <limits>
 #include <sstream>
 
+#include "json_file.hpp"
 #include "shard_internal.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/shard.hpp"
@@ -82,7 +83,7 @@ std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& dec
         while (source->next(contig)) {
             if (!shard.take(contig) || !shard.split()) continue;
             SeamsRecord r;
-            r.input_index = shard.index();
+            r.input_index = shard.record_index();
             r.name = contig.name;
             r.length = contig.length;
             r.segments = shard.segments();
@@ -133,16 +134,7 @@ SeamsTable::SeamsTable(const std::vector<std::string>& paths, const std::string&
     : paths_(paths) {
     const nlohmann::json want = nlohmann::json::parse(identity);
     for (const auto& path : paths) {
-        std::ifstream in(path);
-        if (!in) throw InputError(path + ": cannot open the seams file");
-        std::stringstream text;
-        text << in.rdbuf();
-        nlohmann::json doc;
-        try {
-            doc = nlohmann::json::parse(text.str());
-        } catch (const nlohmann::json::exception& e) {
-            throw InputError(fmt::format("{}: not JSON: {}", path, e.what()));
-        }
+        const nlohmann::json doc = read_json_file<nlohmann::json>(path, "the seams file");
         if (!doc.is_object() || doc.value("format", "") != seams_format)
             throw InputError(fmt::format("{}: not a {} file (written by scan --emit-seams)", path, seams_format));
         try {
@@ -212,9 +204,9 @@ std::vector<SegmentSeam> SeamsTable::record(int64_t input_index, const std::stri
     return e.seams;
 }
 
-SharedSegment describe_segment(const Contig& contig, size_t index, int64_t begin, int64_t end,
+SplitSegment describe_segment(const Contig& contig, size_t index, int64_t begin, int64_t end,
                                const IntervalCaller& caller, const RegionTotals& totals) {
-    SharedSegment s;
+    SplitSegment s;
     s.index = index;
     s.begin = begin;
     s.end = end;
@@ -230,7 +222,7 @@ SharedSegment describe_segment(const Contig& contig, size_t index, int64_t begin
     }
     std::sort(at.begin(), at.end());
     at.erase(std::unique(at.begin(), at.end()), at.end());
-    // One pass over the segment: the composition between consecutive marks, accumulated (with
+    // One pass over the segment: the composition between consecutive prefix positions, accumulated (with
     // the CpG that straddles each intermediate mark).
     Composition prefix;
     int64_t from = begin;
@@ -240,12 +232,12 @@ SharedSegment describe_segment(const Contig& contig, size_t index, int64_t begin
             prefix += composition(contig, from, p);
             from = p;
         }
-        s.marks.push_back({p, prefix, cpg_straddles(contig, p)});
+        s.prefixes.push_back({p, prefix, cpg_straddles(contig, p)});
     }
     return s;
 }
 
-ordered_json shared_to_json(const SharedRecord& r) {
+ordered_json split_record_to_json(const SplitRecord& r) {
     ordered_json o;
     o["record"] = contig_to_json(r.whole);
     o["full_length"] = r.full_length;
@@ -267,23 +259,23 @@ ordered_json shared_to_json(const SharedRecord& r) {
                              composition_json(c.composition)});
         d["calls"] = calls;
         d["expected"] = s.expected;
-        ordered_json marks = ordered_json::array();
-        for (const auto& m : s.marks) marks.push_back({m.position, composition_json(m.prefix), m.cpg_before});
-        d["marks"] = marks;
+        ordered_json prefixes = ordered_json::array();
+        for (const auto& m : s.prefixes) prefixes.push_back({m.position, composition_json(m.prefix), m.cpg_before});
+        d["marks"] = prefixes;
         done.push_back(d);
     }
     o["done"] = done;
     return o;
 }
 
-SharedRecord shared_from_json(const nlohmann::json& j, const std::string& where) {
-    SharedRecord r;
+SplitRecord split_record_from_json(const nlohmann::json& j, const std::string& where) {
+    SplitRecord r;
     try {
         r.whole = contig_from_json(j.at("record"), where);
         r.full_length = j.at("full_length").get<int64_t>();
         r.segments = j.at("segments").get<size_t>();
         for (const auto& d : j.at("done")) {
-            SharedSegment s;
+            SplitSegment s;
             s.index = d.at("segment").get<size_t>();
             s.begin = d.at("begin").get<int64_t>();
             s.end = d.at("end").get<int64_t>();
@@ -314,7 +306,7 @@ SharedRecord shared_from_json(const nlohmann::json& j, const std::string& where)
             }
             s.expected = d.at("expected").get<std::vector<double>>();
             for (const auto& m : d.at("marks"))
-                s.marks.push_back({m.at(0).get<int64_t>(), composition_from(m.at(1)), m.at(2).get<bool>()});
+                s.prefixes.push_back({m.at(0).get<int64_t>(), composition_from(m.at(1)), m.at(2).get<bool>()});
             r.done.push_back(std::move(s));
         }
     } catch (const nlohmann::json::exception& e) {

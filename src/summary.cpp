@@ -8,9 +8,62 @@
 #include <cmath>
 #include <nlohmann/json.hpp>
 
+#include "summary_internal.hpp"
 #include "tidemark/error.hpp"
 
 namespace tidemark {
+
+using ordered_json = nlohmann::ordered_json;
+
+ordered_json run_options_json(const RunOptions& o) {
+    ordered_json j;
+    j["profile"] = o.profile;
+    j["decode"] = o.decode;
+    j["regions"] = o.regions;
+    j["regions_bed"] = o.regions_bed;
+    j["min_posterior"] = o.calling.min_posterior;
+    j["merge_gap"] = o.calling.merge_gap;
+    j["min_length"] = o.calling.min_length;
+    j["core_posterior"] = o.calling.high_posterior;
+    const char* criteria[] = {"none", "ggf1987", "tj2002"};
+    j["island_criteria"] = criteria[static_cast<int>(o.calling.criteria)];
+    j["bed_style"] = o.bed_style == BedStyle::plain ? "plain" : "browser";
+    j["bgzip"] = o.bgzip;
+    j["posteriors"] = o.posteriors;
+    j["posterior_digits"] = o.posterior_digits;
+    j["bin"] = o.bin;
+    j["track_format"] = o.track_format == TrackFormat::bedgraph ? "bedgraph" : "bigwig";
+    j["block"] = o.block;
+    if (o.soft_masked_unknown) j["soft_masked"] = "unknown";  // absent: as before (base)
+    return j;
+}
+
+RunOptions run_options_from_json(const nlohmann::json& j, const std::string& where) {
+    RunOptions o;
+    try {
+        // The calling options are needed to call split records; the others have their defaults.
+        o.profile = j.value("profile", "");
+        o.decode = j.value("decode", o.decode);
+        o.regions = j.value("regions", o.regions);
+        o.regions_bed = j.value("regions_bed", o.regions_bed);
+        o.calling.min_posterior = j.at("min_posterior").get<double>();
+        o.calling.merge_gap = j.at("merge_gap").get<int64_t>();
+        o.calling.min_length = j.at("min_length").get<int64_t>();
+        o.calling.high_posterior = j.at("core_posterior").get<double>();
+        o.calling.criteria = parse_island_criteria(j.at("island_criteria").get<std::string>());
+        o.bed_style = j.at("bed_style").get<std::string>() == "browser" ? BedStyle::browser : BedStyle::plain;
+        o.bgzip = j.value("bgzip", o.bgzip);
+        o.posteriors = j.value("posteriors", o.posteriors);
+        o.posterior_digits = j.value("posterior_digits", o.posterior_digits);
+        o.bin = j.value("bin", o.bin);
+        o.track_format = j.value("track_format", "bedgraph") == "bigwig" ? TrackFormat::bigwig : TrackFormat::bedgraph;
+        o.block = j.value("block", o.block);
+        o.soft_masked_unknown = j.value("soft_masked", "base") == "unknown";
+    } catch (const nlohmann::json::exception& e) {
+        throw InputError(fmt::format("{}: malformed 'options': {}", where, e.what()));
+    }
+    return o;
+}
 
 ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs) {
     const size_t R = model.region_names.size();
@@ -45,8 +98,6 @@ ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>&
 }
 
 namespace {
-
-using ordered_json = nlohmann::ordered_json;
 
 ordered_json number_or_null(double x) { return std::isfinite(x) ? ordered_json(x) : ordered_json(nullptr); }
 
@@ -142,7 +193,7 @@ ordered_json document(const char* format, const RunInfo& info, const Model& mode
     doc["profile"] = info.profile_name;
     if (report) {
         doc["profile_crc32"] = info.profile_checksum;
-        doc["options"] = info.options_json.empty() ? ordered_json::object() : ordered_json::parse(info.options_json);
+        doc["options"] = info.options ? run_options_json(*info.options) : ordered_json::object();
     }
     doc["decode"] = info.decode_mode;
     if (info.soft_masked_unknown) doc["soft_masked"] = "unknown";

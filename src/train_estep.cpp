@@ -277,30 +277,23 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
     std::vector<std::unique_ptr<PosteriorDecoder>> decoders;
     for (int w = 0; w < T; ++w) decoders.push_back(std::make_unique<PosteriorDecoder>(model, options));
     CountAccumulator total(profile, model);
-    // This shard's segments of a record shared between shards, from every shard's seams.
-    const auto count_shared = [&](const Contig& c, const ShardFilter& shard, TaskPool* pool) {
-        if (!data.seams())
-            throw UsageError(fmt::format("record '{}' is shared between shards: run fit --emit-seams for every "
-                                         "shard first and pass the files with --seams",
-                                         c.name));
-        const std::vector<SegmentSeam> all = data.seams()->record(shard.index(), c.name, c.length, shard.segments());
-        for (const ShardPiece& piece : shard.my_pieces()) {
+    // This process's pieces of a split record, from every process's seams.
+    const auto count_split = [&](const Contig& c, TaskPool* pool) {
+        const SplitRecordPart part = data.split_part(c);
+        for (const std::pair<size_t, size_t>& piece : part.pieces) {
             auto acc = std::make_unique<CountAccumulator>(profile, model);
             acc->begin_contig(c);
             const DecodeResult result = decoders[0]->run_segments(
-                c, all, piece.first, piece.last, *acc, [&](size_t, DecodeSink& fork) { acc->join(fork); }, pool);
-            acc->end_piece(result, piece.last == shard.segments());
+                c, part.seams, piece.first, piece.second, *acc, [&](size_t, DecodeSink& fork) { acc->join(fork); },
+                pool);
+            acc->end_piece(result, piece.second == part.segments);
             total.join(*acc);
         }
-    };
-    const auto shared = [&data] {
-        const ShardFilter* f = data.current_shard();
-        return f && f->split() ? f : nullptr;
     };
     if (T == 1) {
         // The same per-contig sums as with threads, without copying contigs.
         data.for_each([&](const Contig& c) {
-            if (const ShardFilter* f = shared()) return count_shared(c, *f, nullptr);
+            if (data.current_is_split()) return count_split(c, nullptr);
             const std::unique_ptr<DecodeSink> acc = total.fork();
             decoders[0]->run(c, *acc);
             total.join(*acc);
@@ -323,9 +316,9 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
         jobs.pop_front();
     };
     data.for_each([&](const Contig& c) {
-        if (const ShardFilter* f = shared()) {
+        if (data.current_is_split()) {
             while (!jobs.empty()) finish_oldest();
-            return count_shared(c, *f, &pool);
+            return count_split(c, &pool);
         }
         if (decoders[0]->splits(c.length)) {
             // A long contig: its segments take the whole pool, which must be idle first.

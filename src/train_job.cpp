@@ -105,6 +105,13 @@ ordered_json sequences_json(const FastaTrainingData& data) {
 
 }  // namespace
 
+std::string fitted_profile_name(const std::string& start_name, bool may_continue) {
+    const std::string suffix = "-fit";
+    const bool fitted = start_name.size() >= suffix.size() &&
+                        start_name.compare(start_name.size() - suffix.size(), suffix.size(), suffix) == 0;
+    return may_continue && fitted ? start_name : start_name + suffix;
+}
+
 void parse_class_range(const std::string& text, int& lo, int& hi) {
     const auto bad = [&] {
         return UsageError(fmt::format("--classes '{}': expected a count K or a range A..B with 1 <= A <= B <= {}",
@@ -265,7 +272,7 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
 
     Profile& p = result.profile;
     if (!o.name.empty()) p.name = o.name;
-    else if (o.classes_min == 0) p.name = start_name + "-fit";
+    else if (o.classes_min == 0) p.name = fitted_profile_name(start_name);
     std::vector<std::string> sources;
     sources.push_back(fmt::format("Parameters fitted by tidemark {} fit ({}) to the sequences listed under "
                                   "provenance, starting from {}.",

@@ -7,8 +7,10 @@
 #include <nlohmann/json.hpp>
 #include <sstream>
 
+#include "json_file.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
+#include "tidemark/shard.hpp"
 #include "tidemark/train.hpp"
 #include "thread_pool.hpp"
 
@@ -34,8 +36,18 @@ public:
         plan_.set_soft_masked(o.soft_masked);
     }
     void use_seams(SeamsTable seams) { seams_ = std::move(seams); }
-    const ShardFilter* current_shard() const override { return live_; }
-    const SeamsTable* seams() const override { return seams_.empty() ? nullptr : &seams_; }
+    bool current_is_split() const override { return live_ && live_->split(); }
+    SplitRecordPart split_part(const Contig& c) const override {
+        if (seams_.empty())
+            throw UsageError(fmt::format("record '{}' is shared between shards: run fit --emit-seams for every "
+                                         "shard first and pass the files with --seams",
+                                         c.name));
+        SplitRecordPart part;
+        part.segments = live_->segments();
+        part.seams = seams_.record(live_->record_index(), c.name, c.length, part.segments);
+        for (const ShardPiece& piece : live_->my_pieces()) part.pieces.emplace_back(piece.first, piece.last);
+        return part;
+    }
     const std::vector<Region>& regions() const { return regions_; }
     void for_each(const std::function<void(const Contig&)>& fn) override {
         ShardFilter filter = plan_;  // a fresh copy per pass: it counts records
@@ -47,7 +59,7 @@ public:
             // segment; its unknown bases are known only when this shard read all of it.
             const bool shared = filter.split();
             if (!shared || filter.my_pieces().front().first == 0)
-                seen.push_back({{"input_index", filter.index()},
+                seen.push_back({{"input_index", filter.record_index()},
                                 {"name", c.name},
                                 {"offset", c.offset},
                                 {"length", c.length},
@@ -82,18 +94,6 @@ private:
     ordered_json records_;
     int64_t records_total_ = 0;
 };
-
-ordered_json read_json(const std::string& path) {
-    std::ifstream in(path);
-    if (!in) throw InputError(path + ": cannot open");
-    std::stringstream text;
-    text << in.rdbuf();
-    try {
-        return ordered_json::parse(text.str());
-    } catch (const nlohmann::json::exception& e) {
-        throw InputError(fmt::format("{}: not JSON: {}", path, e.what()));
-    }
-}
 
 }  // namespace
 
@@ -294,7 +294,7 @@ FitResult fit_from_statistics(const FitJobOptions& o, const Logger& log) {
     };
     std::vector<Stats> files;
     for (const auto& path : o.from_stats) {
-        Stats s{path, read_json(path), 0};
+        Stats s{path, read_json_file(path), 0};
         if (!s.doc.is_object() || s.doc.value("format", "") != stats_format)
             throw InputError(
                 fmt::format("{}: not a {} file (written by fit --emit-stats)", path, stats_format));
@@ -340,14 +340,7 @@ FitResult fit_from_statistics(const FitJobOptions& o, const Logger& log) {
 
     // Named as fit names the result of the same start, whatever the iteration.
     const std::string start_name = structure.name;
-    const std::string suffix = "-fit";
-    if (!o.name.empty())
-        p.name = o.name;
-    else if (start_name.size() >= suffix.size() &&
-             start_name.compare(start_name.size() - suffix.size(), suffix.size(), suffix) == 0)
-        p.name = start_name;
-    else
-        p.name = start_name + suffix;
+    p.name = o.name.empty() ? fitted_profile_name(start_name, true) : o.name;
     std::vector<std::string> sources = {fmt::format(
         "Parameters fitted by tidemark {} fit (distributed Baum-Welch, {} shards) to the sequences "
         "listed under provenance, starting from profile '{}'.",

@@ -117,7 +117,7 @@ TEST_CASE("shard filters cover every record exactly once, from a built index and
                 auto source = open_fasta(file.path());
                 Contig c;
                 while (source->next(c))
-                    if (filter.take(c)) ++taken[static_cast<size_t>(filter.index())];
+                    if (filter.take(c)) ++taken[static_cast<size_t>(filter.record_index())];
                 filter.finish();
                 CHECK(filter.records() == static_cast<int64_t>(lengths.size()));
             }

@@ -1,5 +1,7 @@
 // Calling intervals: maximal runs of high region posterior, merged, length-filtered, optionally
-// post-filtered by published CpG-island criteria; plus the per-contig summary.
+// post-filtered by published CpG-island criteria. The caller is a forkable sink whose state over
+// a span can be saved and restored, so that calls join across segments (threads) and across the
+// pieces of a split record (merge). Per-contig totals are in summary.hpp.
 #pragma once
 
 #include <cstdint>

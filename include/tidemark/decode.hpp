@@ -12,7 +12,7 @@
 
 namespace tidemark {
 
-class TaskPool;  // src/thread_pool.hpp
+class TaskPool;  // tidemark/thread_pool.hpp
 
 /// One block of consecutive positions handed to a sink. Row t of each matrix is position
 /// begin + t; matrices are row-major with `states` columns. Pointers are valid only during

@@ -6,7 +6,7 @@
 #include <vector>
 
 #include "tidemark/log.hpp"
-#include "tidemark/shard.hpp"
+#include "tidemark/shard_spec.hpp"
 #include "tidemark/summary.hpp"
 #include "tidemark/track.hpp"
 

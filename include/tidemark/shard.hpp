@@ -9,19 +9,10 @@
 
 #include "tidemark/decode.hpp"
 #include "tidemark/sequence.hpp"
+#include "tidemark/shard_spec.hpp"
 #include "tidemark/summary.hpp"
 
 namespace tidemark {
-
-/// Shard I of N (1-based). count 0 means "no sharding": everything is decoded.
-struct ShardSpec {
-    int index = 0;  ///< 1..count
-    int count = 0;  ///< 0 = not sharded
-    bool active() const { return count > 0; }
-};
-
-/// Parses "I/N" with 1 <= I <= N <= 100000. Throws UsageError naming the text.
-ShardSpec parse_shard(const std::string& text);
 
 /// One unit of work: a FASTA record (whole-file input) or one resolved region.
 struct ShardUnit {
@@ -108,8 +99,8 @@ public:
     bool has_pieces() const;
     /// Records split between shards, with their lengths, as names for messages.
     std::vector<std::string> split_records() const;
-    /// 0-based input index of the record last passed to take().
-    int64_t index() const { return next_ - 1; }
+    /// 0-based input index of the record last passed to take() (spec().index is the shard).
+    int64_t record_index() const { return next_ - 1; }
     /// Throws InputError when fewer records were read than planned.
     void finish();
     /// Records passed to take() so far: after a whole pass, the records of the input (empty
@@ -140,13 +131,13 @@ private:
     int64_t shard_bases_ = 0, total_bases_ = 0;
 };
 
-// --- Records shared between shards (split by plan_shards) -------------------------------------
+// --- Records split between shards (split by plan_shards) -------------------------------------
 // Such a record is decoded in two steps: every shard first writes the seams of its segments
 // (scan --emit-seams); then each decodes its segments from all the seams (scan --seams), which
 // gives exactly the boundary vectors of a single run, and records what its segments' sinks saw
-// (SharedRecord) so that merge can join the segments in order as the single run does.
+// (SplitRecord) so that merge can join the segments in order as the single run does.
 
-/// The seams of one shard's segments of one shared record.
+/// The seams of one shard's segments of one split record.
 struct SeamsRecord {
     int64_t input_index = 0;
     std::string name;
@@ -164,7 +155,7 @@ std::string seams_identity(const std::vector<std::string>& inputs, const std::ve
                            int64_t bin, int64_t segment_length);
 
 /// Step 1: reads the input (inputs, or regions of inputs[0]) and computes the seams of this
-/// shard's segments of every shared record (shard.split()); checks the records against the
+/// shard's segments of every split record (shard.split()); checks the records against the
 /// plan (shard.finish()). A shard without such segments reads nothing and returns none.
 std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& decoder,
                                        const std::vector<std::string>& inputs, const std::vector<Region>& regions,
@@ -174,7 +165,7 @@ std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& dec
 /// seams depend on: inputs, profile checksum, decoder options; a JSON object text) and records.
 std::string seams_json(const ShardSpec& spec, const std::string& identity, const std::vector<SeamsRecord>& records);
 
-/// The seams of every shared record, gathered from the seams files of all shards.
+/// The seams of every split record, gathered from the seams files of all shards.
 class SeamsTable {
 public:
     SeamsTable() = default;
@@ -201,43 +192,43 @@ private:
 /// Prefix composition of a segment at one position: the bases of [segment begin, position), and
 /// whether a CpG straddles position - 1 and position. Merge rebuilds the composition of a call
 /// that crosses segments from these.
-struct CompositionMark {
+struct PrefixComposition {
     int64_t position = 0;
     Composition prefix;
     bool cpg_before = false;
 };
 
-/// What one shard's sinks saw over one segment of a shared record.
-struct SharedSegment {
+/// What one shard's sinks saw over one segment of a split record.
+struct SplitSegment {
     size_t index = 0;
     int64_t begin = 0, end = 0;
     std::vector<IntervalCaller::Lane> lanes;
     std::vector<Call> calls;             ///< calls that ended inside the segment
     std::vector<double> expected;        ///< expected bases per region
-    std::vector<CompositionMark> marks;  ///< at begin, end and the lanes' group bounds
+    std::vector<PrefixComposition> prefixes;  ///< at begin, end and the lanes' group bounds
 };
 
-/// A shared record as one shard saw it.
-struct SharedRecord {
+/// A split record as one shard saw it.
+struct SplitRecord {
     /// Whole-record fields (name, input_index, offset, length, unknown, soft_masked,
     /// composition); log_likelihood only from the shard with the last segment, else NaN.
     ContigSummary whole;
     int64_t full_length = 0;  ///< of the named sequence (regions)
     size_t segments = 0;      ///< of the whole record
-    std::vector<SharedSegment> done;  ///< this shard's segments, in order
+    std::vector<SplitSegment> done;  ///< this shard's segments, in order
 };
 
 /// Describes segment `index`, [begin, end) of `contig`, from the forks that decoded it.
-SharedSegment describe_segment(const Contig& contig, size_t index, int64_t begin, int64_t end,
+SplitSegment describe_segment(const Contig& contig, size_t index, int64_t begin, int64_t end,
                                const IntervalCaller& caller, const RegionTotals& totals);
 
 /// The "shard" object of a shard's summary and report: index, count, records of the whole input,
 /// the effective options (a JSON object, so that merge can refuse shards of different runs even
 /// from summaries), and every ContigSummary field of this shard's contigs at full precision
 /// (what merge needs to rebuild the genome-wide totals exactly). Returned as JSON text.
-/// Also the profile checksum (merge checks the profile it loads for shared records against it);
-/// shared records go under "shared".
-std::string shard_json(const ShardFilter& filter, const std::string& options_json, const std::string& profile_crc32,
-                       const std::vector<ContigSummary>& contigs, const std::vector<SharedRecord>& shared);
+/// Also the profile checksum (merge checks the profile it loads for split records against it);
+/// split records go under "shared".
+std::string shard_json(const ShardFilter& filter, const RunOptions& options, const std::string& profile_crc32,
+                       const std::vector<ContigSummary>& contigs, const std::vector<SplitRecord>& shared);
 
 }  // namespace tidemark

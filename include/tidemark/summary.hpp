@@ -3,11 +3,13 @@
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
 #include "tidemark/call.hpp"
 #include "tidemark/progress.hpp"
+#include "tidemark/track.hpp"
 
 namespace tidemark {
 
@@ -61,6 +63,24 @@ private:
     std::vector<double> by_state_;  ///< scratch: one block's per-state sums
 };
 
+/// The effective options of a scan, as its report records them ("options"; shard summaries
+/// carry them too, so that merge can call split records as the run did).
+struct RunOptions {
+    std::string profile;                ///< as given: built-in name or file
+    std::string decode = "posterior";   ///< "posterior" or "viterbi"
+    std::vector<std::string> regions;
+    std::string regions_bed;
+    CallOptions calling;                ///< with the profile's defaults applied
+    BedStyle bed_style = BedStyle::plain;
+    bool bgzip = false;
+    std::string posteriors;             ///< track prefix ("" = none)
+    int posterior_digits = 3;
+    int64_t bin = 1;
+    TrackFormat track_format = TrackFormat::bedgraph;
+    int64_t block = 0;                  ///< --block as given (0 = automatic)
+    bool soft_masked_unknown = false;   ///< --soft-masked unknown (recorded only when set)
+};
+
 /// What the summary says about the run as a whole.
 struct RunInfo {
     std::string profile_name;
@@ -68,7 +88,7 @@ struct RunInfo {
     std::string decode_mode;       ///< "posterior" or "viterbi"
     std::string command_line;
     std::vector<std::string> inputs;
-    std::string options_json;      ///< the effective options as a JSON object
+    std::optional<RunOptions> options;  ///< the effective options (reports); unset = none recorded
     std::string shard_json;        ///< shard runs: what merge needs (shard.hpp); "" = not sharded
     bool soft_masked_unknown = false;  ///< lowercase bases were read as unknown (--soft-masked unknown)
 };

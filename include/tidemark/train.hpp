@@ -15,12 +15,21 @@
 #include "tidemark/log.hpp"
 #include "tidemark/profile.hpp"
 #include "tidemark/sequence.hpp"
-#include "tidemark/shard.hpp"
+#include "tidemark/shard_spec.hpp"
 
 namespace tidemark {
 
 // ---------------------------------------------------------------------------------------------
 // Training data
+
+/// The pieces of a split record (one whose segments several processes decode; the scale-out
+/// layer, shard.hpp) that this process decodes, and what it needs to decode them as one
+/// process would: the seams of every segment of the record.
+struct SplitRecordPart {
+    size_t segments = 0;  ///< of the whole record
+    std::vector<std::pair<size_t, size_t>> pieces;  ///< segments [first, last) decoded here
+    std::vector<SegmentSeam> seams;                 ///< of every segment, from every process
+};
 
 /// The sequences a profile is trained on, read once per pass (EM makes one pass per
 /// iteration), so that memory stays that of one contig as in scan.
@@ -29,11 +38,13 @@ public:
     virtual ~TrainingData() = default;
     /// Calls fn for every contig, in the same order on every pass.
     virtual void for_each(const std::function<void(const Contig&)>& fn) = 0;
-    /// During for_each, sharded data only: the filter that took the contig being passed (when
-    /// it is shared between shards, the E-step decodes only this shard's segments), and the
-    /// seams of all shared records. nullptr otherwise.
-    virtual const ShardFilter* current_shard() const { return nullptr; }
-    virtual const SeamsTable* seams() const { return nullptr; }
+    /// During for_each: true when the contig being passed is a split record, of which the
+    /// E-step decodes only this process's pieces (split_part). Only sharded data (the scale-out
+    /// layer) have split records.
+    virtual bool current_is_split() const { return false; }
+    /// During for_each, for a split record (current_is_split): its part decoded here. Throws
+    /// when the seams of the record are not at hand.
+    virtual SplitRecordPart split_part(const Contig& /*contig*/) const { return {}; }
 };
 
 /// What one pass saw of one record (for provenance).
@@ -345,7 +356,7 @@ struct FitJobOptions {
     std::string output = "-";          ///< profile JSON
     std::string name;                  ///< name of the output profile ("" = derived)
     FitOptions fit;
-    ShardSpec shard;                   ///< with emit_stats: only this shard's records (shard.hpp)
+    ShardSpec shard;                   ///< with emit_stats: only this shard's records (shard_spec.hpp)
     bool whole_contigs = false;        ///< shards never split a record (no seams step)
     std::string emit_seams;            ///< step 1 for shared records: write only their seams
     std::vector<std::string> seams;    ///< step 2 (with emit_stats): the seams files of every shard
@@ -353,6 +364,12 @@ struct FitJobOptions {
     std::vector<std::string> from_stats;  ///< M-step on the summed counts of these files (no FASTA)
     std::string command_line;          ///< recorded in provenance (without --shard)
 };
+
+/// The name of a fitted profile when --name is not given: the starting profile's name with
+/// "-fit" appended, once per fit. A distributed fit's M-step (fit --from-stats) may start from
+/// the profile of its previous iteration, whose name already ends in "-fit"; with
+/// may_continue it keeps such a name, so that every iteration names the result alike.
+std::string fitted_profile_name(const std::string& start_name, bool may_continue = false);
 
 /// Parses "K" or "A..B" (1 <= A <= B <= 64). Throws UsageError.
 void parse_class_range(const std::string& text, int& lo, int& hi);
