@@ -3,10 +3,15 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cstdio>
 #include <cstring>
+#include <deque>
 #include <map>
+#include <mutex>
 #include <set>
+#include <string_view>
+#include <unordered_map>
 #include <vector>
 
 #include "tidemark/error.hpp"
@@ -14,6 +19,58 @@
 
 extern "C" {
 #include <bigWig.h>
+}
+
+// libBigWig finds a sequence's number by comparing its name with every name of the list
+// (bwGetTid): once per sequence while intervals are added and again per sequence while the zoom
+// levels are built, so a bigWig of a draft with 300,000 contigs took hours. This definition takes
+// the library's place (its calls go through the dynamic symbol table, which prefers the
+// executable's) and answers long lists from a hash index, with the library's results.
+extern "C" uint32_t bwGetTid(const bigWigFile_t* fp, const char* chrom) {
+    if (!fp || !fp->cl || !chrom) return static_cast<uint32_t>(-1);
+    const chromList_t* cl = fp->cl;
+    const auto linear = [&]() -> uint32_t {
+        for (int64_t i = 0; i < cl->nKeys; ++i)
+            if (std::strcmp(chrom, cl->chrom[i]) == 0) return static_cast<uint32_t>(i);
+        return static_cast<uint32_t>(-1);
+    };
+    if (cl->nKeys < 64) return linear();
+    struct Index {
+        const chromList_t* list = nullptr;
+        const char* const* names = nullptr;
+        int64_t keys = 0;
+        std::unordered_map<std::string_view, uint32_t> of;
+    };
+    static std::mutex mutex;
+    static std::deque<Index> indexes;  // the lists seen last (merge reads several files at once)
+    const std::lock_guard<std::mutex> lock(mutex);
+    const auto build = [&](Index& x) {
+        x.list = cl;
+        x.names = cl->chrom;
+        x.keys = cl->nKeys;
+        x.of.clear();
+        x.of.reserve(static_cast<size_t>(cl->nKeys));
+        for (int64_t i = 0; i < cl->nKeys; ++i)
+            x.of.emplace(cl->chrom[i], static_cast<uint32_t>(i));
+    };
+    auto it = std::find_if(indexes.begin(), indexes.end(), [&](const Index& x) {
+        return x.list == cl && x.names == cl->chrom && x.keys == cl->nKeys;
+    });
+    if (it == indexes.end()) {
+        if (indexes.size() == 8) indexes.pop_back();
+        indexes.emplace_front();
+        build(indexes.front());
+        it = indexes.begin();
+    }
+    // A list freed and another made at the same address: a found name is checked against the
+    // list, and a missing one makes the index again before the answer is "none".
+    auto found = it->of.find(chrom);
+    if (found != it->of.end() && found->second < cl->nKeys &&
+        std::strcmp(cl->chrom[found->second], chrom) == 0)
+        return found->second;
+    build(*it);
+    found = it->of.find(chrom);
+    return found == it->of.end() ? static_cast<uint32_t>(-1) : found->second;
 }
 
 namespace tidemark {

@@ -114,11 +114,32 @@ void Contig::clear() {
     unknown.clear();
 }
 
+uint8_t* Contig::chunk_room(size_t chunk, int64_t bytes) {
+    if (chunk == 0) {
+        const int64_t have = chunks_.empty() ? 0 : first_chunk_bytes_;
+        if (have < bytes) {
+            int64_t room = std::max<int64_t>(2 * have, 256);
+            while (room < bytes) room *= 2;
+            room = std::min(room, chunk_bytes);
+            auto grown = std::make_unique<uint8_t[]>(static_cast<size_t>(room));
+            if (have > 0) std::memcpy(grown.get(), chunks_[0].get(), static_cast<size_t>(have));
+            if (chunks_.empty())
+                chunks_.push_back(std::move(grown));
+            else
+                chunks_[0] = std::move(grown);
+            first_chunk_bytes_ = room;
+        }
+    } else if (chunk == chunks_.size()) {
+        chunks_.push_back(std::make_unique<uint8_t[]>(chunk_bytes));
+    }
+    return chunks_[chunk].get();
+}
+
 void Contig::push(uint8_t code) {
     const int64_t i = length;
     const size_t chunk = static_cast<size_t>(i >> chunk_shift);
-    if (chunk == chunks_.size()) chunks_.push_back(std::make_unique<uint8_t[]>(chunk_bytes));
-    uint8_t& byte = chunks_[chunk][(i & (chunk_bases - 1)) >> 2];
+    const int64_t at = (i & (chunk_bases - 1)) >> 2;
+    uint8_t& byte = chunk_room(chunk, at + 1)[at];
     const int shift = (i & 3) * 2;
     byte = static_cast<uint8_t>(byte & ~(3u << shift));  // chunks are reused: clear old bits
     if (code == base_unknown) {
@@ -138,10 +159,10 @@ void Contig::append(const uint8_t* codes, int64_t n) {
     while (n - k >= 4) {
         const int64_t i = length;
         const size_t chunk = static_cast<size_t>(i >> chunk_shift);
-        if (chunk == chunks_.size()) chunks_.push_back(std::make_unique<uint8_t[]>(chunk_bytes));
         const int64_t room = chunk_bases - (i & (chunk_bases - 1));
         const int64_t groups = std::min(n - k, room) / 4;
-        uint8_t* dst = chunks_[chunk].get() + ((i & (chunk_bases - 1)) >> 2);
+        const int64_t at = (i & (chunk_bases - 1)) >> 2;
+        uint8_t* dst = chunk_room(chunk, at + groups) + at;
         // Whole bytes are overwritten, so reused chunks need no clearing; unknown (4) packs as 0.
         for (int64_t g = 0; g < groups; ++g, k += 4) {
             const uint8_t c0 = codes[k], c1 = codes[k + 1], c2 = codes[k + 2], c3 = codes[k + 3];
@@ -172,10 +193,10 @@ void Contig::append_unknown(int64_t n) {
         const int64_t begin = length;
         for (int64_t done = 0; done < bulk;) {  // unknown packs as 0: clear whole bytes
             const size_t chunk = static_cast<size_t>(length >> chunk_shift);
-            if (chunk == chunks_.size()) chunks_.push_back(std::make_unique<uint8_t[]>(chunk_bytes));
             const int64_t room = chunk_bases - (length & (chunk_bases - 1));
             const int64_t take = std::min(bulk - done, room);
-            std::memset(chunks_[chunk].get() + ((length & (chunk_bases - 1)) >> 2), 0, static_cast<size_t>(take / 4));
+            const int64_t at = (length & (chunk_bases - 1)) >> 2;
+            std::memset(chunk_room(chunk, at + take / 4) + at, 0, static_cast<size_t>(take / 4));
             length += take;
             done += take;
         }

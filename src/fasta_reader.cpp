@@ -3,11 +3,11 @@
 
 #include <array>
 #include <memory>
-#include <unordered_set>
 #include <vector>
 
 #include "base_table.hpp"
 #include "byte_source.hpp"
+#include "name_set.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/sequence.hpp"
 
@@ -18,12 +18,16 @@ using detail::not_a_base;
 
 class FastaStream final : public SequenceSource {
 public:
-    explicit FastaStream(std::string path)
-        : path_(std::move(path)), display_(path_ == "-" ? "<stdin>" : path_),
-          source_(detail::open_byte_source(path_)), buf_(new char[buf_size]),
+    /// sequential: read from start to end (decompression may run ahead on a helper thread).
+    explicit FastaStream(std::string path, bool sequential = true)
+        : path_(std::move(path)),
+          display_(path_ == "-" ? "<stdin>" : path_),
+          source_(detail::open_byte_source(path_, sequential)),
+          buf_(new char[buf_size]),
           codes_(new uint8_t[buf_size]) {}
 
-    FastaStream(std::string path, std::vector<RecordStart> starts) : FastaStream(std::move(path)) {
+    FastaStream(std::string path, std::vector<RecordStart> starts)
+        : FastaStream(std::move(path), false) {
         starts_ = std::move(starts);
         jumping_ = true;
     }
@@ -46,7 +50,7 @@ public:
         if (!have_header_ && !find_first_header()) return false;
         contig.clear();
         contig.name = pending_name_;
-        if (!names_.insert(contig.name).second)
+        if (!names_.insert(contig.name))
             throw InputError(fmt::format("{}:{}: duplicate record name '{}'", display_,
                                          header_line_, contig.name));
         have_header_ = false;
@@ -187,7 +191,7 @@ private:
     int64_t line_ = 1, header_line_ = 0;
     bool at_line_start_ = true, skip_lf_ = false, started_ = false, have_header_ = false;
     std::string pending_name_;
-    std::unordered_set<std::string> names_;
+    detail::NameSet names_;  ///< compact: a draft assembly can have millions of records
     std::vector<RecordStart> starts_;
     size_t next_start_ = 0;
     bool jumping_ = false;

@@ -17,6 +17,7 @@
 #include "tidemark/report_html.hpp"
 #include "tidemark/shard.hpp"
 #include "tidemark/window.hpp"
+#include "byte_source.hpp"
 #include "thread_pool.hpp"
 
 namespace tidemark {
@@ -256,6 +257,9 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     }
     // One decoder per worker; the first also says how long contigs split into segments.
     const int threads = resolve_threads(o.threads);
+    // With more than one thread, compressed input is inflated ahead of the parser on a thread of
+    // its own (byte_source.hpp), off the decoding path.
+    const detail::DecompressionThreads decompression(threads > 1 ? 1 : 0);
     std::vector<Decoder> decoders(static_cast<size_t>(threads));
     for (auto& d : decoders) {
         if (o.decode == DecodeMode::posterior)

@@ -11,6 +11,7 @@
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
 #include "tidemark/window.hpp"
+#include "byte_source.hpp"
 #include "thread_pool.hpp"
 
 namespace tidemark {
@@ -274,6 +275,7 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
     DecoderOptions options;
     options.block_size = block_size;
     const int T = resolve_threads(threads);
+    const detail::DecompressionThreads decompression(T > 1 ? 1 : 0);  // inflate ahead of parsing
     std::vector<std::unique_ptr<PosteriorDecoder>> decoders;
     for (int w = 0; w < T; ++w) decoders.push_back(std::make_unique<PosteriorDecoder>(model, options));
     CountAccumulator total(profile, model);

@@ -31,9 +31,9 @@ struct Composition;
 
 /// One FASTA record, or one region of it, held at 2 bits per base plus a list of unknown runs.
 ///
-/// Storage is chunked (4 Mi bases per chunk) so that growing a chromosome never copies it and
-/// peak memory stays at about 0.25 bytes per base. Reusing one Contig for many records keeps
-/// its chunks allocated.
+/// Storage is chunked (4 Mi bases per chunk) so that growing a chromosome copies at most its
+/// first chunk and peak memory stays at about 0.25 bytes per base. Reusing one Contig for many
+/// records keeps its chunks allocated.
 struct Contig {
     std::string name;        ///< record name: first word of the FASTA header
     int64_t offset = 0;      ///< 0-based position of base 0 on the named sequence (regions)
@@ -64,7 +64,12 @@ struct Contig {
 
 private:
     friend Composition composition(const Contig& contig, int64_t begin, int64_t end);  // reads chunks_
+    /// Chunk `chunk` with room for at least `bytes` bytes (allocated or grown as needed).
+    uint8_t* chunk_room(size_t chunk, int64_t bytes);
     std::vector<std::unique_ptr<uint8_t[]>> chunks_;
+    /// Bytes allocated for chunks_[0]: it starts small and doubles up to a whole chunk, so that
+    /// a short record (a draft's contigs are often under 1 kbp) costs its bytes, not a chunk.
+    int64_t first_chunk_bytes_ = 0;
 };
 
 /// Counts of bases and CpG dinucleotides over an interval.
