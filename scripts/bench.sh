@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# Benchmark: `tidemark scan -p cpg-island` to BED against a deliberately simple baseline decoder
+# Benchmark: `tidemark scan -p cpg-island-2state` to BED against a deliberately simple baseline decoder
 # (scripts/bench/baseline.cpp), both on one thread, on seeded synthetic genomes and on real
 # human chrX; then tidemark's speed-up with 2 threads over 1 on many contigs and on one 100 Mbp
 # contig; prints Markdown tables and writes them to BUILD_DIR/bench-results.md.
@@ -45,7 +45,7 @@ case "$REPEATS" in ''|*[!0-9]*|0) echo "bench: --repeats must be a positive inte
 SIZES_MBP=(1 10 50 200)
 [ $QUICK -eq 1 ] && SIZES_MBP=(1 10 50)
 CHRX=/usr/share/doc/smalt/test/data/hs37chrXtrunc.fa.gz
-PROFILE_JSON=$ROOT/data/profiles/cpg-island.json
+PROFILE_JSON=$ROOT/data/profiles/cpg-island-2state.json
 DATA=$BUILD/bench-data
 RESULTS=$BUILD/bench-results.md
 log() { echo "bench: $*" >&2; }
@@ -69,7 +69,7 @@ mkdir -p "$DATA"
 # --- correctness first: the speed comparison means nothing if the answers differ -------------
 check() {  # name fasta
     local name=$1 fasta=$2 out=$DATA/check.$1
-    "$TM" scan -q -t 1 -p cpg-island "$fasta" -o "$out.tm.bed" --posteriors "$out.tm" \
+    "$TM" scan -q -t 1 -p cpg-island-2state "$fasta" -o "$out.tm.bed" --posteriors "$out.tm" \
         --posterior-digits 12 --summary "$out.tm.json"
     "$BL" --profile "$PROFILE_JSON" "$fasta" -o "$out.bl.bed" --posteriors "$out.bl.tsv" 2>"$out.bl.log"
     printf 'agreement on %s: ' "$name" >&2
@@ -114,7 +114,7 @@ run_timed() {
 printf '>one\nA\n' >"$DATA/one-base.fa"
 STARTUP=""
 time_startup() {
-    run_timed "$DATA/run.one" "$TM" scan -q -t 1 -p cpg-island "$DATA/one-base.fa" -o "$DATA/run.one.bed" || exit 1
+    run_timed "$DATA/run.one" "$TM" scan -q -t 1 -p cpg-island-2state "$DATA/one-base.fa" -o "$DATA/run.one.bed" || exit 1
     local wall rss cpu
     read -r wall rss cpu <"$DATA/run.one.result"
     if [ -z "$STARTUP" ] || awk "BEGIN{exit !($wall < $STARTUP)}"; then STARTUP=$wall; fi
@@ -129,7 +129,7 @@ bench_input() {  # label fasta bases(or empty: from the baseline's report)
     log "timing $label ($reps runs each)"
     for ((r = 1; r <= reps; r++)); do
         time_startup
-        run_timed "$DATA/run.tm" "$TM" scan -q -t 1 -p cpg-island "$fasta" -o "$DATA/run.tm.bed" || exit 1
+        run_timed "$DATA/run.tm" "$TM" scan -q -t 1 -p cpg-island-2state "$fasta" -o "$DATA/run.tm.bed" || exit 1
         read -r wall rss cpu <"$DATA/run.tm.result"
         if [ -z "$best_tm" ] || awk "BEGIN{exit !($wall < $best_tm)}"; then best_tm=$wall; cpu_tm=$cpu; fi
         if [ "$rss" -gt "$rss_tm" ]; then rss_tm=$rss; fi
@@ -182,7 +182,7 @@ bench_threads() {  # label fasta bases
     log "timing $label with 1 and 2 threads ($REPEATS runs each)"
     for ((r = 1; r <= REPEATS; r++)); do
         for t in 1 2; do
-            run_timed "$DATA/run.t$t" "$TM" scan -q -t $t -p cpg-island "$fasta" -o "$DATA/run.t$t.bed" \
+            run_timed "$DATA/run.t$t" "$TM" scan -q -t $t -p cpg-island-2state "$fasta" -o "$DATA/run.t$t.bed" \
                 --summary "$DATA/run.t$t.json" || exit 1
             read -r wall rss cpu <"$DATA/run.t$t.result"
             if [ $t = 1 ]; then
@@ -242,7 +242,7 @@ flat=""
               lo, hi, hi / lo, nlo, nhi, nhi / nlo, t0 * 1e3 }')
 {
 if [ $THREADS_ONLY -eq 0 ]; then
-    echo "### tidemark scan -p cpg-island vs. simple baseline (one thread)"
+    echo "### tidemark scan -p cpg-island-2state vs. simple baseline (one thread)"
     echo
     echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//'),"\
          "$(nproc) cores shared with other work; $(c++ --version | head -1);"\
@@ -263,7 +263,7 @@ if [ $THREADS_ONLY -eq 0 ]; then
     echo
     echo
 fi
-    echo "### tidemark scan -p cpg-island with 1 and 2 threads"
+    echo "### tidemark scan -p cpg-island-2state with 1 and 2 threads"
     echo
     echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(nproc) cores shared with other work. Fastest of $REPEATS runs each,"\
          "1 and 2 threads alternating; BED and summary compared byte for byte ('same')."

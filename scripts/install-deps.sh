@@ -13,6 +13,8 @@ tool_packages=(
 # Tests, sanitizer and fuzzing builds, benchmarks and the scale-out workflow.
 test_packages=(
   git ca-certificates catch2
+  # the formatting check of scripts/test.sh
+  clang-format
   # sanitizer and fuzzing builds
   clang libclang-rt-14-dev
   # test oracles and open datasets

@@ -11,7 +11,7 @@ namespace tidemark::detail {
 
 enum ByteClass : uint8_t {
     // 0..4 are base codes (A C G T unknown); values below mark non-base bytes.
-    byte_space = 5,    ///< space or tab inside a sequence line: skipped
+    byte_space = 5,  ///< space or tab inside a sequence line: skipped
     byte_illegal = 6,
 };
 
@@ -37,7 +37,9 @@ inline const std::array<uint8_t, 256>& byte_classes() {
     return table;
 }
 
-inline bool is_lower_base(unsigned char ch) { return ch >= 'a' && ch <= 'z'; }
+inline bool is_lower_base(unsigned char ch) {
+    return ch >= 'a' && ch <= 'z';
+}
 
 /// The one place where a sequence byte becomes a base code, for every reader: code 0..4 plus
 /// lowercase_flag for a lowercase letter, or not_a_base (space, tab, line ends, illegal bytes;
@@ -53,7 +55,8 @@ inline const std::array<uint8_t, 256>& sequence_codes(SoftMasked soft) {
             const uint8_t cls = classes[ch];
             const bool lower = is_lower_base(static_cast<unsigned char>(ch));
             const uint8_t code = lower && mode == SoftMasked::unknown ? uint8_t{base_unknown} : cls;
-            t[ch] = cls <= base_unknown ? static_cast<uint8_t>(code | (lower ? lowercase_flag : 0)) : not_a_base;
+            t[ch] = cls <= base_unknown ? static_cast<uint8_t>(code | (lower ? lowercase_flag : 0))
+                                        : not_a_base;
         }
         return t;
     };
@@ -66,7 +69,8 @@ inline const std::array<uint8_t, 256>& sequence_codes(SoftMasked soft) {
 inline std::string describe_byte(unsigned char ch) {
     static const char* hex = "0123456789ABCDEF";
     std::string hx = std::string("byte 0x") + hex[ch >> 4] + hex[ch & 15];
-    if (ch >= 0x21 && ch < 0x7F) return "'" + std::string(1, static_cast<char>(ch)) + "' (" + hx + ")";
+    if (ch >= 0x21 && ch < 0x7F)
+        return "'" + std::string(1, static_cast<char>(ch)) + "' (" + hx + ")";
     return hx;
 }
 

@@ -87,7 +87,7 @@ struct BigWigWriter::Impl {
     std::FILE* spool = nullptr;  // intervals wait here until the sequence list is complete
     std::vector<std::string> names;
     std::vector<uint32_t> lengths;
-    std::map<std::string, int> index;  // name -> place in names
+    std::map<std::string, int> index;    // name -> place in names
     std::unique_ptr<StagedPath> staged;  // written, not yet committed
 };
 
@@ -108,14 +108,16 @@ int BigWigWriter::add_sequence(const std::string& name, int64_t length) {
     if (found != impl_->index.end()) {
         const auto i = static_cast<size_t>(found->second);
         if (impl_->lengths[i] != static_cast<uint32_t>(length))
-            throw InputError(impl_->path + ": sequence '" + name + "' appears with lengths " +
-                             std::to_string(impl_->lengths[i]) + " and " + std::to_string(length) +
-                             "; a bigWig lists each name once (two inputs with a record of that name?)");
+            throw InputError(
+                impl_->path + ": sequence '" + name + "' appears with lengths " +
+                std::to_string(impl_->lengths[i]) + " and " + std::to_string(length) +
+                "; a bigWig lists each name once (two inputs with a record of that name?)");
         // libBigWig needs each sequence's intervals in one stretch, in list order.
         if (i + 1 != impl_->names.size())
-            throw InputError(impl_->path + ": sequence '" + name +
-                             "' comes back after other sequences; a bigWig holds each sequence in one "
-                             "stretch (two inputs with a record of that name?)");
+            throw InputError(
+                impl_->path + ": sequence '" + name +
+                "' comes back after other sequences; a bigWig holds each sequence in one "
+                "stretch (two inputs with a record of that name?)");
         return found->second;
     }
     impl_->names.push_back(name);
@@ -143,14 +145,17 @@ void BigWigWriter::commit() {
     impl_->staged.reset();
 }
 
-bool BigWigWriter::empty() const { return impl_->names.empty(); }
+bool BigWigWriter::empty() const {
+    return impl_->names.empty();
+}
 
 void BigWigWriter::write() {
     // libBigWig divides by the list's size while writing the header (SIGFPE, no error).
     if (impl_->names.empty())
-        throw InputError(impl_->path +
-                         ": no sequence was decoded, and a bigWig file needs at least one (a shard that got "
-                         "no record?); write bedGraph tracks, or use fewer shards than records");
+        throw InputError(
+            impl_->path +
+            ": no sequence was decoded, and a bigWig file needs at least one (a shard that got "
+            "no record?); write bedGraph tracks, or use fewer shards than records");
     auto staged_path = std::make_unique<StagedPath>(impl_->path);
     StagedPath& staged = *staged_path;
     ::close(staged.release_fd());
@@ -165,7 +170,8 @@ void BigWigWriter::write() {
     if (bwCreateHdr(bw, 10) != 0) fail("header");
     std::vector<const char*> names;
     for (const auto& n : impl_->names) names.push_back(n.c_str());
-    bw->cl = bwCreateChromList(names.data(), impl_->lengths.data(), static_cast<int64_t>(names.size()));
+    bw->cl =
+        bwCreateChromList(names.data(), impl_->lengths.data(), static_cast<int64_t>(names.size()));
     if (!bw->cl || bwWriteHdr(bw) != 0) fail("sequence list");
 
     std::rewind(impl_->spool);
@@ -192,7 +198,8 @@ void BigWigWriter::write() {
             int rc = 0;
             if (static_cast<int64_t>(seq) != current) {
                 chroms.assign(n, names[seq]);
-                rc = bwAddIntervals(bw, chroms.data(), starts.data(), ends.data(), values.data(), n);
+                rc =
+                    bwAddIntervals(bw, chroms.data(), starts.data(), ends.data(), values.data(), n);
                 current = seq;
             } else {
                 rc = bwAppendIntervals(bw, starts.data(), ends.data(), values.data(), n);
@@ -247,24 +254,28 @@ BigWigReader::~BigWigReader() {
     if (impl_->initialised) bwCleanup();
 }
 
-const std::string& BigWigReader::path() const { return impl_->path; }
+const std::string& BigWigReader::path() const {
+    return impl_->path;
+}
 
-const std::vector<BigWigReader::Sequence>& BigWigReader::sequences() const { return impl_->sequences; }
+const std::vector<BigWigReader::Sequence>& BigWigReader::sequences() const {
+    return impl_->sequences;
+}
 
 void BigWigReader::intervals(const std::string& name, int64_t begin, int64_t end,
                              const std::function<void(const Interval&)>& f) {
     if (end <= begin) return;
     if (!impl_->names.count(name)) return;
     if (begin < 0 || end > 0xFFFFFFFFll)
-        throw InputError(impl_->path + ": " + name + " " + std::to_string(begin) + "-" + std::to_string(end) +
-                         " is outside bigWig's 32-bit coordinates");
+        throw InputError(impl_->path + ": " + name + " " + std::to_string(begin) + "-" +
+                         std::to_string(end) + " is outside bigWig's 32-bit coordinates");
     const auto fail = [&] {
         return InputError(impl_->path + ": cannot read the intervals of '" + name +
                           "' (truncated or corrupt file?)");
     };
     // A few blocks at a time keeps memory small; each block holds at most a few thousand intervals.
-    bwOverlapIterator_t* it = bwOverlappingIntervalsIterator(impl_->bw, name.c_str(), static_cast<uint32_t>(begin),
-                                                             static_cast<uint32_t>(end), 16);
+    bwOverlapIterator_t* it = bwOverlappingIntervalsIterator(
+        impl_->bw, name.c_str(), static_cast<uint32_t>(begin), static_cast<uint32_t>(end), 16);
     if (!it) throw fail();
     struct Guard {
         bwOverlapIterator_t*& it;

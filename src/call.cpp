@@ -20,9 +20,12 @@ bool meets_island_criteria(IslandCriteria criteria, int64_t length, const Compos
     const double gc = comp.gc_fraction();
     const double oe = comp.cpg_obs_exp();  // NaN compares false: no C or no G fails
     switch (criteria) {
-        case IslandCriteria::none: return true;
-        case IslandCriteria::ggf1987: return length >= 200 && gc > 0.5 && oe > 0.6;
-        case IslandCriteria::tj2002: return length > 500 && gc >= 0.55 && oe >= 0.65;
+        case IslandCriteria::none:
+            return true;
+        case IslandCriteria::ggf1987:
+            return length >= 200 && gc > 0.5 && oe > 0.6;
+        case IslandCriteria::tj2002:
+            return length > 500 && gc >= 0.55 && oe >= 0.65;
     }
     return true;
 }
@@ -46,8 +49,8 @@ std::unique_ptr<DecodeSink> IntervalCaller::fork() const {
 
 void IntervalCaller::restore_span(std::vector<Lane> lanes, std::vector<Call> calls) {
     if (lanes.size() != reported_.size())
-        throw InputError("restored caller state has " + std::to_string(lanes.size()) + " regions, the profile reports " +
-                         std::to_string(reported_.size()));
+        throw InputError("restored caller state has " + std::to_string(lanes.size()) +
+                         " regions, the profile reports " + std::to_string(reported_.size()));
     lanes_ = std::move(lanes);
     calls_ = std::move(calls);
     ended_ = false;
@@ -73,7 +76,9 @@ void IntervalCaller::finish(const Group& g, int region) {
     // A stretch without a CpG (in particular one without C or without G, whose o/e is undefined)
     // cannot be a CpG island, whatever the model says: purine-rich low-complexity repeats such as
     // (GGGA)n can look closer to an island table than to any background. Such a call is dropped.
-    if (model_.region_names[static_cast<size_t>(region)] == island_region_name && call.composition.cpg == 0) return;
+    if (model_.region_names[static_cast<size_t>(region)] == island_region_name &&
+        call.composition.cpg == 0)
+        return;
     calls_.push_back(call);
 }
 

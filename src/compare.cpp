@@ -27,14 +27,16 @@ constexpr double nan = std::numeric_limits<double>::quiet_NaN();
 struct Span {
     int64_t begin = 0, end = 0;
 };
-using Spans = std::vector<Span>;                   // sorted, disjoint, non-touching
-using ByChrom = std::map<std::string, Spans>;      // std::map: deterministic order
+using Spans = std::vector<Span>;               // sorted, disjoint, non-touching
+using ByChrom = std::map<std::string, Spans>;  // std::map: deterministic order
 using ByType = std::map<std::string, ByChrom>;
 
-std::string display(const std::string& path) { return path == "-" ? "<stdin>" : path; }
+std::string display(const std::string& path) {
+    return path == "-" ? "<stdin>" : path;
+}
 
-ByType normalise(const IntervalSet& set, const CompareOptions& o, const std::optional<Genome>& genome,
-                 FileNormalisation& report) {
+ByType normalise(const IntervalSet& set, const CompareOptions& o,
+                 const std::optional<Genome>& genome, FileNormalisation& report) {
     report.path = set.path;
     report.intervals = static_cast<int64_t>(set.intervals.size());
     std::unordered_map<std::string, int64_t> sizes;
@@ -46,17 +48,19 @@ ByType normalise(const IntervalSet& set, const CompareOptions& o, const std::opt
         const std::string where = fmt::format("{}:{}", display(set.path), iv.line);
         const std::string& type = o.name.empty() ? iv.name : o.name;
         if (type.empty())
-            throw InputError(fmt::format("{}: no region type in column 4; give --name TYPE to score every "
-                                         "interval as one type",
-                                         where));
+            throw InputError(
+                fmt::format("{}: no region type in column 4; give --name TYPE to score every "
+                            "interval as one type",
+                            where));
         if (genome) {
             const auto it = sizes.find(iv.chrom);
             if (it == sizes.end())
-                throw InputError(fmt::format("{}: contig '{}' is not in the genome file {}", where, iv.chrom,
-                                             display(genome->path)));
+                throw InputError(fmt::format("{}: contig '{}' is not in the genome file {}", where,
+                                             iv.chrom, display(genome->path)));
             if (iv.end > it->second)
-                throw InputError(fmt::format("{}: end {} is beyond the length {} of '{}' in the genome file {}",
-                                             where, iv.end, it->second, iv.chrom, display(genome->path)));
+                throw InputError(
+                    fmt::format("{}: end {} is beyond the length {} of '{}' in the genome file {}",
+                                where, iv.end, it->second, iv.chrom, display(genome->path)));
         }
         if (iv.begin == iv.end) {
             ++report.empty;
@@ -71,11 +75,13 @@ ByType normalise(const IntervalSet& set, const CompareOptions& o, const std::opt
     }
     for (auto& [type, chroms] : out)
         for (auto& [chrom, spans] : chroms) {
-            std::sort(spans.begin(), spans.end(),
-                      [](const Span& a, const Span& b) { return a.begin != b.begin ? a.begin < b.begin : a.end < b.end; });
+            std::sort(spans.begin(), spans.end(), [](const Span& a, const Span& b) {
+                return a.begin != b.begin ? a.begin < b.begin : a.end < b.end;
+            });
             size_t w = 0;
             for (size_t r = 1; r < spans.size(); ++r) {
-                if (spans[r].begin <= spans[w].end) {  // overlapping or touching: one run of the type
+                if (spans[r].begin <=
+                    spans[w].end) {  // overlapping or touching: one run of the type
                     spans[w].end = std::max(spans[w].end, spans[r].end);
                     ++report.merged;
                 } else {
@@ -107,8 +113,10 @@ int64_t intersection(const Spans& a, const Spans& b) {
     size_t i = 0, j = 0;
     while (i < a.size() && j < b.size()) {
         n += overlap(a[i], b[j]);
-        if (a[i].end < b[j].end) ++i;
-        else ++j;
+        if (a[i].end < b[j].end)
+            ++i;
+        else
+            ++j;
     }
     return n;
 }
@@ -160,7 +168,9 @@ double ratio(int64_t num, int64_t den) {
     return den > 0 ? static_cast<double>(num) / static_cast<double>(den) : nan;
 }
 
-std::string fmt_ratio(double v) { return std::isnan(v) ? "NA" : fmt::format("{:.4f}", v); }
+std::string fmt_ratio(double v) {
+    return std::isnan(v) ? "NA" : fmt::format("{:.4f}", v);
+}
 
 std::string fmt_number(double v) {
     if (std::isnan(v)) return "NA";
@@ -202,7 +212,8 @@ int64_t parse_length(const std::string& field, const std::string& where) {
 void add_chrom(Genome& g, std::unordered_set<std::string>& seen, std::string name, int64_t length,
                const std::string& where) {
     if (!seen.insert(name).second)
-        throw InputError(fmt::format("{}: duplicate sequence name '{}' in the genome file", where, name));
+        throw InputError(
+            fmt::format("{}: duplicate sequence name '{}' in the genome file", where, name));
     g.chroms.push_back({std::move(name), length});
 }
 
@@ -211,14 +222,15 @@ void parse_sizes_line(const std::string& line, const std::string& where, Genome&
     if (line.empty() || line[0] == '#') return;
     const size_t a = line.find_first_of(" \t");
     if (a == std::string::npos || a == 0)
-        throw InputError(fmt::format("{}: expected NAME and LENGTH separated by a tab (chrom sizes or .fai)",
-                                     where));
+        throw InputError(fmt::format(
+            "{}: expected NAME and LENGTH separated by a tab (chrom sizes or .fai)", where));
     const size_t b = line.find_first_not_of(" \t", a);
     const size_t e = b == std::string::npos ? std::string::npos : line.find_first_of(" \t", b);
     if (b == std::string::npos)
-        throw InputError(fmt::format("{}: no LENGTH after the name '{}'", where, line.substr(0, a)));
-    add_chrom(g, seen, line.substr(0, a), parse_length(line.substr(b, e == std::string::npos ? e : e - b), where),
-              where);
+        throw InputError(
+            fmt::format("{}: no LENGTH after the name '{}'", where, line.substr(0, a)));
+    add_chrom(g, seen, line.substr(0, a),
+              parse_length(line.substr(b, e == std::string::npos ? e : e - b), where), where);
 }
 
 }  // namespace
@@ -233,7 +245,8 @@ Genome read_genome(const std::string& path) {
     size_t first = 0;
     while (first < got && (buf[first] == '\n' || buf[first] == '\r' || buf[first] == ' ')) ++first;
     if (first < got && buf[first] == '>') {
-        if (path == "-") throw InputError("a FASTA genome cannot be read from stdin; give a file or its .fai");
+        if (path == "-")
+            throw InputError("a FASTA genome cannot be read from stdin; give a file or its .fai");
         source.reset();
         auto fasta = open_fasta(path);
         Contig contig;
@@ -262,8 +275,8 @@ Genome read_genome(const std::string& path) {
     return g;
 }
 
-Comparison compare_intervals(const IntervalSet& calls, const IntervalSet& truth, const CompareOptions& o,
-                             const std::optional<Genome>& genome) {
+Comparison compare_intervals(const IntervalSet& calls, const IntervalSet& truth,
+                             const CompareOptions& o, const std::optional<Genome>& genome) {
     Comparison result;
     const ByType c = normalise(calls, o, genome, result.calls);
     const ByType t = normalise(truth, o, genome, result.truth);
@@ -335,33 +348,38 @@ Comparison compare_intervals(const IntervalSet& calls, const IntervalSet& truth,
 
 std::string compare_table(const Comparison& r) {
     std::string out;
-    std::vector<std::vector<std::string>> rows = {{"input", "file", "intervals", "empty", "merged", "sorted"}};
+    std::vector<std::vector<std::string>> rows = {
+        {"input", "file", "intervals", "empty", "merged", "sorted"}};
     for (const auto* f : {&r.calls, &r.truth})
-        rows.push_back({f == &r.calls ? "calls" : "truth", display(f->path), fmt::format("{}", f->intervals),
-                        fmt::format("{}", f->empty), fmt::format("{}", f->merged), f->sorted ? "yes" : "no"});
+        rows.push_back({f == &r.calls ? "calls" : "truth", display(f->path),
+                        fmt::format("{}", f->intervals), fmt::format("{}", f->empty),
+                        fmt::format("{}", f->merged), f->sorted ? "yes" : "no"});
     out += aligned(rows, 2);
     if (r.genome)
-        out += fmt::format("genome {}: {} sequences, {} bases\n", display(r.genome->path), r.genome->chroms.size(),
-                           *r.genome_bases);
+        out += fmt::format("genome {}: {} sequences, {} bases\n", display(r.genome->path),
+                           r.genome->chroms.size(), *r.genome_bases);
 
     out += "\nbase level\n";
     rows = {{"type", "tp", "fp", "fn", "tn", "precision", "recall", "f1", "jaccard", "accuracy"}};
     for (const auto& t : r.types) {
         const BaseMetrics& b = t.base;
-        rows.push_back({t.type, fmt::format("{}", b.tp), fmt::format("{}", b.fp), fmt::format("{}", b.fn),
-                        b.tn ? fmt::format("{}", *b.tn) : "NA", fmt_ratio(b.precision), fmt_ratio(b.recall),
-                        fmt_ratio(b.f1), fmt_ratio(b.jaccard), b.accuracy ? fmt_ratio(*b.accuracy) : "NA"});
+        rows.push_back({t.type, fmt::format("{}", b.tp), fmt::format("{}", b.fp),
+                        fmt::format("{}", b.fn), b.tn ? fmt::format("{}", *b.tn) : "NA",
+                        fmt_ratio(b.precision), fmt_ratio(b.recall), fmt_ratio(b.f1),
+                        fmt_ratio(b.jaccard), b.accuracy ? fmt_ratio(*b.accuracy) : "NA"});
     }
     out += aligned(rows);
 
     out += "\ninterval level (r50 = overlap >= 50% of both intervals)\n";
-    rows = {{"type", "truth", "calls", "truth_hit", "truth_hit_r50", "calls_hit", "calls_hit_r50", "pairs",
-             "median_start_offset", "median_end_offset"}};
+    rows = {{"type", "truth", "calls", "truth_hit", "truth_hit_r50", "calls_hit", "calls_hit_r50",
+             "pairs", "median_start_offset", "median_end_offset"}};
     for (const auto& t : r.types) {
         const IntervalMetrics& m = t.intervals;
         rows.push_back({t.type, fmt::format("{}", m.truth), fmt::format("{}", m.calls),
-                        fmt_ratio(ratio(m.truth_overlapped, m.truth)), fmt_ratio(ratio(m.truth_reciprocal, m.truth)),
-                        fmt_ratio(ratio(m.calls_overlapping, m.calls)), fmt_ratio(ratio(m.calls_reciprocal, m.calls)),
+                        fmt_ratio(ratio(m.truth_overlapped, m.truth)),
+                        fmt_ratio(ratio(m.truth_reciprocal, m.truth)),
+                        fmt_ratio(ratio(m.calls_overlapping, m.calls)),
+                        fmt_ratio(ratio(m.calls_reciprocal, m.calls)),
                         fmt::format("{}", m.truth_reciprocal), fmt_number(m.median_start_offset),
                         fmt_number(m.median_end_offset)});
     }
@@ -373,8 +391,11 @@ std::string compare_json(const Comparison& r, const std::string& command_line) {
     using json = nlohmann::ordered_json;
     const auto number = [](double v) { return std::isnan(v) ? json(nullptr) : json(v); };
     const auto file = [](const FileNormalisation& f) {
-        return json{{"path", f.path}, {"intervals", f.intervals}, {"empty", f.empty},
-                    {"merged", f.merged}, {"sorted", f.sorted}};
+        return json{{"path", f.path},
+                    {"intervals", f.intervals},
+                    {"empty", f.empty},
+                    {"merged", f.merged},
+                    {"sorted", f.sorted}};
     };
     json j;
     j["format"] = "tidemark-compare/1";
@@ -390,39 +411,41 @@ std::string compare_json(const Comparison& r, const std::string& command_line) {
     for (const auto& t : r.types) {
         const BaseMetrics& b = t.base;
         const IntervalMetrics& m = t.intervals;
-        j["types"].push_back(json{
-            {"type", t.type},
-            {"base",
-             {{"tp", b.tp},
-              {"fp", b.fp},
-              {"fn", b.fn},
-              {"tn", b.tn ? json(*b.tn) : json(nullptr)},
-              {"precision", number(b.precision)},
-              {"recall", number(b.recall)},
-              {"f1", number(b.f1)},
-              {"jaccard", number(b.jaccard)},
-              {"accuracy", b.accuracy ? number(*b.accuracy) : json(nullptr)}}},
-            {"intervals",
-             {{"truth", m.truth},
-              {"calls", m.calls},
-              {"truth_overlapped", m.truth_overlapped},
-              {"truth_overlapped_fraction", number(ratio(m.truth_overlapped, m.truth))},
-              {"truth_reciprocal50", m.truth_reciprocal},
-              {"truth_reciprocal50_fraction", number(ratio(m.truth_reciprocal, m.truth))},
-              {"calls_overlapping", m.calls_overlapping},
-              {"calls_overlapping_fraction", number(ratio(m.calls_overlapping, m.calls))},
-              {"calls_reciprocal50", m.calls_reciprocal},
-              {"calls_reciprocal50_fraction", number(ratio(m.calls_reciprocal, m.calls))},
-              {"matched_pairs", m.truth_reciprocal},
-              {"median_abs_start_offset", number(m.median_start_offset)},
-              {"median_abs_end_offset", number(m.median_end_offset)}}}});
+        j["types"].push_back(
+            json{{"type", t.type},
+                 {"base",
+                  {{"tp", b.tp},
+                   {"fp", b.fp},
+                   {"fn", b.fn},
+                   {"tn", b.tn ? json(*b.tn) : json(nullptr)},
+                   {"precision", number(b.precision)},
+                   {"recall", number(b.recall)},
+                   {"f1", number(b.f1)},
+                   {"jaccard", number(b.jaccard)},
+                   {"accuracy", b.accuracy ? number(*b.accuracy) : json(nullptr)}}},
+                 {"intervals",
+                  {{"truth", m.truth},
+                   {"calls", m.calls},
+                   {"truth_overlapped", m.truth_overlapped},
+                   {"truth_overlapped_fraction", number(ratio(m.truth_overlapped, m.truth))},
+                   {"truth_reciprocal50", m.truth_reciprocal},
+                   {"truth_reciprocal50_fraction", number(ratio(m.truth_reciprocal, m.truth))},
+                   {"calls_overlapping", m.calls_overlapping},
+                   {"calls_overlapping_fraction", number(ratio(m.calls_overlapping, m.calls))},
+                   {"calls_reciprocal50", m.calls_reciprocal},
+                   {"calls_reciprocal50_fraction", number(ratio(m.calls_reciprocal, m.calls))},
+                   {"matched_pairs", m.truth_reciprocal},
+                   {"median_abs_start_offset", number(m.median_start_offset)},
+                   {"median_abs_end_offset", number(m.median_end_offset)}}}});
     }
     return j.dump(2) + "\n";
 }
 
 Comparison run_compare(const CompareJob& job, const Logger& log) {
-    if (job.calls == "-" && job.truth == "-") throw UsageError("calls and truth cannot both be stdin (-)");
-    if (!job.json.empty() && job.json == job.output && job.json != "-" && job.json.rfind("/dev/", 0) != 0)
+    if (job.calls == "-" && job.truth == "-")
+        throw UsageError("calls and truth cannot both be stdin (-)");
+    if (!job.json.empty() && job.json == job.output && job.json != "-" &&
+        job.json.rfind("/dev/", 0) != 0)
         throw UsageError("--json and --output name the same file");
     if (job.json == "-" && job.output == "-")
         throw UsageError("--json - and the table both go to stdout; give -o FILE or a JSON file");
@@ -437,15 +460,18 @@ Comparison run_compare(const CompareJob& job, const Logger& log) {
 
     for (const auto* f : {&r.calls, &r.truth}) {
         if (!f->sorted)
-            log.info(fmt::format("{}: intervals were not sorted by start within each contig and type; sorted "
-                                 "before scoring",
-                                 display(f->path)));
+            log.info(fmt::format(
+                "{}: intervals were not sorted by start within each contig and type; sorted "
+                "before scoring",
+                display(f->path)));
         if (f->merged > 0)
-            log.info(fmt::format("{}: {} intervals overlapped or touched another of the same type and were "
-                                 "merged into it before scoring",
-                                 display(f->path), f->merged));
+            log.info(fmt::format(
+                "{}: {} intervals overlapped or touched another of the same type and were "
+                "merged into it before scoring",
+                display(f->path), f->merged));
         if (f->empty > 0)
-            log.info(fmt::format("{}: {} zero-length intervals ignored", display(f->path), f->empty));
+            log.info(
+                fmt::format("{}: {} zero-length intervals ignored", display(f->path), f->empty));
     }
     std::unique_ptr<OutputFile> json;
     if (!job.json.empty()) {
@@ -457,10 +483,11 @@ Comparison run_compare(const CompareJob& job, const Logger& log) {
     if (json) json->commit();
     table.commit();
     const ResourceUsage usage = clock.now();
-    log.detail(fmt::format("compared {} calls with {} truth intervals: {:.2f} s wall, {:.2f} s CPU, peak memory "
-                           "{:.1f} MiB",
-                           r.calls.intervals, r.truth.intervals, usage.wall_seconds, usage.cpu_seconds,
-                           static_cast<double>(usage.peak_rss_bytes) / (1 << 20)));
+    log.detail(fmt::format(
+        "compared {} calls with {} truth intervals: {:.2f} s wall, {:.2f} s CPU, peak memory "
+        "{:.1f} MiB",
+        r.calls.intervals, r.truth.intervals, usage.wall_seconds, usage.cpu_seconds,
+        static_cast<double>(usage.peak_rss_bytes) / (1 << 20)));
     return r;
 }
 

@@ -1,13 +1,12 @@
 // Compact contig storage (2-bit chunks plus unknown runs) and base composition.
-#include "tidemark/sequence.hpp"
-
 #include <algorithm>
-#include <cstring>
 #include <array>
 #include <cmath>
+#include <cstring>
 #include <limits>
 
 #include "tidemark/error.hpp"
+#include "tidemark/sequence.hpp"
 
 namespace tidemark {
 

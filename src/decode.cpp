@@ -32,7 +32,8 @@ std::unique_ptr<DecodeSink> SinkFanout::fork() const {
 }
 void SinkFanout::join(DecodeSink& later) {
     auto* other = dynamic_cast<SinkFanout*>(&later);
-    if (!other || other->sinks_.size() != sinks_.size()) throw InternalError("SinkFanout::join: not a fork of this fanout");
+    if (!other || other->sinks_.size() != sinks_.size())
+        throw InternalError("SinkFanout::join: not a fork of this fanout");
     for (size_t i = 0; i < sinks_.size(); ++i) sinks_[i]->join(*other->sinks_[i]);
 }
 
@@ -64,7 +65,8 @@ double fill_emissions(const Model& m, const Contig& contig, int64_t begin, int64
         if (b == base_unknown) {
             for (int s = 0; s < S; ++s) row[s] = 1.0;  // marginalised: sums to 1 over bases
         } else if (fast && ctx.complete(K)) {
-            std::memcpy(row, fast + (static_cast<size_t>(ctx.code) * 4 + b) * S, sizeof(double) * S);
+            std::memcpy(row, fast + (static_cast<size_t>(ctx.code) * 4 + b) * S,
+                        sizeof(double) * S);
         } else {
             for (int s = 0; s < S; ++s) row[s] = m.emission_prob(s, ctx.code, ctx.valid, b);
         }
@@ -117,15 +119,17 @@ int64_t choose_segment(const Model& m, int64_t block, const DecoderOptions& o) {
     const int64_t multiple = std::max<int64_t>(1, o.segment_multiple);
     // At least 64 Ki positions: tiny --block values must not make millions of segments (each
     // has its own sink forks).
-    const int64_t want = o.segment_size > 0 ? o.segment_size
-                                            : std::max<int64_t>(blocks_per_segment * block, int64_t{1} << 16);
+    const int64_t want = o.segment_size > 0
+                             ? o.segment_size
+                             : std::max<int64_t>(blocks_per_segment * block, int64_t{1} << 16);
     return (want + multiple - 1) / multiple * multiple;
 }
 
 }  // namespace
 
 PosteriorDecoder::PosteriorDecoder(const Model& model, DecoderOptions options)
-    : model_(model), block_(choose_block(model, options.block_size)),
+    : model_(model),
+      block_(choose_block(model, options.block_size)),
       segment_(choose_segment(model, block_, options)),
       fast_emission_(build_decoder_table(model)),
       folded_(model.states <= max_fixed_states ? fold_transitions(model, fast_emission_)
@@ -273,8 +277,8 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
         double* fw = forward_.data();
         copy_vec(checkpoints_.data() + k * S, S, bw + (n - 1) * S);
         if (k > 0) copy_vec(before_.data(), S, fprev.data());
-        sweep_block<Fixed>(m, contig, A, sparse, folded, start, n, rows_.data(), emission_.data(), fw, bw,
-                           posterior_.data(), fprev.data(), exponent, last_sum);
+        sweep_block<Fixed>(m, contig, A, sparse, folded, start, n, rows_.data(), emission_.data(),
+                           fw, bw, posterior_.data(), fprev.data(), exponent, last_sum);
         BlockView view;
         view.begin = start;
         view.size = n;

@@ -18,7 +18,6 @@
 
 namespace tidemark::detail {
 
-
 // Rescaling threshold. Sums are rescaled by an exact power of two once they fall below 2^-64,
 // which leaves room for a single step to shrink a vector by 2^-900 without denormals.
 constexpr double rescale_below = 0x1p-64;
@@ -79,7 +78,8 @@ inline void step_forward(const Model& m, const double* A, bool sparse, const dou
     if (Fixed == 0 && sparse) {
         for (int j = 0; j < S; ++j) {
             double acc = 0;
-            for (int e = m.in_begin[j]; e < m.in_begin[j + 1]; ++e) acc += prev[m.in_from[e]] * m.in_prob[e];
+            for (int e = m.in_begin[j]; e < m.in_begin[j + 1]; ++e)
+                acc += prev[m.in_from[e]] * m.in_prob[e];
             out[j] = acc;
         }
         return;
@@ -102,7 +102,8 @@ inline void step_backward(const Model& m, const double* A, bool sparse, const do
     if (Fixed == 0 && sparse) {
         for (int i = 0; i < S; ++i) {
             double acc = 0;
-            for (int e = m.out_begin[i]; e < m.out_begin[i + 1]; ++e) acc += m.out_prob[e] * g[m.out_to[e]];
+            for (int e = m.out_begin[i]; e < m.out_begin[i + 1]; ++e)
+                acc += m.out_prob[e] * g[m.out_to[e]];
             out[i] = acc;
         }
         return;
@@ -117,7 +118,9 @@ inline void step_backward(const Model& m, const double* A, bool sparse, const do
 
 // True when a base of [begin, end) is unknown.
 inline bool has_unknown(const Contig& c, int64_t begin, int64_t end) {
-    const auto ends_after = [](int64_t pos, const UnknownRun& r) { return pos < r.begin + r.length; };
+    const auto ends_after = [](int64_t pos, const UnknownRun& r) {
+        return pos < r.begin + r.length;
+    };
     const auto it = std::upper_bound(c.unknown.begin(), c.unknown.end(), begin, ends_after);
     return it != c.unknown.end() && it->begin < end;
 }
@@ -152,7 +155,9 @@ inline bool combine_posterior(const double* f, const double* b, int states, doub
 // both once i = max(t, n-2-t), so the second half of the iterations also finishes two
 // posteriors each, filling the gaps that the two recursions leave.
 template <class Forward, class Backward, class Posterior>
-[[gnu::always_inline]] inline void interleaved_block(int64_t n, Forward& forward_at, Backward& backward_at, Posterior& posterior_at) {
+[[gnu::always_inline]] inline void interleaved_block(int64_t n, Forward& forward_at,
+                                                     Backward& backward_at,
+                                                     Posterior& posterior_at) {
     int64_t i = 0;
     for (; i < n && 2 * i < n - 2; ++i) {
         forward_at(i);
@@ -189,8 +194,9 @@ struct TableLayout {
 
 // Table rows (TableLayout) and base codes of positions [start, start+n): one table row per
 // position from the rolling context. Inlined so that each sweep keeps its own tight copy.
-[[gnu::always_inline]] inline void fill_rows_of(const Model& m, const Contig& contig, const TableLayout& layout,
-                                                int64_t start, int64_t n, uint8_t* bases, uint32_t* rows) {
+[[gnu::always_inline]] inline void fill_rows_of(const Model& m, const Contig& contig,
+                                                const TableLayout& layout, int64_t start, int64_t n,
+                                                uint8_t* bases, uint32_t* rows) {
     const int K = m.max_order;
     const uint32_t mask = (1u << (2 * K)) - 1;
     RollingContext ctx = context_before(contig, start, K);
@@ -207,7 +213,8 @@ struct TableLayout {
             rows[t] = (ctx.code << 2) | b;
             ctx.code = rows[t] & mask;
         } else {
-            rows[t] = b == base_unknown ? layout.unknown : layout.partial[ctx.valid] + ctx.code * 4 + b;
+            rows[t] =
+                b == base_unknown ? layout.unknown : layout.partial[ctx.valid] + ctx.code * 4 + b;
             ctx.push(b);
         }
     }
@@ -220,13 +227,20 @@ constexpr int max_fixed_states = 6;
 template <typename F>
 decltype(auto) with_fixed_states(int states, F&& f) {
     switch (states) {
-        case 1: return f(std::integral_constant<int, 1>{});
-        case 2: return f(std::integral_constant<int, 2>{});
-        case 3: return f(std::integral_constant<int, 3>{});
-        case 4: return f(std::integral_constant<int, 4>{});
-        case 5: return f(std::integral_constant<int, 5>{});
-        case 6: return f(std::integral_constant<int, 6>{});
-        default: throw InternalError("decoder: segments need a model of at most 6 states");
+        case 1:
+            return f(std::integral_constant<int, 1>{});
+        case 2:
+            return f(std::integral_constant<int, 2>{});
+        case 3:
+            return f(std::integral_constant<int, 3>{});
+        case 4:
+            return f(std::integral_constant<int, 4>{});
+        case 5:
+            return f(std::integral_constant<int, 5>{});
+        case 6:
+            return f(std::integral_constant<int, 6>{});
+        default:
+            throw InternalError("decoder: segments need a model of at most 6 states");
     }
 }
 
@@ -258,10 +272,12 @@ struct Vec<0> {
 // recursion vectors, the exponent and the last sum are locals (not the caller's) so that the
 // compiler can keep them in registers: it cannot know that they do not alias the block buffers.
 template <int Fixed>
-[[gnu::always_inline]] inline void sweep_block(const Model& m, const Contig& contig, const double* A, bool sparse,
-                                               const double* folded, int64_t start, int64_t n, const uint32_t* rows,
-                                               const double* em, double* fw, double* bw, double* post,
-                                               double* forward_before, int64_t& exponent_io, double& last_sum_io) {
+[[gnu::always_inline]] inline void sweep_block(const Model& m, const Contig& contig,
+                                               const double* A, bool sparse, const double* folded,
+                                               int64_t start, int64_t n, const uint32_t* rows,
+                                               const double* em, double* fw, double* bw,
+                                               double* post, double* forward_before,
+                                               int64_t& exponent_io, double& last_sum_io) {
     const int S = Fixed > 0 ? Fixed : m.states;
     int64_t exponent = exponent_io;
     double last_sum = last_sum_io;
@@ -316,7 +332,8 @@ template <int Fixed>
         copy_vec(bn, S, bw + u * S);
     };
     const auto posterior_at = [&](int64_t t) {
-        if (!combine_posterior<Fixed>(fw + t * S, bw + t * S, S, post + t * S)) impossible(m, contig, start + t);
+        if (!combine_posterior<Fixed>(fw + t * S, bw + t * S, S, post + t * S))
+            impossible(m, contig, start + t);
     };
     interleaved_block(n, forward_at, backward_at, posterior_at);
     copy_vec(fp, S, forward_before);

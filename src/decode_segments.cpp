@@ -14,19 +14,18 @@ namespace tidemark {
 
 using namespace detail;
 
-
 PosteriorDecoder::~PosteriorDecoder() = default;
 
 // What the matrix sweep and the chaining know about one segment [begin, end).
 struct PosteriorDecoder::Segment {
     int64_t begin = 0, end = 0;
-    std::vector<double> marks;  ///< per block: the S x S matrix at the block's last position
-    std::vector<double> product;  ///< F_begin M_begin (segment 0: the row (pi * e_0) M_0)
-    int64_t product_exponent = 0;  ///< product's true value is product * 2^exponent
+    std::vector<double> marks;       ///< per block: the S x S matrix at the block's last position
+    std::vector<double> product;     ///< F_begin M_begin (segment 0: the row (pi * e_0) M_0)
+    int64_t product_exponent = 0;    ///< product's true value is product * 2^exponent
     std::vector<double> end_vector;  ///< scaled backward vector at end - 1
     std::vector<double> before;      ///< scaled forward vector at begin - 1 (segments > 0)
     int64_t before_exponent = 0;
-    double last_sum = 0;             ///< the forward sweep's last sum and exponent
+    double last_sum = 0;  ///< the forward sweep's last sum and exponent
     int64_t exponent = 0;
 };
 
@@ -38,7 +37,8 @@ namespace {
 // the sequential sweep. Sets failed = k when the k-th step makes the matrix all zero (the
 // contig is impossible).
 template <int S, typename RowAt>
-inline int64_t matrix_steps(const double* folded, int64_t count, RowAt row_at, double* M, int64_t& failed) {
+inline int64_t matrix_steps(const double* folded, int64_t count, RowAt row_at, double* M,
+                            int64_t& failed) {
     constexpr int SS = S * S;
     double W[SS];
     for (int q = 0; q < SS; ++q) W[q] = M[q];
@@ -73,7 +73,8 @@ inline int64_t matrix_steps(const double* folded, int64_t count, RowAt row_at, d
 // One step with one row.
 template <int S>
 inline int64_t matrix_step(const double* folded, uint32_t row, double* M, int64_t& failed) {
-    return matrix_steps<S>(folded, 1, [row](int64_t) { return row; }, M, failed);
+    return matrix_steps<S>(
+        folded, 1, [row](int64_t) { return row; }, M, failed);
 }
 
 // The steps of one block: M_t = F_{rows[t+1]} M_{t+1} for t = n-2 down to 0. On failure,
@@ -81,14 +82,17 @@ inline int64_t matrix_step(const double* folded, uint32_t row, double* M, int64_
 template <int S>
 inline int64_t matrix_steps_back(const double* folded, const uint32_t* rows, int64_t n, double* M,
                                  int64_t& failed) {
-    const int64_t exponent = matrix_steps<S>(folded, n - 1, [rows, n](int64_t k) { return rows[n - 1 - k]; }, M, failed);
+    const int64_t exponent = matrix_steps<S>(
+        folded, n - 1, [rows, n](int64_t k) { return rows[n - 1 - k]; }, M, failed);
     if (failed >= 0) failed = n - 1 - failed;
     return exponent;
 }
 
 }  // namespace
 
-bool PosteriorDecoder::splits(int64_t length) const { return segment_ > 0 && length > segment_; }
+bool PosteriorDecoder::splits(int64_t length) const {
+    return segment_ > 0 && length > segment_;
+}
 
 // The segments of a contig of length N: [k * segment, min(N, (k + 1) * segment)).
 std::vector<PosteriorDecoder::Segment> PosteriorDecoder::make_segments(int64_t N) const {
@@ -108,7 +112,8 @@ size_t PosteriorDecoder::segment_count(int64_t length) const {
 // all of them, then rethrows the first failure in segment order.
 void PosteriorDecoder::size_workspaces(TaskPool* pool) {
     const int workers = pool ? pool->threads() : 1;
-    while (static_cast<int>(workspaces_.size()) < workers) workspaces_.push_back(std::make_unique<Workspace>());
+    while (static_cast<int>(workspaces_.size()) < workers)
+        workspaces_.push_back(std::make_unique<Workspace>());
     for (auto& w : workspaces_) w->size(std::min(block_, segment_), model_.states);
 }
 
@@ -121,14 +126,15 @@ void PosteriorDecoder::for_segments(size_t first, size_t last, TaskPool* pool,
     }
     std::vector<std::future<void>> done;
     for (size_t k = first; k < last; ++k)
-        done.push_back(pool->submit([&, k](int w) { task(k, *workspaces_[static_cast<size_t>(w)]); }));
+        done.push_back(
+            pool->submit([&, k](int w) { task(k, *workspaces_[static_cast<size_t>(w)]); }));
     for (auto& f : done) f.wait();
     for (auto& f : done) f.get();
 }
 
 template <int Fixed>
-void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last,
-                                     TaskPool* pool) {
+void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first,
+                                     size_t last, TaskPool* pool) {
     constexpr int S = Fixed;
     constexpr int SS = S * S;
     const Model& m = model_;
@@ -188,13 +194,12 @@ void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>&
             sg.product_exponent = mexp;
         }
     });
-
 }
 
 template <int Fixed>
-DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<Segment>& segs, size_t first,
-                                              size_t last, DecodeSink& sink, const SegmentTaker& take,
-                                              TaskPool* pool) {
+DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<Segment>& segs,
+                                              size_t first, size_t last, DecodeSink& sink,
+                                              const SegmentTaker& take, TaskPool* pool) {
     constexpr int S = Fixed;
     constexpr int SS = S * S;
     const Model& m = model_;
@@ -280,8 +285,8 @@ DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<
                 if (s < rescale_below) rescale(c, S, s);
             }
             copy_vec(fp.data(), S, before.data());
-            sweep_block<Fixed>(m, contig, nullptr, false, folded, start, n, rows, em, fw, bw, ws.posterior.data(),
-                               fp.data(), exponent, last_sum);
+            sweep_block<Fixed>(m, contig, nullptr, false, folded, start, n, rows, em, fw, bw,
+                               ws.posterior.data(), fp.data(), exponent, last_sum);
             BlockView view;
             view.begin = start;
             view.size = n;
@@ -322,7 +327,8 @@ DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<
             p.fork->begin_contig(contig);
             DecodeSink* out = p.fork.get();
             if (pool) {
-                p.done = pool->submit([&, k, out](int w) { sweep(k, *workspaces_[static_cast<size_t>(w)], *out); });
+                p.done = pool->submit(
+                    [&, k, out](int w) { sweep(k, *workspaces_[static_cast<size_t>(w)], *out); });
             } else {
                 std::promise<void> ready;
                 sweep(k, *workspaces_[0], *out);
@@ -351,7 +357,8 @@ DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<
 }
 
 template <int Fixed>
-DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool) {
+DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& sink,
+                                             TaskPool* pool) {
     static_assert(Fixed > 0, "segmented decoding needs a compile-time state count");
     if (fast_emission_.empty() || folded_.empty())
         throw InternalError("decoder: emission table missing for a small model");
@@ -359,14 +366,14 @@ DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& s
     std::vector<Segment> segs = make_segments(contig.length);
     matrix_sweeps<Fixed>(contig, segs, 0, segs.size(), pool);
     const DecodeResult result = sweep_segments<Fixed>(
-        contig, segs, 0, segs.size(), sink, [&](size_t, DecodeSink& fork) { sink.join(fork); }, pool);
+        contig, segs, 0, segs.size(), sink, [&](size_t, DecodeSink& fork) { sink.join(fork); },
+        pool);
     sink.end_contig(contig, result);
     return result;
 }
 
-
-
-std::vector<SegmentSeam> PosteriorDecoder::seams(const Contig& contig, size_t first, size_t last, TaskPool* pool) {
+std::vector<SegmentSeam> PosteriorDecoder::seams(const Contig& contig, size_t first, size_t last,
+                                                 TaskPool* pool) {
     std::vector<Segment> segs = make_segments(contig.length);
     if (!splits(contig.length) || first > last || last > segs.size())
         throw InternalError("PosteriorDecoder::seams: not a split contig or a bad segment range");
@@ -375,8 +382,9 @@ std::vector<SegmentSeam> PosteriorDecoder::seams(const Contig& contig, size_t fi
     });
     std::vector<SegmentSeam> out;
     for (size_t k = first; k < last; ++k)
-        out.push_back({segs[k].begin, segs[k].end, std::move(segs[k].product), segs[k].product_exponent,
-                       std::move(segs[k].marks), bases_crc32(contig, segs[k].begin, segs[k].end)});
+        out.push_back({segs[k].begin, segs[k].end, std::move(segs[k].product),
+                       segs[k].product_exponent, std::move(segs[k].marks),
+                       bases_crc32(contig, segs[k].begin, segs[k].end)});
     return out;
 }
 
@@ -393,23 +401,27 @@ uint32_t PosteriorDecoder::bases_crc32(const Contig& contig, int64_t begin, int6
     return static_cast<uint32_t>(crc);
 }
 
-DecodeResult PosteriorDecoder::run_segments(const Contig& contig, const std::vector<SegmentSeam>& all, size_t first,
+DecodeResult PosteriorDecoder::run_segments(const Contig& contig,
+                                            const std::vector<SegmentSeam>& all, size_t first,
                                             size_t last, DecodeSink& sink, const SegmentTaker& take,
                                             TaskPool* pool) {
     std::vector<Segment> segs = make_segments(contig.length);
     if (!splits(contig.length) || first >= last || last > segs.size())
-        throw InternalError("PosteriorDecoder::run_segments: not a split contig or a bad segment range");
+        throw InternalError(
+            "PosteriorDecoder::run_segments: not a split contig or a bad segment range");
     if (all.size() != segs.size())
-        throw InputError(fmt::format("record '{}': the seams given have {} segments, the record has {}; they "
-                                     "come from another input or other options",
-                                     contig.name, all.size(), segs.size()));
+        throw InputError(
+            fmt::format("record '{}': the seams given have {} segments, the record has {}; they "
+                        "come from another input or other options",
+                        contig.name, all.size(), segs.size()));
     const size_t S = static_cast<size_t>(model_.states);
     const int64_t B = std::min(block_, segment_);
     const auto mismatch = [&](size_t k) {
-        return InputError(fmt::format(
-            "record '{}', segment {} ({}-{}): the seams given do not match this sequence; they come from another "
-            "input, profile or --block/--bin",
-            contig.name, k + 1, segs[k].begin, segs[k].end));
+        return InputError(
+            fmt::format("record '{}', segment {} ({}-{}): the seams given do not match this "
+                        "sequence; they come from another "
+                        "input, profile or --block/--bin",
+                        contig.name, k + 1, segs[k].begin, segs[k].end));
     };
     // This process's segments with marks from step 1 skip their matrix sweep, once their bases
     // are those the marks were made from.
@@ -418,7 +430,8 @@ DecodeResult PosteriorDecoder::run_segments(const Contig& contig, const std::vec
         const SegmentSeam& given = all[k];
         if (given.marks.empty()) continue;
         const auto blocks = static_cast<size_t>((segs[k].end - segs[k].begin + B - 1) / B);
-        if (given.marks.size() != blocks * S * S || given.bases_crc32 != bases_crc32(contig, segs[k].begin, segs[k].end))
+        if (given.marks.size() != blocks * S * S ||
+            given.bases_crc32 != bases_crc32(contig, segs[k].begin, segs[k].end))
             throw mismatch(k);
         segs[k].marks = given.marks;
         segs[k].product = given.product;

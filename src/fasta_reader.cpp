@@ -1,4 +1,5 @@
-// Streaming FASTA parser: one record at a time into a reusable Contig, errors with file/record/line.
+// Streaming FASTA parser: one record at a time into a reusable Contig, errors with
+// file/record/line.
 #include <fmt/format.h>
 
 #include <array>
@@ -39,9 +40,10 @@ public:
             if (next_start_ == starts_.size()) return false;
             const RecordStart& at = starts_[next_start_++];
             if (!source_->seek(at.offset))
-                throw InputError(fmt::format("{}: cannot move to byte {} (through the .fai/.gzi index); delete "
-                                             "the index and rerun",
-                                             display_, at.offset));
+                throw InputError(
+                    fmt::format("{}: cannot move to byte {} (through the .fai/.gzi index); delete "
+                                "the index and rerun",
+                                display_, at.offset));
             pos_ = end_ = 0;
             line_ = at.line;
             at_line_start_ = true;
@@ -203,8 +205,9 @@ std::unique_ptr<SequenceSource> open_fasta(const std::string& path) {
     return std::make_unique<FastaStream>(path);
 }
 
-void read_record_windows(const std::string& path, const std::string& name, int64_t length, const RecordLayout& layout,
-                         const std::vector<RecordWindow>& windows, Contig& contig, SoftMasked soft) {
+void read_record_windows(const std::string& path, const std::string& name, int64_t length,
+                         const RecordLayout& layout, const std::vector<RecordWindow>& windows,
+                         Contig& contig, SoftMasked soft) {
     if (layout.line_bases <= 0 || layout.line_bytes < layout.line_bases)
         throw InternalError("read_record_windows: no line layout for record " + name);
     const std::unique_ptr<detail::ByteSource> source = detail::open_byte_source(path);
@@ -216,17 +219,20 @@ void read_record_windows(const std::string& path, const std::string& name, int64
     // Bases [from, to), lowercase counted when count.
     const auto read_range = [&](int64_t from, int64_t to, bool count) {
         if (from >= to) return;
-        const int64_t byte = layout.offset + from / layout.line_bases * layout.line_bytes + from % layout.line_bases;
+        const int64_t byte =
+            layout.offset + from / layout.line_bases * layout.line_bytes + from % layout.line_bases;
         if (!source->seek(byte))
-            throw InputError(fmt::format("{}: cannot move to record '{}' position {} (through the .fai/.gzi index)",
-                                         path, name, from + 1));
+            throw InputError(fmt::format(
+                "{}: cannot move to record '{}' position {} (through the .fai/.gzi index)", path,
+                name, from + 1));
         int64_t pos = from;
         while (pos < to) {
             const size_t got = source->read(buf.get(), buf_size);
             if (got == 0)
-                throw InputError(fmt::format("{}: record '{}' ends at position {}, before its length {} in the "
-                                             ".fai index; delete the index and rerun",
-                                             path, name, pos, length));
+                throw InputError(
+                    fmt::format("{}: record '{}' ends at position {}, before its length {} in the "
+                                ".fai index; delete the index and rerun",
+                                path, name, pos, length));
             size_t n = 0;
             for (size_t i = 0; i < got && pos + static_cast<int64_t>(n) < to; ++i) {
                 const auto ch = static_cast<unsigned char>(buf[i]);
@@ -235,8 +241,9 @@ void read_record_windows(const std::string& path, const std::string& name, int64
                     codes[n++] = v & 7;
                     if (count) contig.soft_masked += v >> 3;
                 } else if (ch != '\n' && ch != '\r' && classes[ch] != detail::byte_space) {
-                    throw InputError(fmt::format("{}: record '{}': illegal character {} at position {}", path, name,
-                                                 detail::describe_byte(ch), pos + static_cast<int64_t>(n) + 1));
+                    throw InputError(fmt::format(
+                        "{}: record '{}': illegal character {} at position {}", path, name,
+                        detail::describe_byte(ch), pos + static_cast<int64_t>(n) + 1));
                 }
             }
             contig.append(codes.get(), static_cast<int64_t>(n));
@@ -246,7 +253,8 @@ void read_record_windows(const std::string& path, const std::string& name, int64
     contig.clear();
     contig.name = name;
     for (const RecordWindow& w : windows) {
-        if (w.begin < contig.length || w.end > length || w.count_begin < w.begin || w.count_end > w.end)
+        if (w.begin < contig.length || w.end > length || w.count_begin < w.begin ||
+            w.count_end > w.end)
             throw InternalError("read_record_windows: windows out of order or outside the record");
         contig.append_unknown(w.begin - contig.length);
         read_range(w.begin, w.count_begin, false);
@@ -256,7 +264,8 @@ void read_record_windows(const std::string& path, const std::string& name, int64
     contig.append_unknown(length - contig.length);
 }
 
-std::unique_ptr<SequenceSource> open_fasta_records(const std::string& path, std::vector<RecordStart> starts) {
+std::unique_ptr<SequenceSource> open_fasta_records(const std::string& path,
+                                                   std::vector<RecordStart> starts) {
     return std::make_unique<FastaStream>(path, std::move(starts));
 }
 

@@ -58,8 +58,8 @@ void parse_line(const std::string& line, const std::string& display, int64_t num
     iv.begin = parse_coordinate(fields[1], where, "start");
     iv.end = parse_coordinate(fields[2], where, "end");
     if (iv.begin > iv.end)
-        throw InputError(fmt::format("{}: start {} is greater than end {}", where, iv.begin,
-                                     iv.end));
+        throw InputError(
+            fmt::format("{}: start {} is greater than end {}", where, iv.begin, iv.end));
     if (fields.size() > 3) iv.name = fields[3];
     iv.line = number;
     out.push_back(std::move(iv));

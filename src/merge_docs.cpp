@@ -42,8 +42,8 @@ ShardDoc read_doc(const std::string& path, const char* format) {
 // command and the track prefix may differ in output names, so they are not compared.
 ordered_json run_identity(const ordered_json& doc) {
     ordered_json id;
-    for (const char* key :
-         {"format", "tool_version", "inputs", "profile", "profile_crc32", "options", "decode", "soft_masked"})
+    for (const char* key : {"format", "tool_version", "inputs", "profile", "profile_crc32",
+                            "options", "decode", "soft_masked"})
         if (doc.contains(key)) id[key] = doc[key];
     if (id.contains("options") && id["options"].is_object()) id["options"].erase("posteriors");
     id["shard_options"] = doc["shard"].value("options", ordered_json::object());

@@ -361,18 +361,19 @@ std::unique_ptr<BigWigWriter> merge_bigwig(const std::vector<ShardDoc>& docs, co
                                                  lengths[doc].at(name)));
         const int sequence = out->add_sequence(name, length);
         // The intervals of [from, to) in file k must follow in order inside it, as scan writes them
-        // (tiling it but for long unknown runs); anything else means a file of another shard or run.
+        // (tiling it but for long unknown runs); anything else means a file of another shard or
+        // run.
         bool held = false;
         BigWigReader::Interval last;
         const auto copy = [&](size_t k, int64_t from, int64_t to, bool stitch) {
             int64_t at = from;
             readers[k]->intervals(name, from, to, [&](const BigWigReader::Interval& iv) {
                 if (iv.start < at || iv.end > to || iv.end <= iv.start)
-                    throw InputError(
-                        fmt::format("{}: interval {}:{}-{} (0-based, half-open) does not continue the track of "
-                                    "{}:{}-{} at {}; the file does not belong to {}",
-                                    files[k], name, iv.start, iv.end, name, from, to, at,
-                                    shard_label(docs[k])));
+                    throw InputError(fmt::format(
+                        "{}: interval {}:{}-{} (0-based, half-open) does not continue the track of "
+                        "{}:{}-{} at {}; the file does not belong to {}",
+                        files[k], name, iv.start, iv.end, name, from, to, at,
+                        shard_label(docs[k])));
                 at = iv.end;
                 if (!stitch) {
                     out->add(sequence, iv.start, iv.end, iv.value);

@@ -50,7 +50,9 @@ extern "C" void remove_temps_and_die(int sig) {
     std::raise(sig);
 }
 
-std::string error_text() { return std::strerror(errno); }
+std::string error_text() {
+    return std::strerror(errno);
+}
 
 // mkstemp creates 0600; give finished files the permissions a normal create would have.
 void set_default_mode(const std::string& path) {
@@ -67,14 +69,17 @@ void check_bgzip_name(const std::string& path, const std::string& option) {
         return path.size() > n && path.compare(path.size() - n, n, end) == 0;
     };
     if (path.empty() || path == "-" || ends_with(".gz") || ends_with(".bgz")) return;
-    throw UsageError(option + " '" + path + "': --bgzip writes it compressed (BGZF), so name it '" + path +
+    throw UsageError(option + " '" + path + "': --bgzip writes it compressed (BGZF), so name it '" +
+                     path +
                      ".gz': browsers, tabix and zcat recognise compressed files by that ending");
 }
 
 std::string bgzip_to_stdout(const std::string& option) {
     if (isatty(STDOUT_FILENO))
-        throw UsageError("--bgzip would write compressed bytes to the terminal; give " + option + " FILE.gz");
-    return "--bgzip to standard output: compressed (BGZF) without a tabix index, which needs a file; give " +
+        throw UsageError("--bgzip would write compressed bytes to the terminal; give " + option +
+                         " FILE.gz");
+    return "--bgzip to standard output: compressed (BGZF) without a tabix index, which needs a "
+           "file; give " +
            option + " FILE.gz for both, or index the stream's file with 'tabix -p bed'";
 }
 
@@ -93,8 +98,8 @@ StagedPath::StagedPath(std::string target) : target_(std::move(target)) {
     temp_ = dir + "." + base + ".tidemark-XXXXXX";
     fd_ = mkstemp(temp_.data());
     if (fd_ < 0 && errno == ENOENT)
-        throw IoError(target_ + ": cannot create output file: its folder '" + (dir.empty() ? "." : dir) +
-                      "' does not exist");
+        throw IoError(target_ + ": cannot create output file: its folder '" +
+                      (dir.empty() ? "." : dir) + "' does not exist");
     if (fd_ < 0) throw IoError(target_ + ": cannot create output file: " + error_text());
     slot_ = register_temp(temp_);
 }
@@ -133,7 +138,7 @@ OutputFile::OutputFile(std::string path, OutputFormat format)
         format_.tabix = false;
         fd = format_.bgzip ? dup(STDOUT_FILENO) : -1;
     } else {
-        struct stat st{};
+        struct stat st {};
         if (stat(path_.c_str(), &st) == 0 && !S_ISREG(st.st_mode)) {
             if (S_ISDIR(st.st_mode)) throw IoError(path_ + ": is a folder, not a file");
             // A device or FIFO (/dev/stdout, /dev/full, a named pipe) cannot be replaced by
@@ -174,11 +179,12 @@ OutputFile::~OutputFile() {
 void OutputFile::write(std::string_view data) {
     if (committed_) throw InternalError(path_ + ": write after commit");
     if (data.empty()) return;
-    const bool ok = bgzf_ ? bgzf_write(bgzf_, data.data(), data.size()) == static_cast<ssize_t>(data.size())
-                          : std::fwrite(data.data(), 1, data.size(), file_) == data.size();
+    const bool ok =
+        bgzf_ ? bgzf_write(bgzf_, data.data(), data.size()) == static_cast<ssize_t>(data.size())
+              : std::fwrite(data.data(), 1, data.size(), file_) == data.size();
     if (!ok)
-        throw IoError((stdout_ ? std::string("standard output") : path_) + ": write failed: " +
-                      error_text());
+        throw IoError((stdout_ ? std::string("standard output") : path_) +
+                      ": write failed: " + error_text());
 }
 
 void OutputFile::commit() {

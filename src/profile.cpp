@@ -3,12 +3,12 @@
 #include "tidemark/profile.hpp"
 
 #include <fmt/format.h>
-#include <zlib.h>
 #include <sys/stat.h>
+#include <zlib.h>
 
 #include <algorithm>
-#include <cstdio>
 #include <cmath>
+#include <cstdio>
 #include <fstream>
 #include <limits>
 #include <nlohmann/json.hpp>
@@ -33,8 +33,8 @@ size_t edit_distance(const std::string& a, const std::string& b) {
     for (size_t i = 1; i <= a.size(); ++i) {
         cur[0] = i;
         for (size_t j = 1; j <= b.size(); ++j)
-            cur[j] = std::min({prev[j] + 1, cur[j - 1] + 1,
-                               prev[j - 1] + (a[i - 1] == b[j - 1] ? 0 : 1)});
+            cur[j] = std::min(
+                {prev[j] + 1, cur[j - 1] + 1, prev[j - 1] + (a[i - 1] == b[j - 1] ? 0 : 1)});
         std::swap(prev, cur);
     }
     return prev[b.size()];
@@ -122,16 +122,18 @@ void check_ties(const Profile& p, const Validator& v) {
                                                    a.tie, b.order, b.name, a.order));
             if (std::abs(a.gc.mean - b.gc.mean) > tie_tolerance ||
                 std::abs(a.gc.dispersion - b.gc.dispersion) > tie_tolerance)
-                v.fail(where + ".tie", fmt::format("tie group '{}': gc differs from '{}'; tied states must "
-                                                   "carry identical emissions",
-                                                   a.tie, b.name));
+                v.fail(where + ".tie",
+                       fmt::format("tie group '{}': gc differs from '{}'; tied states must "
+                                   "carry identical emissions",
+                                   a.tie, b.name));
             for (size_t r = 0; r < a.emissions.size(); ++r)
                 for (int c = 0; c < 4; ++c)
                     if (std::abs(a.emissions[r][c] - b.emissions[r][c]) > tie_tolerance)
-                        v.fail(where + ".tie",
-                               fmt::format("tie group '{}': emissions[{}][{}] is {} here but {} in "
-                                           "'{}'; tied states must carry identical emissions",
-                                           a.tie, r, c, a.emissions[r][c], b.emissions[r][c], b.name));
+                        v.fail(
+                            where + ".tie",
+                            fmt::format("tie group '{}': emissions[{}][{}] is {} here but {} in "
+                                        "'{}'; tied states must carry identical emissions",
+                                        a.tie, r, c, a.emissions[r][c], b.emissions[r][c], b.name));
             break;  // equal to the first member found, hence to all of them
         }
     }
@@ -157,13 +159,14 @@ void check_chains(const Profile& p, const Validator& v) {
                                r.name, r.min_length, s.name));
     }
     if (compiled > max_compiled_states)
-        v.fail("regions", fmt::format("the min_length chains expand the model to {} states; at most {} "
-                                      "are supported (lower min_length)",
-                                      compiled, max_compiled_states));
+        v.fail("regions",
+               fmt::format("the min_length chains expand the model to {} states; at most {} "
+                           "are supported (lower min_length)",
+                           compiled, max_compiled_states));
 }
 
 std::string read_file(const std::string& path) {
-    struct stat st{};
+    struct stat st {};
     if (stat(path.c_str(), &st) == 0 && S_ISDIR(st.st_mode))
         throw ProfileError(path + ": is a directory, not a profile file");
     std::ifstream in(path, std::ios::binary);
@@ -207,11 +210,12 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     Profile p;
     const std::string format = v.string_field(doc, "format", "top level");
     if (format != profile_format)
-        v.fail("format", fmt::format("'{}' is not supported (expected '{}')", format,
-                                     profile_format));
+        v.fail("format",
+               fmt::format("'{}' is not supported (expected '{}')", format, profile_format));
     p.name = v.string_field(doc, "name", "top level");
     if (p.name.empty()) v.fail("name", "must not be empty");
-    if (doc.contains("description")) p.description = v.string_field(doc, "description", "top level");
+    if (doc.contains("description"))
+        p.description = v.string_field(doc, "description", "top level");
     if (doc.contains("sources")) {
         const json& s = doc["sources"];
         if (!s.is_array()) v.fail("sources", "must be an array of strings");
@@ -254,9 +258,12 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
             r.color = v.string_field(regions[i], "color", where);
             int rgb[3] = {-1, -1, -1};
             char extra = 0;
-            if (std::sscanf(r.color.c_str(), "%d,%d,%d%c", &rgb[0], &rgb[1], &rgb[2], &extra) != 3 ||
+            if (std::sscanf(r.color.c_str(), "%d,%d,%d%c", &rgb[0], &rgb[1], &rgb[2], &extra) !=
+                    3 ||
                 std::any_of(rgb, rgb + 3, [](int x) { return x < 0 || x > 255; }))
-                v.fail(where + ".color", "must be \"R,G,B\" with three integers from 0 to 255, not '" + r.color + "'");
+                v.fail(
+                    where + ".color",
+                    "must be \"R,G,B\" with three integers from 0 to 255, not '" + r.color + "'");
         }
         if (regions[i].contains("min_length")) {
             r.min_length = v.nonnegative_integer(regions[i]["min_length"], where + ".min_length");
@@ -273,7 +280,8 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         }
         p.regions.push_back(std::move(r));
     }
-    if (std::none_of(p.regions.begin(), p.regions.end(), [](const RegionSpec& r) { return r.report; }))
+    if (std::none_of(p.regions.begin(), p.regions.end(),
+                     [](const RegionSpec& r) { return r.report; }))
         v.fail("regions", "no region has \"report\": true, so nothing would be called");
 
     const json& states = v.field(doc, "states", "top level");
@@ -293,7 +301,8 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
                 v.fail(where + ".gc",
                        "'gc' emissions need a window profile (set window.size), per-base "
                        "states give 'order' and 'emissions'");
-            v.only_fields(states[i], where, {"name", "region", "order", "emissions", "description", "tie"});
+            v.only_fields(states[i], where,
+                          {"name", "region", "order", "emissions", "description", "tie"});
         }
         StateSpec s;
         s.name = v.string_field(states[i], "name", where);
@@ -311,7 +320,8 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
                 const std::string at = where + ".gc." + key;
                 if (!x.is_number()) v.fail(at, "must be a number");
                 const double value = x.get<double>();
-                if (!(value > 0 && value < 1)) v.fail(at, fmt::format("must lie strictly between 0 and 1, not {}", value));
+                if (!(value > 0 && value < 1))
+                    v.fail(at, fmt::format("must lie strictly between 0 and 1, not {}", value));
                 return value;
             };
             s.gc.mean = open_unit("mean");
@@ -326,31 +336,31 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
                                    "{}; both must be positive and finite",
                                    s.gc.mean, s.gc.dispersion, alpha, beta));
         } else {
-        const json& order = v.field(states[i], "order", where);
-        if (!order.is_number_integer() || order.get<int64_t>() < 0 ||
-            order.get<int64_t>() > max_emission_order)
-            v.fail(where + ".order",
-                   fmt::format("must be an integer from 0 to {}", max_emission_order));
-        s.order = order.get<int>();
-        const json& rows = v.field(states[i], "emissions", where);
-        const size_t expected = size_t{1} << (2 * s.order);
-        if (!rows.is_array() || rows.size() != expected)
-            v.fail(where + ".emissions",
-                   fmt::format("must be an array of {} rows (4^order) of 4 probabilities",
-                               expected));
-        for (size_t r = 0; r < rows.size(); ++r) {
-            const std::string rw = fmt::format("{}.emissions[{}]", where, r);
-            if (!rows[r].is_array() || rows[r].size() != 4)
-                v.fail(rw, "must be 4 probabilities P(A), P(C), P(G), P(T)");
-            std::array<double, 4> row{};
-            double sum = 0;
-            for (int b = 0; b < 4; ++b) {
-                row[b] = v.probability(rows[r][b], fmt::format("{}[{}]", rw, b));
-                sum += row[b];
+            const json& order = v.field(states[i], "order", where);
+            if (!order.is_number_integer() || order.get<int64_t>() < 0 ||
+                order.get<int64_t>() > max_emission_order)
+                v.fail(where + ".order",
+                       fmt::format("must be an integer from 0 to {}", max_emission_order));
+            s.order = order.get<int>();
+            const json& rows = v.field(states[i], "emissions", where);
+            const size_t expected = size_t{1} << (2 * s.order);
+            if (!rows.is_array() || rows.size() != expected)
+                v.fail(where + ".emissions",
+                       fmt::format("must be an array of {} rows (4^order) of 4 probabilities",
+                                   expected));
+            for (size_t r = 0; r < rows.size(); ++r) {
+                const std::string rw = fmt::format("{}.emissions[{}]", where, r);
+                if (!rows[r].is_array() || rows[r].size() != 4)
+                    v.fail(rw, "must be 4 probabilities P(A), P(C), P(G), P(T)");
+                std::array<double, 4> row{};
+                double sum = 0;
+                for (int b = 0; b < 4; ++b) {
+                    row[b] = v.probability(rows[r][b], fmt::format("{}[{}]", rw, b));
+                    sum += row[b];
+                }
+                v.sums_to_one(sum, rw);
+                s.emissions.push_back(row);
             }
-            v.sums_to_one(sum, rw);
-            s.emissions.push_back(row);
-        }
         }
         if (states[i].contains("tie")) {
             s.tie = v.string_field(states[i], "tie", where);
@@ -366,7 +376,8 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
 
     const size_t S = p.states.size();
     const json& initial = v.field(doc, "initial", "top level");
-    if (!initial.is_object()) v.fail("initial", "must be an object mapping state names to probabilities");
+    if (!initial.is_object())
+        v.fail("initial", "must be an object mapping state names to probabilities");
     p.initial.assign(S, 0.0);
     double isum = 0;
     for (const auto& [name, value] : initial.items()) {
@@ -476,7 +487,7 @@ Profile load_profile(const std::string& name_or_path) {
     for (const auto& b : builtin_profiles())
         if (b.name == name_or_path)
             return parse_profile(b.json, "built-in profile '" + std::string(b.name) + "'");
-    struct stat st{};
+    struct stat st {};
     if (stat(name_or_path.c_str(), &st) != 0) {
         std::string names;
         std::vector<std::string> builtins;
@@ -484,8 +495,9 @@ Profile load_profile(const std::string& name_or_path) {
             names += (names.empty() ? "" : ", ") + std::string(b.name);
             builtins.emplace_back(b.name);
         }
-        throw ProfileError(fmt::format("'{}' is neither a built-in profile ({}) nor a readable file{}", name_or_path,
-                                       names, did_you_mean(name_or_path, builtins)));
+        throw ProfileError(
+            fmt::format("'{}' is neither a built-in profile ({}) nor a readable file{}",
+                        name_or_path, names, did_you_mean(name_or_path, builtins)));
     }
     return parse_profile(read_file(name_or_path), name_or_path);
 }

@@ -7,9 +7,9 @@
 
 #include <atomic>
 #include <cstdio>
-#include <mutex>
 #include <cstdlib>
 #include <cstring>
+#include <mutex>
 
 namespace tidemark {
 namespace {
@@ -45,7 +45,8 @@ Stopwatch::Stopwatch() : start_(std::chrono::steady_clock::now()), cpu_start_(cp
 
 ResourceUsage Stopwatch::now() const {
     ResourceUsage u;
-    u.wall_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start_).count();
+    u.wall_seconds =
+        std::chrono::duration<double>(std::chrono::steady_clock::now() - start_).count();
     u.cpu_seconds = cpu_seconds() - cpu_start_;
     u.peak_rss_bytes = peak_rss_bytes();
     return u;
@@ -68,7 +69,8 @@ struct ProgressMeter::Shared {
     bool drawn = false;
 };
 
-ProgressMeter::ProgressMeter(bool enabled, int64_t total_bases) : shared_(std::make_shared<Shared>()) {
+ProgressMeter::ProgressMeter(bool enabled, int64_t total_bases)
+    : shared_(std::make_shared<Shared>()) {
     shared_->enabled = enabled;
     shared_->total = total_bases;
     shared_->start = std::chrono::steady_clock::now();
@@ -107,13 +109,16 @@ void ProgressMeter::draw(bool force) {
     const double elapsed = std::chrono::duration<double>(now - sh.start).count();
     const int64_t done = sh.done.load(std::memory_order_relaxed);
     const double rate = elapsed > 0 ? static_cast<double>(done) / elapsed : 0;  // bases/s
-    std::string line = fmt::format("tidemark: {} ({:.1f} Mbp)  {:.1f} Mbp done", sh.contig_name,
-                                   static_cast<double>(sh.contig_length) / 1e6, static_cast<double>(done) / 1e6);
+    std::string line =
+        fmt::format("tidemark: {} ({:.1f} Mbp)  {:.1f} Mbp done", sh.contig_name,
+                    static_cast<double>(sh.contig_length) / 1e6, static_cast<double>(done) / 1e6);
     if (sh.total > 0)
-        line += fmt::format("  (run {:.1f}%)", 100.0 * static_cast<double>(done) / static_cast<double>(sh.total));
+        line += fmt::format("  (run {:.1f}%)",
+                            100.0 * static_cast<double>(done) / static_cast<double>(sh.total));
     line += fmt::format("  {:.1f} Mbp/s", rate / 1e6);
     const int64_t remaining = sh.total - done;
-    if (sh.total > 0 && rate > 0 && remaining > 0) line += "  ETA " + clock_text(static_cast<double>(remaining) / rate);
+    if (sh.total > 0 && rate > 0 && remaining > 0)
+        line += "  ETA " + clock_text(static_cast<double>(remaining) / rate);
     std::fprintf(stderr, "\r%-100s", line.c_str());
     std::fflush(stderr);
     sh.drawn = true;

@@ -2,14 +2,13 @@
 #include <fmt/format.h>
 #include <htslib/bgzf.h>
 #include <htslib/faidx.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 #include <algorithm>
 #include <cerrno>
 #include <cstdlib>
 #include <cstring>
-#include <sys/stat.h>
-#include <unistd.h>
-
 #include <map>
 #include <memory>
 #include <mutex>
@@ -88,10 +87,11 @@ const TemporaryIndex* temporary_index(const std::string& path) {
     index->fai = folder + "/index.fai";
     index->gzi = folder + "/index.gzi";
     if (fai_build3(path.c_str(), index->fai.c_str(), index->gzi.c_str()) != 0) return nullptr;
-    Logger().warn(fmt::format("{}: cannot write its index beside it ({}.fai; a read-only folder?), so it is "
-                              "indexed in a temporary folder for this run only; index it once where it can be "
-                              "written to save that time",
-                              path, path));
+    Logger().warn(fmt::format(
+        "{}: cannot write its index beside it ({}.fai; a read-only folder?), so it is "
+        "indexed in a temporary folder for this run only; index it once where it can be "
+        "written to save that time",
+        path, path));
     slot = std::move(index);
     return slot.get();
 }
@@ -99,7 +99,7 @@ const TemporaryIndex* temporary_index(const std::string& path) {
 FaiPtr load_index(const std::string& path) {
     if (path == "-")
         throw InputError("--region needs a file: standard input cannot be read by region");
-    struct stat st{};
+    struct stat st {};
     if (stat(path.c_str(), &st) != 0)
         throw InputError(path + ": cannot open: " + std::strerror(errno));
     if (S_ISDIR(st.st_mode)) throw InputError(path + ": is a directory, not a sequence file");
@@ -110,7 +110,9 @@ FaiPtr load_index(const std::string& path) {
     if (compression == 1)
         throw InputError(path +
                          ": is plain gzip, which cannot be read by region; recompress it with "
-                         "'zcat " + path + " | bgzip > NEW.fa.gz' (bgzip is in Debian's tabix "
+                         "'zcat " +
+                         path +
+                         " | bgzip > NEW.fa.gz' (bgzip is in Debian's tabix "
                          "package) or drop --region to stream the whole file");
     // Built here under temporary names first, so that concurrent runs (shards) never read a
     // half-written index; FAI_CREATE remains for a read-only folder, where nothing is written.
@@ -154,8 +156,8 @@ std::string no_such_sequence(const faidx_t* fai, const std::string& path, const 
     for (const auto& n : closest) list += (list.empty() ? "" : ", ") + n;
     return fmt::format("no sequence named '{}' in {}{}", name, path,
                        closest.empty() ? std::string(" (it has no sequences)")
-                                       : fmt::format("; closest names: {} (of {} sequence{})", list, names.size(),
-                                                     names.size() == 1 ? "" : "s"));
+                                       : fmt::format("; closest names: {} (of {} sequence{})", list,
+                                                     names.size(), names.size() == 1 ? "" : "s"));
 }
 
 Region parse_region(const faidx_t* fai, const std::string& path, const std::string& text) {
@@ -172,7 +174,8 @@ Region parse_region(const faidx_t* fai, const std::string& path, const std::stri
         throw InputError(fmt::format("region '{}': {}", text, no_such_sequence(fai, path, text)));
     r.contig = text.substr(0, colon);
     if (!faidx_has_seq(fai, r.contig.c_str()))
-        throw InputError(fmt::format("region '{}': {}", text, no_such_sequence(fai, path, r.contig)));
+        throw InputError(
+            fmt::format("region '{}': {}", text, no_such_sequence(fai, path, r.contig)));
     const int64_t length = faidx_seq_len(fai, r.contig.c_str());
     const std::string range = text.substr(colon + 1);
     const size_t dash = range.find('-');
@@ -182,19 +185,22 @@ Region parse_region(const faidx_t* fai, const std::string& path, const std::stri
         last = parse_position(range.substr(dash + 1), text);
     // Positions in these messages are the region string's: 1-based, inclusive.
     if (first < 1)
-        throw InputError(fmt::format("region '{}': start must be at least 1 (region strings are 1-based, inclusive)",
-                                     text));
+        throw InputError(fmt::format(
+            "region '{}': start must be at least 1 (region strings are 1-based, inclusive)", text));
     if (first > length)
-        throw InputError(fmt::format("region '{}': start {} is past the end of '{}', which has {} bp (region strings "
-                                     "are 1-based, inclusive)",
-                                     text, first, r.contig, length));
+        throw InputError(fmt::format(
+            "region '{}': start {} is past the end of '{}', which has {} bp (region strings "
+            "are 1-based, inclusive)",
+            text, first, r.contig, length));
     if (last < first)
-        throw InputError(fmt::format("region '{}': end {} is before start {} (region strings are 1-based, inclusive)",
-                                     text, last, first));
+        throw InputError(fmt::format(
+            "region '{}': end {} is before start {} (region strings are 1-based, inclusive)", text,
+            last, first));
     if (last > length)
-        throw InputError(fmt::format("region '{}': end {} is past the end of '{}', which has {} bp (region strings "
-                                     "are 1-based, inclusive)",
-                                     text, last, r.contig, length));
+        throw InputError(fmt::format(
+            "region '{}': end {} is past the end of '{}', which has {} bp (region strings "
+            "are 1-based, inclusive)",
+            text, last, r.contig, length));
     r.begin = first - 1;
     r.end = last;
     return r;
@@ -202,8 +208,9 @@ Region parse_region(const faidx_t* fai, const std::string& path, const std::stri
 
 // Appends bases [from, to) of sequence `name` to contig, fetched in bounded pieces (memory
 // stays flat on chromosomes); lowercase bases are counted when count_soft.
-void append_fetched(faidx_t* fai, const std::string& path, const std::string& name, int64_t from, int64_t to,
-                    bool count_soft, SoftMasked soft, Contig& contig, std::vector<uint8_t>& codes) {
+void append_fetched(faidx_t* fai, const std::string& path, const std::string& name, int64_t from,
+                    int64_t to, bool count_soft, SoftMasked soft, Contig& contig,
+                    std::vector<uint8_t>& codes) {
     const auto& table = detail::sequence_codes(soft);
     constexpr int64_t piece = 1 << 20;
     for (int64_t pos = from; pos < to; pos += piece) {
@@ -212,8 +219,9 @@ void append_fetched(faidx_t* fai, const std::string& path, const std::string& na
         char* seq = faidx_fetch_seq64(fai, name.c_str(), pos, last, &got);
         if (!seq || got != last - pos + 1) {
             std::free(seq);
-            throw InputError(fmt::format("{}: cannot read {}:{}-{} (1-based, inclusive) through the index", path, name,
-                                         pos + 1, last + 1));
+            throw InputError(
+                fmt::format("{}: cannot read {}:{}-{} (1-based, inclusive) through the index", path,
+                            name, pos + 1, last + 1));
         }
         codes.resize(static_cast<size_t>(got));
         for (hts_pos_t k = 0; k < got; ++k) {
@@ -221,8 +229,9 @@ void append_fetched(faidx_t* fai, const std::string& path, const std::string& na
             const uint8_t v = table[ch];
             if (v & detail::not_a_base) {
                 std::free(seq);
-                throw InputError(fmt::format("{}: record '{}': illegal character {} at position {} (1-based)", path, name,
-                                             detail::describe_byte(ch), pos + k + 1));
+                throw InputError(
+                    fmt::format("{}: record '{}': illegal character {} at position {} (1-based)",
+                                path, name, detail::describe_byte(ch), pos + k + 1));
             }
             codes[k] = v & 7;
             if (count_soft) contig.soft_masked += v >> 3;  // lowercase_flag
@@ -246,7 +255,8 @@ public:
         contig.name = r.contig;
         contig.offset = r.begin;
         contig.sequence_length = faidx_seq_len(fai_.get(), r.contig.c_str());
-        append_fetched(fai_.get(), path_, r.contig, r.begin, r.end, true, soft_masked_, contig, codes_);
+        append_fetched(fai_.get(), path_, r.contig, r.begin, r.end, true, soft_masked_, contig,
+                       codes_);
         return true;
     }
 
@@ -263,7 +273,8 @@ private:
 bool ensure_fasta_index(const std::string& path) {
     const int kind = indexable(path);
     if (kind < 0) return false;
-    if (newer_or_same(path + ".fai", path) && (kind == 0 || newer_or_same(path + ".gzi", path))) return true;
+    if (newer_or_same(path + ".fai", path) && (kind == 0 || newer_or_same(path + ".gzi", path)))
+        return true;
     return build_index(path);
 }
 
@@ -275,12 +286,14 @@ std::vector<Region> resolve_regions(const std::string& path,
     for (const auto& s : region_strings) regions.push_back(parse_region(fai.get(), path, s));
     for (const auto& iv : bed_regions) {
         if (!faidx_has_seq(fai.get(), iv.chrom.c_str()))
-            throw InputError(fmt::format("regions BED: {}", no_such_sequence(fai.get(), path, iv.chrom)));
+            throw InputError(
+                fmt::format("regions BED: {}", no_such_sequence(fai.get(), path, iv.chrom)));
         const int64_t length = faidx_seq_len(fai.get(), iv.chrom.c_str());
         if (iv.end > length)
-            throw InputError(fmt::format("regions BED: interval '{} {} {}' (0-based, half-open) ends past the end of "
-                                         "'{}', which has {} bp",
-                                         iv.chrom, iv.begin, iv.end, iv.chrom, length));
+            throw InputError(fmt::format(
+                "regions BED: interval '{} {} {}' (0-based, half-open) ends past the end of "
+                "'{}', which has {} bp",
+                iv.chrom, iv.begin, iv.end, iv.chrom, length));
         if (iv.end > iv.begin) regions.push_back({iv.chrom, iv.begin, iv.end});
     }
     std::vector<int> rank(regions.size());
@@ -298,11 +311,12 @@ std::vector<Region> resolve_regions(const std::string& path,
     for (size_t i : order) {
         const Region& r = regions[i];
         if (!sorted.empty() && sorted.back().contig == r.contig && r.begin < sorted.back().end)
-            throw InputError(fmt::format(
-                "regions {}:{}-{} and {}:{}-{} (1-based, inclusive) overlap; give disjoint regions (decoding "
-                "each region separately would report the overlap twice)",
-                sorted.back().contig, sorted.back().begin + 1, sorted.back().end, r.contig,
-                r.begin + 1, r.end));
+            throw InputError(
+                fmt::format("regions {}:{}-{} and {}:{}-{} (1-based, inclusive) overlap; give "
+                            "disjoint regions (decoding "
+                            "each region separately would report the overlap twice)",
+                            sorted.back().contig, sorted.back().begin + 1, sorted.back().end,
+                            r.contig, r.begin + 1, r.end));
         sorted.push_back(r);
     }
     return sorted;

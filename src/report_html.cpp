@@ -8,9 +8,9 @@
 #include <cmath>
 #include <tuple>
 
+#include "report_html_internal.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/track.hpp"
-#include "report_html_internal.hpp"
 
 namespace tidemark {
 
@@ -627,7 +627,6 @@ struct Page {
         out += "</table></div>\n</section>\n";
     }
 };
-
 
 }  // namespace
 

@@ -93,7 +93,7 @@ inline const char* criteria_name(IslandCriteria c) {
 // A stepped outline of stacked values along x: the top of layer k over bins [x_i, x_{i+1}).
 // Consecutive bins of the same height share one segment.
 inline std::string step_area(const std::vector<double>& xs, const std::vector<double>& lower,
-                      const std::vector<double>& upper, double y0, double height) {
+                             const std::vector<double>& upper, double y0, double height) {
     const size_t n = upper.size();
     if (n == 0) return "";
     const auto y = [&](double v) { return px(y0 + height * (1.0 - std::clamp(v, 0.0, 1.0))); };

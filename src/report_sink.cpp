@@ -1,7 +1,5 @@
 // The HTML report's sink: a bounded posterior sketch of each sequence collected while decoding,
 // and the calls and windows the page shows (the page itself: report_html.cpp).
-#include "tidemark/report_html.hpp"
-
 #include <fmt/format.h>
 
 #include <algorithm>
@@ -9,6 +7,7 @@
 #include <tuple>
 
 #include "tidemark/error.hpp"
+#include "tidemark/report_html.hpp"
 #include "tidemark/track.hpp"
 
 namespace tidemark {

@@ -18,8 +18,9 @@ inline uint64_t splitmix64(uint64_t& state) {
 
 /// xoshiro256** 1.0 (Blackman & Vigna 2021, "Scrambled linear pseudorandom number generators",
 /// ACM Trans. Math. Softw. 47:36; citation from memory; constants 5, 7, 9, 17, 45 as
-/// published, checked against test vectors in tests/simulate.cpp). Written out here rather than taken from <random> so that a
-/// seed gives the same stream with every compiler and standard library.
+/// published, checked against test vectors in tests/simulate.cpp). Written out here rather than
+/// taken from <random> so that a seed gives the same stream with every compiler and standard
+/// library.
 class Xoshiro256ss {
 public:
     explicit Xoshiro256ss(uint64_t seed) {

@@ -5,20 +5,20 @@
 
 #include <algorithm>
 #include <deque>
-#include <limits>
 #include <future>
+#include <limits>
 #include <memory>
 #include <nlohmann/json.hpp>
 #include <unordered_map>
 
+#include "byte_source.hpp"
+#include "thread_pool.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/intervals.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/report_html.hpp"
 #include "tidemark/shard.hpp"
 #include "tidemark/window.hpp"
-#include "byte_source.hpp"
-#include "thread_pool.hpp"
 
 namespace tidemark {
 
@@ -43,12 +43,14 @@ std::string recorded_command_line(const std::string& command_line) {
     std::string out;
     for (size_t i = 0; i < words.size(); ++i) {
         const std::string& w = words[i];
-        if ((w == "-t" || w == "--threads" || w == "--shard" || w == "--seams") && i + 1 < words.size()) {
+        if ((w == "-t" || w == "--threads" || w == "--shard" || w == "--seams") &&
+            i + 1 < words.size()) {
             ++i;  // the option's value
             continue;
         }
-        if (w == "--whole-contigs" || w.rfind("--threads=", 0) == 0 || w.rfind("--shard=", 0) == 0 ||
-            w.rfind("--seams=", 0) == 0 || (w.rfind("-t", 0) == 0 && digits_from(w, 2)))
+        if (w == "--whole-contigs" || w.rfind("--threads=", 0) == 0 ||
+            w.rfind("--shard=", 0) == 0 || w.rfind("--seams=", 0) == 0 ||
+            (w.rfind("-t", 0) == 0 && digits_from(w, 2)))
             continue;
         out += (out.empty() ? "" : " ") + w;
     }
@@ -66,13 +68,16 @@ void validate(const ScanOptions& o) {
     for (size_t i = 0; i < o.inputs.size(); ++i)
         for (size_t k = 0; k < i; ++k)
             if (o.inputs[i] == o.inputs[k] && o.inputs[i] != "-")
-                throw UsageError(fmt::format("'{}' is given twice; its records would be decoded twice", o.inputs[i]));
+                throw UsageError(fmt::format(
+                    "'{}' is given twice; its records would be decoded twice", o.inputs[i]));
     if (o.min_posterior && (!(*o.min_posterior > 0) || *o.min_posterior > 1))
         throw UsageError("--min-posterior must be in (0, 1]");
-    if (!(o.high_posterior > 0) || o.high_posterior > 1) throw UsageError("--core-posterior must be in (0, 1]");
+    if (!(o.high_posterior > 0) || o.high_posterior > 1)
+        throw UsageError("--core-posterior must be in (0, 1]");
     if (o.merge_gap && *o.merge_gap < 0) throw UsageError("--merge-gap must be >= 0");
     if (o.min_length && *o.min_length < 1) throw UsageError("--min-length must be >= 1");
-    if (o.tracks.digits < 0 || o.tracks.digits > 12) throw UsageError("--posterior-digits must be from 0 to 12");
+    if (o.tracks.digits < 0 || o.tracks.digits > 12)
+        throw UsageError("--posterior-digits must be from 0 to 12");
     if (o.tracks.bin < 1) throw UsageError("--bin must be at least 1");
     if (o.bgzip) check_bgzip_name(o.output, "-o/--output");
     if (o.tracks.format == TrackFormat::bigwig && o.tracks.prefix.empty())
@@ -84,16 +89,22 @@ void validate(const ScanOptions& o) {
     if ((!o.emit_seams.empty() || !o.seams.empty() || o.whole_contigs) && !o.shard.active())
         throw UsageError("--emit-seams, --seams and --whole-contigs go with --shard I/N");
     if ((!o.emit_seams.empty() || !o.seams.empty()) && o.decode == DecodeMode::viterbi)
-        throw UsageError("--emit-seams and --seams are for posterior decoding; Viterbi shards keep records whole");
+        throw UsageError(
+            "--emit-seams and --seams are for posterior decoding; Viterbi shards keep records "
+            "whole");
     if (!o.emit_seams.empty() && !o.seams.empty())
         throw UsageError("--emit-seams is the first step and --seams the second: give one of them");
     if (o.whole_contigs && (!o.emit_seams.empty() || !o.seams.empty()))
         throw UsageError("--whole-contigs keeps every record on one shard, so there are no seams");
     if (!o.html_path.empty() && o.shard.active())
-        throw UsageError("--html is written by a run over the whole input; merge does not build it from shards");
-    if (!o.emit_seams.empty() && (o.output != "-" || !o.summary_path.empty() || !o.report_path.empty() ||
-                                  !o.gff3_path.empty() || !o.chrom_sizes_path.empty() || !o.tracks.prefix.empty()))
-        throw UsageError("--emit-seams writes only the seams file; give the outputs to the second step (--seams)");
+        throw UsageError(
+            "--html is written by a run over the whole input; merge does not build it from shards");
+    if (!o.emit_seams.empty() &&
+        (o.output != "-" || !o.summary_path.empty() || !o.report_path.empty() ||
+         !o.gff3_path.empty() || !o.chrom_sizes_path.empty() || !o.tracks.prefix.empty()))
+        throw UsageError(
+            "--emit-seams writes only the seams file; give the outputs to the second step "
+            "(--seams)");
 }
 
 namespace {
@@ -130,7 +141,9 @@ RunOptions run_options(const ScanOptions& o, const CallOptions& c) {
     return r;
 }
 
-std::string display(const std::string& path) { return path == "-" ? "<stdin>" : path; }
+std::string display(const std::string& path) {
+    return path == "-" ? "<stdin>" : path;
+}
 
 std::string join_words(const std::vector<std::string>& words) {
     std::string out;
@@ -140,19 +153,20 @@ std::string join_words(const std::vector<std::string>& words) {
 
 // Record names key every output (BED, tracks, summary), so they must be unique across all inputs,
 // as the reader checks within one file.
-void check_unique_name(std::unordered_map<std::string, std::string>& first_input, const std::string& input,
-                       const std::string& name) {
+void check_unique_name(std::unordered_map<std::string, std::string>& first_input,
+                       const std::string& input, const std::string& name) {
     const auto [at, inserted] = first_input.emplace(name, input);
     if (!inserted && at->second != input)
-        throw InputError(fmt::format("{}: record '{}' has the same name as a record of {}; record names must be "
-                                     "unique across all inputs (outputs name records by name)",
-                                     display(input), name, display(at->second)));
+        throw InputError(
+            fmt::format("{}: record '{}' has the same name as a record of {}; record names must be "
+                        "unique across all inputs (outputs name records by name)",
+                        display(input), name, display(at->second)));
 }
 
 // Step 1 for shared records: the seams of this shard's segments, and nothing else.
-std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard, const std::string& identity,
-                                      Decoder& decoder, int threads, const Logger& log,
-                                      const std::vector<Region>& regions) {
+std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard,
+                                      const std::string& identity, Decoder& decoder, int threads,
+                                      const Logger& log, const std::vector<Region>& regions) {
     OutputFile out(o.emit_seams);
     TaskPool pool(threads);
     const std::vector<SeamsRecord> records =
@@ -161,18 +175,19 @@ std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard, 
     for (const auto& r : records) segments += r.seams.size();
     out.write(seams_json(o.shard, identity, records));
     out.commit();
-    log.info(fmt::format("shard {}/{}: seams of {} segments of {} shared records", o.shard.index, o.shard.count,
-                         segments, records.size()));
+    log.info(fmt::format("shard {}/{}: seams of {} segments of {} shared records", o.shard.index,
+                         o.shard.count, segments, records.size()));
     return {};
 }
 
 // Step 2 for a shared record: this shard's segments, decoded from every shard's seams; each
 // segment's caller and totals are kept for merge, the tracks are written for the pieces.
 SplitRecord decode_split(const Contig& contig, int64_t input_index, const ShardFilter& shard,
-                           const SeamsTable& seams, PosteriorDecoder& decoder, const IntervalCaller& caller,
-                           const RegionTotals& totals, PosteriorTracks* tracks, const ProgressMeter& progress,
-                           TaskPool* pool) {
-    const std::vector<SegmentSeam> all = seams.record(input_index, contig.name, contig.length, shard.segments());
+                         const SeamsTable& seams, PosteriorDecoder& decoder,
+                         const IntervalCaller& caller, const RegionTotals& totals,
+                         PosteriorTracks* tracks, const ProgressMeter& progress, TaskPool* pool) {
+    const std::vector<SegmentSeam> all =
+        seams.record(input_index, contig.name, contig.length, shard.segments());
     SplitRecord record;
     ContigSummary& s = record.whole;
     s.name = contig.name;
@@ -190,7 +205,8 @@ SplitRecord decode_split(const Contig& contig, int64_t input_index, const ShardF
     for (const ShardPiece& piece : pieces) {
         std::unique_ptr<DecodeSink> piece_caller = caller.fork(), piece_totals = totals.fork(),
                                     piece_progress = progress.fork(), piece_tracks;
-        std::vector<DecodeSink*> sinks = {piece_caller.get(), piece_totals.get(), piece_progress.get()};
+        std::vector<DecodeSink*> sinks = {piece_caller.get(), piece_totals.get(),
+                                          piece_progress.get()};
         if (tracks) {
             piece_tracks = tracks->fork();
             sinks.push_back(piece_tracks.get());
@@ -200,11 +216,13 @@ SplitRecord decode_split(const Contig& contig, int64_t input_index, const ShardF
         const auto take = [&](size_t k, DecodeSink& fork) {
             auto& parts = dynamic_cast<SinkFanout&>(fork);
             const int64_t begin = all[k].begin, end = all[k].end;
-            record.done.push_back(describe_segment(contig, k, begin, end, dynamic_cast<IntervalCaller&>(parts.part(0)),
+            record.done.push_back(describe_segment(contig, k, begin, end,
+                                                   dynamic_cast<IntervalCaller&>(parts.part(0)),
                                                    dynamic_cast<RegionTotals&>(parts.part(1))));
             if (piece_tracks) piece_tracks->join(parts.part(3));
         };
-        const DecodeResult result = decoder.run_segments(contig, all, piece.first, piece.last, fanout, take, pool);
+        const DecodeResult result =
+            decoder.run_segments(contig, all, piece.first, piece.last, fanout, take, pool);
         if (piece.last == record.segments) s.log_likelihood = result.log_likelihood;
         if (piece_tracks) {
             piece_tracks->end_contig(contig, result);  // the piece's last run ends at its end
@@ -219,7 +237,8 @@ SplitRecord decode_split(const Contig& contig, int64_t input_index, const ShardF
 std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     const Stopwatch clock;
     validate(o);
-    if (o.bgzip && o.output == "-" && o.emit_seams.empty()) log.warn(bgzip_to_stdout("-o/--output"));
+    if (o.bgzip && o.output == "-" && o.emit_seams.empty())
+        log.warn(bgzip_to_stdout("-o/--output"));
     const Profile profile = load_profile(o.profile);
     const Model decoding_model = compile(profile);
     // Window models decode one position per window; calls, tracks and totals see their
@@ -227,20 +246,23 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     const Model model = decoding_model.window > 0 ? region_view(decoding_model) : decoding_model;
 
     if (o.criteria != IslandCriteria::none &&
-        std::find(model.region_names.begin(), model.region_names.end(), island_region_name) == model.region_names.end())
-        throw UsageError(fmt::format("--island-criteria judges calls of the region type '{}', which profile '{}' does "
-                                     "not have; drop the option (its regions: {})",
-                                     island_region_name, model.name, join_words(model.region_names)));
+        std::find(model.region_names.begin(), model.region_names.end(), island_region_name) ==
+            model.region_names.end())
+        throw UsageError(fmt::format(
+            "--island-criteria judges calls of the region type '{}', which profile '{}' does "
+            "not have; drop the option (its regions: {})",
+            island_region_name, model.name, join_words(model.region_names)));
     CallOptions call_options;
     call_options.min_posterior = o.min_posterior.value_or(profile.calling.min_posterior);
     call_options.merge_gap = o.merge_gap.value_or(profile.calling.merge_gap);
     call_options.min_length = o.min_length.value_or(profile.calling.min_length);
     call_options.high_posterior = o.high_posterior;
     call_options.criteria = o.criteria;
-    log.detail(fmt::format("profile {}: {} states, {} regions, max order {}; calling: min posterior {}, "
-                           "merge gap {}, min length {}",
-                           model.name, decoding_model.states, model.region_names.size(), decoding_model.max_order,
-                           call_options.min_posterior, call_options.merge_gap, call_options.min_length));
+    log.detail(fmt::format(
+        "profile {}: {} states, {} regions, max order {}; calling: min posterior {}, "
+        "merge gap {}, min length {}",
+        model.name, decoding_model.states, model.region_names.size(), decoding_model.max_order,
+        call_options.min_posterior, call_options.merge_gap, call_options.min_length));
 
     DecoderOptions decoder_options;
     decoder_options.block_size = o.block_size;
@@ -251,7 +273,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     std::vector<Region> regions;
     int64_t total_bases = 0;
     if (!o.regions.empty() || !o.regions_bed.empty()) {
-        const std::vector<Interval> bed = o.regions_bed.empty() ? std::vector<Interval>{} : read_bed(o.regions_bed);
+        const std::vector<Interval> bed =
+            o.regions_bed.empty() ? std::vector<Interval>{} : read_bed(o.regions_bed);
         regions = resolve_regions(o.inputs[0], o.regions, bed);
         for (const auto& r : regions) total_bases += r.end - r.begin;
     }
@@ -274,17 +297,23 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     // Planned before any output exists, like the regions; every shard makes the same plan.
     ShardFilter shard(o.shard, o.inputs, regions, segment_length);
     shard.set_soft_masked(o.soft_masked);
-    const std::string identity = seams_identity(o.inputs, o.regions, o.regions_bed, profile_checksum(profile),
-                                                o.block_size, o.tracks.bin, segment_length);
-    if (!o.emit_seams.empty()) return emit_seams(o, shard, identity, decoders[0], threads, log, regions);
+    const std::string identity =
+        seams_identity(o.inputs, o.regions, o.regions_bed, profile_checksum(profile), o.block_size,
+                       o.tracks.bin, segment_length);
+    if (!o.emit_seams.empty())
+        return emit_seams(o, shard, identity, decoders[0], threads, log, regions);
     if (shard.has_pieces() && o.seams.empty())
-        throw UsageError(fmt::format(
-            "shard {}/{} decodes part of a record shared between shards ({}). Such records take two steps: "
-            "first 'scan ... --shard I/N --emit-seams seams.I.json' for every shard I, then this command "
-            "with '--seams seams.1.json --seams seams.2.json ...' (all of them); or add --whole-contigs to keep "
-            "every record on one shard",
-            o.shard.index, o.shard.count, join_words(shard.split_records())));
-    const SeamsTable seams = o.seams.empty() ? SeamsTable() : SeamsTable(o.seams, identity, o.shard);
+        throw UsageError(
+            fmt::format("shard {}/{} decodes part of a record shared between shards ({}). Such "
+                        "records take two steps: "
+                        "first 'scan ... --shard I/N --emit-seams seams.I.json' for every shard I, "
+                        "then this command "
+                        "with '--seams seams.1.json --seams seams.2.json ...' (all of them); or "
+                        "add --whole-contigs to keep "
+                        "every record on one shard",
+                        o.shard.index, o.shard.count, join_words(shard.split_records())));
+    const SeamsTable seams =
+        o.seams.empty() ? SeamsTable() : SeamsTable(o.seams, identity, o.shard);
 
     OutputFormat bed_format;
     bed_format.bgzip = o.bgzip;
@@ -344,7 +373,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         }
         if (contig.length == 0) {
             progress.finish();
-            log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(job.input), contig.name));
+            log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(job.input),
+                                 contig.name));
         }
         ContigSummary s;
         s.name = contig.name;
@@ -372,9 +402,9 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             last_sized = contig.name;
         }
         if (log.level() >= LogLevel::verbose) progress.finish();
-        log.detail(fmt::format("{}: {} bp, {} unknown, GC {:.4f}, log-likelihood {:.4f}, {} calls", s.name,
-                               s.length, s.unknown, s.composition.gc_fraction(), s.log_likelihood,
-                               caller.calls().size()));
+        log.detail(fmt::format("{}: {} bp, {} unknown, GC {:.4f}, log-likelihood {:.4f}, {} calls",
+                               s.name, s.length, s.unknown, s.composition.gc_fraction(),
+                               s.log_likelihood, caller.calls().size()));
         summaries.push_back(std::move(s));
         spare.push_back(std::move(job.contig));  // its chunks serve a later record
         jobs.pop_front();
@@ -400,16 +430,19 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             }
             if (!more) break;
             ++records;
-            if (regions.empty() && o.inputs.size() > 1) check_unique_name(names, input, job->contig.name);
+            if (regions.empty() && o.inputs.size() > 1)
+                check_unique_name(names, input, job->contig.name);
             if (!shard.take(job->contig)) continue;  // another shard's record
             job->input = input;
             job->input_index = shard.record_index();
             if (shard.split()) {  // this shard's segments of a shared record
                 while (!jobs.empty()) finish_oldest();
-                shared.push_back(decode_split(job->contig, job->input_index, shard, seams, *decoders[0].posterior,
-                                               caller, totals, tracks.get(), progress, threads > 1 ? &pool : nullptr));
+                shared.push_back(decode_split(job->contig, job->input_index, shard, seams,
+                                              *decoders[0].posterior, caller, totals, tracks.get(),
+                                              progress, threads > 1 ? &pool : nullptr));
                 if (sizes && job->contig.name != last_sized) {
-                    sizes->write(fmt::format("{}\t{}\n", job->contig.name, job->contig.full_length()));
+                    sizes->write(
+                        fmt::format("{}\t{}\n", job->contig.name, job->contig.full_length()));
                     last_sized = job->contig.name;
                 }
                 spare.push_back(std::move(job->contig));
@@ -427,7 +460,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
                 sinks.push_back(j->progress.get());
                 if (j->html) sinks.push_back(j->html.get());
                 SinkFanout fanout(sinks);
-                j->result = decoders[static_cast<size_t>(worker)].run(j->contig, fanout, segment_pool);
+                j->result =
+                    decoders[static_cast<size_t>(worker)].run(j->contig, fanout, segment_pool);
             };
             if (threads > 1 && decoders[0].splits(j->contig.length)) {
                 // A long contig: its segments take the whole pool, which must be idle first.
@@ -461,7 +495,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     shard.finish();
     // Nothing decoded is a wrong input, not a result (a shard may hold no record of a small input).
     if (summaries.empty() && shared.empty() && !o.shard.active())
-        throw InputError(fmt::format("no FASTA records in {}: nothing to decode", join_words(o.inputs)));
+        throw InputError(
+            fmt::format("no FASTA records in {}: nothing to decode", join_words(o.inputs)));
 
     RunInfo info;
     info.profile_name = model.name;
@@ -471,7 +506,9 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     info.inputs = o.inputs;
     info.options = run_options(o, call_options);
     info.soft_masked_unknown = o.soft_masked == SoftMasked::unknown;
-    if (o.shard.active()) info.shard_json = shard_json(shard, *info.options, info.profile_checksum, summaries, shared);
+    if (o.shard.active())
+        info.shard_json =
+            shard_json(shard, *info.options, info.profile_checksum, summaries, shared);
     if (!o.shard.active())  // a shard sees part of the input: merge judges the whole
         for (const DepletionWarning& w : depletion_warnings(model, summaries)) log.warn(w.message);
     std::unique_ptr<OutputFile> summary, report;
@@ -482,7 +519,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     std::unique_ptr<OutputFile> page;
     if (html) {
         page = std::make_unique<OutputFile>(o.html_path);
-        page->write(format_html_report({&info, &profile, &model, &call_options, &summaries, html.get()}));
+        page->write(
+            format_html_report({&info, &profile, &model, &call_options, &summaries, html.get()}));
     }
     // Commit only after everything has been computed and written.
     if (tracks) tracks->close();
@@ -498,7 +536,8 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
         report->commit();
     }
     log.verbose_text(summary_table(model, summaries));
-    if (log.level() >= LogLevel::normal) std::fputs(genome_table(model, summaries, usage).c_str(), stderr);
+    if (log.level() >= LogLevel::normal)
+        std::fputs(genome_table(model, summaries, usage).c_str(), stderr);
     return summaries;
 }
 

@@ -10,15 +10,15 @@
 #include <algorithm>
 #include <fstream>
 #include <numeric>
-#include <unordered_map>
 #include <sstream>
+#include <unordered_map>
 
 #include "shard_internal.hpp"
-#include "tidemark/track.hpp"
 #include "summary_internal.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/profile.hpp"
+#include "tidemark/track.hpp"
 
 namespace tidemark {
 namespace {
@@ -32,7 +32,6 @@ bool parse_int(const std::string& s, int& out) {
     out = std::stoi(s);
     return true;
 }
-
 
 // One line of a faidx index: NAME, LENGTH, OFFSET, LINEBASES, LINEWIDTH (tab-separated).
 struct FaiEntry {
@@ -70,7 +69,8 @@ std::vector<FaiEntry> read_fai(const std::string& fai_path) {
         }
         if (tab2 != std::string::npos) {
             std::istringstream layout(line.substr(tab2 + 1));
-            e.has_layout = static_cast<bool>(layout >> e.offset >> e.line_bases >> e.line_bytes) && e.line_bases > 0;
+            e.has_layout = static_cast<bool>(layout >> e.offset >> e.line_bases >> e.line_bytes) &&
+                           e.line_bases > 0;
         }
         entries.push_back(std::move(e));
     }
@@ -91,7 +91,8 @@ bool index_lists_every_record(const std::string& path, const std::vector<FaiEntr
         bgzf_close(fp);
         return result;
     };
-    if (bgzf_compression(fp) == 2 && bgzf_index_load(fp, path.c_str(), ".gzi") != 0) return close(false);
+    if (bgzf_compression(fp) == 2 && bgzf_index_load(fp, path.c_str(), ".gzi") != 0)
+        return close(false);
     if (bgzf_compression(fp) == 1) return close(false);
     // Lines starting with '>' in [from, to) (to < 0: up to the end, at most 1 MiB); gap_lines
     // counts the line ends there.
@@ -105,9 +106,12 @@ bool index_lists_every_record(const std::string& path, const std::vector<FaiEntr
         int count = 0;
         gap_lines = 0;
         for (ssize_t i = 0; i < got; ++i) {
-            if (bytes[i] == '>' && (i == 0 ? to >= 0 : bytes[i - 1] == '\n')) ++count;  // gaps start lines
-            else if (to < 0 && i > 0 && bytes[i] != '\n' && bytes[i] != '\r') return -1;  // trailing text
-            gap_lines += bytes[i] == '\n' || (bytes[i] == '\r' && (i + 1 == got || bytes[i + 1] != '\n'));
+            if (bytes[i] == '>' && (i == 0 ? to >= 0 : bytes[i - 1] == '\n'))
+                ++count;  // gaps start lines
+            else if (to < 0 && i > 0 && bytes[i] != '\n' && bytes[i] != '\r')
+                return -1;  // trailing text
+            gap_lines +=
+                bytes[i] == '\n' || (bytes[i] == '\r' && (i + 1 == got || bytes[i + 1] != '\n'));
         }
         return count;
     };
@@ -120,7 +124,8 @@ bool index_lists_every_record(const std::string& path, const std::vector<FaiEntr
         units[i].start = RecordStart{end, line};
         units[i].layout = RecordLayout{e.offset, e.line_bases, e.line_bytes};
         const int64_t full = e.length / e.line_bases, rest = e.length % e.line_bases;
-        end = e.offset + full * e.line_bytes + (rest > 0 ? rest + (e.line_bytes - e.line_bases) : 0);
+        end =
+            e.offset + full * e.line_bytes + (rest > 0 ? rest + (e.line_bytes - e.line_bases) : 0);
         line += gap_lines + full + (rest > 0 ? 1 : 0);
     }
     if (entries.empty()) return close(false);
@@ -192,7 +197,8 @@ std::vector<ShardUnit> list_units(const std::vector<std::string>& inputs,
     std::vector<ShardUnit> units;
     if (by_index) *by_index = true;
     if (!regions.empty()) {
-        for (const auto& r : regions) units.push_back({inputs.at(0), r.contig, r.end - r.begin, r.begin, {}, {}});
+        for (const auto& r : regions)
+            units.push_back({inputs.at(0), r.contig, r.end - r.begin, r.begin, {}, {}});
         return units;
     }
     for (const auto& in : inputs) {
@@ -236,7 +242,8 @@ public:
         RecordLayout layout;
     };
     ShareSource(std::string path, std::vector<Item> items, std::vector<RecordStart> whole)
-        : path_(std::move(path)), items_(std::move(items)),
+        : path_(std::move(path)),
+          items_(std::move(items)),
           stream_(whole.empty() ? nullptr : open_fasta_records(path_, std::move(whole))) {}
     const std::string& path() const override { return path_; }
     void set_soft_masked(SoftMasked mode) override {
@@ -248,12 +255,14 @@ public:
         const Item& item = items_[next_++];
         if (!item.window) {
             if (!stream_->next(contig))
-                throw InputError(fmt::format("{}: record '{}' is missing where the index says it starts; delete "
-                                             "the index and rerun every shard",
-                                             path_, item.name));
+                throw InputError(
+                    fmt::format("{}: record '{}' is missing where the index says it starts; delete "
+                                "the index and rerun every shard",
+                                path_, item.name));
             return true;
         }
-        read_record_windows(path_, item.name, item.length, item.layout, item.windows, contig, soft_masked_);
+        read_record_windows(path_, item.name, item.length, item.layout, item.windows, contig,
+                            soft_masked_);
         return true;
     }
 
@@ -281,7 +290,8 @@ ShardPlan plan_shards(std::vector<ShardUnit> units, int count, int64_t segment_l
     for (size_t i = 0; i < n; ++i) {
         const int64_t length = plan.units[i].length;
         if (segment_length > 0 && share > 0 && length > share && length > segment_length) {
-            const auto segments = static_cast<size_t>((length + segment_length - 1) / segment_length);
+            const auto segments =
+                static_cast<size_t>((length + segment_length - 1) / segment_length);
             const size_t m = std::min(segments, static_cast<size_t>((length + share - 1) / share));
             for (size_t p = 0; p < m; ++p) {
                 ShardPiece piece;
@@ -289,8 +299,9 @@ ShardPlan plan_shards(std::vector<ShardUnit> units, int count, int64_t segment_l
                 piece.last = (p + 1) * segments / m;
                 plan.pieces[i].push_back(piece);
                 items.emplace_back(i, static_cast<int>(p));
-                lengths.push_back(std::min(length, static_cast<int64_t>(piece.last) * segment_length) -
-                                  static_cast<int64_t>(piece.first) * segment_length);
+                lengths.push_back(
+                    std::min(length, static_cast<int64_t>(piece.last) * segment_length) -
+                    static_cast<int64_t>(piece.first) * segment_length);
             }
         } else {
             items.emplace_back(i, -1);
@@ -314,14 +325,16 @@ ShardFilter::ShardFilter(ShardSpec spec, const std::vector<std::string>& inputs,
     if (!spec_.active()) return;
     bool by_index = false;
     plan_ = plan_shards(list_units(inputs, regions, &by_index), spec_.count, segment_length);
-    if (regions.empty()) {  // names key the outputs: unique across inputs, checked before any output
+    if (regions
+            .empty()) {  // names key the outputs: unique across inputs, checked before any output
         std::unordered_map<std::string, const std::string*> first_input;
         for (const auto& u : plan_.units) {
             const auto [at, inserted] = first_input.emplace(u.name, &u.input);
             if (!inserted && *at->second != u.input)
-                throw InputError(fmt::format("{}: record '{}' has the same name as a record of {}; record names must "
-                                             "be unique across all inputs (outputs name records by name)",
-                                             u.input, u.name, *at->second));
+                throw InputError(fmt::format(
+                    "{}: record '{}' has the same name as a record of {}; record names must "
+                    "be unique across all inputs (outputs name records by name)",
+                    u.input, u.name, *at->second));
         }
     }
     read_share_ = by_index;
@@ -344,12 +357,15 @@ std::vector<ShardPiece> ShardFilter::my_pieces() const {
     return out;
 }
 
-size_t ShardFilter::segments() const { return split() ? plan_.pieces[static_cast<size_t>(current_)].back().last : 1; }
+size_t ShardFilter::segments() const {
+    return split() ? plan_.pieces[static_cast<size_t>(current_)].back().last : 1;
+}
 
 bool ShardFilter::mine(size_t unit) const {
     const auto& pieces = plan_.pieces[unit];
     if (pieces.empty()) return plan_.shard_of[unit] == spec_.index - 1;
-    return std::any_of(pieces.begin(), pieces.end(), [&](const ShardPiece& p) { return p.shard == spec_.index - 1; });
+    return std::any_of(pieces.begin(), pieces.end(),
+                       [&](const ShardPiece& p) { return p.shard == spec_.index - 1; });
 }
 
 bool ShardFilter::has_pieces() const {
@@ -362,19 +378,21 @@ std::vector<std::string> ShardFilter::split_records() const {
     std::vector<std::string> out;
     for (size_t i = 0; i < plan_.units.size(); ++i)
         if (!plan_.pieces[i].empty())
-            out.push_back(fmt::format("'{}' ({} bp, {} pieces)", plan_.units[i].name, plan_.units[i].length,
-                                      plan_.pieces[i].size()));
+            out.push_back(fmt::format("'{}' ({} bp, {} pieces)", plan_.units[i].name,
+                                      plan_.units[i].length, plan_.pieces[i].size()));
     return out;
 }
 
-std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input, const std::vector<Region>& regions,
+std::unique_ptr<SequenceSource> ShardFilter::open(const std::string& input,
+                                                  const std::vector<Region>& regions,
                                                   bool pieces_only) {
     std::unique_ptr<SequenceSource> source = open_reader(input, regions, pieces_only);
     source->set_soft_masked(soft_masked_);
     return source;
 }
 
-std::unique_ptr<SequenceSource> ShardFilter::open_reader(const std::string& input, const std::vector<Region>& regions,
+std::unique_ptr<SequenceSource> ShardFilter::open_reader(const std::string& input,
+                                                         const std::vector<Region>& regions,
                                                          bool pieces_only) {
     if (!spec_.active() || !read_share_) {
         sharing_ = false;
@@ -383,16 +401,20 @@ std::unique_ptr<SequenceSource> ShardFilter::open_reader(const std::string& inpu
     // Only this shard's units of this input, through the index, in input order.
     sharing_ = true;
     const auto& units = plan_.units;
-    const size_t first = static_cast<size_t>(
-        std::find_if(units.begin(), units.end(), [&](const ShardUnit& u) { return u.input == input; }) -
-        units.begin());
+    const size_t first =
+        static_cast<size_t>(std::find_if(units.begin(), units.end(),
+                                         [&](const ShardUnit& u) { return u.input == input; }) -
+                            units.begin());
     planned_ = first == units.size() ? planned_ : first;
     next_ = static_cast<int64_t>(planned_);
-    const auto wanted = [&](size_t i) { return mine(i) && (!pieces_only || !plan_.pieces[i].empty()); };
+    const auto wanted = [&](size_t i) {
+        return mine(i) && (!pieces_only || !plan_.pieces[i].empty());
+    };
     if (!regions.empty()) {  // regions: through faidx
         std::vector<Region> share;
         for (size_t i = first; i < units.size() && units[i].input == input; ++i)
-            if (wanted(i)) share.push_back({units[i].name, units[i].begin, units[i].begin + units[i].length});
+            if (wanted(i))
+                share.push_back({units[i].name, units[i].begin, units[i].begin + units[i].length});
         return open_regions(input, std::move(share));
     }
     // Whole records are parsed as a stream from where each starts (faidx fetches are slower);
@@ -417,7 +439,8 @@ std::unique_ptr<SequenceSource> ShardFilter::open_reader(const std::string& inpu
             const int64_t b = static_cast<int64_t>(p.first) * segment_length_;
             const int64_t e = std::min(length, static_cast<int64_t>(p.last) * segment_length_);
             // Bases after the piece too: a CpG may straddle its end, and a gap may continue.
-            RecordWindow w{std::max<int64_t>(0, b - context), std::min(length, e + track_gap_min_length), b, e};
+            RecordWindow w{std::max<int64_t>(0, b - context),
+                           std::min(length, e + track_gap_min_length), b, e};
             if (!item.windows.empty() && w.begin < item.windows.back().end) {  // adjacent pieces
                 item.windows.back().end = w.end;
                 item.windows.back().count_end = w.count_end;
@@ -438,10 +461,12 @@ bool ShardFilter::take(const Contig& contig) {
     if (sharing_) {  // the source gives this shard's units only: skip to the one it gave
         size_t i = planned_;
         while (i < units_.size() &&
-               !(units_[i].name == contig.name && units_[i].begin == contig.offset && units_[i].length == contig.length))
+               !(units_[i].name == contig.name && units_[i].begin == contig.offset &&
+                 units_[i].length == contig.length))
             ++i;
         if (i == units_.size())
-            throw InternalError(fmt::format("shard filter: record '{}' read through the index is not planned", contig.name));
+            throw InternalError(fmt::format(
+                "shard filter: record '{}' read through the index is not planned", contig.name));
         planned_ = i + 1;
         next_ = static_cast<int64_t>(i) + 1;
         current_ = static_cast<int64_t>(i);
@@ -453,7 +478,8 @@ bool ShardFilter::take(const Contig& contig) {
         current_ = static_cast<int64_t>(i);
         if (units_[i].length != contig.length)
             throw InputError(fmt::format(
-                "{}: record '{}' has {} bases, but the shard plan (from {}.fai or a first pass) says {}; "
+                "{}: record '{}' has {} bases, but the shard plan (from {}.fai or a first pass) "
+                "says {}; "
                 "the index is out of date: delete it and rerun every shard",
                 units_[i].input, contig.name, contig.length, units_[i].input, units_[i].length));
         return mine(i);
@@ -538,8 +564,9 @@ ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where
     }
 }
 
-std::string shard_json(const ShardFilter& filter, const RunOptions& options, const std::string& profile_crc32,
-                       const std::vector<ContigSummary>& contigs, const std::vector<SplitRecord>& shared) {
+std::string shard_json(const ShardFilter& filter, const RunOptions& options,
+                       const std::string& profile_crc32, const std::vector<ContigSummary>& contigs,
+                       const std::vector<SplitRecord>& shared) {
     ordered_json o;
     o["index"] = filter.spec().index;
     o["count"] = filter.spec().count;

@@ -34,22 +34,27 @@ IntervalCaller::Group group_from(const nlohmann::json& j) {
 }
 
 bool cpg_straddles(const Contig& contig, int64_t position) {
-    return position > 0 && position < contig.length && contig.base(position - 1) == 1 && contig.base(position) == 2;
+    return position > 0 && position < contig.length && contig.base(position - 1) == 1 &&
+           contig.base(position) == 2;
 }
 
 }  // namespace
 
-ordered_json composition_json(const Composition& k) { return {k.a, k.c, k.g, k.t, k.unknown, k.cpg}; }
+ordered_json composition_json(const Composition& k) {
+    return {k.a, k.c, k.g, k.t, k.unknown, k.cpg};
+}
 
 Composition composition_from(const nlohmann::json& j) {
     const auto k = j.get<std::vector<int64_t>>();
-    if (k.size() != 6) throw nlohmann::json::other_error::create(501, "a composition needs 6 counts", nullptr);
+    if (k.size() != 6)
+        throw nlohmann::json::other_error::create(501, "a composition needs 6 counts", nullptr);
     return Composition{k[0], k[1], k[2], k[3], k[4], k[5]};
 }
 
-std::string seams_identity(const std::vector<std::string>& inputs, const std::vector<std::string>& regions,
-                           const std::string& regions_bed, const std::string& profile_crc32, int64_t block,
-                           int64_t bin, int64_t segment_length) {
+std::string seams_identity(const std::vector<std::string>& inputs,
+                           const std::vector<std::string>& regions, const std::string& regions_bed,
+                           const std::string& profile_crc32, int64_t block, int64_t bin,
+                           int64_t segment_length) {
     ordered_json j;
     j["inputs"] = inputs;
     // Size and modification time: seams from before a change to a file are refused.
@@ -57,7 +62,8 @@ std::string seams_identity(const std::vector<std::string>& inputs, const std::ve
     for (const auto& in : inputs) {
         struct stat st {};
         if (stat(in.c_str(), &st) == 0)
-            stamps.push_back({static_cast<int64_t>(st.st_size), static_cast<int64_t>(st.st_mtim.tv_sec),
+            stamps.push_back({static_cast<int64_t>(st.st_size),
+                              static_cast<int64_t>(st.st_mtim.tv_sec),
                               static_cast<int64_t>(st.st_mtim.tv_nsec)});
         else
             stamps.push_back(nullptr);
@@ -73,10 +79,11 @@ std::string seams_identity(const std::vector<std::string>& inputs, const std::ve
 }
 
 std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& decoder,
-                                       const std::vector<std::string>& inputs, const std::vector<Region>& regions,
-                                       TaskPool* pool) {
+                                       const std::vector<std::string>& inputs,
+                                       const std::vector<Region>& regions, TaskPool* pool) {
     std::vector<SeamsRecord> records;
-    if (!shard.has_pieces()) return records;  // nothing to read: this shard decodes only whole records
+    if (!shard.has_pieces())
+        return records;  // nothing to read: this shard decodes only whole records
     for (const auto& input : inputs) {
         std::unique_ptr<SequenceSource> source = shard.open(input, regions, true);
         Contig contig;
@@ -88,7 +95,8 @@ std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& dec
             r.length = contig.length;
             r.segments = shard.segments();
             for (const ShardPiece& piece : shard.my_pieces()) {
-                std::vector<SegmentSeam> part = decoder.seams(contig, piece.first, piece.last, pool);
+                std::vector<SegmentSeam> part =
+                    decoder.seams(contig, piece.first, piece.last, pool);
                 for (size_t k = piece.first; k < piece.last; ++k) r.indexes.push_back(k);
                 for (auto& seam : part) r.seams.push_back(std::move(seam));
             }
@@ -99,7 +107,8 @@ std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& dec
     return records;
 }
 
-std::string seams_json(const ShardSpec& spec, const std::string& identity, const std::vector<SeamsRecord>& records) {
+std::string seams_json(const ShardSpec& spec, const std::string& identity,
+                       const std::vector<SeamsRecord>& records) {
     ordered_json doc;
     doc["format"] = seams_format;
     doc["shard"] = {{"index", spec.index}, {"count", spec.count}};
@@ -130,17 +139,20 @@ std::string seams_json(const ShardSpec& spec, const std::string& identity, const
     return doc.dump() + "\n";
 }
 
-SeamsTable::SeamsTable(const std::vector<std::string>& paths, const std::string& identity, const ShardSpec& spec)
+SeamsTable::SeamsTable(const std::vector<std::string>& paths, const std::string& identity,
+                       const ShardSpec& spec)
     : paths_(paths) {
     const nlohmann::json want = nlohmann::json::parse(identity);
     for (const auto& path : paths) {
         const nlohmann::json doc = read_json_file<nlohmann::json>(path, "the seams file");
         if (!doc.is_object() || doc.value("format", "") != seams_format)
-            throw InputError(fmt::format("{}: not a {} file (written by scan --emit-seams)", path, seams_format));
+            throw InputError(fmt::format("{}: not a {} file (written by scan --emit-seams)", path,
+                                         seams_format));
         try {
             if (doc.at("shard").at("count").get<int>() != spec.count || doc.at("identity") != want)
                 throw InputError(fmt::format(
-                    "{}: these seams come from another run (inputs or their contents, profile, --block, --bin or shard count "
+                    "{}: these seams come from another run (inputs or their contents, profile, "
+                    "--block, --bin or shard count "
                     "differ); run scan --emit-seams again with the same options for every shard",
                     path));
             for (const auto& r : doc.at("records")) {
@@ -158,21 +170,26 @@ SeamsTable::SeamsTable(const std::vector<std::string>& paths, const std::string&
                     it = records_.end() - 1;
                 }
                 Entry& e = it->second;
-                if (e.name != r.at("name").get<std::string>() || e.segments != r.at("segments").get<size_t>())
-                    throw InputError(fmt::format("{}: record {} differs from the other seams files", path, index + 1));
+                if (e.name != r.at("name").get<std::string>() ||
+                    e.segments != r.at("segments").get<size_t>())
+                    throw InputError(fmt::format("{}: record {} differs from the other seams files",
+                                                 path, index + 1));
                 for (const auto& s : r.at("seams")) {
                     const size_t k = s.at("segment").get<size_t>();
                     if (k >= e.segments || e.have[k])
-                        throw InputError(fmt::format("{}: record '{}' segment {} is out of range or given twice",
-                                                     path, e.name, k + 1));
+                        throw InputError(
+                            fmt::format("{}: record '{}' segment {} is out of range or given twice",
+                                        path, e.name, k + 1));
                     e.have[k] = true;
                     // Marks serve only the shard that made them (step 2 of the same shard).
                     const bool own = doc.at("shard").at("index").get<int>() == spec.index;
-                    e.seams[k] = SegmentSeam{s.at("begin").get<int64_t>(), s.at("end").get<int64_t>(),
-                                             s.at("product").get<std::vector<double>>(),
-                                             s.at("exponent").get<int64_t>(),
-                                             own ? s.at("marks").get<std::vector<double>>() : std::vector<double>{},
-                                             s.at("bases_crc32").get<uint32_t>()};
+                    e.seams[k] = SegmentSeam{
+                        s.at("begin").get<int64_t>(),
+                        s.at("end").get<int64_t>(),
+                        s.at("product").get<std::vector<double>>(),
+                        s.at("exponent").get<int64_t>(),
+                        own ? s.at("marks").get<std::vector<double>>() : std::vector<double>{},
+                        s.at("bases_crc32").get<uint32_t>()};
                 }
             }
         } catch (const nlohmann::json::exception& e) {
@@ -181,8 +198,8 @@ SeamsTable::SeamsTable(const std::vector<std::string>& paths, const std::string&
     }
 }
 
-std::vector<SegmentSeam> SeamsTable::record(int64_t input_index, const std::string& name, int64_t length,
-                                            size_t segments) const {
+std::vector<SegmentSeam> SeamsTable::record(int64_t input_index, const std::string& name,
+                                            int64_t length, size_t segments) const {
     const auto it = std::find_if(records_.begin(), records_.end(),
                                  [&](const auto& e) { return e.first == input_index; });
     if (it == records_.end())
@@ -192,20 +209,22 @@ std::vector<SegmentSeam> SeamsTable::record(int64_t input_index, const std::stri
             name));
     const Entry& e = it->second;
     if (e.name != name || e.length != length || e.segments != segments)
-        throw InputError(fmt::format("record {} is '{}' ({} bp) in the seams files but '{}' ({} bp) here", input_index + 1,
-                                     e.name, e.length, name, length));
+        throw InputError(
+            fmt::format("record {} is '{}' ({} bp) in the seams files but '{}' ({} bp) here",
+                        input_index + 1, e.name, e.length, name, length));
     std::string missing;
     for (size_t k = 0; k < e.segments; ++k)
         if (!e.have[k]) missing += (missing.empty() ? "" : ", ") + std::to_string(k + 1);
     if (!missing.empty())
-        throw InputError(fmt::format(
-            "record '{}': no seams for segments {} of {}; pass the seams files of every shard with --seams", name,
-            missing, e.segments));
+        throw InputError(
+            fmt::format("record '{}': no seams for segments {} of {}; pass the seams files of "
+                        "every shard with --seams",
+                        name, missing, e.segments));
     return e.seams;
 }
 
 SplitSegment describe_segment(const Contig& contig, size_t index, int64_t begin, int64_t end,
-                               const IntervalCaller& caller, const RegionTotals& totals) {
+                              const IntervalCaller& caller, const RegionTotals& totals) {
     SplitSegment s;
     s.index = index;
     s.begin = begin;
@@ -222,8 +241,8 @@ SplitSegment describe_segment(const Contig& contig, size_t index, int64_t begin,
     }
     std::sort(at.begin(), at.end());
     at.erase(std::unique(at.begin(), at.end()), at.end());
-    // One pass over the segment: the composition between consecutive prefix positions, accumulated (with
-    // the CpG that straddles each intermediate mark).
+    // One pass over the segment: the composition between consecutive prefix positions, accumulated
+    // (with the CpG that straddles each intermediate mark).
     Composition prefix;
     int64_t from = begin;
     for (const int64_t p : at) {
@@ -250,17 +269,18 @@ ordered_json split_record_to_json(const SplitRecord& r) {
         d["end"] = s.end;
         ordered_json lanes = ordered_json::array();
         for (const auto& l : s.lanes)
-            lanes.push_back({l.seen, l.has_first, group_json(l.first), l.active, group_json(l.open), l.lead_sum,
-                             l.lead_min, l.gap_sum, l.gap_min});
+            lanes.push_back({l.seen, l.has_first, group_json(l.first), l.active, group_json(l.open),
+                             l.lead_sum, l.lead_min, l.gap_sum, l.gap_min});
         d["lanes"] = lanes;
         ordered_json calls = ordered_json::array();
         for (const auto& c : s.calls)
-            calls.push_back({c.begin, c.end, c.region, c.mean_posterior, c.min_posterior, c.core_begin, c.core_end,
-                             composition_json(c.composition)});
+            calls.push_back({c.begin, c.end, c.region, c.mean_posterior, c.min_posterior,
+                             c.core_begin, c.core_end, composition_json(c.composition)});
         d["calls"] = calls;
         d["expected"] = s.expected;
         ordered_json prefixes = ordered_json::array();
-        for (const auto& m : s.prefixes) prefixes.push_back({m.position, composition_json(m.prefix), m.cpg_before});
+        for (const auto& m : s.prefixes)
+            prefixes.push_back({m.position, composition_json(m.prefix), m.cpg_before});
         d["marks"] = prefixes;
         done.push_back(d);
     }
@@ -306,7 +326,8 @@ SplitRecord split_record_from_json(const nlohmann::json& j, const std::string& w
             }
             s.expected = d.at("expected").get<std::vector<double>>();
             for (const auto& m : d.at("marks"))
-                s.prefixes.push_back({m.at(0).get<int64_t>(), composition_from(m.at(1)), m.at(2).get<bool>()});
+                s.prefixes.push_back(
+                    {m.at(0).get<int64_t>(), composition_from(m.at(1)), m.at(2).get<bool>()});
             r.done.push_back(std::move(s));
         }
     } catch (const nlohmann::json::exception& e) {

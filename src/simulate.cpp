@@ -51,7 +51,8 @@ struct GapChain {
 
 uint64_t probability_threshold(double p) {
     const double scaled = p * static_cast<double>(detail::unit53);
-    return scaled >= static_cast<double>(detail::unit53) ? detail::unit53 : static_cast<uint64_t>(scaled);
+    return scaled >= static_cast<double>(detail::unit53) ? detail::unit53
+                                                         : static_cast<uint64_t>(scaled);
 }
 
 GapChain build_gap_chain(const SimulateOptions& o) {
@@ -71,10 +72,12 @@ GapChain build_gap_chain(const SimulateOptions& o) {
 
 void validate(const SimulateOptions& o) {
     if (o.lengths.empty())
-        throw UsageError("simulate needs contig lengths: --lengths L1,L2,... or --contigs N --length L");
+        throw UsageError(
+            "simulate needs contig lengths: --lengths L1,L2,... or --contigs N --length L");
     for (size_t i = 0; i < o.lengths.size(); ++i)
         if (o.lengths[i] < 1)
-            throw UsageError(fmt::format("contig length {} (entry {}) must be at least 1", o.lengths[i], i + 1));
+            throw UsageError(
+                fmt::format("contig length {} (entry {}) must be at least 1", o.lengths[i], i + 1));
     if (!(o.gap_fraction >= 0) || !(o.gap_fraction < 1))
         throw UsageError(fmt::format("--gaps {} must be in [0, 1)", o.gap_fraction));
     if (!(o.gap_mean_length >= 1) || !std::isfinite(o.gap_mean_length))
@@ -102,7 +105,7 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
         sink.begin_contig(fmt::format("{}{}", o.name_prefix, c + 1), length);
         int state = -1;
         bool in_gap = false;
-        RollingContext ctx(m.max_order);  // as in the decoder
+        RollingContext ctx(m.max_order);   // as in the decoder
         double urn_gc = 0, urn_known = 0;  // window models: G+C and known bases drawn in the window
         for (int64_t start = 0; start < length; start += block_positions) {
             const int64_t n = std::min(block_positions, length - start);
@@ -110,18 +113,22 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
                 // Draw order per position (part of the seed's meaning): gap, state, base.
                 if (gaps.enabled) {
                     const uint64_t r = rng.next53();
-                    if (state < 0) in_gap = r < gaps.start_gap;
-                    else if (in_gap) in_gap = !(r < gaps.leave_gap);
-                    else in_gap = r < gaps.enter_gap;
+                    if (state < 0)
+                        in_gap = r < gaps.start_gap;
+                    else if (in_gap)
+                        in_gap = !(r < gaps.leave_gap);
+                    else
+                        in_gap = r < gaps.enter_gap;
                 }
                 if (state < 0) {
-                    state = detail::sample_categorical(tables.initial.data(), m.states, rng.next53());
+                    state =
+                        detail::sample_categorical(tables.initial.data(), m.states, rng.next53());
                 } else if (m.window > 0 && (start + t) % m.window != 0) {
                     // window models move once per window
                 } else {
                     const int b = m.out_begin[state];
-                    const int k = detail::sample_categorical(tables.transition.data() + b,
-                                                             m.out_begin[state + 1] - b, rng.next53());
+                    const int k = detail::sample_categorical(
+                        tables.transition.data() + b, m.out_begin[state + 1] - b, rng.next53());
                     state = m.out_to[b + k];
                 }
                 states[t] = state;
@@ -138,7 +145,8 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
                     // Distributions, 3rd ed., section 6.2.2, from memory); C or G (A or T) with
                     // probability 1/2 each. IEEE division is exact to the last bit everywhere, so
                     // the draws stay reproducible.
-                    const double p_gc = (m.gc_alpha[state] + urn_gc) / (m.gc_alpha[state] + m.gc_beta[state] + urn_known);
+                    const double p_gc = (m.gc_alpha[state] + urn_gc) /
+                                        (m.gc_alpha[state] + m.gc_beta[state] + urn_known);
                     const bool gc = rng.next53() < probability_threshold(p_gc);
                     const bool second = (rng.next53() >> 52) != 0;
                     bases[t] = gc ? (second ? base_g : base_c) : (second ? base_t : base_a);
@@ -148,7 +156,8 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
                 }
                 const uint32_t row = ctx.row(m.order_of_state[state]);
                 const uint64_t* th = tables.emission.data() + m.emission_offset[state] + row * 4;
-                const auto base = static_cast<uint8_t>(detail::sample_categorical(th, 4, rng.next53()));
+                const auto base =
+                    static_cast<uint8_t>(detail::sample_categorical(th, 4, rng.next53()));
                 bases[t] = base;
                 ctx.push(base);
             }
@@ -163,7 +172,8 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
     }
 }
 
-FastaFormatter::FastaFormatter(TextWriter out, int line_width) : out_(std::move(out)), width_(line_width) {
+FastaFormatter::FastaFormatter(TextWriter out, int line_width)
+    : out_(std::move(out)), width_(line_width) {
     if (line_width < 0) throw UsageError("--line-width must be >= 0");
 }
 
@@ -194,7 +204,8 @@ void FastaFormatter::end_contig() {
     buffer_.clear();
 }
 
-TruthFormatter::TruthFormatter(TextWriter out, const Model& model) : out_(std::move(out)), model_(model) {}
+TruthFormatter::TruthFormatter(TextWriter out, const Model& model)
+    : out_(std::move(out)), model_(model) {}
 
 void TruthFormatter::begin_contig(const std::string& name, int64_t /*length*/) {
     name_ = name;
@@ -232,7 +243,8 @@ void TruthFormatter::end_contig() {
 void validate(const SimulateJob& job) {
     validate(job.simulation);
     if (job.line_width < 0) throw UsageError("--line-width must be >= 0 (0 = one line per contig)");
-    if (!job.truth.empty() && job.truth == job.output && job.output != "-" && job.output.rfind("/dev/", 0) != 0)
+    if (!job.truth.empty() && job.truth == job.output && job.output != "-" &&
+        job.output.rfind("/dev/", 0) != 0)
         throw UsageError("--truth and --output name the same file");
     if (job.truth == "-" && job.output == "-")
         throw UsageError("--truth - and the FASTA both go to stdout; give -o FILE or a truth file");
@@ -292,8 +304,9 @@ SimulationTotals run_simulate(const SimulateJob& job, const Logger& log) {
     if (!job.truth.empty()) {
         truth = std::make_unique<OutputFile>(job.truth);
         // No command line here: the file must depend on the seed and the model only.
-        truth->write(fmt::format("# tidemark {} simulate: profile {}, seed {}; columns chrom start end region\n",
-                                 TIDEMARK_VERSION, model.name, job.simulation.seed));
+        truth->write(fmt::format(
+            "# tidemark {} simulate: profile {}, seed {}; columns chrom start end region\n",
+            TIDEMARK_VERSION, model.name, job.simulation.seed));
     }
     SimulationTotals totals;
     FastaFormatter fasta_sink([&](std::string_view text) { fasta.write(text); }, job.line_width);
@@ -301,7 +314,8 @@ SimulationTotals run_simulate(const SimulateJob& job, const Logger& log) {
     TotalsSink totals_sink(model, totals);
     std::vector<SimulationSink*> sinks = {&fasta_sink, &totals_sink};
     if (truth) {
-        truth_sink = std::make_unique<TruthFormatter>([&](std::string_view text) { truth->write(text); }, model);
+        truth_sink = std::make_unique<TruthFormatter>(
+            [&](std::string_view text) { truth->write(text); }, model);
         sinks.push_back(truth_sink.get());
     }
     Fanout fanout(sinks);
@@ -311,16 +325,18 @@ SimulationTotals run_simulate(const SimulateJob& job, const Logger& log) {
 
     std::string regions;
     for (size_t r = 0; r < totals.region_bases.size(); ++r)
-        regions += fmt::format("{}{} {}", r ? ", " : "", model.region_names[r], totals.region_bases[r]);
-    log.detail(fmt::format("simulated {} contigs, {} bases ({} unknown) from profile {} with seed {}; bases "
-                           "per region: {}",
-                           totals.contigs, totals.bases, totals.unknown, model.name, job.simulation.seed,
-                           regions));
+        regions +=
+            fmt::format("{}{} {}", r ? ", " : "", model.region_names[r], totals.region_bases[r]);
+    log.detail(fmt::format(
+        "simulated {} contigs, {} bases ({} unknown) from profile {} with seed {}; bases "
+        "per region: {}",
+        totals.contigs, totals.bases, totals.unknown, model.name, job.simulation.seed, regions));
     const ResourceUsage usage = clock.now();
-    log.detail(fmt::format("{:.2f} s wall, {:.2f} s CPU, {:.2f} Mbp/s, peak memory {:.1f} MiB", usage.wall_seconds,
-                           usage.cpu_seconds,
-                           usage.wall_seconds > 0 ? static_cast<double>(totals.bases) / 1e6 / usage.wall_seconds : 0.0,
-                           static_cast<double>(usage.peak_rss_bytes) / (1 << 20)));
+    log.detail(fmt::format(
+        "{:.2f} s wall, {:.2f} s CPU, {:.2f} Mbp/s, peak memory {:.1f} MiB", usage.wall_seconds,
+        usage.cpu_seconds,
+        usage.wall_seconds > 0 ? static_cast<double>(totals.bases) / 1e6 / usage.wall_seconds : 0.0,
+        static_cast<double>(usage.peak_rss_bytes) / (1 << 20)));
     return totals;
 }
 

@@ -51,12 +51,14 @@ RunOptions run_options_from_json(const nlohmann::json& j, const std::string& whe
         o.calling.min_length = j.at("min_length").get<int64_t>();
         o.calling.high_posterior = j.at("core_posterior").get<double>();
         o.calling.criteria = parse_island_criteria(j.at("island_criteria").get<std::string>());
-        o.bed_style = j.at("bed_style").get<std::string>() == "browser" ? BedStyle::browser : BedStyle::plain;
+        o.bed_style =
+            j.at("bed_style").get<std::string>() == "browser" ? BedStyle::browser : BedStyle::plain;
         o.bgzip = j.value("bgzip", o.bgzip);
         o.posteriors = j.value("posteriors", o.posteriors);
         o.posterior_digits = j.value("posterior_digits", o.posterior_digits);
         o.bin = j.value("bin", o.bin);
-        o.track_format = j.value("track_format", "bedgraph") == "bigwig" ? TrackFormat::bigwig : TrackFormat::bedgraph;
+        o.track_format = j.value("track_format", "bedgraph") == "bigwig" ? TrackFormat::bigwig
+                                                                         : TrackFormat::bedgraph;
         o.block = j.value("block", o.block);
         o.soft_masked_unknown = j.value("soft_masked", "base") == "unknown";
     } catch (const nlohmann::json::exception& e) {
@@ -89,7 +91,8 @@ ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>&
                 total.confidence_sum[r] += c.confidence_sum[r];
                 total.call_lengths[r].insert(total.call_lengths[r].end(), c.call_lengths[r].begin(),
                                              c.call_lengths[r].end());
-                total.call_confidences[r].insert(total.call_confidences[r].end(), c.call_confidences[r].begin(),
+                total.call_confidences[r].insert(total.call_confidences[r].end(),
+                                                 c.call_confidences[r].begin(),
                                                  c.call_confidences[r].end());
             }
         }
@@ -99,7 +102,9 @@ ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>&
 
 namespace {
 
-ordered_json number_or_null(double x) { return std::isfinite(x) ? ordered_json(x) : ordered_json(nullptr); }
+ordered_json number_or_null(double x) {
+    return std::isfinite(x) ? ordered_json(x) : ordered_json(nullptr);
+}
 
 }  // namespace
 
@@ -111,7 +116,8 @@ LengthStats length_stats(std::vector<int64_t> lengths) {
     s.min = lengths.front();
     s.max = lengths.back();
     // Median of an even count: mean of the two middle values (common practice).
-    s.median = n % 2 ? static_cast<double>(lengths[n / 2]) : 0.5 * static_cast<double>(lengths[n / 2 - 1] + lengths[n / 2]);
+    s.median = n % 2 ? static_cast<double>(lengths[n / 2])
+                     : 0.5 * static_cast<double>(lengths[n / 2 - 1] + lengths[n / 2]);
     return s;
 }
 
@@ -172,9 +178,11 @@ ordered_json contig_json(const Model& model, const ContigSummary& c, bool report
             x["calls"] = calls;
             x["called_bases"] = r < c.called_bases.size() ? c.called_bases[r] : 0;
             if (report) {
-                x["call_length"] = r < c.call_lengths.size() ? length_distribution(c.call_lengths[r]) : nullptr;
+                x["call_length"] =
+                    r < c.call_lengths.size() ? length_distribution(c.call_lengths[r]) : nullptr;
                 x["mean_call_confidence"] =
-                    calls > 0 ? ordered_json(c.confidence_sum[r] / static_cast<double>(calls)) : ordered_json(nullptr);
+                    calls > 0 ? ordered_json(c.confidence_sum[r] / static_cast<double>(calls))
+                              : ordered_json(nullptr);
             }
         }
         regions[model.region_names[r]] = x;
@@ -207,17 +215,19 @@ ordered_json document(const char* format, const RunInfo& info, const Model& mode
                 doc["genome"]["regions"][model.region_names[r]].update(call_histograms(total, r));
     doc["genome"]["contigs"] = contigs.size();
     ordered_json list = ordered_json::array();
-    for (const auto& c : contigs) list.push_back(contig_json(model, c, report, info.soft_masked_unknown));
+    for (const auto& c : contigs)
+        list.push_back(contig_json(model, c, report, info.soft_masked_unknown));
     doc["contigs"] = list;
     const std::vector<DepletionWarning> warnings = depletion_warnings(model, contigs);
     if (!warnings.empty()) {  // absent otherwise, so that earlier summaries stay as they were
         ordered_json w = ordered_json::array();
         for (const auto& x : warnings)
-            w.push_back({{"kind", "cpg_not_depleted"},
-                         {"contig", x.contig.empty() ? ordered_json(nullptr) : ordered_json(x.contig)},
-                         {"cpg_obs_exp", x.cpg_obs_exp},
-                         {"known_bases", x.known_bases},
-                         {"message", x.message}});
+            w.push_back(
+                {{"kind", "cpg_not_depleted"},
+                 {"contig", x.contig.empty() ? ordered_json(nullptr) : ordered_json(x.contig)},
+                 {"cpg_obs_exp", x.cpg_obs_exp},
+                 {"known_bases", x.known_bases},
+                 {"message", x.message}});
         doc["warnings"] = w;
     }
     if (!info.shard_json.empty()) doc["shard"] = ordered_json::parse(info.shard_json);
@@ -226,9 +236,11 @@ ordered_json document(const char* format, const RunInfo& info, const Model& mode
 
 }  // namespace
 
-std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::vector<ContigSummary>& contigs) {
+std::vector<DepletionWarning> depletion_warnings(const Model& model,
+                                                 const std::vector<ContigSummary>& contigs) {
     std::vector<DepletionWarning> out;
-    if (std::find(model.region_names.begin(), model.region_names.end(), "cpg_island") == model.region_names.end())
+    if (std::find(model.region_names.begin(), model.region_names.end(), "cpg_island") ==
+        model.region_names.end())
         return out;
     const auto warning = [&](const std::string& contig, const Composition& comp, double limit) {
         DepletionWarning w;
@@ -236,18 +248,21 @@ std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::
         w.cpg_obs_exp = comp.cpg_obs_exp();
         w.known_bases = comp.known();
         w.message = fmt::format(
-            "{} has CpG o/e {:.3f} over {} known bases, above {}: CpG is not depleted there, but profile '{}' "
-            "assumes a CpG-depleted (vertebrate) genome, so its calls there are GC-rich stretches rather than "
+            "{} has CpG o/e {:.3f} over {} known bases, above {}: CpG is not depleted there, but "
+            "profile '{}' "
+            "assumes a CpG-depleted (vertebrate) genome, so its calls there are GC-rich stretches "
+            "rather than "
             "CpG islands",
-            contig.empty() ? std::string("the input") : "contig '" + contig + "'", w.cpg_obs_exp, w.known_bases,
-            limit, model.name);
+            contig.empty() ? std::string("the input") : "contig '" + contig + "'", w.cpg_obs_exp,
+            w.known_bases, limit, model.name);
         out.push_back(std::move(w));
     };
     const ContigSummary total = genome_total(model, contigs);
     // NaN (no C or no G) compares false: nothing to judge.
     const int64_t known = total.composition.known();
-    const double limit = known >= DepletionRule::min_genome_known ? DepletionRule::max_obs_exp
-                                                                  : DepletionRule::short_max_obs_exp;
+    const double limit = known >= DepletionRule::min_genome_known
+                             ? DepletionRule::max_obs_exp
+                             : DepletionRule::short_max_obs_exp;
     if (known >= DepletionRule::short_min_known && total.composition.cpg_obs_exp() > limit) {
         warning("", total.composition, limit);
         return out;
@@ -272,11 +287,13 @@ std::vector<double> confidence_edges() {
     return edges;
 }
 
-std::vector<int64_t> histogram_counts(const std::vector<double>& edges, const std::vector<int64_t>& values) {
+std::vector<int64_t> histogram_counts(const std::vector<double>& edges,
+                                      const std::vector<int64_t>& values) {
     return counts_in(edges, values);
 }
 
-std::vector<int64_t> histogram_counts(const std::vector<double>& edges, const std::vector<double>& values) {
+std::vector<int64_t> histogram_counts(const std::vector<double>& edges,
+                                      const std::vector<double>& values) {
     return counts_in(edges, values);
 }
 
@@ -320,7 +337,8 @@ void RegionTotals::join(DecodeSink& later) {
         ended_ = other->ended_;
         return;
     }
-    for (size_t r = 0; r < expected_.size() && r < other->expected_.size(); ++r) expected_[r] += other->expected_[r];
+    for (size_t r = 0; r < expected_.size() && r < other->expected_.size(); ++r)
+        expected_[r] += other->expected_[r];
 }
 
 namespace {
@@ -351,39 +369,57 @@ void RegionTotals::block(const BlockView& view) {
     // Per-state column sums first, then regions: fewer indirections in the loop.
     by_state_.resize(S);
     switch (S) {
-        case 1: column_sums<1>(view, by_state_.data()); break;
-        case 2: column_sums<2>(view, by_state_.data()); break;
-        case 3: column_sums<3>(view, by_state_.data()); break;
-        case 4: column_sums<4>(view, by_state_.data()); break;
-        case 5: column_sums<5>(view, by_state_.data()); break;
-        case 6: column_sums<6>(view, by_state_.data()); break;
-        default: column_sums<0>(view, by_state_.data()); break;
+        case 1:
+            column_sums<1>(view, by_state_.data());
+            break;
+        case 2:
+            column_sums<2>(view, by_state_.data());
+            break;
+        case 3:
+            column_sums<3>(view, by_state_.data());
+            break;
+        case 4:
+            column_sums<4>(view, by_state_.data());
+            break;
+        case 5:
+            column_sums<5>(view, by_state_.data());
+            break;
+        case 6:
+            column_sums<6>(view, by_state_.data());
+            break;
+        default:
+            column_sums<0>(view, by_state_.data());
+            break;
     }
     for (int s = 0; s < S; ++s) expected_[model_.region_of_state[s]] += by_state_[s];
 }
 
-std::string summary_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs) {
+std::string summary_json(const RunInfo& info, const Model& model,
+                         const std::vector<ContigSummary>& contigs) {
     return document("tidemark-summary/1", info, model, contigs, false).dump(2) + "\n";
 }
 
-std::string report_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs,
-                        const ResourceUsage& usage) {
+std::string report_json(const RunInfo& info, const Model& model,
+                        const std::vector<ContigSummary>& contigs, const ResourceUsage& usage) {
     ordered_json doc = document("tidemark-report/1", info, model, contigs, true);
     int64_t bases = 0;
     for (const auto& c : contigs) bases += c.length;
     // Times differ between runs; keeping them in one object leaves the rest comparable.
-    doc["resources"] = {{"wall_seconds", usage.wall_seconds},
-                        {"cpu_seconds", usage.cpu_seconds},
-                        {"mbp_per_second", usage.wall_seconds > 0 ? static_cast<double>(bases) / 1e6 / usage.wall_seconds : 0.0},
-                        {"peak_rss_bytes", usage.peak_rss_bytes}};
+    doc["resources"] = {
+        {"wall_seconds", usage.wall_seconds},
+        {"cpu_seconds", usage.cpu_seconds},
+        {"mbp_per_second",
+         usage.wall_seconds > 0 ? static_cast<double>(bases) / 1e6 / usage.wall_seconds : 0.0},
+        {"peak_rss_bytes", usage.peak_rss_bytes}};
     return doc.dump(2) + "\n";
 }
 
 std::string summary_table(const Model& model, const std::vector<ContigSummary>& contigs) {
-    std::string out = fmt::format("{:<24} {:>12} {:>10} {:>7} {:>16}", "contig", "length", "unknown", "GC",
-                                  "log_likelihood");
+    std::string out = fmt::format("{:<24} {:>12} {:>10} {:>7} {:>16}", "contig", "length",
+                                  "unknown", "GC", "log_likelihood");
     for (size_t r = 0; r < model.region_names.size(); ++r)
-        if (model.region_report[r]) out += fmt::format(" {:>14} {:>7}", model.region_names[r] + "%", "calls");
+        if (model.region_report[r])
+            out += fmt::format(" {:>14} {:>7}", model.region_names[r] + "%", "calls");
     out += '\n';
     std::vector<ContigSummary> rows = contigs;
     rows.push_back(genome_total(model, contigs));
@@ -392,9 +428,10 @@ std::string summary_table(const Model& model, const std::vector<ContigSummary>& 
                            c.composition.gc_fraction(), c.log_likelihood);
         for (size_t r = 0; r < model.region_names.size(); ++r)
             if (model.region_report[r]) {
-                const double frac = c.length > 0 && r < c.expected_bases.size()
-                                        ? 100.0 * c.expected_bases[r] / static_cast<double>(c.length)
-                                        : 0.0;
+                const double frac =
+                    c.length > 0 && r < c.expected_bases.size()
+                        ? 100.0 * c.expected_bases[r] / static_cast<double>(c.length)
+                        : 0.0;
                 out += fmt::format(" {:>14.4f} {:>7}", frac, r < c.calls.size() ? c.calls[r] : 0);
             }
         out += '\n';
@@ -402,29 +439,33 @@ std::string summary_table(const Model& model, const std::vector<ContigSummary>& 
     return out;
 }
 
-std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs, const ResourceUsage& usage) {
+std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs,
+                         const ResourceUsage& usage) {
     const ContigSummary g = genome_total(model, contigs);
     const double obs_exp = g.composition.cpg_obs_exp();  // NaN without C or G: NA, as in the BED
-    std::string out = fmt::format("tidemark: {} contig{}, {} bp ({} unknown), GC {:.4f}, CpG o/e {}, log-likelihood {:.4f}\n",
-                                  contigs.size(), contigs.size() == 1 ? "" : "s", g.length, g.unknown,
-                                  g.composition.gc_fraction(),
-                                  std::isnan(obs_exp) ? std::string("NA") : fmt::format("{:.4f}", obs_exp),
-                                  g.log_likelihood);
-    out += fmt::format("tidemark: {:<16} {:>10} {:>9} {:>14} {:>8} {:>8} {:>8} {:>10}\n", "region", "calls",
-                       "called%", "expected%", "min_len", "med_len", "max_len", "mean_conf");
+    std::string out = fmt::format(
+        "tidemark: {} contig{}, {} bp ({} unknown), GC {:.4f}, CpG o/e {}, log-likelihood {:.4f}\n",
+        contigs.size(), contigs.size() == 1 ? "" : "s", g.length, g.unknown,
+        g.composition.gc_fraction(),
+        std::isnan(obs_exp) ? std::string("NA") : fmt::format("{:.4f}", obs_exp), g.log_likelihood);
+    out +=
+        fmt::format("tidemark: {:<16} {:>10} {:>9} {:>14} {:>8} {:>8} {:>8} {:>10}\n", "region",
+                    "calls", "called%", "expected%", "min_len", "med_len", "max_len", "mean_conf");
     for (size_t r = 0; r < model.region_names.size(); ++r) {
         if (!model.region_report[r]) continue;
         const LengthStats ls = length_stats(g.call_lengths[r]);
         const double len = g.length > 0 ? static_cast<double>(g.length) : 1.0;
-        out += fmt::format("tidemark: {:<16} {:>10} {:>9.4f} {:>14.4f} {:>8} {:>8.1f} {:>8} {:>10.4f}\n",
-                           model.region_names[r], g.calls[r], 100.0 * static_cast<double>(g.called_bases[r]) / len,
-                           100.0 * g.expected_bases[r] / len, ls.min, ls.median, ls.max,
-                           g.calls[r] > 0 ? g.confidence_sum[r] / static_cast<double>(g.calls[r]) : 0.0);
+        out += fmt::format(
+            "tidemark: {:<16} {:>10} {:>9.4f} {:>14.4f} {:>8} {:>8.1f} {:>8} {:>10.4f}\n",
+            model.region_names[r], g.calls[r], 100.0 * static_cast<double>(g.called_bases[r]) / len,
+            100.0 * g.expected_bases[r] / len, ls.min, ls.median, ls.max,
+            g.calls[r] > 0 ? g.confidence_sum[r] / static_cast<double>(g.calls[r]) : 0.0);
     }
-    out += fmt::format("tidemark: {:.2f} s wall, {:.2f} s CPU, {:.2f} Mbp/s, peak memory {:.1f} MiB\n",
-                       usage.wall_seconds, usage.cpu_seconds,
-                       usage.wall_seconds > 0 ? static_cast<double>(g.length) / 1e6 / usage.wall_seconds : 0.0,
-                       static_cast<double>(usage.peak_rss_bytes) / (1 << 20));
+    out += fmt::format(
+        "tidemark: {:.2f} s wall, {:.2f} s CPU, {:.2f} Mbp/s, peak memory {:.1f} MiB\n",
+        usage.wall_seconds, usage.cpu_seconds,
+        usage.wall_seconds > 0 ? static_cast<double>(g.length) / 1e6 / usage.wall_seconds : 0.0,
+        static_cast<double>(usage.peak_rss_bytes) / (1 << 20));
     return out;
 }
 

@@ -20,7 +20,9 @@ std::string format_oe(const Composition& comp) {
     return std::isnan(oe) ? std::string("NA") : fmt::format("{:.4f}", oe);
 }
 
-long call_score(const Call& call) { return std::lround(std::clamp(call.mean_posterior, 0.0, 1.0) * 1000.0); }
+long call_score(const Call& call) {
+    return std::lround(std::clamp(call.mean_posterior, 0.0, 1.0) * 1000.0);
+}
 
 // GFF3 (Sequence Ontology GFF3 specification 1.26): percent-encode characters with a meaning in
 // the column or attribute syntax, and controls.
@@ -28,7 +30,8 @@ std::string gff3_escape(const std::string& text, bool seqid) {
     std::string out;
     for (unsigned char ch : text) {
         const bool reserved = ch < 0x20 || ch == 0x7F || ch == '%' || ch == '\t' || ch == ';' ||
-                              ch == '=' || ch == '&' || ch == ',' || (seqid && (ch == ' ' || ch == '>'));
+                              ch == '=' || ch == '&' || ch == ',' ||
+                              (seqid && (ch == ' ' || ch == '>'));
         if (reserved)
             out += fmt::format("%{:02X}", ch);
         else
@@ -41,19 +44,21 @@ std::string gff3_escape(const std::string& text, bool seqid) {
 
 std::string region_color(const Model& model, int region) {
     // tidemark's palette: distinguishable on white and dark browser backgrounds.
-    static const char* palette[] = {"0,110,120", "200,110,0", "110,50,160", "40,140,70", "190,30,80",
-                                    "90,90,90", "20,80,190", "150,120,0"};
+    static const char* palette[] = {"0,110,120", "200,110,0", "110,50,160", "40,140,70",
+                                    "190,30,80", "90,90,90",  "20,80,190",  "150,120,0"};
     const auto r = static_cast<size_t>(region);
-    if (r < model.region_colors.size() && !model.region_colors[r].empty()) return model.region_colors[r];
+    if (r < model.region_colors.size() && !model.region_colors[r].empty())
+        return model.region_colors[r];
     return palette[r % std::size(palette)];
 }
 
 std::string format_bed_header(BedStyle style, const Model& model, const std::string& command_line) {
     std::string out;
     if (style == BedStyle::browser)
-        out += fmt::format("track name=\"tidemark {0}\" description=\"tidemark calls, profile {0}\" "
-                           "itemRgb=\"On\"\n",
-                           model.name);
+        out += fmt::format(
+            "track name=\"tidemark {0}\" description=\"tidemark calls, profile {0}\" "
+            "itemRgb=\"On\"\n",
+            model.name);
     out += fmt::format("#tidemark {} calls, profile {}\n", TIDEMARK_VERSION, model.name);
     out += "#command: " + command_line + "\n#chrom\tstart\tend\tname\tscore\tstrand";
     if (style == BedStyle::browser) out += "\tthickStart\tthickEnd\titemRgb";
@@ -62,7 +67,8 @@ std::string format_bed_header(BedStyle style, const Model& model, const std::str
     return out;
 }
 
-std::string format_bed_line(BedStyle style, const Model& model, const Contig& contig, const Call& call) {
+std::string format_bed_line(BedStyle style, const Model& model, const Contig& contig,
+                            const Call& call) {
     const int64_t off = contig.offset;
     std::string browser;
     if (style == BedStyle::browser)
@@ -74,28 +80,33 @@ std::string format_bed_line(BedStyle style, const Model& model, const Contig& co
                        call.composition.gc_fraction(), format_oe(call.composition));
 }
 
-std::string format_gff3_header() { return "##gff-version 3\n"; }
-
-std::string format_gff3_sequence_region(const Contig& contig) {
-    return fmt::format("##sequence-region {} 1 {}\n", gff3_escape(contig.name, true), contig.full_length());
+std::string format_gff3_header() {
+    return "##gff-version 3\n";
 }
 
-std::string format_gff3_feature(const Model& model, const Contig& contig, const Call& call, int64_t serial) {
+std::string format_gff3_sequence_region(const Contig& contig) {
+    return fmt::format("##sequence-region {} 1 {}\n", gff3_escape(contig.name, true),
+                       contig.full_length());
+}
+
+std::string format_gff3_feature(const Model& model, const Contig& contig, const Call& call,
+                                int64_t serial) {
     const std::string& region = model.region_names[call.region];
     const bool island = region == "cpg_island";
     const double oe = call.composition.cpg_obs_exp();
     std::string attributes = fmt::format(
         "ID={0}_{1};Name={0};Ontology_term={2};mean_posterior={3:.4f};min_posterior={4:.4f};"
         "gc_fraction={5:.4f}",
-        gff3_escape(region, false), serial, island ? "SO:0000307" : "SO:0000001", call.mean_posterior,
-        call.min_posterior, call.composition.gc_fraction());
+        gff3_escape(region, false), serial, island ? "SO:0000307" : "SO:0000001",
+        call.mean_posterior, call.min_posterior, call.composition.gc_fraction());
     if (!std::isnan(oe)) attributes += fmt::format(";cpg_obs_exp={:.4f}", oe);
     if (call.core_end > call.core_begin)
         attributes += fmt::format(";core_start={};core_end={}", contig.offset + call.core_begin + 1,
                                   contig.offset + call.core_end);
-    return fmt::format("{}\ttidemark\t{}\t{}\t{}\t{:.4f}\t.\t.\t{}\n", gff3_escape(contig.name, true),
-                       island ? "CpG_island" : "region", contig.offset + call.begin + 1,
-                       contig.offset + call.end, call.mean_posterior, attributes);
+    return fmt::format("{}\ttidemark\t{}\t{}\t{}\t{:.4f}\t.\t.\t{}\n",
+                       gff3_escape(contig.name, true), island ? "CpG_island" : "region",
+                       contig.offset + call.begin + 1, contig.offset + call.end,
+                       call.mean_posterior, attributes);
 }
 
 namespace {
@@ -126,15 +137,18 @@ public:
         std::rewind(file_);
         std::string chunk(((size_t{1} << 20) / unit) * unit, '\0');
         size_t got = 0;
-        while ((got = std::fread(chunk.data(), 1, chunk.size(), file_)) > 0) f(std::string_view(chunk.data(), got));
+        while ((got = std::fread(chunk.data(), 1, chunk.size(), file_)) > 0)
+            f(std::string_view(chunk.data(), got));
         if (std::ferror(file_)) throw IoError("cannot read back a temporary track spool file");
     }
 
 private:
     void spill() {
         if (!file_ && !(file_ = std::tmpfile()))
-            throw IoError("cannot create a temporary file for posterior tracks (is TMPDIR writable?)");
-        if (!memory_.empty() && std::fwrite(memory_.data(), 1, memory_.size(), file_) != memory_.size())
+            throw IoError(
+                "cannot create a temporary file for posterior tracks (is TMPDIR writable?)");
+        if (!memory_.empty() &&
+            std::fwrite(memory_.data(), 1, memory_.size(), file_) != memory_.size())
             throw IoError("cannot write a temporary track spool file (disk full?)");
         memory_.clear();
     }
@@ -161,9 +175,9 @@ struct PosteriorTracks::Track {
     int64_t run_value = -1;  ///< quantised value of the open run, -1 = none
     double bin_sum = 0;      ///< posterior sum of the open bin (its bases outside long gaps)
     int64_t bin_begin = 0, bin_fill = 0;
-    int64_t bin_known = 0;   ///< bases of the open bin outside long gaps
-    bool holding = false;    ///< the next flushed run is the span's first: keep it back
-    bool held = false;       ///< held_* is the span's first run, not yet written
+    int64_t bin_known = 0;  ///< bases of the open bin outside long gaps
+    bool holding = false;   ///< the next flushed run is the span's first: keep it back
+    bool held = false;      ///< held_* is the span's first run, not yet written
     int64_t held_begin = 0, held_end = 0, held_value = -1;
 };
 
@@ -171,8 +185,12 @@ PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options)
     : PosteriorTracks(model, std::move(options), false) {}
 
 PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options, bool forked)
-    : model_(model), options_(std::move(options)), scale_(std::pow(10.0, options_.digits)), forked_(forked) {
-    if (options_.digits < 0 || options_.digits > 12) throw UsageError("--posterior-digits must be from 0 to 12");
+    : model_(model),
+      options_(std::move(options)),
+      scale_(std::pow(10.0, options_.digits)),
+      forked_(forked) {
+    if (options_.digits < 0 || options_.digits > 12)
+        throw UsageError("--posterior-digits must be from 0 to 12");
     if (options_.bin < 1) throw UsageError("--bin must be at least 1");
     for (size_t r = 0; r < model.region_names.size(); ++r) {
         if (!model.region_report[r]) continue;
@@ -193,9 +211,10 @@ PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options, bool 
             format.skip_lines = options_.track_line ? 1 : 0;
             t->file = std::make_unique<OutputFile>(t->path, format);
             if (options_.track_line)
-                t->buffer = fmt::format("track type=bedGraph name=\"tidemark {0}\" description=\"P({0}), "
-                                        "profile {1}\" visibility=full viewLimits=0:1 autoScale=off\n",
-                                        model.region_names[r], model.name);
+                t->buffer = fmt::format(
+                    "track type=bedGraph name=\"tidemark {0}\" description=\"P({0}), "
+                    "profile {1}\" visibility=full viewLimits=0:1 autoScale=off\n",
+                    model.region_names[r], model.name);
         }
         tracks_.push_back(std::move(t));
     }
@@ -216,7 +235,8 @@ std::unique_ptr<DecodeSink> PosteriorTracks::fork() const {
 // Writes theirs' output (spool, then buffer) after mine's, wherever mine's goes. `sequence`
 // replaces their bigWig sequence indexes (a segment of my contig), or -1 to map their own
 // sequence list (a whole contig).
-void PosteriorTracks::append_output(Track& mine, Track& theirs, const PosteriorTracks& other, int64_t sequence) {
+void PosteriorTracks::append_output(Track& mine, Track& theirs, const PosteriorTracks& other,
+                                    int64_t sequence) {
     if (mine.spool)
         mine.spool->append(mine.buffer);
     else if (mine.file)
@@ -264,7 +284,8 @@ void PosteriorTracks::join(DecodeSink& later) {
             append_output(mine, theirs, *other, -1);
             continue;
         }
-        if (mine.bin_fill != 0) throw InternalError("PosteriorTracks::join: a segment starts inside a bin");
+        if (mine.bin_fill != 0)
+            throw InternalError("PosteriorTracks::join: a segment starts inside a bin");
         // Continues my open run when equal and adjacent, else closes it and opens this one.
         const auto continue_with = [&](int64_t value, int64_t begin, int64_t end) {
             if (mine.run_value == value && mine.run_end == begin) {
@@ -277,7 +298,8 @@ void PosteriorTracks::join(DecodeSink& later) {
             mine.run_end = end;
         };
         if (theirs.holding) {  // they wrote nothing: at most one run, still open
-            if (theirs.run_value >= 0) continue_with(theirs.run_value, theirs.run_begin, theirs.run_end);
+            if (theirs.run_value >= 0)
+                continue_with(theirs.run_value, theirs.run_begin, theirs.run_end);
         } else {
             if (theirs.held) continue_with(theirs.held_value, theirs.held_begin, theirs.held_end);
             flush_run(mine);  // their written runs and open run differ from the one before
@@ -336,8 +358,8 @@ void PosteriorTracks::flush_run(Track& t) {
         const SpooledInterval r{sequence_, begin, end, value};
         t.buffer.append(reinterpret_cast<const char*>(&r), sizeof r);
     } else {
-        fmt::format_to(std::back_inserter(t.buffer), "{}\t{}\t{}\t{:.{}f}\n", contig_->name, begin, end, value,
-                       options_.digits);
+        fmt::format_to(std::back_inserter(t.buffer), "{}\t{}\t{}\t{:.{}f}\n", contig_->name, begin,
+                       end, value, options_.digits);
     }
     if (t.buffer.size() > (1 << 20)) {
         if (t.spool)
@@ -361,11 +383,13 @@ void PosteriorTracks::add_value(Track& t, int64_t begin, int64_t end, double p) 
     t.run_end = end;
 }
 
-void PosteriorTracks::gaps_in(int64_t begin, int64_t end, std::vector<std::pair<int64_t, int64_t>>& out) const {
+void PosteriorTracks::gaps_in(int64_t begin, int64_t end,
+                              std::vector<std::pair<int64_t, int64_t>>& out) const {
     out.clear();
     const std::vector<UnknownRun>& runs = contig_->unknown;
-    auto it = std::upper_bound(runs.begin(), runs.end(), begin,
-                               [](int64_t pos, const UnknownRun& r) { return pos < r.begin + r.length; });
+    auto it =
+        std::upper_bound(runs.begin(), runs.end(), begin,
+                         [](int64_t pos, const UnknownRun& r) { return pos < r.begin + r.length; });
     for (; it != runs.end() && it->begin < end; ++it)
         if (it->length >= track_gap_min_length)
             out.emplace_back(std::max(begin, it->begin), std::min(end, it->begin + it->length));

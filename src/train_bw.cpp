@@ -6,8 +6,8 @@
 #include <cmath>
 #include <limits>
 
-#include "tidemark/error.hpp"
 #include "rng.hpp"
+#include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
 
 namespace tidemark {
@@ -48,9 +48,11 @@ double seconds_since(std::chrono::steady_clock::time_point t0) {
 }
 
 Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions& o,
-       const FreezeMask& freeze, int restart, std::vector<IterationRecord>& history, const Logger& log) {
+       const FreezeMask& freeze, int restart, std::vector<IterationRecord>& history,
+       const Logger& log) {
     const MStepOptions mo{o.pseudocount};
-    const std::string who = o.restarts > 1 ? fmt::format("restart {}/{}, ", restart + 1, o.restarts) : "";
+    const std::string who =
+        o.restarts > 1 ? fmt::format("restart {}/{}, ", restart + 1, o.restarts) : "";
     Run run;
     double prev_ll = 0, prev_obj = 0;
     for (int it = 0;; ++it) {
@@ -69,12 +71,14 @@ Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions
             if (obj < prev_obj - 1e-9 * std::max(1.0, std::abs(prev_obj)))
                 throw InternalError(fmt::format(
                     "fit: the EM objective decreased from {:.10g} to {:.10g} at iteration {} "
-                    "(log-likelihood {:.10g} -> {:.10g}); this is a bug in tidemark, please report it",
+                    "(log-likelihood {:.10g} -> {:.10g}); this is a bug in tidemark, please report "
+                    "it",
                     prev_obj, obj, it, prev_ll, ll));
             rel = (ll - prev_ll) / std::max(std::abs(prev_ll), std::numeric_limits<double>::min());
         }
-        log.info(fmt::format("fit: {}iteration {}: log-likelihood {:.6f}, change {}, {:.2f} s", who, it, ll,
-                             it > 0 ? fmt::format("{:+.3e}", rel) : std::string("-"), secs));
+        log.info(fmt::format("fit: {}iteration {}: log-likelihood {:.6f}, change {}, {:.2f} s", who,
+                             it, ll, it > 0 ? fmt::format("{:+.3e}", rel) : std::string("-"),
+                             secs));
         run.profile = p;
         run.log_likelihood = ll;
         run.iterations = it;
@@ -93,12 +97,14 @@ Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions
 
 }  // namespace
 
-Profile perturb(const Profile& start, const FreezeMask& freeze, uint64_t seed, int restart, double amount) {
+Profile perturb(const Profile& start, const FreezeMask& freeze, uint64_t seed, int restart,
+                double amount) {
     Random rng(seed ^ (0xd1b54a32d192ed03ULL * static_cast<uint64_t>(restart + 1)));
     Profile p = start;
     if (!freeze.initial) jitter(p.initial.begin(), p.initial.end(), rng, amount);
     for (size_t s = 0; s < p.states.size(); ++s)
-        if (!freeze.transitions[s]) jitter(p.transitions[s].begin(), p.transitions[s].end(), rng, amount);
+        if (!freeze.transitions[s])
+            jitter(p.transitions[s].begin(), p.transitions[s].end(), rng, amount);
     for (size_t s = 0; s < p.states.size(); ++s) {
         if (freeze.emissions[s]) continue;
         size_t leader = s;
@@ -115,20 +121,24 @@ Profile perturb(const Profile& start, const FreezeMask& freeze, uint64_t seed, i
         }
         if (p.windowed()) {  // mean on the logit scale, dispersion on the log scale
             WindowGC& gc = p.states[s].gc;
-            const double logit = std::log(gc.mean / (1 - gc.mean)) + amount * (2 * rng.uniform() - 1);
+            const double logit =
+                std::log(gc.mean / (1 - gc.mean)) + amount * (2 * rng.uniform() - 1);
             gc.mean = 1 / (1 + std::exp(-logit));
-            gc.dispersion = std::clamp(gc.dispersion * std::exp(amount * (2 * rng.uniform() - 1)), 1e-9, 0.5);
+            gc.dispersion =
+                std::clamp(gc.dispersion * std::exp(amount * (2 * rng.uniform() - 1)), 1e-9, 0.5);
         }
         for (auto& row : p.states[s].emissions) jitter(row.begin(), row.end(), rng, amount);
     }
     return p;
 }
 
-FitResult baum_welch(const Profile& start, TrainingData& data, const FitOptions& o, const Logger& log) {
+FitResult baum_welch(const Profile& start, TrainingData& data, const FitOptions& o,
+                     const Logger& log) {
     if (o.restarts < 1) throw UsageError("--restarts must be at least 1");
     if (o.max_iter < 0) throw UsageError("--max-iter must be >= 0");
     if (!(o.tol >= 0)) throw UsageError("--tol must be >= 0");
-    if (!(o.pseudocount >= 0) || !std::isfinite(o.pseudocount)) throw UsageError("--pseudocount must be >= 0");
+    if (!(o.pseudocount >= 0) || !std::isfinite(o.pseudocount))
+        throw UsageError("--pseudocount must be >= 0");
     const FreezeMask freeze = resolve_freeze(o.freeze, start);
     FitResult best;
     bool have = false;
@@ -151,8 +161,8 @@ FitResult baum_welch(const Profile& start, TrainingData& data, const FitOptions&
         }
     }
     if (o.restarts > 1)
-        log.info(fmt::format("fit: kept restart {} of {} (log-likelihood {:.6f})", best.best_restart + 1,
-                             o.restarts, best.log_likelihood));
+        log.info(fmt::format("fit: kept restart {} of {} (log-likelihood {:.6f})",
+                             best.best_restart + 1, o.restarts, best.log_likelihood));
     best.restart_log_likelihoods = std::move(lls);
     best.history = std::move(history);
     return best;

@@ -13,12 +13,14 @@ FastaTrainingData::FastaTrainingData(std::vector<std::string> inputs,
     if (inputs_.empty()) throw UsageError("fit needs at least one FASTA file");
     for (const auto& in : inputs_)
         if (in == "-")
-            throw UsageError("fit reads its input once per iteration, so it cannot read standard "
-                             "input (-); write the sequences to a file first");
+            throw UsageError(
+                "fit reads its input once per iteration, so it cannot read standard "
+                "input (-); write the sequences to a file first");
     if (!regions.empty() || !regions_bed.empty()) {
         if (inputs_.size() != 1)
             throw UsageError("--region and --regions-bed take exactly one indexed FASTA file");
-        const std::vector<Interval> bed = regions_bed.empty() ? std::vector<Interval>{} : read_bed(regions_bed);
+        const std::vector<Interval> bed =
+            regions_bed.empty() ? std::vector<Interval>{} : read_bed(regions_bed);
         regions_ = resolve_regions(inputs_[0], regions, bed);
     }
 }
@@ -31,7 +33,8 @@ void FastaTrainingData::for_each(const std::function<void(const Contig&)>& fn) {
         source->set_soft_masked(soft_masked_);
         while (source->next(contig_)) {
             if (!recorded_)
-                seen.push_back({input, contig_.name, contig_.offset, contig_.length, contig_.unknown_count()});
+                seen.push_back(
+                    {input, contig_.name, contig_.offset, contig_.length, contig_.unknown_count()});
             fn(contig_);
         }
     }

@@ -8,11 +8,11 @@
 #include <future>
 #include <memory>
 
+#include "byte_source.hpp"
+#include "thread_pool.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
 #include "tidemark/window.hpp"
-#include "byte_source.hpp"
-#include "thread_pool.hpp"
 
 namespace tidemark {
 
@@ -22,7 +22,8 @@ TrainingCounts TrainingCounts::zero(const Profile& p) {
     c.initial.assign(P, 0.0);
     c.transitions.assign(P, std::vector<double>(P, 0.0));
     c.chain_steps.assign(P, 0.0);
-    for (const auto& s : p.states) c.emissions.emplace_back(s.emissions.size(), std::array<double, 4>{});
+    for (const auto& s : p.states)
+        c.emissions.emplace_back(s.emissions.size(), std::array<double, 4>{});
     return c;
 }
 
@@ -53,7 +54,9 @@ bool sparse_model(const Model& m) {
 }  // namespace
 
 CountAccumulator::CountAccumulator(const Profile& profile, const Model& model)
-    : profile_(profile), model_(model), sparse_(model.states > 6 && sparse_model(model)),
+    : profile_(profile),
+      model_(model),
+      sparse_(model.states > 6 && sparse_model(model)),
       counts_(TrainingCounts::zero(profile)) {
     if (model.profile_state.size() != static_cast<size_t>(model.states))
         throw InternalError("CountAccumulator needs a model compiled from its profile");
@@ -97,7 +100,8 @@ void CountAccumulator::add_transitions(const BlockView& v) {
                 z += prev[i] * acc;
             }
             if (!(z > 0) || !std::isfinite(z))
-                throw InternalError(fmt::format("E-step: transition normaliser {} at position {}", z, pos));
+                throw InternalError(
+                    fmt::format("E-step: transition normaliser {} at position {}", z, pos));
             const double inv = 1.0 / z;
             for (int i = 0; i < S; ++i) {
                 const double pi = prev[i] * inv;
@@ -108,16 +112,19 @@ void CountAccumulator::add_transitions(const BlockView& v) {
             double z = 0;
             for (int i = 0; i < S; ++i) {
                 double acc = 0;
-                for (int e2 = m.out_begin[i]; e2 < m.out_begin[i + 1]; ++e2) acc += m.out_prob[e2] * w[m.out_to[e2]];
+                for (int e2 = m.out_begin[i]; e2 < m.out_begin[i + 1]; ++e2)
+                    acc += m.out_prob[e2] * w[m.out_to[e2]];
                 z += prev[i] * acc;
             }
             if (!(z > 0) || !std::isfinite(z))
-                throw InternalError(fmt::format("E-step: transition normaliser {} at position {}", z, pos));
+                throw InternalError(
+                    fmt::format("E-step: transition normaliser {} at position {}", z, pos));
             const double inv = 1.0 / z;
             for (int i = 0; i < S; ++i) {
                 if (prev[i] == 0) continue;
                 const double pi = prev[i] * inv;
-                for (int e2 = m.out_begin[i]; e2 < m.out_begin[i + 1]; ++e2) part[e2] += pi * w[m.out_to[e2]];
+                for (int e2 = m.out_begin[i]; e2 < m.out_begin[i + 1]; ++e2)
+                    part[e2] += pi * w[m.out_to[e2]];
             }
         }
     }
@@ -176,7 +183,8 @@ void CountAccumulator::add_emissions(const BlockView& v) {
                 double total = 0;
                 for (const auto& row : em) total += row[base];
                 if (total > 0)
-                    for (size_t r = 0; r < em.size(); ++r) rows[r][base] += g[p] * em[r][base] / total;
+                    for (size_t r = 0; r < em.size(); ++r)
+                        rows[r][base] += g[p] * em[r][base] / total;
             }
         }
         ctx_.push(base);
@@ -185,7 +193,8 @@ void CountAccumulator::add_emissions(const BlockView& v) {
 
 void CountAccumulator::block(const BlockView& v) {
     if (!v.forward || !v.backward || !v.emission)
-        throw InternalError("CountAccumulator needs the posterior decoder's forward and backward rows");
+        throw InternalError(
+            "CountAccumulator needs the posterior decoder's forward and backward rows");
     if (v.begin > 0 && !v.forward_before)
         throw InternalError("CountAccumulator: block view without forward_before");
     if (!started_) {
@@ -194,13 +203,27 @@ void CountAccumulator::block(const BlockView& v) {
         if (v.begin > 0 && contig_) ctx_ = context_before(*contig_, v.begin, model_.max_order);
     }
     switch (v.states) {
-        case 1: add_transitions<1>(v); break;
-        case 2: add_transitions<2>(v); break;
-        case 3: add_transitions<3>(v); break;
-        case 4: add_transitions<4>(v); break;
-        case 5: add_transitions<5>(v); break;
-        case 6: add_transitions<6>(v); break;
-        default: add_transitions<0>(v); break;
+        case 1:
+            add_transitions<1>(v);
+            break;
+        case 2:
+            add_transitions<2>(v);
+            break;
+        case 3:
+            add_transitions<3>(v);
+            break;
+        case 4:
+            add_transitions<4>(v);
+            break;
+        case 5:
+            add_transitions<5>(v);
+            break;
+        case 6:
+            add_transitions<6>(v);
+            break;
+        default:
+            add_transitions<0>(v);
+            break;
     }
     if (v.window > 0) {
         add_window_emissions(v);
@@ -225,7 +248,8 @@ void CountAccumulator::end_piece(const DecodeResult& result, bool ends_contig) {
     };
     if (sparse_) {
         for (int i = 0; i < S; ++i)
-            for (int e = m.out_begin[i]; e < m.out_begin[i + 1]; ++e) add(i, m.out_to[e], m.out_prob[e] * edge_[e]);
+            for (int e = m.out_begin[i]; e < m.out_begin[i + 1]; ++e)
+                add(i, m.out_to[e], m.out_prob[e] * edge_[e]);
     } else {
         for (int i = 0; i < S; ++i)
             for (int j = 0; j < S; ++j) {
@@ -259,7 +283,8 @@ void copy_contig(const Contig& from, Contig& to) {
     to.offset = from.offset;
     to.sequence_length = from.sequence_length;
     constexpr int64_t piece = int64_t{1} << 20;
-    std::vector<uint8_t> codes(static_cast<size_t>(std::min(piece, std::max<int64_t>(from.length, 1))));
+    std::vector<uint8_t> codes(
+        static_cast<size_t>(std::min(piece, std::max<int64_t>(from.length, 1))));
     for (int64_t pos = 0; pos < from.length; pos += piece) {
         const int64_t n = std::min(piece, from.length - pos);
         from.unpack(pos, n, codes.data());
@@ -270,14 +295,16 @@ void copy_contig(const Contig& from, Contig& to) {
 
 }  // namespace
 
-TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64_t block_size, int threads) {
+TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64_t block_size,
+                               int threads) {
     const Model model = compile(profile);
     DecoderOptions options;
     options.block_size = block_size;
     const int T = resolve_threads(threads);
     const detail::DecompressionThreads decompression(T > 1 ? 1 : 0);  // inflate ahead of parsing
     std::vector<std::unique_ptr<PosteriorDecoder>> decoders;
-    for (int w = 0; w < T; ++w) decoders.push_back(std::make_unique<PosteriorDecoder>(model, options));
+    for (int w = 0; w < T; ++w)
+        decoders.push_back(std::make_unique<PosteriorDecoder>(model, options));
     CountAccumulator total(profile, model);
     // This process's pieces of a split record, from every process's seams.
     const auto count_split = [&](const Contig& c, TaskPool* pool) {
@@ -286,8 +313,8 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
             auto acc = std::make_unique<CountAccumulator>(profile, model);
             acc->begin_contig(c);
             const DecodeResult result = decoders[0]->run_segments(
-                c, part.seams, piece.first, piece.second, *acc, [&](size_t, DecodeSink& fork) { acc->join(fork); },
-                pool);
+                c, part.seams, piece.first, piece.second, *acc,
+                [&](size_t, DecodeSink& fork) { acc->join(fork); }, pool);
             acc->end_piece(result, piece.second == part.segments);
             total.join(*acc);
         }
@@ -340,7 +367,8 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
         job->acc = total.fork();
         Job* j = job.get();
         jobs.push_back(std::move(job));
-        j->done = pool.submit([j, &decoders](int w) { decoders[static_cast<size_t>(w)]->run(j->contig, *j->acc); });
+        j->done = pool.submit(
+            [j, &decoders](int w) { decoders[static_cast<size_t>(w)]->run(j->contig, *j->acc); });
     });
     while (!jobs.empty()) finish_oldest();
     return total.counts();

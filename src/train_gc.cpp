@@ -20,14 +20,16 @@ double state_gc(const StateSpec& s) {
     for (int it = 0; it < 100000; ++it) {
         for (size_t c = 0; c < rows; ++c) next[c] = 0.5 * pi[c];
         for (size_t c = 0; c < rows; ++c)
-            for (size_t b = 0; b < 4; ++b) next[((c << 2) | b) & mask] += 0.5 * pi[c] * s.emissions[c][b];
+            for (size_t b = 0; b < 4; ++b)
+                next[((c << 2) | b) & mask] += 0.5 * pi[c] * s.emissions[c][b];
         double change = 0;
         for (size_t c = 0; c < rows; ++c) change += std::abs(next[c] - pi[c]);
         pi.swap(next);
         if (change < 1e-14) break;
     }
     double gc = 0;
-    for (size_t c = 0; c < rows; ++c) gc += pi[c] * (s.emissions[c][base_c] + s.emissions[c][base_g]);
+    for (size_t c = 0; c < rows; ++c)
+        gc += pi[c] * (s.emissions[c][base_c] + s.emissions[c][base_g]);
     return gc;
 }
 
@@ -61,8 +63,10 @@ Profile order_states_by_gc(const Profile& p, bool rename_classes) {
     }
     if (rename_classes && one_each)
         for (size_t k = 0; k < P; ++k)
-            q.regions[k].description = fmt::format("composition class {} of {} in increasing GC "
-                                                   "(fitted GC {:.4f})", k + 1, P, gc[order[k]]);
+            q.regions[k].description = fmt::format(
+                "composition class {} of {} in increasing GC "
+                "(fitted GC {:.4f})",
+                k + 1, P, gc[order[k]]);
     return q;
 }
 

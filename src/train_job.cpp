@@ -25,9 +25,11 @@ std::string learned_classes(const Profile& p) {
         double stay = 0;
         for (size_t u = 0; u < p.states.size(); ++u)
             if (p.states[u].region == st.region) stay += p.transitions[s][u];
-        const double windows = static_cast<double>(p.chain_length(st.region) - 1) + 1 / std::max(1e-300, 1 - stay);
-        out += fmt::format("\n  {:<12} GC {:.4f}  dispersion {:.3g}  mean segment {:.1f} kb", st.name, st.gc.mean,
-                           st.gc.dispersion, windows * static_cast<double>(p.window_size) / 1000);
+        const double windows =
+            static_cast<double>(p.chain_length(st.region) - 1) + 1 / std::max(1e-300, 1 - stay);
+        out += fmt::format("\n  {:<12} GC {:.4f}  dispersion {:.3g}  mean segment {:.1f} kb",
+                           st.name, st.gc.mean, st.gc.dispersion,
+                           windows * static_cast<double>(p.window_size) / 1000);
     }
     return out;
 }
@@ -58,9 +60,10 @@ std::string default_region_of(const Profile& p) {
     if (quiet.size() == 1) return quiet[0];
     std::string names;
     for (const auto& r : p.regions) names += (names.empty() ? "" : ", ") + r.name;
-    throw UsageError(fmt::format("--labels: say which region unlabelled bases belong to with --default-region "
-                                 "(profile '{}' has regions {})",
-                                 p.name, names));
+    throw UsageError(
+        fmt::format("--labels: say which region unlabelled bases belong to with --default-region "
+                    "(profile '{}' has regions {})",
+                    p.name, names));
 }
 
 // Warns when training changed the GC order of the states, since their names then may no
@@ -72,10 +75,11 @@ void warn_on_swaps(const Profile& before, const Profile& after, const Logger& lo
             const double x0 = state_gc(before.states[a]), y0 = state_gc(before.states[b]);
             const double x1 = state_gc(after.states[a]), y1 = state_gc(after.states[b]);
             if ((x0 < y0 && x1 > y1) || (x0 > y0 && x1 < y1))
-                log.warn(fmt::format("fit: states '{}' and '{}' swapped their GC order during training "
-                                     "(GC {:.3f}/{:.3f} at the start, {:.3f}/{:.3f} fitted); their names may "
-                                     "no longer describe them (try --init-from-data)",
-                                     before.states[a].name, before.states[b].name, x0, y0, x1, y1));
+                log.warn(fmt::format(
+                    "fit: states '{}' and '{}' swapped their GC order during training "
+                    "(GC {:.3f}/{:.3f} at the start, {:.3f}/{:.3f} fitted); their names may "
+                    "no longer describe them (try --init-from-data)",
+                    before.states[a].name, before.states[b].name, x0, y0, x1, y1));
         }
 }
 
@@ -83,7 +87,8 @@ ordered_json input_json(const FastaTrainingData& data) {
     ordered_json files = ordered_json::array();
     for (const auto& r : data.records()) {
         if (files.empty() || files.back()["path"] != r.input)
-            files.push_back({{"path", r.input}, {"records", 0}, {"bases", 0}, {"unknown_bases", 0}});
+            files.push_back(
+                {{"path", r.input}, {"records", 0}, {"bases", 0}, {"unknown_bases", 0}});
         auto& f = files.back();
         f["records"] = f["records"].get<int64_t>() + 1;
         f["bases"] = f["bases"].get<int64_t>() + r.length;
@@ -107,18 +112,21 @@ ordered_json sequences_json(const FastaTrainingData& data) {
 
 std::string fitted_profile_name(const std::string& start_name, bool may_continue) {
     const std::string suffix = "-fit";
-    const bool fitted = start_name.size() >= suffix.size() &&
-                        start_name.compare(start_name.size() - suffix.size(), suffix.size(), suffix) == 0;
+    const bool fitted =
+        start_name.size() >= suffix.size() &&
+        start_name.compare(start_name.size() - suffix.size(), suffix.size(), suffix) == 0;
     return may_continue && fitted ? start_name : start_name + suffix;
 }
 
 void parse_class_range(const std::string& text, int& lo, int& hi) {
     const auto bad = [&] {
-        return UsageError(fmt::format("--classes '{}': expected a count K or a range A..B with 1 <= A <= B <= {}",
-                                      text, max_classes));
+        return UsageError(
+            fmt::format("--classes '{}': expected a count K or a range A..B with 1 <= A <= B <= {}",
+                        text, max_classes));
     };
     const auto number = [&](const std::string& s) {
-        if (s.empty() || s.size() > 3 || !std::all_of(s.begin(), s.end(), [](char c) { return c >= '0' && c <= '9'; }))
+        if (s.empty() || s.size() > 3 ||
+            !std::all_of(s.begin(), s.end(), [](char c) { return c >= '0' && c <= '9'; }))
             throw bad();
         return std::stoi(s);
     };
@@ -130,27 +138,38 @@ void parse_class_range(const std::string& text, int& lo, int& hi) {
 
 void validate(const FitJobOptions& o) {
     if (o.fit.threads < 0) throw UsageError("--threads must be >= 0 (0 = every core)");
-    if (o.shard.active() || !o.emit_stats.empty() || !o.from_stats.empty() || !o.emit_seams.empty() ||
-        !o.seams.empty() || o.whole_contigs)
+    if (o.shard.active() || !o.emit_stats.empty() || !o.from_stats.empty() ||
+        !o.emit_seams.empty() || !o.seams.empty() || o.whole_contigs)
         return validate_distributed(o);
     if (o.inputs.empty()) throw UsageError("fit needs at least one FASTA file");
     const bool from_template = o.classes_min > 0;
     if (from_template && !o.profile.empty())
-        throw UsageError("--classes builds its own starting profile; give either --classes or --profile, not both");
+        throw UsageError(
+            "--classes builds its own starting profile; give either --classes or --profile, not "
+            "both");
     if (!from_template && o.profile.empty())
-        throw UsageError("fit needs a starting point: a profile (-p NAME|FILE) or a template (--classes K)");
-    if (!o.select.empty() && o.select != "bic") throw UsageError("--select: only 'bic' is supported");
-    if (!o.select.empty() && !from_template) throw UsageError("--select chooses among --classes A..B");
+        throw UsageError(
+            "fit needs a starting point: a profile (-p NAME|FILE) or a template (--classes K)");
+    if (!o.select.empty() && o.select != "bic")
+        throw UsageError("--select: only 'bic' is supported");
+    if (!o.select.empty() && !from_template)
+        throw UsageError("--select chooses among --classes A..B");
     if (from_template && o.classes_max > o.classes_min && o.select.empty())
-        throw UsageError("--classes A..B fits several class counts: add --select bic to choose one");
+        throw UsageError(
+            "--classes A..B fits several class counts: add --select bic to choose one");
     if (from_template && (o.order < 0 || o.order > max_emission_order))
         throw UsageError(fmt::format("--order must be from 0 to {}", max_emission_order));
     if (o.init_from_data && from_template)
-        throw UsageError("--init-from-data reseeds a --profile; --classes templates are always seeded from the data");
+        throw UsageError(
+            "--init-from-data reseeds a --profile; --classes templates are always seeded from the "
+            "data");
     if (!o.labels.empty()) {
-        if (from_template) throw UsageError("--labels needs a profile (-p) whose regions the labels name");
-        if (o.fit.restarts != 1) throw UsageError("--restarts applies to Baum-Welch, not to --labels counting");
-        if (o.init_from_data) throw UsageError("--init-from-data applies to Baum-Welch, not to --labels counting");
+        if (from_template)
+            throw UsageError("--labels needs a profile (-p) whose regions the labels name");
+        if (o.fit.restarts != 1)
+            throw UsageError("--restarts applies to Baum-Welch, not to --labels counting");
+        if (o.init_from_data)
+            throw UsageError("--init-from-data applies to Baum-Welch, not to --labels counting");
     } else if (!o.default_region.empty()) {
         throw UsageError("--default-region applies only with --labels");
     }
@@ -167,11 +186,13 @@ namespace {
 
 // A fit that stopped at --max-iter warns; every fit ends with one line: where the profile went,
 // iterations, converged or not, final log-likelihood.
-void log_fit_outcome(const FitJobOptions& o, const std::string& method, const FitResult& result, const Logger& log) {
+void log_fit_outcome(const FitJobOptions& o, const std::string& method, const FitResult& result,
+                     const Logger& log) {
     const std::string where = o.output == "-" ? "standard output" : o.output;
     if (method != "baum-welch") {
-        log.info(fmt::format("fit: wrote {}: labelled counts (no iterations), log-likelihood {:.6f}", where,
-                             result.log_likelihood));
+        log.info(
+            fmt::format("fit: wrote {}: labelled counts (no iterations), log-likelihood {:.6f}",
+                        where, result.log_likelihood));
         return;
     }
     std::string state = result.converged ? "converged" : "not converged";
@@ -183,16 +204,20 @@ void log_fit_outcome(const FitJobOptions& o, const std::string& method, const Fi
         const IterationRecord* previous = nullptr;
         for (const auto& h : result.history) {
             if (h.restart != result.best_restart) continue;
-            if (previous) change = (h.log_likelihood - previous->log_likelihood) / std::abs(previous->log_likelihood);
+            if (previous)
+                change = (h.log_likelihood - previous->log_likelihood) /
+                         std::abs(previous->log_likelihood);
             previous = &h;
         }
-        log.warn(fmt::format("fit: stopped at --max-iter {} without converging: the last relative log-likelihood "
-                             "change {:+.3e} is not below --tol {:g}; the profile may still improve with a larger "
-                             "--max-iter",
-                             result.iterations, change, o.fit.tol));
+        log.warn(fmt::format(
+            "fit: stopped at --max-iter {} without converging: the last relative log-likelihood "
+            "change {:+.3e} is not below --tol {:g}; the profile may still improve with a larger "
+            "--max-iter",
+            result.iterations, change, o.fit.tol));
     }
-    log.info(fmt::format("fit: wrote {}: {} iteration{}, {}, log-likelihood {:.6f}", where, result.iterations,
-                         result.iterations == 1 ? "" : "s", state, result.log_likelihood));
+    log.info(fmt::format("fit: wrote {}: {} iteration{}, {}, log-likelihood {:.6f}", where,
+                         result.iterations, result.iterations == 1 ? "" : "s", state,
+                         result.log_likelihood));
 }
 
 }  // namespace
@@ -214,24 +239,29 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
         method = "labelled";
         const Profile start = load_profile(o.profile);
         if (start.windowed())
-            throw UsageError(fmt::format("--labels counts per-base emissions; '{}' is a window profile (fit it by "
-                                         "Baum-Welch, without --labels)",
-                                         start.name));
+            throw UsageError(fmt::format(
+                "--labels counts per-base emissions; '{}' is a window profile (fit it by "
+                "Baum-Welch, without --labels)",
+                start.name));
         start_name = start.name;
         start_sources = start.sources;
-        const std::string fallback = o.default_region.empty() ? default_region_of(start) : o.default_region;
+        const std::string fallback =
+            o.default_region.empty() ? default_region_of(start) : o.default_region;
         const std::vector<Interval> labels = read_bed(o.labels);
         const TrainingCounts counts = labelled_counts(start, data, labels, fallback, log);
-        if (counts.known == 0) throw InputError("the training sequences contain no known base (A, C, G or T)");
+        if (counts.known == 0)
+            throw InputError("the training sequences contain no known base (A, C, G or T)");
         const FreezeMask freeze = resolve_freeze(o.fit.freeze, start);
         result.profile = maximise(start, start, counts, freeze, MStepOptions{o.fit.pseudocount});
-        const TrainingCounts check = expected_counts(result.profile, data, o.fit.block_size, o.fit.threads);
+        const TrainingCounts check =
+            expected_counts(result.profile, data, o.fit.block_size, o.fit.threads);
         result.log_likelihood = check.log_likelihood;
         result.known_bases = check.known;
         result.positions = check.positions;
         result.contigs = check.contigs;
-        log.info(fmt::format("fit: labelled counts over {} bases; log-likelihood of the result {:.6f}",
-                             counts.positions, result.log_likelihood));
+        log.info(
+            fmt::format("fit: labelled counts over {} bases; log-likelihood of the result {:.6f}",
+                        counts.positions, result.log_likelihood));
     } else if (o.classes_min > 0) {
         start_name = fmt::format("template of {} class(es), order {}", o.classes_min, o.order);
         if (o.select.empty()) {
@@ -240,8 +270,10 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
             f.order_by_gc = true;
             result = baum_welch(start, data, f, log);
         } else {
-            start_name = fmt::format("templates of {}..{} classes, order {}", o.classes_min, o.classes_max, o.order);
-            selection = select_classes(data, o.classes_min, o.classes_max, o.order, o.seed, o.fit, log);
+            start_name = fmt::format("templates of {}..{} classes, order {}", o.classes_min,
+                                     o.classes_max, o.order);
+            selection =
+                select_classes(data, o.classes_min, o.classes_max, o.order, o.seed, o.fit, log);
             log.info("fit: model selection by BIC\n" + selection_table(selection));
             result = selection.candidates[selection.chosen].fit;
         }
@@ -251,8 +283,9 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
         start_sources = start.sources;
         if (o.init_from_data || start.is_template) {
             if (!o.init_from_data)
-                log.info(fmt::format("fit: profile '{}' is a template: its classes are seeded from the data first",
-                                     start.name));
+                log.info(fmt::format(
+                    "fit: profile '{}' is a template: its classes are seeded from the data first",
+                    start.name));
             start = seed_from_data(start, data, o.seed);
         }
         FitOptions fit = o.fit;
@@ -262,7 +295,8 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
             // compositions are learned.
             fit.freeze.transitions = true;
             fit.freeze.initial = true;
-            log.info("fit: template: transitions and initial kept as given; class compositions fitted");
+            log.info(
+                "fit: template: transitions and initial kept as given; class compositions fitted");
         }
         result = baum_welch(start, data, fit, log);
         result.profile.is_template = false;
@@ -271,15 +305,20 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     }
 
     Profile& p = result.profile;
-    if (!o.name.empty()) p.name = o.name;
-    else if (o.classes_min == 0) p.name = fitted_profile_name(start_name);
+    if (!o.name.empty())
+        p.name = o.name;
+    else if (o.classes_min == 0)
+        p.name = fitted_profile_name(start_name);
     std::vector<std::string> sources;
-    sources.push_back(fmt::format("Parameters fitted by tidemark {} fit ({}) to the sequences listed under "
-                                  "provenance, starting from {}.",
-                                  TIDEMARK_VERSION, method, o.classes_min > 0 ? start_name : "profile '" + start_name + "'"));
+    sources.push_back(fmt::format(
+        "Parameters fitted by tidemark {} fit ({}) to the sequences listed under "
+        "provenance, starting from {}.",
+        TIDEMARK_VERSION, method, o.classes_min > 0 ? start_name : "profile '" + start_name + "'"));
     for (const auto& s : p.sources)
-        if (std::find(start_sources.begin(), start_sources.end(), s) == start_sources.end()) sources.push_back(s);
-    for (const auto& s : start_sources) sources.push_back("Starting profile '" + start_name + "': " + s);
+        if (std::find(start_sources.begin(), start_sources.end(), s) == start_sources.end())
+            sources.push_back(s);
+    for (const auto& s : start_sources)
+        sources.push_back("Starting profile '" + start_name + "': " + s);
     p.sources = sources;
 
     ordered_json prov;
@@ -301,11 +340,13 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
         if (o.init_from_data) opts["init_from_data"] = true;
     } else {
         opts["labels"] = o.labels;
-        opts["default_region"] = o.default_region.empty() ? "(the only unreported region)" : o.default_region;
+        opts["default_region"] =
+            o.default_region.empty() ? "(the only unreported region)" : o.default_region;
     }
     if (o.classes_min > 0) {
-        opts["classes"] = o.classes_min == o.classes_max ? fmt::format("{}", o.classes_min)
-                                                          : fmt::format("{}..{}", o.classes_min, o.classes_max);
+        opts["classes"] = o.classes_min == o.classes_max
+                              ? fmt::format("{}", o.classes_min)
+                              : fmt::format("{}..{}", o.classes_min, o.classes_max);
         opts["order"] = o.order;
         if (!o.select.empty()) opts["select"] = o.select;
     }
@@ -326,18 +367,26 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
         ordered_json hist = ordered_json::array();
         for (const auto& h : result.history)
             if (h.restart == result.best_restart)
-                hist.push_back({{"iteration", h.iteration}, {"log_likelihood", h.log_likelihood}, {"objective", h.objective}});
+                hist.push_back({{"iteration", h.iteration},
+                                {"log_likelihood", h.log_likelihood},
+                                {"objective", h.objective}});
         prov["history"] = hist;
     }
     if (!selection.candidates.empty()) {
         ordered_json table = ordered_json::array();
         for (const auto& c : selection.candidates)
-            table.push_back({{"classes", c.classes}, {"log_likelihood", c.log_likelihood}, {"parameters", c.parameters},
-                             {"bic", c.bic}, {"iterations", c.fit.iterations}, {"converged", c.fit.converged}});
-        prov["selection"] = {{"criterion", "bic"},
-                             {"formula", "-2 ln L + parameters * ln(known bases) (Schwarz 1978, Ann. Statist. 6:461-464)"},
-                             {"candidates", table},
-                             {"chosen_classes", selection.candidates[selection.chosen].classes}};
+            table.push_back({{"classes", c.classes},
+                             {"log_likelihood", c.log_likelihood},
+                             {"parameters", c.parameters},
+                             {"bic", c.bic},
+                             {"iterations", c.fit.iterations},
+                             {"converged", c.fit.converged}});
+        prov["selection"] = {
+            {"criterion", "bic"},
+            {"formula",
+             "-2 ln L + parameters * ln(known bases) (Schwarz 1978, Ann. Statist. 6:461-464)"},
+            {"candidates", table},
+            {"chosen_classes", selection.candidates[selection.chosen].classes}};
     }
     p.provenance_json = prov.dump();
 

@@ -19,12 +19,14 @@ struct Label {
 
 std::string describe(const Interval& iv) {
     // As the BED line has it: 0-based, half-open.
-    return fmt::format("'{} {} {} {}' (BED: 0-based, half-open)", iv.chrom, iv.begin, iv.end, iv.name);
+    return fmt::format("'{} {} {} {}' (BED: 0-based, half-open)", iv.chrom, iv.begin, iv.end,
+                       iv.name);
 }
 
 }  // namespace
 
-TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::vector<Interval>& labels,
+TrainingCounts labelled_counts(const Profile& p, TrainingData& data,
+                               const std::vector<Interval>& labels,
                                const std::string& default_region, const Logger& log) {
     const int R = static_cast<int>(p.regions.size());
     std::vector<int> state_of(R, -1);
@@ -37,13 +39,15 @@ TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::
                 names += (n++ ? ", " : "") + p.states[s].name;
             }
         if (n != 1)
-            throw InputError(fmt::format("labelled counting needs exactly one state per region, but region '{}' "
-                                         "of profile '{}' has {} ({}); fit it with Baum-Welch instead",
-                                         p.regions[r].name, p.name, n, names));
+            throw InputError(
+                fmt::format("labelled counting needs exactly one state per region, but region '{}' "
+                            "of profile '{}' has {} ({}); fit it with Baum-Welch instead",
+                            p.regions[r].name, p.name, n, names));
     }
     const int fallback = p.region_index(default_region);
     if (fallback < 0)
-        throw UsageError(fmt::format("--default-region '{}' is not a region of profile '{}'", default_region, p.name));
+        throw UsageError(fmt::format("--default-region '{}' is not a region of profile '{}'",
+                                     default_region, p.name));
 
     std::string region_list;
     std::vector<std::string> region_names;
@@ -55,18 +59,21 @@ TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::
     for (const Interval& iv : labels) {
         const int r = p.region_index(iv.name);
         if (r < 0)
-            throw InputError(fmt::format("labels: interval {} names region '{}', which profile '{}' does not "
-                                         "have (regions: {}){}",
-                                         describe(iv), iv.name, p.name, region_list,
-                                         did_you_mean(iv.name, region_names)));
+            throw InputError(fmt::format(
+                "labels: interval {} names region '{}', which profile '{}' does not "
+                "have (regions: {}){}",
+                describe(iv), iv.name, p.name, region_list, did_you_mean(iv.name, region_names)));
         if (iv.end > iv.begin) by_chrom[iv.chrom].push_back({{iv.begin, iv.end, r}, &iv});
     }
     for (auto& [chrom, list] : by_chrom) {
-        std::stable_sort(list.begin(), list.end(), [](const auto& a, const auto& b) { return a.first.begin < b.first.begin; });
+        std::stable_sort(list.begin(), list.end(), [](const auto& a, const auto& b) {
+            return a.first.begin < b.first.begin;
+        });
         for (size_t i = 1; i < list.size(); ++i)
             if (list[i].first.begin < list[i - 1].first.end)
-                throw InputError(fmt::format("labels: intervals {} and {} overlap; every base can have only one label",
-                                             describe(*list[i - 1].second), describe(*list[i].second)));
+                throw InputError(fmt::format(
+                    "labels: intervals {} and {} overlap; every base can have only one label",
+                    describe(*list[i - 1].second), describe(*list[i].second)));
     }
 
     TrainingCounts c = TrainingCounts::zero(p);
@@ -105,14 +112,17 @@ TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::
                     copy = 1;
                     segment_start = 0;
                 } else {
-                    const int Lp = static_cast<int>(p.regions[p.states[prev_state].region].min_length);
+                    const int Lp =
+                        static_cast<int>(p.regions[p.states[prev_state].region].min_length);
                     const bool same = p.states[prev_state].region == region;
                     if (!same && copy < Lp)
-                        throw InputError(fmt::format(
-                            "contig '{}': the labelled segment of region '{}' at {}-{} (1-based) is {} bp, "
-                            "shorter than the region's min_length {}",
-                            contig.name, p.regions[p.states[prev_state].region].name,
-                            contig.offset + segment_start + 1, contig.offset + pos, pos - segment_start, Lp));
+                        throw InputError(
+                            fmt::format("contig '{}': the labelled segment of region '{}' at {}-{} "
+                                        "(1-based) is {} bp, "
+                                        "shorter than the region's min_length {}",
+                                        contig.name, p.regions[p.states[prev_state].region].name,
+                                        contig.offset + segment_start + 1, contig.offset + pos,
+                                        pos - segment_start, Lp));
                     c.transitions[prev_state][s] += 1;
                     if (copy < Lp) c.chain_steps[prev_state] += 1;
                     if (same) {
@@ -135,13 +145,16 @@ TrainingCounts labelled_counts(const Profile& p, TrainingData& data, const std::
             }
         }
         if (!list.empty() && list.back().first.end > contig.offset + N)
-            log.warn(fmt::format("labels: interval {} extends past the end of '{}' ({} bp); the part beyond "
-                                 "is ignored",
-                                 describe(*list.back().second), contig.name, contig.offset + N));
+            log.warn(fmt::format(
+                "labels: interval {} extends past the end of '{}' ({} bp); the part beyond "
+                "is ignored",
+                describe(*list.back().second), contig.name, contig.offset + N));
     });
     if (!labels.empty() && used == 0)
-        log.warn("labels: no labelled interval overlaps the training sequences; every base was counted "
-                 "in the default region '" + default_region + "'");
+        log.warn(
+            "labels: no labelled interval overlaps the training sequences; every base was counted "
+            "in the default region '" +
+            default_region + "'");
     return c;
 }
 

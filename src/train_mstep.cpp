@@ -49,7 +49,8 @@ double digamma(double x) {
 //   alpha <- alpha * sum_i w_i [psi(k_i + alpha) - psi(alpha)] / sum_i w_i [psi(n_i + A) - psi(A)],
 // the same for beta with n_i - k_i, A = alpha + beta. Each step maximises a lower bound of the
 // weighted log-likelihood that touches it at the current value, so no step lowers it.
-WindowGC fit_window_gc(const WindowGC& current, const std::vector<std::pair<const WindowTally*, double>>& data) {
+WindowGC fit_window_gc(const WindowGC& current,
+                       const std::vector<std::pair<const WindowTally*, double>>& data) {
     double total = 1 / current.dispersion - 1;
     double alpha = current.mean * total, beta = (1 - current.mean) * total;
     double weight = 0;
@@ -101,14 +102,20 @@ void parse_freeze(const std::string& word, Freeze& f) {
     if (what == "initial" && state.empty()) {
         f.initial = true;
     } else if (what == "transitions") {
-        if (state.empty()) f.transitions = true;
-        else f.transition_states.push_back(state);
+        if (state.empty())
+            f.transitions = true;
+        else
+            f.transition_states.push_back(state);
     } else if (what == "emissions") {
-        if (state.empty()) f.emissions = true;
-        else f.emission_states.push_back(state);
+        if (state.empty())
+            f.emissions = true;
+        else
+            f.emission_states.push_back(state);
     } else {
-        throw UsageError(fmt::format("--freeze {}: expected initial, transitions, emissions, "
-                                     "transitions:STATE or emissions:STATE", word));
+        throw UsageError(
+            fmt::format("--freeze {}: expected initial, transitions, emissions, "
+                        "transitions:STATE or emissions:STATE",
+                        word));
     }
 }
 
@@ -123,8 +130,9 @@ FreezeMask resolve_freeze(const Freeze& f, const Profile& p) {
         if (s < 0) {
             std::string names;
             for (const auto& st : p.states) names += (names.empty() ? "" : ", ") + st.name;
-            throw UsageError(fmt::format("--freeze {}:{}: profile '{}' has no state '{}' (states: {})",
-                                         what, name, p.name, name, names));
+            throw UsageError(
+                fmt::format("--freeze {}:{}: profile '{}' has no state '{}' (states: {})", what,
+                            name, p.name, name, names));
         }
         return s;
     };
@@ -254,7 +262,8 @@ double log_prior(const Profile& structure, const Profile& current, const FreezeM
         for (size_t s = 0; s < P; ++s) term(structure.initial[s], current.initial[s]);
     for (size_t s = 0; s < P; ++s)
         if (!freeze.transitions[s])
-            for (size_t u = 0; u < P; ++u) term(structure.transitions[s][u], current.transitions[s][u]);
+            for (size_t u = 0; u < P; ++u)
+                term(structure.transitions[s][u], current.transitions[s][u]);
     const std::vector<int> leader = tie_leaders(structure);
     for (size_t s = 0; s < P; ++s) {
         if (leader[s] != static_cast<int>(s) || freeze.emissions[s]) continue;

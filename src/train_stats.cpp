@@ -8,11 +8,11 @@
 #include <sstream>
 
 #include "json_file.hpp"
+#include "thread_pool.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/shard.hpp"
 #include "tidemark/train.hpp"
-#include "thread_pool.hpp"
 
 namespace tidemark {
 namespace {
@@ -39,13 +39,15 @@ public:
     bool current_is_split() const override { return live_ && live_->split(); }
     SplitRecordPart split_part(const Contig& c) const override {
         if (seams_.empty())
-            throw UsageError(fmt::format("record '{}' is shared between shards: run fit --emit-seams for every "
-                                         "shard first and pass the files with --seams",
-                                         c.name));
+            throw UsageError(
+                fmt::format("record '{}' is shared between shards: run fit --emit-seams for every "
+                            "shard first and pass the files with --seams",
+                            c.name));
         SplitRecordPart part;
         part.segments = live_->segments();
         part.seams = seams_.record(live_->record_index(), c.name, c.length, part.segments);
-        for (const ShardPiece& piece : live_->my_pieces()) part.pieces.emplace_back(piece.first, piece.last);
+        for (const ShardPiece& piece : live_->my_pieces())
+            part.pieces.emplace_back(piece.first, piece.last);
         return part;
     }
     const std::vector<Region>& regions() const { return regions_; }
@@ -63,7 +65,9 @@ public:
                                 {"name", c.name},
                                 {"offset", c.offset},
                                 {"length", c.length},
-                                {"unknown", shared && filter.reading_share() ? ordered_json() : ordered_json(c.unknown_count())}});
+                                {"unknown", shared && filter.reading_share()
+                                                ? ordered_json()
+                                                : ordered_json(c.unknown_count())}});
             fn(c);
         };
         if (plan_.spec().active()) {  // through the shard's own source: possibly its records only
@@ -155,7 +159,8 @@ TrainingCounts counts_from_json(const std::string& text, const Profile& profile,
         }
         if (j.contains("windows"))
             for (const auto& t : j.at("windows")) {
-                WindowTally tally{t.at(0).get<int64_t>(), t.at(1).get<int64_t>(), t.at(2).get<std::vector<double>>()};
+                WindowTally tally{t.at(0).get<int64_t>(), t.at(1).get<int64_t>(),
+                                  t.at(2).get<std::vector<double>>()};
                 if (tally.weight.size() != P) throw bad("window weights");
                 c.windows.push_back(std::move(tally));
             }
@@ -176,7 +181,9 @@ void validate_distributed(const FitJobOptions& o) {
     if ((o.whole_contigs || !o.emit_seams.empty() || !o.seams.empty()) && !o.shard.active())
         throw UsageError("--emit-seams, --seams and --whole-contigs go with --shard I/N");
     if (!o.emit_seams.empty() && (!o.emit_stats.empty() || !o.seams.empty() || o.whole_contigs))
-        throw UsageError("--emit-seams is a step of its own: no --emit-stats, --seams or --whole-contigs with it");
+        throw UsageError(
+            "--emit-seams is a step of its own: no --emit-stats, --seams or --whole-contigs with "
+            "it");
     if (o.shard.active() && o.emit_stats.empty() && o.emit_seams.empty())
         throw UsageError(
             "fit --shard needs --emit-stats: a shard runs one E-step, and fit --from-stats "
@@ -207,12 +214,15 @@ void validate_distributed(const FitJobOptions& o) {
 FitResult emit_statistics(const FitJobOptions& o, const Logger& log) {
     const Profile profile = load_profile(o.profile);
     if (profile.is_template)
-        throw UsageError(fmt::format(
-            "profile '{}' is a template, which fit seeds from the whole genome before its first E-step; seed it "
-            "once with 'tidemark fit GENOME -p {} --max-iter 0 -o start.json' and distribute the E-steps of "
-            "start.json (add --freeze transitions --freeze initial to the M-steps to keep the template's switch "
-            "rates, as fit does)",
-            profile.name, profile.name));
+        throw UsageError(
+            fmt::format("profile '{}' is a template, which fit seeds from the whole genome before "
+                        "its first E-step; seed it "
+                        "once with 'tidemark fit GENOME -p {} --max-iter 0 -o start.json' and "
+                        "distribute the E-steps of "
+                        "start.json (add --freeze transitions --freeze initial to the M-steps to "
+                        "keep the template's switch "
+                        "rates, as fit does)",
+                        profile.name, profile.name));
     const Model model = compile(profile);
     DecoderOptions decoder_options;
     decoder_options.block_size = o.fit.block_size;
@@ -220,8 +230,9 @@ FitResult emit_statistics(const FitJobOptions& o, const Logger& log) {
     const int64_t segment_length = o.whole_contigs ? 0 : decoder.segment_length();
     ShardTrainingData data(o, segment_length);
     // What the seams depend on, as scan records it (no track bins in training: bin 1).
-    const std::string identity = seams_identity(o.inputs, o.regions, o.regions_bed, profile_checksum(profile),
-                                                o.fit.block_size, 1, segment_length);
+    const std::string identity =
+        seams_identity(o.inputs, o.regions, o.regions_bed, profile_checksum(profile),
+                       o.fit.block_size, 1, segment_length);
     if (!o.emit_seams.empty()) {
         OutputFile out(o.emit_seams);
         ShardFilter shard = data.plan();
@@ -231,19 +242,22 @@ FitResult emit_statistics(const FitJobOptions& o, const Logger& log) {
             compute_seams(shard, decoder, o.inputs, data.regions(), threads > 1 ? &pool : nullptr);
         out.write(seams_json(o.shard, identity, records));
         out.commit();
-        log.info(fmt::format("fit: shard {}/{}: seams of {} shared records", o.shard.index, o.shard.count,
-                             records.size()));
+        log.info(fmt::format("fit: shard {}/{}: seams of {} shared records", o.shard.index,
+                             o.shard.count, records.size()));
         FitResult r;
         r.profile = profile;
         return r;
     }
     if (data.plan().has_pieces() && o.seams.empty())
-        throw UsageError(fmt::format(
-            "shard {}/{} counts part of a record shared between shards. Such records take two steps per "
-            "iteration: first 'fit ... -p PROFILE --shard I/N --emit-seams seams.I.json' for every shard I, then "
-            "this command with '--seams seams.1.json --seams seams.2.json ...' (all of them); or add "
-            "--whole-contigs to keep every record on one shard",
-            o.shard.index, o.shard.count));
+        throw UsageError(
+            fmt::format("shard {}/{} counts part of a record shared between shards. Such records "
+                        "take two steps per "
+                        "iteration: first 'fit ... -p PROFILE --shard I/N --emit-seams "
+                        "seams.I.json' for every shard I, then "
+                        "this command with '--seams seams.1.json --seams seams.2.json ...' (all of "
+                        "them); or add "
+                        "--whole-contigs to keep every record on one shard",
+                        o.shard.index, o.shard.count));
     if (!o.seams.empty()) data.use_seams(SeamsTable(o.seams, identity, o.shard));
     OutputFile out(o.emit_stats);  // fail early on an unwritable path
     const TrainingCounts counts = expected_counts(profile, data, o.fit.block_size, o.fit.threads);
@@ -374,9 +388,10 @@ FitResult fit_from_statistics(const FitJobOptions& o, const Logger& log) {
     parse_profile(text, "fitted profile");
     out.write(text);
     out.commit();
-    log.info(fmt::format("fit: wrote {}: 1 iteration (M-step from {} shards; convergence is judged across "
-                         "iterations by the caller), {} known bases, log-likelihood of the input profile {:.6f}",
-                         o.output == "-" ? "standard output" : o.output, count, total.known, total.log_likelihood));
+    log.info(fmt::format(
+        "fit: wrote {}: 1 iteration (M-step from {} shards; convergence is judged across "
+        "iterations by the caller), {} known bases, log-likelihood of the input profile {:.6f}",
+        o.output == "-" ? "standard output" : o.output, count, total.known, total.log_likelihood));
     FitResult r;
     r.profile = p;
     r.log_likelihood = total.log_likelihood;

@@ -10,7 +10,8 @@ namespace tidemark {
 using namespace detail;
 
 ViterbiDecoder::ViterbiDecoder(const Model& model, DecoderOptions options)
-    : model_(model), block_(choose_block(model, options.block_size)),
+    : model_(model),
+      block_(choose_block(model, options.block_size)),
       fast_emission_(build_fast_emission_table(model)) {}
 
 DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
@@ -25,7 +26,8 @@ DecodeResult ViterbiDecoder::run(const Contig& contig, DecodeSink& sink) {
     }
     constexpr double neg_inf = -std::numeric_limits<double>::infinity();
     std::vector<double> log_a(m.transitions.size()), log_pi(S);
-    for (size_t i = 0; i < log_a.size(); ++i) log_a[i] = m.transitions[i] > 0 ? std::log(m.transitions[i]) : neg_inf;
+    for (size_t i = 0; i < log_a.size(); ++i)
+        log_a[i] = m.transitions[i] > 0 ? std::log(m.transitions[i]) : neg_inf;
     for (int i = 0; i < S; ++i) log_pi[i] = m.initial[i] > 0 ? std::log(m.initial[i]) : neg_inf;
     // Sparse models (duration chains) read only the non-zero incoming transitions: linear
     // instead of quadratic in the chain length. The lists are in increasing source order, so

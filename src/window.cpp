@@ -149,7 +149,8 @@ void WindowExpander::block(const BlockView& view) {
             std::fill(region.begin(), region.end(), 0.0);
             for (int s = 0; s < S; ++s) region[model_.region_of_state[s]] += p[s];
             const int64_t run_end = std::min(n, (pos + 1) * w - start);
-            for (; t < run_end; ++t) std::copy(region.begin(), region.end(), posterior_.begin() + t * R);
+            for (; t < run_end; ++t)
+                std::copy(region.begin(), region.end(), posterior_.begin() + t * R);
         }
         BlockView out;
         out.begin = start;

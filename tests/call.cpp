@@ -1,8 +1,9 @@
 // Interval calling on hand-made posterior tracks, and the published CpG-island criteria.
+#include "tidemark/call.hpp"
+
 #include <catch2/catch.hpp>
 
 #include "test_util.hpp"
-#include "tidemark/call.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/track.hpp"
 
@@ -95,7 +96,7 @@ TEST_CASE("published CpG-island criteria at their borders", "[call]") {
     c.a = 45;
     c.t = 45;
     c.c = 55;
-    c.g = 55;  // L = 200, GC = 0.55
+    c.g = 55;    // L = 200, GC = 0.55
     c.cpg = 10;  // o/e = 10*200/(55*55) = 0.661
     CHECK(meets_island_criteria(IslandCriteria::ggf1987, 200, c));
     CHECK_FALSE(meets_island_criteria(IslandCriteria::ggf1987, 199, c));
@@ -157,7 +158,8 @@ TEST_CASE("BED line layout", "[call]") {
     const std::string line = format_bed_line(BedStyle::plain, m, c, k);
     CHECK(line.substr(line.size() - 10) == "0.0000\tNA\n");
     const std::string header = format_bed_header(BedStyle::plain, m, "tidemark scan x.fa");
-    CHECK(header.find("#chrom\tstart\tend\tname\tscore\tstrand\tmean_posterior\tmin_posterior\tgc_fraction\tcpg_obs_exp\n") != std::string::npos);
+    CHECK(header.find("#chrom\tstart\tend\tname\tscore\tstrand\tmean_posterior\tmin_posterior\tgc_"
+                      "fraction\tcpg_obs_exp\n") != std::string::npos);
 }
 
 TEST_CASE("a call's core spans its bases at or above the high-confidence level", "[call]") {

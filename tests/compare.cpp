@@ -1,12 +1,12 @@
 // Comparison tests: every metric on small hand-computed examples, merging, contigs in one file
 // only, the BED reader's error cases and genome-size reading.
-#include <catch2/catch.hpp>
+#include "tidemark/compare.hpp"
 
+#include <catch2/catch.hpp>
 #include <cmath>
 #include <nlohmann/json.hpp>
 
 #include "test_util.hpp"
-#include "tidemark/compare.hpp"
 #include "tidemark/error.hpp"
 
 using namespace tidemark;
@@ -20,7 +20,9 @@ IntervalSet set_of(const std::string& path, std::vector<Interval> v) {
     return {path, std::move(v)};
 }
 
-Genome genome_of(std::vector<ChromSize> chroms) { return {"g.sizes", std::move(chroms)}; }
+Genome genome_of(std::vector<ChromSize> chroms) {
+    return {"g.sizes", std::move(chroms)};
+}
 
 const TypeComparison& only(const Comparison& c) {
     REQUIRE(c.types.size() == 1);
@@ -43,7 +45,8 @@ TEST_CASE("base-level metrics on a hand-computed example", "[compare]") {
     // truth: chr1 [5,25), chr3 [0,4)              -> 24 bases
     // tp = [5,10) + [20,25) = 10; fp = 25 - 10 = 15; fn = 24 - 10 = 14.
     // genome 100 + 50 + 10 = 160; union = 25 + 24 - 10 = 39; tn = 160 - 39 = 121.
-    const auto calls = set_of("calls.bed", {{"chr1", 0, 10, "A"}, {"chr1", 20, 30, "A"}, {"chr2", 0, 5, "A"}});
+    const auto calls =
+        set_of("calls.bed", {{"chr1", 0, 10, "A"}, {"chr1", 20, 30, "A"}, {"chr2", 0, 5, "A"}});
     const auto truth = set_of("truth.bed", {{"chr1", 5, 25, "A"}, {"chr3", 0, 4, "A"}});
     const Genome g = genome_of({{"chr1", 100}, {"chr2", 50}, {"chr3", 10}});
     const Comparison c = compare_intervals(calls, truth, {}, g);
@@ -83,13 +86,17 @@ TEST_CASE("base-level metrics on a hand-computed example", "[compare]") {
 }
 
 TEST_CASE("reciprocal matches and median offsets by hand", "[compare]") {
-    // truth [100,200) vs call [110,190): overlap 80, 160 >= 100 and 160 >= 80 -> pair, offsets 10, 10
-    // truth [300,400) vs call [290,420): overlap 100, 200 >= 100 and 200 >= 130 -> pair, offsets 10, 20
-    // truth [500,600) vs call [560,700): overlap 40, 80 < 100 -> overlap only
-    // truth [800,810): no call. Call [900,1000): no truth.
-    // Medians of the two pairs: start (10+10)/2 = 10, end (10+20)/2 = 15.
-    const auto truth = set_of("t", {{"c", 100, 200, "X"}, {"c", 300, 400, "X"}, {"c", 500, 600, "X"}, {"c", 800, 810, "X"}});
-    const auto calls = set_of("c", {{"c", 110, 190, "X"}, {"c", 290, 420, "X"}, {"c", 560, 700, "X"}, {"c", 900, 1000, "X"}});
+    // truth [100,200) vs call [110,190): overlap 80, 160 >= 100 and 160 >= 80 -> pair, offsets 10,
+    // 10 truth [300,400) vs call [290,420): overlap 100, 200 >= 100 and 200 >= 130 -> pair, offsets
+    // 10, 20 truth [500,600) vs call [560,700): overlap 40, 80 < 100 -> overlap only truth
+    // [800,810): no call. Call [900,1000): no truth. Medians of the two pairs: start (10+10)/2 =
+    // 10, end (10+20)/2 = 15.
+    const auto truth = set_of(
+        "t",
+        {{"c", 100, 200, "X"}, {"c", 300, 400, "X"}, {"c", 500, 600, "X"}, {"c", 800, 810, "X"}});
+    const auto calls = set_of(
+        "c",
+        {{"c", 110, 190, "X"}, {"c", 290, 420, "X"}, {"c", 560, 700, "X"}, {"c", 900, 1000, "X"}});
     const IntervalMetrics m = only(compare_intervals(calls, truth, {}, std::nullopt)).intervals;
     CHECK(m.truth == 4);
     CHECK(m.truth_overlapped == 3);
@@ -101,9 +108,10 @@ TEST_CASE("reciprocal matches and median offsets by hand", "[compare]") {
     CHECK(m.median_end_offset == 15);
 
     // Exactly half of both is reciprocal: truth [0,10), call [5,15): overlap 5, 2*5 >= 10 twice.
-    const IntervalMetrics half = only(compare_intervals(set_of("c", {{"c", 5, 15, "X"}}),
-                                                        set_of("t", {{"c", 0, 10, "X"}}), {}, std::nullopt))
-                                     .intervals;
+    const IntervalMetrics half =
+        only(compare_intervals(set_of("c", {{"c", 5, 15, "X"}}), set_of("t", {{"c", 0, 10, "X"}}),
+                               {}, std::nullopt))
+            .intervals;
     CHECK(half.truth_reciprocal == 1);
     CHECK(half.median_start_offset == 5);
     CHECK(half.median_end_offset == 5);
@@ -111,16 +119,18 @@ TEST_CASE("reciprocal matches and median offsets by hand", "[compare]") {
     // After merging, intervals of a file are disjoint and do not touch, so an interval has at
     // most one reciprocal partner: truth [0,100) with calls [0,50) (overlap 50, reciprocal) and
     // [51,100) (overlap 49: 2*49 < 100 of the truth, not reciprocal); offsets 0 and 50.
-    const IntervalMetrics single = only(compare_intervals(set_of("c", {{"c", 0, 50, "X"}, {"c", 51, 100, "X"}}),
-                                                       set_of("t", {{"c", 0, 100, "X"}}), {}, std::nullopt))
-                                    .intervals;
+    const IntervalMetrics single =
+        only(compare_intervals(set_of("c", {{"c", 0, 50, "X"}, {"c", 51, 100, "X"}}),
+                               set_of("t", {{"c", 0, 100, "X"}}), {}, std::nullopt))
+            .intervals;
     CHECK(single.truth_reciprocal == 1);
     CHECK(single.calls_reciprocal == 1);
     CHECK(single.median_start_offset == 0);
     CHECK(single.median_end_offset == 50);
 }
 
-TEST_CASE("odd and even numbers of pairs give the middle value or the mean of the two", "[compare]") {
+TEST_CASE("odd and even numbers of pairs give the middle value or the mean of the two",
+          "[compare]") {
     // Pairs with start offsets 1, 2, 7 (odd count: median 2), then 1, 2, 7, 9 (even: 4.5).
     std::vector<Interval> t, c;
     const int64_t offsets[] = {7, 1, 9, 2};
@@ -128,12 +138,14 @@ TEST_CASE("odd and even numbers of pairs give the middle value or the mean of th
         t.push_back({"c", 1000 * i, 1000 * i + 100, "X"});
         c.push_back({"c", 1000 * i + offsets[i], 1000 * i + 100, "X"});
     }
-    const IntervalMetrics four = only(compare_intervals(set_of("c", c), set_of("t", t), {}, std::nullopt)).intervals;
+    const IntervalMetrics four =
+        only(compare_intervals(set_of("c", c), set_of("t", t), {}, std::nullopt)).intervals;
     CHECK(four.median_start_offset == 4.5);
     CHECK(four.median_end_offset == 0);
     t.erase(t.begin() + 2);
     c.erase(c.begin() + 2);
-    const IntervalMetrics three = only(compare_intervals(set_of("c", c), set_of("t", t), {}, std::nullopt)).intervals;
+    const IntervalMetrics three =
+        only(compare_intervals(set_of("c", c), set_of("t", t), {}, std::nullopt)).intervals;
     CHECK(three.median_start_offset == 2);
 }
 
@@ -141,8 +153,11 @@ TEST_CASE("overlapping, touching and unsorted intervals are merged per type firs
     // Calls [20,30) [0,10) [5,12) [12,15) [40,40) -> sorted; [0,10)+[5,12) overlap,
     // [12,15) touches: merged [0,15) and [20,30); 2 records absorbed, 1 empty, unsorted.
     // Truth [0,30): tp 25, fp 0, fn 5 (summing the raw records would count [5,10) twice: 30).
-    const auto calls = set_of("calls.bed", {{"c", 20, 30, "A"}, {"c", 0, 10, "A"}, {"c", 5, 12, "A"},
-                                            {"c", 12, 15, "A"}, {"c", 40, 40, "A"}});
+    const auto calls = set_of("calls.bed", {{"c", 20, 30, "A"},
+                                            {"c", 0, 10, "A"},
+                                            {"c", 5, 12, "A"},
+                                            {"c", 12, 15, "A"},
+                                            {"c", 40, 40, "A"}});
     const auto truth = set_of("truth.bed", {{"c", 0, 30, "A"}});
     const Comparison r = compare_intervals(calls, truth, {}, std::nullopt);
     CHECK(r.calls.intervals == 5);
@@ -195,8 +210,9 @@ TEST_CASE("types are scored separately and --name folds them into one", "[compar
 
 TEST_CASE("contigs present in one file only count fully", "[compare]") {
     // chrX only in calls: 7 false-positive bases; chrY only in truth: 3 false negatives.
-    const Comparison r = compare_intervals(set_of("c", {{"chrX", 0, 7, "A"}}), set_of("t", {{"chrY", 2, 5, "A"}}),
-                                           {}, genome_of({{"chrX", 10}, {"chrY", 10}, {"chrZ", 5}}));
+    const Comparison r =
+        compare_intervals(set_of("c", {{"chrX", 0, 7, "A"}}), set_of("t", {{"chrY", 2, 5, "A"}}),
+                          {}, genome_of({{"chrX", 10}, {"chrY", 10}, {"chrZ", 5}}));
     const BaseMetrics& b = only(r).base;
     CHECK(b.tp == 0);
     CHECK(b.fp == 7);
@@ -210,14 +226,20 @@ TEST_CASE("missing types and genome mismatches name file and line", "[compare]")
     CHECK_THAT(error_of([&] { compare_intervals(unnamed, unnamed, {}, std::nullopt); }),
                Catch::Contains("calls.bed:2") && Catch::Contains("--name"));
     const auto named = set_of("calls.bed", {{"c", 0, 5, "A"}, {"d", 0, 50, "A"}});
-    CHECK_THAT(error_of([&] { compare_intervals(named, named, {}, genome_of({{"c", 10}})); }),
-               Catch::Contains("calls.bed:2") && Catch::Contains("'d'") && Catch::Contains("g.sizes"));
-    CHECK_THAT(error_of([&] { compare_intervals(named, named, {}, genome_of({{"c", 10}, {"d", 40}})); }),
+    CHECK_THAT(
+        error_of([&] {
+            compare_intervals(named, named, {}, genome_of({{"c", 10}}));
+        }),
+        Catch::Contains("calls.bed:2") && Catch::Contains("'d'") && Catch::Contains("g.sizes"));
+    CHECK_THAT(error_of([&] {
+                   compare_intervals(named, named, {}, genome_of({{"c", 10}, {"d", 40}}));
+               }),
                Catch::Contains("calls.bed:2") && Catch::Contains("beyond the length 40"));
 }
 
 TEST_CASE("the table and JSON carry the numbers, NA and null where undefined", "[compare]") {
-    const auto calls = set_of("calls.bed", {{"chr1", 0, 10, "A"}, {"chr1", 20, 30, "A"}, {"chr2", 0, 5, "A"}});
+    const auto calls =
+        set_of("calls.bed", {{"chr1", 0, 10, "A"}, {"chr1", 20, 30, "A"}, {"chr2", 0, 5, "A"}});
     const auto truth = set_of("truth.bed", {{"chr1", 5, 25, "A"}, {"chr3", 0, 4, "A"}});
     const Comparison c = compare_intervals(calls, truth, {}, std::nullopt);
     const std::string table = compare_table(c);
@@ -239,15 +261,18 @@ TEST_CASE("BED reader errors name the file and line", "[compare][intervals]") {
         {"c\t-1\t5\n", ":1: start -1 is negative"},
         {"c\t0\t5.5\n", ":1: end '5.5' is not an integer"},
         {"c\t0\n", ":1: expected at least 3 tab-separated columns"},
-        {"# ok\ntrack name=x\nbrowser position c\nchrom\tstart\tend\n", ":4: start 'start' is not an integer (header"},
+        {"# ok\ntrack name=x\nbrowser position c\nchrom\tstart\tend\n",
+         ":4: start 'start' is not an integer (header"},
     };
     for (size_t i = 0; i < cases.size(); ++i) {
         TempFile f(cases[i].first, ".bed");
-        CHECK_THAT(error_of([&] { read_bed(f.path()); }), Catch::Contains(f.path() + cases[i].second));
+        CHECK_THAT(error_of([&] { read_bed(f.path()); }),
+                   Catch::Contains(f.path() + cases[i].second));
     }
     // "track" must be a whole first word: "trackfoo" is data, here a line with too few columns.
     TempFile f("trackfoo\n", ".bed");
-    CHECK_THAT(error_of([&] { read_bed(f.path()); }), Catch::Contains(f.path() + ":1: expected at least 3"));
+    CHECK_THAT(error_of([&] { read_bed(f.path()); }),
+               Catch::Contains(f.path() + ":1: expected at least 3"));
     // Good files: CR/LF, no final newline, headers, blank lines; line numbers are kept.
     TempFile good("track x\r\n\r\nc\t1\t2\tA\r\nc\t3\t4", ".bed");
     const auto v = read_bed(good.path());
@@ -275,9 +300,12 @@ TEST_CASE("genome sizes come from chrom sizes, .fai or FASTA", "[compare]") {
     CHECK(g.chroms[1].length == 0);
     CHECK(g.chroms[2].length == 1);
     TempFile dup("a\t1\na\t2\n", ".sizes");
-    CHECK_THAT(error_of([&] { read_genome(dup.path()); }), Catch::Contains(dup.path() + ":2: duplicate"));
+    CHECK_THAT(error_of([&] { read_genome(dup.path()); }),
+               Catch::Contains(dup.path() + ":2: duplicate"));
     TempFile bad("a\tlots\n", ".sizes");
-    CHECK_THAT(error_of([&] { read_genome(bad.path()); }), Catch::Contains(bad.path() + ":1: length 'lots'"));
+    CHECK_THAT(error_of([&] { read_genome(bad.path()); }),
+               Catch::Contains(bad.path() + ":1: length 'lots'"));
     TempFile single("a\n", ".sizes");
-    CHECK_THAT(error_of([&] { read_genome(single.path()); }), Catch::Contains(single.path() + ":1:"));
+    CHECK_THAT(error_of([&] { read_genome(single.path()); }),
+               Catch::Contains(single.path() + ":1:"));
 }

@@ -1,12 +1,12 @@
 // Decoder tests against exact oracles: exhaustive enumeration over all state paths, and the
 // published umbrella-world example.
-#include <catch2/catch.hpp>
+#include "tidemark/decode.hpp"
 
+#include <catch2/catch.hpp>
 #include <cmath>
 #include <functional>
 
 #include "test_util.hpp"
-#include "tidemark/decode.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/profile.hpp"
 
@@ -78,7 +78,8 @@ Enumeration enumerate_paths(const Profile& p, const std::string& seq) {
 }
 
 std::string random_sequence(std::mt19937_64& rng, size_t n) {
-    const std::string alphabet = "ACGTACGTACGTacgtNR";  // mostly bases, some lowercase, some unknown
+    const std::string alphabet =
+        "ACGTACGTACGTacgtNR";  // mostly bases, some lowercase, some unknown
     std::string s;
     for (size_t i = 0; i < n; ++i) s += alphabet[rng() % alphabet.size()];
     return s;
@@ -123,7 +124,8 @@ TEST_CASE("posterior decoding equals exhaustive enumeration over all state paths
     CHECK(cases == 60);
 }
 
-TEST_CASE("built-in CpG-island profiles equal exhaustive enumeration over all state paths", "[decode]") {
+TEST_CASE("built-in CpG-island profiles equal exhaustive enumeration over all state paths",
+          "[decode]") {
     // The default cpg-island (several background states) and the two-state textbook model, on
     // short sequences with lowercase and unknown bases: every S^n path summed from the profile
     // definition alone.

@@ -1,13 +1,14 @@
 // Output files: atomic replacement, clean-up on failure, detected write errors.
-#include <catch2/catch.hpp>
+#include "tidemark/output.hpp"
 
+#include <sys/stat.h>
+
+#include <catch2/catch.hpp>
 #include <fstream>
 #include <sstream>
-#include <sys/stat.h>
 
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
-#include "tidemark/output.hpp"
 
 using namespace tidemark;
 
@@ -19,7 +20,7 @@ std::string slurp(const std::string& path) {
     return s.str();
 }
 bool exists(const std::string& path) {
-    struct stat st{};
+    struct stat st {};
     return stat(path.c_str(), &st) == 0;
 }
 size_t files_in(const std::string& dir) {

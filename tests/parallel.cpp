@@ -2,7 +2,6 @@
 // against the sequential engine, sinks split at every position against one sequential pass
 // (whose values the hand-computed tests in call.cpp fix), and thread-count independence.
 #include <catch2/catch.hpp>
-
 #include <cmath>
 #include <fstream>
 #include <random>
@@ -46,7 +45,8 @@ struct PlainRows : DecodeSink {
     }
 };
 
-std::string random_sequence(std::mt19937_64& rng, size_t n, const std::string& alphabet = "ACGTACGTACGTacgtNR") {
+std::string random_sequence(std::mt19937_64& rng, size_t n,
+                            const std::string& alphabet = "ACGTACGTACGTacgtNR") {
     std::string s;
     for (size_t i = 0; i < n; ++i) s += alphabet[rng() % alphabet.size()];
     return s;
@@ -54,7 +54,8 @@ std::string random_sequence(std::mt19937_64& rng, size_t n, const std::string& a
 
 }  // namespace
 
-TEST_CASE("segmented decoding equals exhaustive enumeration, with and without threads", "[parallel]") {
+TEST_CASE("segmented decoding equals exhaustive enumeration, with and without threads",
+          "[parallel]") {
     // Oracle: the E-step counts and log-likelihood of test::enumerate (every state path summed
     // from the profile definition) for posterior-derived quantities; posteriors themselves are
     // compared with the sequential engine, which tests/decode.cpp checks against enumeration.
@@ -81,11 +82,13 @@ TEST_CASE("segmented decoding equals exhaustive enumeration, with and without th
                 REQUIRE(dec.splits(c.length) == (c.length > segment));
                 Rows rows;
                 const DecodeResult r = dec.run(c, rows);
-                INFO("trial " << trial << " S " << S << " n " << seq.size() << " segment " << segment);
+                INFO("trial " << trial << " S " << S << " n " << seq.size() << " segment "
+                              << segment);
                 REQUIRE(r.log_likelihood == Approx(truth.log_likelihood).epsilon(0).margin(1e-12));
                 REQUIRE(rows.posterior.size() == reference.posterior.size());
                 for (size_t i = 0; i < rows.posterior.size(); ++i)
-                    REQUIRE(rows.posterior[i] == Approx(reference.posterior[i]).epsilon(0).margin(1e-12));
+                    REQUIRE(rows.posterior[i] ==
+                            Approx(reference.posterior[i]).epsilon(0).margin(1e-12));
                 for (TaskPool* pool : {&pool2, &pool3}) {  // identical bits with any pool
                     Rows par;
                     const DecodeResult rp = dec.run(c, par, pool);
@@ -100,24 +103,28 @@ TEST_CASE("segmented decoding equals exhaustive enumeration, with and without th
                 for (int s = 0; s < S; ++s) {
                     REQUIRE(got.initial[s] == Approx(truth.initial[s]).margin(1e-9));
                     for (int u = 0; u < S; ++u)
-                        REQUIRE(got.transitions[s][u] == Approx(truth.transitions[s][u]).margin(1e-9));
+                        REQUIRE(got.transitions[s][u] ==
+                                Approx(truth.transitions[s][u]).margin(1e-9));
                     for (size_t row = 0; row < truth.emissions[s].size(); ++row)
                         for (int b = 0; b < 4; ++b)
-                            REQUIRE(got.emissions[s][row][b] == Approx(truth.emissions[s][row][b]).margin(1e-9));
+                            REQUIRE(got.emissions[s][row][b] ==
+                                    Approx(truth.emissions[s][row][b]).margin(1e-9));
                 }
             }
         }
     }
 }
 
-TEST_CASE("segmented posteriors equal the sequential engine within 1e-9 on long sequences", "[parallel]") {
+TEST_CASE("segmented posteriors equal the sequential engine within 1e-9 on long sequences",
+          "[parallel]") {
     // Reference: the sequential checkpointed engine (tests/decode.cpp ties it to enumeration);
     // 300 kbp with unknown runs, 6 to 59 segments.
     std::mt19937_64 rng(7002);
     for (const int S : {1, 2, 4, 6}) {
         const Profile p = test::random_profile(rng, S, std::min(S, 2), {2, 1, 0});
         const Model m = compile(p);
-        const Contig c = test::contig_from(random_sequence(rng, 300000, "ACGTACGTACGTACGTACGTACGTACGTACGTN"));
+        const Contig c =
+            test::contig_from(random_sequence(rng, 300000, "ACGTACGTACGTACGTACGTACGTACGTACGTN"));
         DecoderOptions seq_opt;
         seq_opt.segment_size = -1;
         PosteriorDecoder sequential(m, seq_opt);
@@ -160,7 +167,8 @@ TEST_CASE("sinks that cannot fork and models with many states decode in one pass
     two.run(c, plain);
     two.run(c, forked);
     REQUIRE(plain.posterior.size() == forked.posterior.size());
-    for (size_t i = 0; i < plain.posterior.size(); ++i) REQUIRE(plain.posterior[i] == Approx(forked.posterior[i]).margin(1e-12));
+    for (size_t i = 0; i < plain.posterior.size(); ++i)
+        REQUIRE(plain.posterior[i] == Approx(forked.posterior[i]).margin(1e-12));
 }
 
 namespace {
@@ -184,7 +192,8 @@ std::vector<double> as_rows(const std::vector<double>& p_isle) {
     return post;
 }
 
-void feed(DecodeSink& sink, const std::vector<double>& post, int64_t begin, int64_t end, int64_t block) {
+void feed(DecodeSink& sink, const std::vector<double>& post, int64_t begin, int64_t end,
+          int64_t block) {
     for (int64_t s = begin; s < end; s += block) {
         BlockView v;
         v.begin = s;
@@ -198,7 +207,8 @@ void feed(DecodeSink& sink, const std::vector<double>& post, int64_t begin, int6
 // The contig [0, n) decoded as spans cut at `cuts`: the first span into `sink`, every later
 // one into a fork that is then joined; end_contig at the end.
 template <class Sink>
-void run_split(Sink& sink, const Contig& c, const std::vector<double>& post, const std::vector<int64_t>& cuts) {
+void run_split(Sink& sink, const Contig& c, const std::vector<double>& post,
+               const std::vector<int64_t>& cuts) {
     const int64_t n = static_cast<int64_t>(post.size() / 2);
     sink.begin_contig(c);
     std::vector<int64_t> edges = {0};
@@ -234,9 +244,9 @@ TEST_CASE("interval calls are the same when the contig is split at every positio
     // reference for every split into two spans and for every pair of cuts into three.
     const Model m = two_region_model();
     const std::vector<std::vector<double>> tracks = {
-        {0.1, 0.6, 0.9, 0.2, 0.4, 0.5, 0.0},                      // call.cpp: maximal runs
-        {0.9, 0.9, 0.2, 0.3, 0.8, 0.1, 0.1, 0.1, 0.7},            // call.cpp: merge gap
-        {0.9, 0.1, 0.9, 0.1, 0.1, 0.9, 0.9, 0.9},                 // call.cpp: minimum length
+        {0.1, 0.6, 0.9, 0.2, 0.4, 0.5, 0.0},            // call.cpp: maximal runs
+        {0.9, 0.9, 0.2, 0.3, 0.8, 0.1, 0.1, 0.1, 0.7},  // call.cpp: merge gap
+        {0.9, 0.1, 0.9, 0.1, 0.1, 0.9, 0.9, 0.9},       // call.cpp: minimum length
         {0.2, 0.96, 0.7, 0.1, 0.99, 0.97, 0.3, 0.2, 0.2, 0.6, 0.1, 0.95, 0.5, 0.2},
     };
     for (const auto& p_isle : tracks) {
@@ -300,7 +310,8 @@ std::string expected_bedgraph(const std::vector<double>& p, int digits, const st
 
 TEST_CASE("bedGraph tracks are the same when the contig is split at every position", "[parallel]") {
     const Model m = two_region_model();
-    const std::vector<double> p_isle = {0.1, 0.1, 0.12, 0.5, 0.5, 0.5, 0.9, 0.1, 0.1, 0.1, 0.3, 0.3};
+    const std::vector<double> p_isle = {0.1, 0.1, 0.12, 0.5, 0.5, 0.5,
+                                        0.9, 0.1, 0.1,  0.1, 0.3, 0.3};
     const auto post = as_rows(p_isle);
     const int64_t n = static_cast<int64_t>(p_isle.size());
     const Contig c = test::contig_from(std::string(p_isle.size(), 'G'), "chrT");
@@ -342,7 +353,8 @@ TEST_CASE("region totals and E-step counts add up over segments", "[parallel]") 
     const TrainingCounts one = expected_counts(p, data, 2, 1);
     REQUIRE(one.log_likelihood == Approx(truth.log_likelihood).epsilon(0).margin(1e-12));
     for (size_t s = 0; s < 3; ++s)
-        for (size_t u = 0; u < 3; ++u) REQUIRE(one.transitions[s][u] == Approx(truth.transitions[s][u]).margin(1e-9));
+        for (size_t u = 0; u < 3; ++u)
+            REQUIRE(one.transitions[s][u] == Approx(truth.transitions[s][u]).margin(1e-9));
     for (int threads : {2, 3}) {  // contigs in a pool, summed in input order: the same bits
         const TrainingCounts t = expected_counts(p, data, 2, threads);
         REQUIRE(t.log_likelihood == one.log_likelihood);
@@ -352,7 +364,8 @@ TEST_CASE("region totals and E-step counts add up over segments", "[parallel]") 
     }
 }
 
-TEST_CASE("the task pool returns errors through futures and runs inline with one thread", "[parallel]") {
+TEST_CASE("the task pool returns errors through futures and runs inline with one thread",
+          "[parallel]") {
     TaskPool inline_pool(1);
     int ran = 0;
     auto f = inline_pool.submit([&](int w) { ran = 10 + w; });

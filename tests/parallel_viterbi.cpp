@@ -1,9 +1,8 @@
 // Viterbi on sparse models (duration chains), whose recursion reads only the incoming-transition
 // lists: the best path against brute force over every state path of the compiled model.
-#include <catch2/catch.hpp>
-
 #include <fmt/format.h>
 
+#include <catch2/catch.hpp>
 #include <cmath>
 #include <random>
 
@@ -31,12 +30,14 @@ Profile chain_profile(int L) {
       "states": [{{"name": "i", "region": "isl", "order": 0, "emissions": [[0.1,0.4,0.4,0.1]]}},
                  {{"name": "o", "region": "bg", "order": 0, "emissions": [[0.35,0.15,0.1,0.4]]}}],
       "initial": {{"i": 0.3, "o": 0.7}},
-      "transitions": {{"i": {{"i": 0.7, "o": 0.3}}, "o": {{"o": 0.75, "i": 0.25}}}}}})", L),
+      "transitions": {{"i": {{"i": 0.7, "o": 0.3}}, "o": {{"o": 0.75, "i": 0.25}}}}}})",
+                                     L),
                          "chain");
 }
 
 // log P(sequence, path) from the compiled transitions and the profile's emission rows.
-double log_joint(const Profile& p, const Model& m, const std::string& seq, const std::vector<int>& path) {
+double log_joint(const Profile& p, const Model& m, const std::string& seq,
+                 const std::vector<int>& path) {
     const std::string acgt = "ACGT";
     const int S = m.states;
     double lp = std::log(m.initial[path[0]]);

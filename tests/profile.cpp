@@ -1,12 +1,12 @@
-// Profile parsing and validation (field-level errors), the built-in cpg-island-2state numbers against
-// the published tables, canonical JSON round trip, and compilation.
-#include <catch2/catch.hpp>
+// Profile parsing and validation (field-level errors), the built-in cpg-island-2state numbers
+// against the published tables, canonical JSON round trip, and compilation.
+#include "tidemark/profile.hpp"
 
+#include <catch2/catch.hpp>
 #include <nlohmann/json.hpp>
 
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
-#include "tidemark/profile.hpp"
 
 using namespace tidemark;
 using json = nlohmann::json;
@@ -62,20 +62,27 @@ TEST_CASE("validation names the offending field", "[profile]") {
     const std::vector<Case> cases = {
         {[](json& d) { d["format"] = "other/2"; }, "format: 'other/2' is not supported"},
         {[](json& d) { d.erase("initial"); }, "missing required field 'initial'"},
-        {[](json& d) { d["transitons"] = d["transitions"]; }, "unknown field 'transitons' (did you mean 'transitions'?)"},
-        {[](json& d) { d["states"][0]["emissions"][0][1] = 0.5; }, "states[0] ('h').emissions[0]: probabilities sum to 1.1"},
+        {[](json& d) { d["transitons"] = d["transitions"]; },
+         "unknown field 'transitons' (did you mean 'transitions'?)"},
+        {[](json& d) { d["states"][0]["emissions"][0][1] = 0.5; },
+         "states[0] ('h').emissions[0]: probabilities sum to 1.1"},
         {[](json& d) { d["states"][0]["emissions"][0][0] = -0.1; }, "negative"},
         {[](json& d) { d["states"][0]["emissions"][0][0] = "x"; }, "must be a number"},
         {[](json& d) { d["states"][1]["order"] = 6; }, "order: must be an integer from 0 to 5"},
-        {[](json& d) { d["states"][1]["emissions"].erase(0); }, "emissions: must be an array of 4 rows (4^order)"},
+        {[](json& d) { d["states"][1]["emissions"].erase(0); },
+         "emissions: must be an array of 4 rows (4^order)"},
         {[](json& d) { d["states"][0]["region"] = "warm"; }, "names unknown region 'warm'"},
         {[](json& d) { d["regions"][0]["report"] = false; }, "no region has \"report\": true"},
         {[](json& d) { d["transitions"]["h"]["x"] = 0.0; }, "names unknown target state 'x'"},
         {[](json& d) { d["transitions"]["q"] = json::object(); }, "names unknown state 'q'"},
-        {[](json& d) { d["transitions"]["c"]["c"] = 0.5; }, "transitions.c: probabilities sum to 0.51"},
+        {[](json& d) { d["transitions"]["c"]["c"] = 0.5; },
+         "transitions.c: probabilities sum to 0.51"},
         {[](json& d) { d["initial"]["h"] = 0.7; }, "initial: probabilities sum to 1.2"},
         {[](json& d) { d["states"][1]["name"] = "h"; }, "duplicate state name"},
-        {[](json& d) { d["regions"].push_back({{"name", "idle"}, {"report", false}}); }, "('idle'): has no state"},
+        {[](json& d) {
+             d["regions"].push_back({{"name", "idle"}, {"report", false}});
+         },
+         "('idle'): has no state"},
     };
     for (const auto& c : cases) {
         json doc = minimal();

@@ -1,14 +1,14 @@
 // The HTML report's posterior sketch against the per-base posteriors it summarises (bin means
 // recomputed here from every row), decoded whole and in parallel segments; which sequences and
 // calls it keeps; escaping against the HTML standard's character references.
-#include <catch2/catch.hpp>
+#include "tidemark/report_html.hpp"
 
+#include <catch2/catch.hpp>
 #include <random>
 
 #include "test_util.hpp"
 #include "thread_pool.hpp"
 #include "tidemark/decode.hpp"
-#include "tidemark/report_html.hpp"
 
 using namespace tidemark;
 
@@ -22,7 +22,8 @@ struct RegionRows : DecodeSink {
         for (int64_t t = 0; t < v.size; ++t) {
             double sum = 0;
             for (int s = 0; s < v.states; ++s)
-                if (model->region_of_state[static_cast<size_t>(s)] == 0) sum += v.posterior[t * v.states + s];
+                if (model->region_of_state[static_cast<size_t>(s)] == 0)
+                    sum += v.posterior[t * v.states + s];
             p.push_back(sum);
         }
     }
@@ -92,7 +93,8 @@ TEST_CASE("the sketch's bins are the means of the per-base posteriors, whole or 
             REQUIRE(decoder.splits(contig.length) == segmented);
             decoder.run(contig, *fork, segmented ? &pool : nullptr);
             report.join(*fork);
-            const std::vector<Call> calls = {make_call(1500, 3000, 0.9), make_call(7500, 9000, 0.95)};
+            const std::vector<Call> calls = {make_call(1500, 3000, 0.9),
+                                             make_call(7500, 9000, 0.95)};
             report.finish_sequence(contig, calls);
 
             REQUIRE(report.shown().size() == 1);
@@ -101,10 +103,12 @@ TEST_CASE("the sketch's bins are the means of the per-base posteriors, whole or 
             REQUIRE(s.posterior.size() == static_cast<size_t>((contig.length + 63) / 64));
             double worst = 0;
             for (size_t b = 0; b < s.posterior.size(); ++b) {
-                const int64_t lo = static_cast<int64_t>(b) * 64, hi = std::min(lo + 64, contig.length);
+                const int64_t lo = static_cast<int64_t>(b) * 64,
+                              hi = std::min(lo + 64, contig.length);
                 double sum = 0;
                 for (int64_t i = lo; i < hi; ++i) sum += rows.p[static_cast<size_t>(i)];
-                worst = std::max(worst, std::abs(sum / static_cast<double>(hi - lo) - s.posterior[b]));
+                worst =
+                    std::max(worst, std::abs(sum / static_cast<double>(hi - lo) - s.posterior[b]));
             }
             CHECK(worst < 1e-5);  // float storage
             // Calls mark the bins they touch: 1500..2999 -> bins 23..46.
@@ -114,10 +118,12 @@ TEST_CASE("the sketch's bins are the means of the per-base posteriors, whole or 
             CHECK(s.called[47] == 0);
             // Unknown fraction per bin, counted here from the bases.
             for (size_t b = 0; b < s.unknown.size(); b += 37) {
-                const int64_t lo = static_cast<int64_t>(b) * 64, hi = std::min(lo + 64, contig.length);
+                const int64_t lo = static_cast<int64_t>(b) * 64,
+                              hi = std::min(lo + 64, contig.length);
                 int64_t n = 0;
                 for (int64_t i = lo; i < hi; ++i) n += contig.base(i) == 4;
-                CHECK(s.unknown[b] == Approx(static_cast<double>(n) / static_cast<double>(hi - lo)));
+                CHECK(s.unknown[b] ==
+                      Approx(static_cast<double>(n) / static_cast<double>(hi - lo)));
             }
             // The most confident call's window: at least 1 kb each side, points of whole bins.
             REQUIRE(report.top_windows().size() == 2);

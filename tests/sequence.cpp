@@ -1,12 +1,12 @@
 // FASTA reader, compression handling, faidx regions and composition, on hand-made inputs.
-#include <catch2/catch.hpp>
+#include "tidemark/sequence.hpp"
 
+#include <catch2/catch.hpp>
 #include <cstdlib>
 #include <fstream>
 
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
-#include "tidemark/sequence.hpp"
 
 using namespace tidemark;
 using test::TempFile;
@@ -87,14 +87,16 @@ TEST_CASE("FASTA errors name file, record and line", "[sequence]") {
         CHECK(msg.find("column 3") != std::string::npos);
     }
     SECTION("digits, dashes and NUL bytes are illegal") {
-        for (const std::string bad : {std::string("AC1T"), std::string("AC-T"), std::string("AC\0T", 4)}) {
+        for (const std::string bad :
+             {std::string("AC1T"), std::string("AC-T"), std::string("AC\0T", 4)}) {
             TempFile f(">a\n" + bad + "\n");
             CHECK(error_of([&] { read_all(f.path()); }).find(":2:") != std::string::npos);
         }
     }
     SECTION("sequence before the first header") {
         TempFile f("ACGT\n>a\nAC\n");
-        CHECK(error_of([&] { read_all(f.path()); }).find("expected a FASTA header") != std::string::npos);
+        CHECK(error_of([&] { read_all(f.path()); }).find("expected a FASTA header") !=
+              std::string::npos);
     }
     SECTION("header without a name") {
         TempFile f(">a\nAC\n> b\nAC\n");
@@ -109,7 +111,8 @@ TEST_CASE("FASTA errors name file, record and line", "[sequence]") {
         CHECK(msg.find("duplicate record name 'a'") != std::string::npos);
     }
     SECTION("missing file and directory") {
-        CHECK(error_of([] { open_fasta("/nonexistent/x.fa"); }).find("cannot open") != std::string::npos);
+        CHECK(error_of([] { open_fasta("/nonexistent/x.fa"); }).find("cannot open") !=
+              std::string::npos);
         CHECK(error_of([] { open_fasta("/tmp"); }).find("is a directory") != std::string::npos);
     }
 }
@@ -136,7 +139,8 @@ TEST_CASE("compressed FASTA: gzip, bgzip, xz, bzip2, zstd and truncation", "[seq
         TempFile f(big, ".fa");
         for (const std::string tool : {"gzip", "bgzip"}) {
             const std::string gz = f.dir() + "/t.fa.gz";
-            REQUIRE(std::system((tool + " -c " + f.path() + " | head -c 30000 > " + gz).c_str()) == 0);
+            REQUIRE(std::system((tool + " -c " + f.path() + " | head -c 30000 > " + gz).c_str()) ==
+                    0);
             INFO(tool);
             CHECK(error_of([&] { read_all(gz); }).find("truncated") != std::string::npos);
         }
@@ -173,17 +177,27 @@ TEST_CASE("regions through faidx", "[sequence]") {
         CHECK((r[0].begin == 0 && r[0].end == 4));
     }
     SECTION("errors") {
-        CHECK(error_of([&] { resolve_regions(f.path(), {"chr3"}, {}); }).find("no sequence") != std::string::npos);
-        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:5-16"}, {}); }).find("past the end") != std::string::npos);
-        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:0-5"}, {}); }).find("at least 1") != std::string::npos);
-        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:9-5"}, {}); }).find("before start") != std::string::npos);
-        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:x-5"}, {}); }).find("not a position") != std::string::npos);
-        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:1-5", "chr1:5-8"}, {}); }).find("overlap") != std::string::npos);
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr3"}, {}); }).find("no sequence") !=
+              std::string::npos);
+        CHECK(error_of([&] {
+                  resolve_regions(f.path(), {"chr1:5-16"}, {});
+              }).find("past the end") != std::string::npos);
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:0-5"}, {}); }).find("at least 1") !=
+              std::string::npos);
+        CHECK(error_of([&] { resolve_regions(f.path(), {"chr1:9-5"}, {}); }).find("before start") !=
+              std::string::npos);
+        CHECK(error_of([&] {
+                  resolve_regions(f.path(), {"chr1:x-5"}, {});
+              }).find("not a position") != std::string::npos);
+        CHECK(error_of([&] {
+                  resolve_regions(f.path(), {"chr1:1-5", "chr1:5-8"}, {});
+              }).find("overlap") != std::string::npos);
     }
     SECTION("plain gzip cannot be read by region; bgzip can") {
         const std::string gz = f.dir() + "/p.fa.gz";
         REQUIRE(std::system(("gzip -c " + f.path() + " > " + gz).c_str()) == 0);
-        CHECK(error_of([&] { resolve_regions(gz, {"chr1"}, {}); }).find("bgzip") != std::string::npos);
+        CHECK(error_of([&] { resolve_regions(gz, {"chr1"}, {}); }).find("bgzip") !=
+              std::string::npos);
         const std::string bgz = f.dir() + "/b.fa.gz";
         REQUIRE(std::system(("bgzip -c " + f.path() + " > " + bgz).c_str()) == 0);
         const auto r = resolve_regions(bgz, {"chr1:2-4"}, {});
@@ -228,15 +242,18 @@ TEST_CASE("record windows: the record's length, bases only inside the windows", 
     read_record_windows(f.path(), "r", 30, layout, {{5, 6, 5, 5}}, d);
     CHECK(d.soft_masked == 0);  // 'c' at 5 is outside the empty count range
     CHECK(d.unknown.size() == 2);
-    CHECK_THROWS_AS(read_record_windows(f.path(), "r", 30, layout, {{5, 31, 5, 5}}, d), InternalError);  // past the end
+    CHECK_THROWS_AS(read_record_windows(f.path(), "r", 30, layout, {{5, 31, 5, 5}}, d),
+                    InternalError);  // past the end
     TempFile bad(">r\nACGTXCGTAC\n", ".fa");
-    CHECK(error_of([&] { read_record_windows(bad.path(), "r", 10, {3, 10, 11}, {{2, 8, 2, 8}}, d); })
-              .find("illegal character 'X' (byte 0x58) at position 5") != std::string::npos);
+    CHECK(error_of([&] {
+              read_record_windows(bad.path(), "r", 10, {3, 10, 11}, {{2, 8, 2, 8}}, d);
+          }).find("illegal character 'X' (byte 0x58) at position 5") != std::string::npos);
 }
 
 TEST_CASE("append_unknown equals pushing unknown bases one by one", "[sequence]") {
     for (const int64_t before : {0, 1, 3, 6}) {
-        for (const int64_t n : {int64_t{0}, int64_t{1}, int64_t{5}, (int64_t{1} << Contig::chunk_shift) + 7}) {
+        for (const int64_t n :
+             {int64_t{0}, int64_t{1}, int64_t{5}, (int64_t{1} << Contig::chunk_shift) + 7}) {
             Contig fast, slow;
             for (int64_t i = 0; i < before; ++i) {
                 fast.push(static_cast<uint8_t>(i % 4));
@@ -249,9 +266,12 @@ TEST_CASE("append_unknown equals pushing unknown bases one by one", "[sequence]"
             REQUIRE(fast.length == slow.length);
             REQUIRE(fast.unknown.size() == slow.unknown.size());
             for (size_t k = 0; k < fast.unknown.size(); ++k)
-                CHECK((fast.unknown[k].begin == slow.unknown[k].begin && fast.unknown[k].length == slow.unknown[k].length));
-            const Composition a = composition(fast, 0, fast.length), b = composition(slow, 0, slow.length);
-            CHECK((a.a == b.a && a.c == b.c && a.g == b.g && a.t == b.t && a.unknown == b.unknown && a.cpg == b.cpg));
+                CHECK((fast.unknown[k].begin == slow.unknown[k].begin &&
+                       fast.unknown[k].length == slow.unknown[k].length));
+            const Composition a = composition(fast, 0, fast.length),
+                              b = composition(slow, 0, slow.length);
+            CHECK((a.a == b.a && a.c == b.c && a.g == b.g && a.t == b.t && a.unknown == b.unknown &&
+                   a.cpg == b.cpg));
             CHECK(fast.base(fast.length - 1) == 2);
         }
     }

@@ -1,6 +1,5 @@
 // Sharding: "I/N" parsing, the longest-first assignment against Graham's bound and exhaustive
 // enumeration, exact cover of the records by the shard filters, and the shard-free command.
-#include "tidemark/scan.hpp"
 #include "tidemark/shard.hpp"
 
 #include <sys/stat.h>
@@ -12,6 +11,7 @@
 
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
+#include "tidemark/scan.hpp"
 
 using namespace tidemark;
 using test::TempFile;
@@ -159,12 +159,15 @@ TEST_CASE("standard input is refused with --shard") {
 }
 
 TEST_CASE("recorded_command_line drops --shard and --threads in every spelling, nothing else") {
-    CHECK(recorded_command_line("tidemark scan g.fa --shard 2/3 -o x.bed") == "tidemark scan g.fa -o x.bed");
+    CHECK(recorded_command_line("tidemark scan g.fa --shard 2/3 -o x.bed") ==
+          "tidemark scan g.fa -o x.bed");
     CHECK(recorded_command_line("tidemark scan --shard=1/4 g.fa") == "tidemark scan g.fa");
     CHECK(recorded_command_line("tidemark scan g.fa --shard 1/2") == "tidemark scan g.fa");
-    CHECK(recorded_command_line("tidemark scan -t 3 g.fa -t2 --threads 4 --threads=1 -q") == "tidemark scan g.fa -q");
+    CHECK(recorded_command_line("tidemark scan -t 3 g.fa -t2 --threads 4 --threads=1 -q") ==
+          "tidemark scan g.fa -q");
     // A quoted word that merely contains the text stays as it is; -tx is not a thread count.
-    CHECK(recorded_command_line("tidemark scan 'a --shard 1/2.fa' -q") == "tidemark scan 'a --shard 1/2.fa' -q");
+    CHECK(recorded_command_line("tidemark scan 'a --shard 1/2.fa' -q") ==
+          "tidemark scan 'a --shard 1/2.fa' -q");
     CHECK(recorded_command_line("tidemark scan -tx g.fa") == "tidemark scan -tx g.fa");
     CHECK(recorded_command_line("tidemark scan g.fa") == "tidemark scan g.fa");
 }

@@ -1,14 +1,14 @@
 // Simulation tests: the generator against published test vectors, integer sampling by hand,
 // formatters on hand-made blocks, and 5 Mbp of output against the model within sampling error.
-#include <catch2/catch.hpp>
+#include "tidemark/simulate.hpp"
 
 #include <array>
+#include <catch2/catch.hpp>
 #include <cmath>
 
 #include "rng.hpp"
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
-#include "tidemark/simulate.hpp"
 
 using namespace tidemark;
 
@@ -31,8 +31,10 @@ struct Counter : SimulationSink {
     void block(const SimulatedBlock& b) override {
         for (int64_t t = 0; t < b.size; ++t) {
             const int s = b.states[t];
-            if (prev < 0) ++initial[s];
-            else ++transitions[static_cast<size_t>(prev) * model.states + s];
+            if (prev < 0)
+                ++initial[s];
+            else
+                ++transitions[static_cast<size_t>(prev) * model.states + s];
             prev = s;
             const uint8_t base = b.bases[t];
             ++bases;
@@ -49,7 +51,8 @@ struct Counter : SimulationSink {
             size_t row = size_t{1} << (2 * k);  // the mean row
             if (history.size() >= k) {
                 row = 0;
-                for (size_t j = history.size() - k; j < history.size(); ++j) row = row * 4 + history[j];
+                for (size_t j = history.size() - k; j < history.size(); ++j)
+                    row = row * 4 + history[j];
             }
             ++emissions[model.emission_offset[s] + row * 4 + base];
             history.push_back(base);
@@ -80,8 +83,9 @@ struct RowCheck {
             ++cells;
             const double expected = static_cast<double>(n) * p[j];
             const double sd = std::sqrt(static_cast<double>(n) * p[j] * (1 - p[j]));
-            const bool ok = p[j] == 0 ? counts[j] == 0
-                                      : std::abs(static_cast<double>(counts[j]) - expected) <= 5 * sd;
+            const bool ok = p[j] == 0
+                                ? counts[j] == 0
+                                : std::abs(static_cast<double>(counts[j]) - expected) <= 5 * sd;
             if (!ok) {
                 ++failures;
                 UNSCOPED_INFO(what << " outcome " << j << ": count " << counts[j] << " of " << n
@@ -98,7 +102,8 @@ struct StringSink {
     }
 };
 
-StateSpec state(const std::string& name, int region, int order, std::vector<std::array<double, 4>> rows) {
+StateSpec state(const std::string& name, int region, int order,
+                std::vector<std::array<double, 4>> rows) {
     StateSpec s;
     s.name = name;
     s.region = region;
@@ -181,8 +186,11 @@ TEST_CASE("integer thresholds split the 2^53 grid exactly", "[simulate][rng]") {
 TEST_CASE("FASTA formatter wraps lines and writes N for unknown bases", "[simulate]") {
     const uint8_t bases[] = {0, 1, 2, 3, 4, 0, 1};
     const int states[7] = {};
-    for (auto [width, expected] : std::vector<std::pair<int, std::string>>{
-             {4, ">x\nACGT\nNAC\n"}, {7, ">x\nACGTNAC\n"}, {0, ">x\nACGTNAC\n"}, {3, ">x\nACG\nTNA\nC\n"}}) {
+    for (auto [width, expected] :
+         std::vector<std::pair<int, std::string>>{{4, ">x\nACGT\nNAC\n"},
+                                                  {7, ">x\nACGTNAC\n"},
+                                                  {0, ">x\nACGTNAC\n"},
+                                                  {3, ">x\nACG\nTNA\nC\n"}}) {
         StringSink out;
         FastaFormatter f(out.writer(), width);
         f.begin_contig("x", 7);
@@ -208,7 +216,8 @@ TEST_CASE("truth formatter writes maximal region runs that tile the contig", "[s
     p.name = "t";
     p.regions = {region("hot", true), region("cold", false)};
     const std::array<double, 4> uniform = {0.25, 0.25, 0.25, 0.25};
-    p.states = {state("h", 0, 0, {uniform}), state("c1", 1, 0, {uniform}), state("c2", 1, 0, {uniform})};
+    p.states = {state("h", 0, 0, {uniform}), state("c1", 1, 0, {uniform}),
+                state("c2", 1, 0, {uniform})};
     p.initial = {1, 0, 0};
     p.transitions = {{0.5, 0.5, 0}, {0, 0.5, 0.5}, {0.5, 0, 0.5}};
     const Model m = compile(p);
@@ -260,7 +269,9 @@ TEST_CASE("the same seed gives the same simulation, another seed another", "[sim
         TruthFormatter t(truth.writer(), m);
         struct Both : SimulationSink {
             SimulationSink *a, *b;
-            void begin_contig(const std::string& n, int64_t l) override { a->begin_contig(n, l), b->begin_contig(n, l); }
+            void begin_contig(const std::string& n, int64_t l) override {
+                a->begin_contig(n, l), b->begin_contig(n, l);
+            }
             void block(const SimulatedBlock& x) override { a->block(x), b->block(x); }
             void end_contig() override { a->end_contig(), b->end_contig(); }
         } both;
@@ -323,10 +334,12 @@ TEST_CASE("5 Mbp of simulation follow the model within sampling error", "[simula
     CHECK(std::abs(fraction - f) <= 6 * std::sqrt(var));
     // The gap chain starts from its stationary distribution: Binomial(5000, f) contigs start
     // inside a gap (mean 100, sd 9.9).
-    CHECK(std::abs(static_cast<double>(c.gap_starts) - 5000 * f) <= 5 * std::sqrt(5000 * f * (1 - f)));
+    CHECK(std::abs(static_cast<double>(c.gap_starts) - 5000 * f) <=
+          5 * std::sqrt(5000 * f * (1 - f)));
 }
 
-TEST_CASE("bases after an N and at a contig start come from the mean row", "[simulate][statistics]") {
+TEST_CASE("bases after an N and at a contig start come from the mean row",
+          "[simulate][statistics]") {
     // One order-1 state whose rows are deterministic: after A always C, after C, G or T always A.
     // With a full context the sequence alternates A and C. The mean row is the average of the
     // four rows, (0.75, 0.25, 0, 0): a base with no known predecessor is A with probability 3/4.
@@ -386,8 +399,8 @@ TEST_CASE("long gap runs have the documented mean length", "[simulate][statistic
     const double runs_expected = 5e6 / (L + M);
     const double runs_sd = std::sqrt(5e6 * (L * (L - 1) + M * (M - 1))) / std::pow(L + M, 1.5);
     const double mean_run = static_cast<double>(c.unknown) / static_cast<double>(c.gap_runs);
-    INFO("runs " << c.gap_runs << " (expected " << runs_expected << " +- " << runs_sd << "), mean length "
-                 << mean_run);
+    INFO("runs " << c.gap_runs << " (expected " << runs_expected << " +- " << runs_sd
+                 << "), mean length " << mean_run);
     CHECK(std::abs(static_cast<double>(c.gap_runs) - runs_expected) <= 5 * runs_sd);
     CHECK(std::abs(mean_run - L) <= 2.5);
 }

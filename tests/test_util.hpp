@@ -1,10 +1,11 @@
 // Shared helpers for the unit tests: contigs from strings, temporary files, profile JSON.
 #pragma once
 
+#include <unistd.h>
+
 #include <fstream>
 #include <random>
 #include <string>
-#include <unistd.h>
 
 #include "base_table.hpp"
 #include "tidemark/profile.hpp"

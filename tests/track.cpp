@@ -1,12 +1,13 @@
 // Track writers: bgzip+tabix output queried through htslib's tbx API, GFF3 escaping and layout.
-#include <catch2/catch.hpp>
+#include "tidemark/track.hpp"
 
 #include <htslib/hts.h>
 #include <htslib/kstring.h>
 #include <htslib/tbx.h>
 
+#include <catch2/catch.hpp>
+
 #include "test_util.hpp"
-#include "tidemark/track.hpp"
 
 using namespace tidemark;
 
@@ -34,8 +35,8 @@ TEST_CASE("bgzip + tabix outputs answer region queries through htslib's tbx API"
     // Independent reader: htslib's tabix iterator over the index we wrote.
     test::TempFile dir("");
     const std::string path = dir.dir() + "/calls.bed.gz";
-    const std::vector<std::string> lines = {"chrA\t10\t20\tx", "chrA\t15\t40\ty", "chrA\t100\t200\tz",
-                                            "chrB\t0\t5\tw"};
+    const std::vector<std::string> lines = {"chrA\t10\t20\tx", "chrA\t15\t40\ty",
+                                            "chrA\t100\t200\tz", "chrB\t0\t5\tw"};
     {
         OutputFormat f;
         f.bgzip = true;
@@ -72,10 +73,12 @@ TEST_CASE("GFF3 lines: 1-based coordinates, SO types, escaped names", "[track]")
     // GFF3 specification 1.26: column 1 escapes spaces; attribute values escape ; = & ,.
     CHECK(format_gff3_sequence_region(c) == "##sequence-region chr%201 1 108\n");
     const std::string island = format_gff3_feature(m, c, k, 1);
-    CHECK(island.rfind("chr%201\ttidemark\tCpG_island\t101\t104\t0.9000\t.\t.\tID=cpg_island_1;", 0) == 0);
+    CHECK(island.rfind("chr%201\ttidemark\tCpG_island\t101\t104\t0.9000\t.\t.\tID=cpg_island_1;",
+                       0) == 0);
     CHECK(island.find("Ontology_term=SO:0000307") != std::string::npos);
     k.region = 1;
     const std::string other = format_gff3_feature(m, c, k, 2);
     CHECK(other.find("\tregion\t101\t104\t") != std::string::npos);
-    CHECK(other.find("ID=gc%3Brich_2;Name=gc%3Brich;Ontology_term=SO:0000001") != std::string::npos);
+    CHECK(other.find("ID=gc%3Brich_2;Name=gc%3Brich;Ontology_term=SO:0000001") !=
+          std::string::npos);
 }

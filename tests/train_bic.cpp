@@ -2,8 +2,8 @@
 // parameter counts behind it equal hand counts.
 #include <catch2/catch.hpp>
 
-#include "train_sim.hpp"
 #include "tidemark/train.hpp"
+#include "train_sim.hpp"
 
 using namespace tidemark;
 

@@ -1,14 +1,14 @@
 // min_length chains: posteriors summed over a chain equal enumeration with the segment rule,
 // rows sum to 1, Viterbi never makes a segment shorter than L, and the compiled size is linear.
-#include <catch2/catch.hpp>
-
 #include <fmt/format.h>
 
+#include <catch2/catch.hpp>
+
 #include "test_util.hpp"
-#include "train_enumerate.hpp"
-#include "train_sim.hpp"
 #include "tidemark/decode.hpp"
 #include "tidemark/train.hpp"
+#include "train_enumerate.hpp"
+#include "train_sim.hpp"
 
 using namespace tidemark;
 
@@ -32,7 +32,8 @@ Profile island_profile(int L) {
       "states": [{{"name": "i", "region": "isl", "order": 0, "emissions": [[0.1,0.4,0.4,0.1]]}},
                  {{"name": "o", "region": "bg", "order": 0, "emissions": [[0.4,0.1,0.1,0.4]]}}],
       "initial": {{"i": 0.5, "o": 0.5}},
-      "transitions": {{"i": {{"i": 0.8, "o": 0.2}}, "o": {{"o": 0.8, "i": 0.2}}}}}})", L),
+      "transitions": {{"i": {{"i": 0.8, "o": 0.2}}, "o": {{"o": 0.8, "i": 0.2}}}}}})",
+                                     L),
                          "chain");
 }
 

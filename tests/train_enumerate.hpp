@@ -78,8 +78,10 @@ inline TrainingCounts enumerate(const Profile& p, const std::string& seq,
             const int64_t L = p.regions[p.states[s].region].min_length;
             const bool chain = copy < L;
             if (chain) {
-                if (!same) w = 0;
-                else w *= p.transitions[s][u] / stay[s];
+                if (!same)
+                    w = 0;
+                else
+                    w *= p.transitions[s][u] / stay[s];
             } else {
                 w *= p.transitions[s][u];
             }
@@ -107,7 +109,8 @@ inline TrainingCounts enumerate(const Profile& p, const std::string& seq,
             } else {
                 double sum = 0;
                 for (const auto& r : p.states[s].emissions) sum += r[b];
-                for (size_t r = 0; r < rows.size(); ++r) rows[r][b] += w * p.states[s].emissions[r][b] / sum;
+                for (size_t r = 0; r < rows.size(); ++r)
+                    rows[r][b] += w * p.states[s].emissions[r][b] / sum;
             }
         }
     };

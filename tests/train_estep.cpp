@@ -1,12 +1,11 @@
 // E-step counts against exhaustive enumeration of every state path (independent of the
 // decoder): initial, transition, chain-step and emission expectations and the log-likelihood.
 #include <catch2/catch.hpp>
-
 #include <cmath>
 
 #include "test_util.hpp"
-#include "train_enumerate.hpp"
 #include "tidemark/train.hpp"
+#include "train_enumerate.hpp"
 
 using namespace tidemark;
 
@@ -51,13 +50,14 @@ TEST_CASE("E-step counts equal exhaustive enumeration over all state paths", "[t
         std::vector<int> orders;
         bool zeros;
     };
-    for (const Case& k : {Case{2, 2, {0}, false}, Case{3, 2, {1, 0, 2}, false}, Case{3, 3, {1}, true},
-                          Case{4, 2, {2, 1}, false}}) {
+    for (const Case& k : {Case{2, 2, {0}, false}, Case{3, 2, {1, 0, 2}, false},
+                          Case{3, 3, {1}, true}, Case{4, 2, {2, 1}, false}}) {
         const Profile p = test::random_profile(rng, k.S, k.R, k.orders, k.zeros);
         const TrainingCounts want = sum_of(p, seqs);
         for (int64_t block : {int64_t{0}, int64_t{1}, int64_t{4}}) {
             std::vector<Contig> contigs;
-            for (size_t i = 0; i < seqs.size(); ++i) contigs.push_back(test::contig_from(seqs[i], "c" + std::to_string(i)));
+            for (size_t i = 0; i < seqs.size(); ++i)
+                contigs.push_back(test::contig_from(seqs[i], "c" + std::to_string(i)));
             MemoryTrainingData data(std::move(contigs));
             const TrainingCounts got = expected_counts(p, data, block);
             INFO("states " << k.S << ", block " << block);

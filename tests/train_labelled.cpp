@@ -1,6 +1,7 @@
 // Labelled counting against hand counts on a small example, and its input errors.
-#include <catch2/catch.hpp>
 #include <fmt/format.h>
+
+#include <catch2/catch.hpp>
 
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
@@ -71,20 +72,23 @@ TEST_CASE("Labelled counts record chain steps and reject short segments", "[trai
     // forced steps 0-1 and 6-7 in c1 and 0-1 in c2.
     {
         MemoryTrainingData data(contigs());
-        const TrainingCounts c = labelled_counts(labelled_profile(4, 2), data, {{"c1", 2, 6, "isl"}}, "bg", quiet);
+        const TrainingCounts c =
+            labelled_counts(labelled_profile(4, 2), data, {{"c1", 2, 6, "isl"}}, "bg", quiet);
         CHECK(c.chain_steps == std::vector<double>{3, 3});
         CHECK(c.transitions[0][0] == 3);
     }
     {
         MemoryTrainingData data(contigs());
-        CHECK_THROWS_WITH(labelled_counts(labelled_profile(5, 1), data, {{"c1", 2, 6, "isl"}}, "bg", quiet),
-                          Contains("'isl' at 3-6 (1-based) is 4 bp, shorter than the region's min_length 5"));
+        CHECK_THROWS_WITH(
+            labelled_counts(labelled_profile(5, 1), data, {{"c1", 2, 6, "isl"}}, "bg", quiet),
+            Contains("'isl' at 3-6 (1-based) is 4 bp, shorter than the region's min_length 5"));
     }
     {
         // A segment cut by the contig end may be shorter: c2 is all bg (4 bases) with min_length 6,
         // and c1 ends in a 4-base bg segment.
         MemoryTrainingData data(contigs());
-        CHECK_NOTHROW(labelled_counts(labelled_profile(1, 6), data, {{"c1", 0, 6, "isl"}}, "bg", quiet));
+        CHECK_NOTHROW(
+            labelled_counts(labelled_profile(1, 6), data, {{"c1", 0, 6, "isl"}}, "bg", quiet));
     }
 }
 
@@ -92,15 +96,19 @@ TEST_CASE("Labelled counting reports unusable labels", "[train]") {
     const Profile p = labelled_profile(1, 1);
     MemoryTrainingData data(contigs());
     CHECK_THROWS_WITH(labelled_counts(p, data, {{"c1", 2, 6, "exon"}}, "bg", quiet),
-                      Contains("interval 'c1 2 6 exon' (BED: 0-based, half-open)") && Contains("regions: isl, bg"));
-    CHECK_THROWS_WITH(labelled_counts(p, data, {{"c1", 2, 6, "isl"}, {"c1", 5, 8, "bg"}}, "bg", quiet),
-                      Contains("overlap"));
+                      Contains("interval 'c1 2 6 exon' (BED: 0-based, half-open)") &&
+                          Contains("regions: isl, bg"));
+    CHECK_THROWS_WITH(
+        labelled_counts(p, data, {{"c1", 2, 6, "isl"}, {"c1", 5, 8, "bg"}}, "bg", quiet),
+        Contains("overlap"));
     CHECK_THROWS_AS(labelled_counts(p, data, {}, "nosuch", quiet), UsageError);
     const Profile two = parse_profile(R"({
       "format": "tidemark-profile/1", "name": "two",
       "regions": [{"name": "r", "report": true}],
       "states": [{"name": "x", "region": "r", "order": 0, "emissions": [[0.25,0.25,0.25,0.25]]},
                  {"name": "y", "region": "r", "order": 0, "emissions": [[0.25,0.25,0.25,0.25]]}],
-      "initial": {"x": 1}, "transitions": {"x": {"y": 1}, "y": {"x": 1}}})", "two");
-    CHECK_THROWS_WITH(labelled_counts(two, data, {}, "r", quiet), Contains("exactly one state per region"));
+      "initial": {"x": 1}, "transitions": {"x": {"y": 1}, "y": {"x": 1}}})",
+                                      "two");
+    CHECK_THROWS_WITH(labelled_counts(two, data, {}, "r", quiet),
+                      Contains("exactly one state per region"));
 }

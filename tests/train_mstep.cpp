@@ -1,7 +1,6 @@
 // M-step against hand computation (normalised counts with pseudocounts, structural zeros, tie
 // pooling, freezing, parameter counts) and the chain row against a brute-force search.
 #include <catch2/catch.hpp>
-
 #include <cmath>
 
 #include "test_util.hpp"
@@ -21,7 +20,8 @@ Profile two_states() {
       "states": [{"name": "a", "region": "ra", "order": 0, "emissions": [[0.25,0.25,0.25,0.25]]},
                  {"name": "b", "region": "rb", "order": 0, "emissions": [[0,0.3,0.3,0.4]]}],
       "initial": {"a": 0.5, "b": 0.5},
-      "transitions": {"a": {"a": 0.9, "b": 0.1}, "b": {"b": 0.8, "a": 0.2}}})", "two");
+      "transitions": {"a": {"a": 0.9, "b": 0.1}, "b": {"b": 0.8, "a": 0.2}}})",
+                         "two");
 }
 
 TrainingCounts hand_counts(const Profile& p) {
@@ -33,7 +33,9 @@ TrainingCounts hand_counts(const Profile& p) {
     return c;
 }
 
-FreezeMask none(const Profile& p) { return resolve_freeze(Freeze{}, p); }
+FreezeMask none(const Profile& p) {
+    return resolve_freeze(Freeze{}, p);
+}
 
 }  // namespace
 
@@ -54,7 +56,8 @@ TEST_CASE("M-step: normalised counts without pseudocounts (hand computation)", "
     CHECK(q.states[1].emissions[0][3] == 0);
 }
 
-TEST_CASE("M-step: pseudocounts go to every entry except structural zeros (hand computation)", "[train]") {
+TEST_CASE("M-step: pseudocounts go to every entry except structural zeros (hand computation)",
+          "[train]") {
     const Profile p = two_states();
     const Profile q = maximise(p, p, hand_counts(p), none(p), MStepOptions{1.0});
     // initial (3+1)/(4+2), (1+1)/6; row a (6+1)/10, (2+1)/10; row b (1+1)/6, (3+1)/6;
@@ -69,8 +72,9 @@ TEST_CASE("M-step: pseudocounts go to every entry except structural zeros (hand 
     CHECK(q.states[1].emissions[0][3] == Approx(1.0 / 13));
     // log-prior: the sum of ln(theta) over the 2 + 4 + 4 + 3 free entries, written out.
     const double want = std::log(4.0 / 6) + std::log(2.0 / 6) + std::log(0.7) + std::log(0.3) +
-                        std::log(2.0 / 6) + std::log(4.0 / 6) + std::log(5.0 / 14) + std::log(4.0 / 14) +
-                        std::log(3.0 / 14) + std::log(2.0 / 14) + 2 * std::log(6.0 / 13) + std::log(1.0 / 13);
+                        std::log(2.0 / 6) + std::log(4.0 / 6) + std::log(5.0 / 14) +
+                        std::log(4.0 / 14) + std::log(3.0 / 14) + std::log(2.0 / 14) +
+                        2 * std::log(6.0 / 13) + std::log(1.0 / 13);
     CHECK(log_prior(p, q, none(p), 1.0) == Approx(want));
     CHECK(log_prior(p, q, none(p), 0.0) == 0);
     // Free parameters: initial 1, rows 1 + 1, emissions 3 + 2 (b has three non-zero entries).
@@ -100,7 +104,8 @@ TEST_CASE("--freeze words are checked", "[train]") {
     CHECK_THROWS_AS(parse_freeze("emissions:", f), UsageError);
     CHECK_THROWS_AS(parse_freeze("initial:a", f), UsageError);
     parse_freeze("emissions:nosuch", f);
-    CHECK_THROWS_WITH(resolve_freeze(f, two_states()), Contains("no state 'nosuch'") && Contains("a, b"));
+    CHECK_THROWS_WITH(resolve_freeze(f, two_states()),
+                      Contains("no state 'nosuch'") && Contains("a, b"));
 }
 
 TEST_CASE("M-step: tied states get one table from pooled counts", "[train]") {
@@ -110,7 +115,8 @@ TEST_CASE("M-step: tied states get one table from pooled counts", "[train]") {
       "states": [{"name": "x", "region": "r", "order": 0, "tie": "g", "emissions": [[0.1,0.2,0.3,0.4]]},
                  {"name": "y", "region": "r", "order": 0, "tie": "g", "emissions": [[0.1,0.2,0.3,0.4]]}],
       "initial": {"x": 1},
-      "transitions": {"x": {"y": 1}, "y": {"x": 1}}})", "tied");
+      "transitions": {"x": {"y": 1}, "y": {"x": 1}}})",
+                                    "tied");
     TrainingCounts c = TrainingCounts::zero(p);
     c.emissions[0][0] = {1, 2, 3, 4};
     c.emissions[1][0] = {4, 3, 2, 6};
@@ -135,7 +141,8 @@ TEST_CASE("M-step: a min_length row (hand computation)", "[train]") {
       "states": [{"name": "i", "region": "isl", "order": 0, "emissions": [[0.25,0.25,0.25,0.25]]},
                  {"name": "o", "region": "bg", "order": 0, "emissions": [[0.25,0.25,0.25,0.25]]}],
       "initial": {"o": 1},
-      "transitions": {"i": {"i": 0.5, "o": 0.5}, "o": {"o": 0.9, "i": 0.1}}})", "chain");
+      "transitions": {"i": {"i": 0.5, "o": 0.5}, "o": {"o": 0.9, "i": 0.1}}})",
+                                    "chain");
     TrainingCounts c = TrainingCounts::zero(p);
     c.transitions[0] = {50, 10};
     c.chain_steps[0] = 20;
@@ -158,7 +165,8 @@ TEST_CASE("M-step: a multi-state min_length row maximises the expected log-likel
                  {"name": "c", "region": "o", "order": 0, "emissions": [[0.25,0.25,0.25,0.25]]}],
       "initial": {"c": 1},
       "transitions": {"a": {"a": 0.4, "b": 0.4, "c": 0.2}, "b": {"b": 0.5, "a": 0.3, "c": 0.2},
-                      "c": {"c": 0.9, "a": 0.1}}})", "chain3");
+                      "c": {"c": 0.9, "a": 0.1}}})",
+                                    "chain3");
     TrainingCounts c = TrainingCounts::zero(p);
     c.transitions[0] = {37.5, 21.25, 6.0};
     c.chain_steps[0] = 40.0;

@@ -1,8 +1,8 @@
 // Profile format additions for training: regions[].min_length and states[].tie (parsing,
 // validation messages, round trip), and the built-in isochore and gc-shift profiles.
-#include <catch2/catch.hpp>
-
 #include <fmt/format.h>
+
+#include <catch2/catch.hpp>
 
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
@@ -13,7 +13,8 @@ using Catch::Matchers::Contains;
 namespace {
 
 std::string profile_text(const std::string& region_extra, const std::string& state_x_extra,
-                         const std::string& state_y_extra, const std::string& y_rows = "[[0.1,0.2,0.3,0.4]]",
+                         const std::string& state_y_extra,
+                         const std::string& y_rows = "[[0.1,0.2,0.3,0.4]]",
                          const std::string& x_row = "{\"x\": 0.5, \"y\": 0.5}") {
     return fmt::format(R"({{
       "format": "tidemark-profile/1", "name": "t",
@@ -28,7 +29,8 @@ std::string profile_text(const std::string& region_extra, const std::string& sta
 }  // namespace
 
 TEST_CASE("min_length and tie parse and survive a round trip", "[train][profile]") {
-    const Profile p = parse_profile(profile_text(", \"min_length\": 7", ", \"tie\": \"g\"", ", \"tie\": \"g\""), "t");
+    const Profile p = parse_profile(
+        profile_text(", \"min_length\": 7", ", \"tie\": \"g\"", ", \"tie\": \"g\""), "t");
     CHECK(p.regions[0].min_length == 7);
     CHECK(p.regions[1].min_length == 1);
     CHECK(p.states[0].tie == "g");
@@ -48,14 +50,16 @@ TEST_CASE("min_length and tie are validated with messages naming the field", "[t
                       Contains("f.json: regions[0].min_length: must be from 1 to 2048"));
     CHECK_THROWS_WITH(parse_profile(profile_text(", \"min_length\": 2.5", "", ""), "f.json"),
                       Contains("regions[0].min_length: must be a non-negative integer"));
-    CHECK_THROWS_WITH(parse_profile(profile_text(", \"min_length\": 4", "", "", "[[0.1,0.2,0.3,0.4]]",
-                                                 "{\"y\": 1}"),
-                                    "f.json"),
-                      Contains("transitions.x: region 'r' has min_length 4 but state 'x' has no transition"));
+    CHECK_THROWS_WITH(
+        parse_profile(
+            profile_text(", \"min_length\": 4", "", "", "[[0.1,0.2,0.3,0.4]]", "{\"y\": 1}"),
+            "f.json"),
+        Contains("transitions.x: region 'r' has min_length 4 but state 'x' has no transition"));
     CHECK_THROWS_WITH(parse_profile(profile_text(", \"min_length\": 2048", "", ""), "f.json"),
                       Contains("expand the model to 2049 states"));
     CHECK_NOTHROW(parse_profile(profile_text(", \"min_length\": 2000", "", ""), "f.json").regions);
-    CHECK_THROWS_WITH(parse_profile(profile_text("", ", \"tie\": \"g\"", ", \"tie\": \"g\"", "[[0.4,0.3,0.2,0.1]]"),
+    CHECK_THROWS_WITH(parse_profile(profile_text("", ", \"tie\": \"g\"", ", \"tie\": \"g\"",
+                                                 "[[0.4,0.3,0.2,0.1]]"),
                                     "f.json"),
                       Contains("tie group 'g': emissions[0][0] is 0.4 here but 0.1 in 'x'"));
     CHECK_THROWS_WITH(parse_profile(profile_text("", ", \"tie\": \"\"", ""), "f.json"),
@@ -64,7 +68,8 @@ TEST_CASE("min_length and tie are validated with messages naming the field", "[t
                       Contains("did you mean 'min_length'?"));
 }
 
-TEST_CASE("Built-in profiles parse, compile and are listed with a description", "[train][profile]") {
+TEST_CASE("Built-in profiles parse, compile and are listed with a description",
+          "[train][profile]") {
     for (const char* name : {"cpg-island", "isochore", "gc-shift"}) {
         INFO(name);
         const Profile p = load_profile(name);
@@ -81,7 +86,11 @@ TEST_CASE("isochore families emit GC inside their borders", "[train][profile]") 
     // down from memory in shared/REFERENCES.md).
     const Profile p = load_profile("isochore");
     const std::vector<std::pair<std::string, std::pair<double, double>>> borders = {
-        {"L1", {0.0, 0.37}}, {"L2", {0.37, 0.41}}, {"H1", {0.41, 0.46}}, {"H2", {0.46, 0.53}}, {"H3", {0.53, 1.0}}};
+        {"L1", {0.0, 0.37}},
+        {"L2", {0.37, 0.41}},
+        {"H1", {0.41, 0.46}},
+        {"H2", {0.46, 0.53}},
+        {"H3", {0.53, 1.0}}};
     for (const auto& [family, range] : borders) {
         const int s = p.state_index(family);
         REQUIRE(s >= 0);
@@ -93,7 +102,8 @@ TEST_CASE("isochore families emit GC inside their borders", "[train][profile]") 
         // Expected domain length (the min_length chain, then a geometric number of windows) of
         // hundreds of kb: isochores are "typically much longer than 300 kb" (same source).
         const double stay = p.transitions[s][s];
-        const double windows = static_cast<double>(p.chain_length(p.states[s].region)) + 1 / (1 - stay);
+        const double windows =
+            static_cast<double>(p.chain_length(p.states[s].region)) + 1 / (1 - stay);
         CHECK(windows * static_cast<double>(p.window_size) >= 300000);
     }
 }

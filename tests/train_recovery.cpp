@@ -2,17 +2,17 @@
 // generator) from a three-region order-1 profile, starting from a perturbed profile.
 #include <catch2/catch.hpp>
 
-#include "train_sim.hpp"
 #include "tidemark/train.hpp"
+#include "train_sim.hpp"
 
 using namespace tidemark;
 
-TEST_CASE("Baum-Welch recovers emissions and switch probabilities of a simulated profile", "[train][slow]") {
+TEST_CASE("Baum-Welch recovers emissions and switch probabilities of a simulated profile",
+          "[train][slow]") {
     // Truth: GC 0.3 / 0.5 / 0.7 classes with context-dependent order-1 rows; unequal switches.
     Profile truth = test::gc_classes({0.3, 0.5, 0.7}, 1e-3, 1);
-    truth.transitions = {{1 - 1.0e-3, 0.7e-3, 0.3e-3},
-                         {0.3e-3, 1 - 0.6e-3, 0.3e-3},
-                         {0.6e-3, 0.9e-3, 1 - 1.5e-3}};
+    truth.transitions = {
+        {1 - 1.0e-3, 0.7e-3, 0.3e-3}, {0.3e-3, 1 - 0.6e-3, 0.3e-3}, {0.6e-3, 0.9e-3, 1 - 1.5e-3}};
     std::vector<Contig> contigs;
     contigs.push_back(test::simulate(truth, 1500000, 11, nullptr, "a"));
     contigs.push_back(test::simulate(truth, 1500000, 12, nullptr, "b"));
@@ -35,7 +35,8 @@ TEST_CASE("Baum-Welch recovers emissions and switch probabilities of a simulated
         for (size_t r = 0; r < 4; ++r)
             for (int b = 0; b < 4; ++b) {
                 INFO("state " << s << " row " << r << " base " << b);
-                CHECK(std::abs(fit.profile.states[s].emissions[r][b] - truth.states[s].emissions[r][b]) <= 0.02);
+                CHECK(std::abs(fit.profile.states[s].emissions[r][b] -
+                               truth.states[s].emissions[r][b]) <= 0.02);
             }
         for (size_t u = 0; u < 3; ++u) {
             if (u == s) continue;

@@ -78,7 +78,8 @@ inline Contig simulate(const Profile& p, int64_t n, uint64_t seed, std::vector<i
             row = st.emissions[ctx];
         } else {
             for (const auto& r : st.emissions)
-                for (int b = 0; b < 4; ++b) row[b] += r[b] / static_cast<double>(st.emissions.size());
+                for (int b = 0; b < 4; ++b)
+                    row[b] += r[b] / static_cast<double>(st.emissions.size());
         }
         const uint8_t b = static_cast<uint8_t>(rng.draw(row, 4));
         c.push(b);
@@ -105,7 +106,8 @@ inline Profile gc_classes(const std::vector<double>& gc, double leave, int order
             // Rows differ a little by context (an asymmetry after A and T) so that order 1 is
             // meaningful; every row keeps the class's GC.
             const double skew = order ? 0.04 * (row % 2 ? 1 : -1) : 0.0;
-            s.emissions.push_back({(1 - g) / 2 + skew, g / 2 - skew, g / 2 + skew, (1 - g) / 2 - skew});
+            s.emissions.push_back(
+                {(1 - g) / 2 + skew, g / 2 - skew, g / 2 + skew, (1 - g) / 2 - skew});
         }
         p.states.push_back(s);
     }

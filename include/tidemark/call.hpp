@@ -32,9 +32,9 @@ inline constexpr const char* island_region_name = "cpg_island";
 bool meets_island_criteria(IslandCriteria criteria, int64_t length, const Composition& comp);
 
 struct CallOptions {
-    double min_posterior = 0.5;  ///< a base belongs to a run when P(region) >= this
-    int64_t merge_gap = 0;       ///< runs separated by fewer than this many bases are merged
-    int64_t min_length = 1;      ///< calls shorter than this are dropped (after merging)
+    double min_posterior = 0.5;    ///< a base belongs to a run when P(region) >= this
+    int64_t merge_gap = 0;         ///< runs separated by fewer than this many bases are merged
+    int64_t min_length = 1;        ///< calls shorter than this are dropped (after merging)
     double high_posterior = 0.95;  ///< a call's core (BED thickStart/thickEnd) spans its bases
                                    ///< with P(region) >= this (tidemark's choice)
     IslandCriteria criteria = IslandCriteria::none;
@@ -77,17 +77,17 @@ public:
     /// A fork's state after one segment, in plain form: scan --shard writes it for segments of a
     /// contig shared between shards, and merge restores it (restore_span) and joins the spans
     /// in order, as the single run does.
-    struct Group {  // merged runs of one region
+    struct Group {                   // merged runs of one region
         int64_t begin = 0, end = 0;  ///< end = one past the last base with P >= threshold
         double sum = 0;              ///< posterior sum over [begin, end)
         double min = 1;
         int64_t core_begin = -1, core_end = -1;
     };
-    struct Lane {  // one reportable region's state over the span seen so far
+    struct Lane {                // one reportable region's state over the span seen so far
         bool seen = false;       ///< a run has started in this span
         bool has_first = false;  ///< the span's first group is closed and kept in `first`
         Group first;
-        bool active = false;     ///< `open` is being extended
+        bool active = false;  ///< `open` is being extended
         Group open;
         double lead_sum = 0, lead_min = 1;  ///< before the span's first run (all of it if none)
         double gap_sum = 0, gap_min = 1;    ///< over [open.end, current position)
@@ -98,16 +98,18 @@ public:
     /// Where calls get their composition when the contig's bases are not at hand (merge):
     /// composition of [begin, end).
     using CompositionSource = std::function<Composition(int64_t begin, int64_t end)>;
-    void use_composition_source(CompositionSource source) { composition_source_ = std::move(source); }
+    void use_composition_source(CompositionSource source) {
+        composition_source_ = std::move(source);
+    }
 
 private:
-    void close(Lane& lane, int region);  ///< closes the open group
+    void close(Lane& lane, int region);           ///< closes the open group
     void finish(const Group& group, int region);  ///< a final group: filter, then a call
 
     const Model& model_;
     CallOptions options_;
     const Contig* contig_ = nullptr;
-    bool ended_ = false;  ///< end_contig seen
+    bool ended_ = false;         ///< end_contig seen
     std::vector<int> reported_;  ///< region indices that are reportable
     std::vector<Lane> lanes_;
     std::vector<Call> calls_;

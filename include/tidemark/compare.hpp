@@ -42,31 +42,31 @@ struct CompareOptions {
 
 /// Base-level counts and ratios for one type. Ratios with a zero denominator are NaN.
 struct BaseMetrics {
-    int64_t tp = 0;                 ///< bases in a call and in the truth
-    int64_t fp = 0;                 ///< bases in a call only
-    int64_t fn = 0;                 ///< bases in the truth only
-    std::optional<int64_t> tn;      ///< bases in neither (needs a genome)
-    double precision = 0;           ///< tp / (tp + fp)
-    double recall = 0;              ///< tp / (tp + fn)
-    double f1 = 0;                  ///< 2 tp / (2 tp + fp + fn)
-    double jaccard = 0;             ///< tp / (tp + fp + fn)
-    std::optional<double> accuracy; ///< (tp + tn) / genome bases (needs a genome)
+    int64_t tp = 0;                  ///< bases in a call and in the truth
+    int64_t fp = 0;                  ///< bases in a call only
+    int64_t fn = 0;                  ///< bases in the truth only
+    std::optional<int64_t> tn;       ///< bases in neither (needs a genome)
+    double precision = 0;            ///< tp / (tp + fp)
+    double recall = 0;               ///< tp / (tp + fn)
+    double f1 = 0;                   ///< 2 tp / (2 tp + fp + fn)
+    double jaccard = 0;              ///< tp / (tp + fp + fn)
+    std::optional<double> accuracy;  ///< (tp + tn) / genome bases (needs a genome)
 };
 
 /// Interval-level counts for one type. "Reciprocal" means an overlap of at least half of both
 /// intervals' lengths (2 * overlap >= length of each).
 struct IntervalMetrics {
-    int64_t truth = 0;                 ///< truth intervals (after merging)
-    int64_t calls = 0;                 ///< calls (after merging)
-    int64_t truth_overlapped = 0;      ///< truth intervals overlapped by at least one call
-    int64_t truth_reciprocal = 0;      ///< truth intervals with a reciprocal call
-    int64_t calls_overlapping = 0;     ///< calls overlapping at least one truth interval
-    int64_t calls_reciprocal = 0;      ///< calls with a reciprocal truth interval
+    int64_t truth = 0;              ///< truth intervals (after merging)
+    int64_t calls = 0;              ///< calls (after merging)
+    int64_t truth_overlapped = 0;   ///< truth intervals overlapped by at least one call
+    int64_t truth_reciprocal = 0;   ///< truth intervals with a reciprocal call
+    int64_t calls_overlapping = 0;  ///< calls overlapping at least one truth interval
+    int64_t calls_reciprocal = 0;   ///< calls with a reciprocal truth interval
     /// Matched pairs: a truth interval and a call that overlap reciprocally. Intervals are
     /// merged first (disjoint, not touching), so each has at most one reciprocal partner and
     /// there are truth_reciprocal (= calls_reciprocal) pairs.
-    double median_start_offset = 0;    ///< median |call start - truth start|; NaN when no pair
-    double median_end_offset = 0;      ///< median |call end - truth end|; NaN when no pair
+    double median_start_offset = 0;  ///< median |call start - truth start|; NaN when no pair
+    double median_end_offset = 0;    ///< median |call end - truth end|; NaN when no pair
 };
 
 struct TypeComparison {
@@ -108,11 +108,11 @@ std::string compare_json(const Comparison& comparison, const std::string& comman
 
 /// The `tidemark compare` job.
 struct CompareJob {
-    std::string calls;        ///< BED3+ of calls ("-" = stdin)
-    std::string truth;        ///< BED3+ of truth
-    std::string genome;       ///< chrom sizes / .fai / FASTA; "" = none (no TN)
-    std::string json;         ///< JSON output; "" = none
-    std::string output = "-"; ///< text table
+    std::string calls;         ///< BED3+ of calls ("-" = stdin)
+    std::string truth;         ///< BED3+ of truth
+    std::string genome;        ///< chrom sizes / .fai / FASTA; "" = none (no TN)
+    std::string json;          ///< JSON output; "" = none
+    std::string output = "-";  ///< text table
     CompareOptions options;
     std::string command_line;
 };

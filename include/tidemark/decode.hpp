@@ -141,7 +141,8 @@ public:
 
     /// Step (a) alone for segments [first, last) of a contig that splits(): their seams, with
     /// marks and base CRCs.
-    std::vector<SegmentSeam> seams(const Contig& contig, size_t first, size_t last, TaskPool* pool = nullptr);
+    std::vector<SegmentSeam> seams(const Contig& contig, size_t first, size_t last,
+                                   TaskPool* pool = nullptr);
 
     /// Receives each decoded segment's fork, in segment order.
     using SegmentTaker = std::function<void(size_t segment, DecodeSink& fork)>;
@@ -153,8 +154,9 @@ public:
     /// (InputError otherwise: they come from another input, profile or options). Returns the
     /// whole contig's log-likelihood when `last` is the final segment, NaN otherwise. The
     /// posteriors are those of run(), bit for bit.
-    DecodeResult run_segments(const Contig& contig, const std::vector<SegmentSeam>& all, size_t first,
-                              size_t last, DecodeSink& sink, const SegmentTaker& take, TaskPool* pool = nullptr);
+    DecodeResult run_segments(const Contig& contig, const std::vector<SegmentSeam>& all,
+                              size_t first, size_t last, DecodeSink& sink, const SegmentTaker& take,
+                              TaskPool* pool = nullptr);
 
 private:
     struct Workspace;
@@ -166,16 +168,19 @@ private:
     std::vector<Segment> make_segments(int64_t length) const;
     uint32_t bases_crc32(const Contig& contig, int64_t begin, int64_t end) const;
     void size_workspaces(TaskPool* pool);  ///< one workspace per pool worker, sized for a block
-    void for_segments(size_t first, size_t last, TaskPool* pool, const std::function<void(size_t, Workspace&)>& task);
+    void for_segments(size_t first, size_t last, TaskPool* pool,
+                      const std::function<void(size_t, Workspace&)>& task);
     template <int Fixed>
-    void matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last, TaskPool* pool);
+    void matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last,
+                       TaskPool* pool);
     template <int Fixed>
-    DecodeResult sweep_segments(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last,
-                                DecodeSink& sink, const SegmentTaker& take, TaskPool* pool);
+    DecodeResult sweep_segments(const Contig& contig, std::vector<Segment>& segs, size_t first,
+                                size_t last, DecodeSink& sink, const SegmentTaker& take,
+                                TaskPool* pool);
 
     const Model& model_;
     int64_t block_ = 0;
-    int64_t segment_ = 0;  ///< segment length; 0 = never split
+    int64_t segment_ = 0;                                 ///< segment length; 0 = never split
     std::vector<std::unique_ptr<Workspace>> workspaces_;  ///< one per pool worker
     std::vector<double> fast_emission_;  ///< emission rows: full contexts, [(ctx * 4 + base) * S
                                          ///< + s], then unknown bases and short contexts
@@ -205,7 +210,8 @@ private:
 /// Window models: positions are windows, rows are scaled (fill_window_emissions) and the return
 /// value is the natural log of the factors divided out; 0 for per-base models.
 double fill_emissions(const Model& model, const Contig& contig, int64_t begin, int64_t n,
-                    uint8_t* bases, double* emission, const std::vector<double>* fast_table = nullptr);
+                      uint8_t* bases, double* emission,
+                      const std::vector<double>* fast_table = nullptr);
 
 /// The combined table used by fill_emissions for positions with a full context (empty when
 /// the table would exceed 32 MiB).

@@ -10,7 +10,8 @@ enum class LogLevel { quiet = 0, normal = 1, verbose = 2 };
 
 class Logger {
 public:
-    explicit Logger(LogLevel level = LogLevel::normal, std::FILE* out = stderr) : level_(level), out_(out) {}
+    explicit Logger(LogLevel level = LogLevel::normal, std::FILE* out = stderr)
+        : level_(level), out_(out) {}
     LogLevel level() const { return level_; }
     void warn(std::string_view msg) const { write(LogLevel::quiet, "tidemark: warning: ", msg); }
     void info(std::string_view msg) const { write(LogLevel::normal, "tidemark: ", msg); }

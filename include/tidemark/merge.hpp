@@ -33,13 +33,13 @@ struct MergeOptions {
     std::vector<std::string> shard_tracks;  ///< scan --posteriors PREFIX of every shard, same order
     std::vector<std::string> shard_gff3;    ///< scan --gff3 of every shard, same order
     std::vector<std::string> shard_chrom_sizes;  ///< scan --chrom-sizes of every shard, same order
-    std::string output;                     ///< merged BED ("" = stdout when shard_beds are given)
-    std::string summary_path;               ///< merged summary ("" = none)
-    std::string report_path;                ///< merged report ("" = none)
-    std::string gff3_path;                  ///< merged GFF3 ("" = none)
-    std::string chrom_sizes_path;           ///< merged chrom sizes ("" = none)
+    std::string output;            ///< merged BED ("" = stdout when shard_beds are given)
+    std::string summary_path;      ///< merged summary ("" = none)
+    std::string report_path;       ///< merged report ("" = none)
+    std::string gff3_path;         ///< merged GFF3 ("" = none)
+    std::string chrom_sizes_path;  ///< merged chrom sizes ("" = none)
     std::string tracks_prefix;  ///< merged tracks PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw
-    bool bgzip = false;                     ///< bgzip + tabix the merged BED and bedGraph files
+    bool bgzip = false;         ///< bgzip + tabix the merged BED and bedGraph files
     std::string profile;  ///< records shared between shards: the run's profile ("" = as recorded)
 };
 

@@ -13,9 +13,9 @@ namespace tidemark {
 
 /// How an output is encoded.
 struct OutputFormat {
-    bool bgzip = false;   ///< BGZF-compress (htslib), readable by gzip and indexable by tabix
-    bool tabix = false;   ///< also write PATH.tbi (BED coordinates); needs bgzip, a regular file
-    int skip_lines = 0;   ///< leading lines the index must skip (a browser `track` line)
+    bool bgzip = false;  ///< BGZF-compress (htslib), readable by gzip and indexable by tabix
+    bool tabix = false;  ///< also write PATH.tbi (BED coordinates); needs bgzip, a regular file
+    int skip_lines = 0;  ///< leading lines the index must skip (a browser `track` line)
 };
 
 /// A temporary path beside a target file, registered for removal on SIGINT/SIGTERM/SIGHUP.

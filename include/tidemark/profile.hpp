@@ -40,7 +40,7 @@ struct RegionSpec {
 /// source); larger rho lets a domain's windows scatter around its mean, which bounds the evidence
 /// one window carries however many bases it has.
 struct WindowGC {
-    double mean = 0.5;        ///< in (0, 1)
+    double mean = 0.5;         ///< in (0, 1)
     double dispersion = 0.01;  ///< rho, in (0, 1)
 };
 
@@ -50,10 +50,10 @@ struct WindowGC {
 /// is 0 and emissions is empty.
 struct StateSpec {
     std::string name;
-    int region = 0;  ///< index into Profile::regions
-    int order = 0;   ///< 0..max_emission_order
+    int region = 0;                                ///< index into Profile::regions
+    int order = 0;                                 ///< 0..max_emission_order
     std::vector<std::array<double, 4>> emissions;  ///< 4^order rows, each summing to 1
-    WindowGC gc;     ///< window profiles only
+    WindowGC gc;                                   ///< window profiles only
     /// Tie group: states that name the same non-empty group share one emission table (same
     /// order, identical rows), and training estimates it from their pooled counts.
     std::string tie;
@@ -103,7 +103,8 @@ Profile parse_profile(std::string_view json_text, const std::string& origin);
 /// Canonical JSON text of a profile (stable key order; parse_profile(to_json(p)) == p).
 std::string to_json(const Profile& profile);
 
-/// CRC-32 of the profile's canonical JSON (to_json), 8 hex digits: recorded by scan, checked by merge.
+/// CRC-32 of the profile's canonical JSON (to_json), 8 hex digits: recorded by scan, checked by
+/// merge.
 std::string profile_checksum(const Profile& profile);
 
 /// A profile compiled into the binary from data/profiles/NAME.json.
@@ -126,7 +127,8 @@ struct RollingContext {
     uint32_t code = 0;
     int64_t valid = 0;  ///< consecutive known bases just before the position
 
-    explicit RollingContext(int max_order = max_emission_order) : mask_((1u << (2 * max_order)) - 1) {}
+    explicit RollingContext(int max_order = max_emission_order)
+        : mask_((1u << (2 * max_order)) - 1) {}
     /// Moves past one base; an unknown base empties the context.
     void push(uint8_t base) {
         if (base == base_unknown) {

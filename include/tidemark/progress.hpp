@@ -2,8 +2,8 @@
 #pragma once
 
 #include <chrono>
-#include <memory>
 #include <cstdint>
+#include <memory>
 #include <string>
 
 #include "tidemark/decode.hpp"
@@ -12,8 +12,8 @@ namespace tidemark {
 
 struct ResourceUsage {
     double wall_seconds = 0;
-    double cpu_seconds = 0;       ///< user + system time of this process
-    int64_t peak_rss_bytes = 0;   ///< maximum resident set size so far
+    double cpu_seconds = 0;      ///< user + system time of this process
+    int64_t peak_rss_bytes = 0;  ///< maximum resident set size so far
 };
 
 /// Measures from its construction.

@@ -35,14 +35,15 @@ struct Composition;
 /// first chunk and peak memory stays at about 0.25 bytes per base. Reusing one Contig for many
 /// records keeps its chunks allocated.
 struct Contig {
-    std::string name;        ///< record name: first word of the FASTA header
-    int64_t offset = 0;      ///< 0-based position of base 0 on the named sequence (regions)
-    int64_t length = 0;      ///< number of bases, known and unknown
+    std::string name;             ///< record name: first word of the FASTA header
+    int64_t offset = 0;           ///< 0-based position of base 0 on the named sequence (regions)
+    int64_t length = 0;           ///< number of bases, known and unknown
     int64_t sequence_length = 0;  ///< length of the whole named sequence when this contig is a
                                   ///< region of it (faidx); 0 for streamed records
     /// Length of the whole named sequence (for chrom-sizes files and track headers).
     int64_t full_length() const { return sequence_length > 0 ? sequence_length : offset + length; }
-    int64_t soft_masked = 0; ///< lowercase bases seen (their base, or unknown with SoftMasked::unknown)
+    int64_t soft_masked =
+        0;  ///< lowercase bases seen (their base, or unknown with SoftMasked::unknown)
     std::vector<UnknownRun> unknown;  ///< sorted, disjoint, non-adjacent
 
     /// Code 0..4 of base i (0 <= i < length).
@@ -63,7 +64,8 @@ struct Contig {
     static constexpr int chunk_shift = 22;  // bases per chunk = 4 Mi (1 MiB packed)
 
 private:
-    friend Composition composition(const Contig& contig, int64_t begin, int64_t end);  // reads chunks_
+    friend Composition composition(const Contig& contig, int64_t begin,
+                                   int64_t end);  // reads chunks_
     /// Chunk `chunk` with room for at least `bytes` bytes (allocated or grown as needed).
     uint8_t* chunk_room(size_t chunk, int64_t bytes);
     std::vector<std::unique_ptr<uint8_t[]>> chunks_;
@@ -130,7 +132,8 @@ struct RecordStart {
 /// Reads only the records that start at these offsets, in this order, parsing each as
 /// open_fasta does (a shard's share, with offsets from the index). Plain or bgzip files with
 /// their .fai/.gzi index only.
-std::unique_ptr<SequenceSource> open_fasta_records(const std::string& path, std::vector<RecordStart> starts);
+std::unique_ptr<SequenceSource> open_fasta_records(const std::string& path,
+                                                   std::vector<RecordStart> starts);
 
 /// Where a record's bases lie in its file, as its .fai line gives it: the offset of its first
 /// base (uncompressed), bases per line and bytes per line.
@@ -150,9 +153,9 @@ struct RecordWindow {
     int64_t begin = 0, end = 0;
     int64_t count_begin = 0, count_end = 0;
 };
-void read_record_windows(const std::string& path, const std::string& name, int64_t length, const RecordLayout& layout,
-                         const std::vector<RecordWindow>& windows, Contig& contig,
-                         SoftMasked soft = SoftMasked::base);
+void read_record_windows(const std::string& path, const std::string& name, int64_t length,
+                         const RecordLayout& layout, const std::vector<RecordWindow>& windows,
+                         Contig& contig, SoftMasked soft = SoftMasked::base);
 
 /// Makes sure PATH.fai (and PATH.gzi for bgzip) exist and are at least as new as PATH: builds
 /// them under temporary names and renames them into place, so that concurrent processes never

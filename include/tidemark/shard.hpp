@@ -19,8 +19,8 @@ struct ShardUnit {
     std::string input;  ///< the file it comes from
     std::string name;
     int64_t length = 0;
-    int64_t begin = 0;  ///< a region's start on its sequence (0 for records)
-    RecordStart start;  ///< where the record starts in its file (records read by index only)
+    int64_t begin = 0;    ///< a region's start on its sequence (0 for records)
+    RecordStart start;    ///< where the record starts in its file (records read by index only)
     RecordLayout layout;  ///< where its bases lie (records read by index only)
 };
 
@@ -79,7 +79,8 @@ public:
     /// input can be read through its index (list_units' by_index), it yields only this shard's
     /// records, so that a shard reads and decompresses its share and not the whole genome;
     /// otherwise every record, and take() picks. pieces_only: only records split between shards.
-    std::unique_ptr<SequenceSource> open(const std::string& input, const std::vector<Region>& regions,
+    std::unique_ptr<SequenceSource> open(const std::string& input,
+                                         const std::vector<Region>& regions,
                                          bool pieces_only = false);
     /// How the sources that open() returns read lowercase bases [SoftMasked::base].
     void set_soft_masked(SoftMasked mode) { soft_masked_ = mode; }
@@ -90,7 +91,9 @@ public:
     /// than planned).
     bool take(const Contig& contig);
     /// True when the record last passed to take() is split between shards.
-    bool split() const { return current_ >= 0 && !plan_.pieces[static_cast<size_t>(current_)].empty(); }
+    bool split() const {
+        return current_ >= 0 && !plan_.pieces[static_cast<size_t>(current_)].empty();
+    }
     /// Its pieces that this shard decodes (split() only), in order.
     std::vector<ShardPiece> my_pieces() const;
     /// Its number of segments (split() only).
@@ -116,7 +119,8 @@ public:
 
 private:
     bool mine(size_t unit) const;  ///< this shard decodes the unit, wholly or in part
-    std::unique_ptr<SequenceSource> open_reader(const std::string& input, const std::vector<Region>& regions,
+    std::unique_ptr<SequenceSource> open_reader(const std::string& input,
+                                                const std::vector<Region>& regions,
                                                 bool pieces_only);
 
     ShardSpec spec_;
@@ -126,8 +130,8 @@ private:
     SoftMasked soft_masked_ = SoftMasked::base;
     bool read_share_ = false;  ///< inputs can be read through their index (see open)
     bool sharing_ = false;     ///< the current source yields only this shard's units
-    int64_t next_ = 0;    ///< records seen
-    size_t planned_ = 0;  ///< planned units seen
+    int64_t next_ = 0;         ///< records seen
+    size_t planned_ = 0;       ///< planned units seen
     int64_t shard_bases_ = 0, total_bases_ = 0;
 };
 
@@ -142,28 +146,30 @@ struct SeamsRecord {
     int64_t input_index = 0;
     std::string name;
     int64_t length = 0;
-    size_t segments = 0;                  ///< of the whole record
-    std::vector<size_t> indexes;          ///< segment index of each seam
+    size_t segments = 0;          ///< of the whole record
+    std::vector<size_t> indexes;  ///< segment index of each seam
     std::vector<SegmentSeam> seams;
 };
 
 /// What seams depend on, as a JSON object text: the records (inputs with their size and
 /// modification time, regions), the profile checksum and how contigs split (--block, --bin,
 /// segment length). scan and fit write the same.
-std::string seams_identity(const std::vector<std::string>& inputs, const std::vector<std::string>& regions,
-                           const std::string& regions_bed, const std::string& profile_crc32, int64_t block,
-                           int64_t bin, int64_t segment_length);
+std::string seams_identity(const std::vector<std::string>& inputs,
+                           const std::vector<std::string>& regions, const std::string& regions_bed,
+                           const std::string& profile_crc32, int64_t block, int64_t bin,
+                           int64_t segment_length);
 
 /// Step 1: reads the input (inputs, or regions of inputs[0]) and computes the seams of this
 /// shard's segments of every split record (shard.split()); checks the records against the
 /// plan (shard.finish()). A shard without such segments reads nothing and returns none.
 std::vector<SeamsRecord> compute_seams(ShardFilter& shard, PosteriorDecoder& decoder,
-                                       const std::vector<std::string>& inputs, const std::vector<Region>& regions,
-                                       TaskPool* pool);
+                                       const std::vector<std::string>& inputs,
+                                       const std::vector<Region>& regions, TaskPool* pool);
 
 /// The seams file of one shard (tidemark-seams/1): shard index and count, `identity` (what the
 /// seams depend on: inputs, profile checksum, decoder options; a JSON object text) and records.
-std::string seams_json(const ShardSpec& spec, const std::string& identity, const std::vector<SeamsRecord>& records);
+std::string seams_json(const ShardSpec& spec, const std::string& identity,
+                       const std::vector<SeamsRecord>& records);
 
 /// The seams of every split record, gathered from the seams files of all shards.
 class SeamsTable {
@@ -171,7 +177,8 @@ public:
     SeamsTable() = default;
     /// Reads the files; throws InputError for a file that is not a seams file, comes from
     /// another run (identity or shard count differ) or repeats a segment.
-    SeamsTable(const std::vector<std::string>& paths, const std::string& identity, const ShardSpec& spec);
+    SeamsTable(const std::vector<std::string>& paths, const std::string& identity,
+               const ShardSpec& spec);
     bool empty() const { return paths_.empty(); }
     /// All segments' seams of a record; throws InputError naming the missing segments.
     std::vector<SegmentSeam> record(int64_t input_index, const std::string& name, int64_t length,
@@ -203,8 +210,8 @@ struct SplitSegment {
     size_t index = 0;
     int64_t begin = 0, end = 0;
     std::vector<IntervalCaller::Lane> lanes;
-    std::vector<Call> calls;             ///< calls that ended inside the segment
-    std::vector<double> expected;        ///< expected bases per region
+    std::vector<Call> calls;                  ///< calls that ended inside the segment
+    std::vector<double> expected;             ///< expected bases per region
     std::vector<PrefixComposition> prefixes;  ///< at begin, end and the lanes' group bounds
 };
 
@@ -213,14 +220,14 @@ struct SplitRecord {
     /// Whole-record fields (name, input_index, offset, length, unknown, soft_masked,
     /// composition); log_likelihood only from the shard with the last segment, else NaN.
     ContigSummary whole;
-    int64_t full_length = 0;  ///< of the named sequence (regions)
-    size_t segments = 0;      ///< of the whole record
+    int64_t full_length = 0;         ///< of the named sequence (regions)
+    size_t segments = 0;             ///< of the whole record
     std::vector<SplitSegment> done;  ///< this shard's segments, in order
 };
 
 /// Describes segment `index`, [begin, end) of `contig`, from the forks that decoded it.
 SplitSegment describe_segment(const Contig& contig, size_t index, int64_t begin, int64_t end,
-                               const IntervalCaller& caller, const RegionTotals& totals);
+                              const IntervalCaller& caller, const RegionTotals& totals);
 
 /// The "shard" object of a shard's summary and report: index, count, records of the whole input,
 /// the effective options (a JSON object, so that merge can refuse shards of different runs even
@@ -228,7 +235,8 @@ SplitSegment describe_segment(const Contig& contig, size_t index, int64_t begin,
 /// (what merge needs to rebuild the genome-wide totals exactly). Returned as JSON text.
 /// Also the profile checksum (merge checks the profile it loads for split records against it);
 /// split records go under "shared".
-std::string shard_json(const ShardFilter& filter, const RunOptions& options, const std::string& profile_crc32,
-                       const std::vector<ContigSummary>& contigs, const std::vector<SplitRecord>& shared);
+std::string shard_json(const ShardFilter& filter, const RunOptions& options,
+                       const std::string& profile_crc32, const std::vector<ContigSummary>& contigs,
+                       const std::vector<SplitRecord>& shared);
 
 }  // namespace tidemark

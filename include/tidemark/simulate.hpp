@@ -31,11 +31,11 @@ namespace tidemark {
 /// byte-identical output on every machine, compiler and standard library. A tidemark release
 /// that changes the order of the draws says so in the CHANGELOG.
 struct SimulateOptions {
-    std::vector<int64_t> lengths;      ///< one contig per entry, in bases (each >= 1)
-    uint64_t seed = 1;                 ///< the whole run is a function of the seed
-    double gap_fraction = 0;           ///< expected fraction of bases in unknown (N) runs, [0, 1)
-    double gap_mean_length = 100;      ///< mean N-run length in bases (>= 1)
-    std::string name_prefix = "sim";   ///< contigs are named PREFIX1, PREFIX2, ...
+    std::vector<int64_t> lengths;     ///< one contig per entry, in bases (each >= 1)
+    uint64_t seed = 1;                ///< the whole run is a function of the seed
+    double gap_fraction = 0;          ///< expected fraction of bases in unknown (N) runs, [0, 1)
+    double gap_mean_length = 100;     ///< mean N-run length in bases (>= 1)
+    std::string name_prefix = "sim";  ///< contigs are named PREFIX1, PREFIX2, ...
 };
 
 /// Throws UsageError naming the offending option (empty lengths, a length < 1, a gap fraction
@@ -45,7 +45,7 @@ void validate(const SimulateOptions& options);
 
 /// Consecutive simulated positions of one contig. Pointers are valid during the block call only.
 struct SimulatedBlock {
-    int64_t begin = 0;               ///< contig position of element 0
+    int64_t begin = 0;  ///< contig position of element 0
     int64_t size = 0;
     const int* states = nullptr;     ///< hidden state per position (Model state index)
     const uint8_t* bases = nullptr;  ///< base codes 0..3, 4 = unknown (inside a gap)
@@ -106,9 +106,9 @@ private:
 struct SimulateJob {
     std::string profile = "cpg-island";  ///< built-in name or profile file
     SimulateOptions simulation;
-    std::string output = "-";            ///< FASTA, "-" = stdout
-    std::string truth;                   ///< truth BED; "" = none
-    int line_width = 60;                 ///< FASTA bases per line, 0 = unlimited
+    std::string output = "-";  ///< FASTA, "-" = stdout
+    std::string truth;         ///< truth BED; "" = none
+    int line_width = 60;       ///< FASTA bases per line, 0 = unlimited
 };
 
 /// Checks the job's options (including the simulation's); throws UsageError.

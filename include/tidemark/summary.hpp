@@ -46,7 +46,9 @@ public:
     void end_contig(const Contig&, const DecodeResult&) override { ended_ = true; }
     /// A fork that saw a whole contig replaces these totals on join (they are per contig); a
     /// fork that saw a later segment of the contig in progress is added.
-    std::unique_ptr<DecodeSink> fork() const override { return std::make_unique<RegionTotals>(model_); }
+    std::unique_ptr<DecodeSink> fork() const override {
+        return std::make_unique<RegionTotals>(model_);
+    }
     void join(DecodeSink& later) override;
     const std::vector<double>& expected_bases() const { return expected_; }
     /// Makes this a fork that saw one segment with these totals (merge of shared contigs).
@@ -66,19 +68,19 @@ private:
 /// The effective options of a scan, as its report records them ("options"; shard summaries
 /// carry them too, so that merge can call split records as the run did).
 struct RunOptions {
-    std::string profile;                ///< as given: built-in name or file
-    std::string decode = "posterior";   ///< "posterior" or "viterbi"
+    std::string profile;               ///< as given: built-in name or file
+    std::string decode = "posterior";  ///< "posterior" or "viterbi"
     std::vector<std::string> regions;
     std::string regions_bed;
-    CallOptions calling;                ///< with the profile's defaults applied
+    CallOptions calling;  ///< with the profile's defaults applied
     BedStyle bed_style = BedStyle::plain;
     bool bgzip = false;
-    std::string posteriors;             ///< track prefix ("" = none)
+    std::string posteriors;  ///< track prefix ("" = none)
     int posterior_digits = 3;
     int64_t bin = 1;
     TrackFormat track_format = TrackFormat::bedgraph;
-    int64_t block = 0;                  ///< --block as given (0 = automatic)
-    bool soft_masked_unknown = false;   ///< --soft-masked unknown (recorded only when set)
+    int64_t block = 0;                 ///< --block as given (0 = automatic)
+    bool soft_masked_unknown = false;  ///< --soft-masked unknown (recorded only when set)
 };
 
 /// What the summary says about the run as a whole.
@@ -89,8 +91,9 @@ struct RunInfo {
     std::string command_line;
     std::vector<std::string> inputs;
     std::optional<RunOptions> options;  ///< the effective options (reports); unset = none recorded
-    std::string shard_json;        ///< shard runs: what merge needs (shard.hpp); "" = not sharded
-    bool soft_masked_unknown = false;  ///< lowercase bases were read as unknown (--soft-masked unknown)
+    std::string shard_json;  ///< shard runs: what merge needs (shard.hpp); "" = not sharded
+    bool soft_masked_unknown =
+        false;  ///< lowercase bases were read as unknown (--soft-masked unknown)
 };
 
 /// The CpG-depletion guard. A profile with a `cpg_island` region contrasts CpG-rich islands with
@@ -120,7 +123,8 @@ struct DepletionWarning {
 /// The guard's warnings for this model and these contigs (none unless the model has a
 /// `cpg_island` region): the whole input first, then contigs in input order (contigs only when
 /// the whole input does not warn).
-std::vector<DepletionWarning> depletion_warnings(const Model& model, const std::vector<ContigSummary>& contigs);
+std::vector<DepletionWarning> depletion_warnings(const Model& model,
+                                                 const std::vector<ContigSummary>& contigs);
 
 /// Genome-wide totals of the contigs (name "(all)"; call lengths and confidences of all contigs).
 ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs);
@@ -136,24 +140,28 @@ LengthStats length_stats(std::vector<int64_t> lengths);
 std::vector<double> call_length_edges(int64_t longest);
 std::vector<double> confidence_edges();
 /// Counts of values with edges[i] <= v < edges[i+1]; the last bin includes its upper edge.
-std::vector<int64_t> histogram_counts(const std::vector<double>& edges, const std::vector<int64_t>& values);
-std::vector<int64_t> histogram_counts(const std::vector<double>& edges, const std::vector<double>& values);
+std::vector<int64_t> histogram_counts(const std::vector<double>& edges,
+                                      const std::vector<int64_t>& values);
+std::vector<int64_t> histogram_counts(const std::vector<double>& edges,
+                                      const std::vector<double>& values);
 
 /// The summary as JSON (tidemark-summary/1): run info, genome-wide totals, one entry per
 /// contig. Deterministic: the same input gives the same text.
-std::string summary_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs);
+std::string summary_json(const RunInfo& info, const Model& model,
+                         const std::vector<ContigSummary>& contigs);
 
 /// The run report (tidemark-report/1): the summary plus call length distributions (min, median,
 /// max, and genome-wide histograms of length on a 1-2-5 scale and of confidence in steps of
 /// 0.05) and mean confidence, and, kept apart under "resources", wall and CPU time, Mbp/s and
 /// peak memory.
-std::string report_json(const RunInfo& info, const Model& model, const std::vector<ContigSummary>& contigs,
-                        const ResourceUsage& usage);
+std::string report_json(const RunInfo& info, const Model& model,
+                        const std::vector<ContigSummary>& contigs, const ResourceUsage& usage);
 
 /// One line per contig plus a total line.
 std::string summary_table(const Model& model, const std::vector<ContigSummary>& contigs);
 
 /// The genome-wide part only, for the end of a run.
-std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs, const ResourceUsage& usage);
+std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs,
+                         const ResourceUsage& usage);
 
 }  // namespace tidemark

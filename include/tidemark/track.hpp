@@ -13,8 +13,8 @@
 namespace tidemark {
 
 /// The extra BED columns tidemark writes after the standard ones, in order.
-inline constexpr const char* bed_extra_columns[] = {"mean_posterior", "min_posterior", "gc_fraction",
-                                                   "cpg_obs_exp"};
+inline constexpr const char* bed_extra_columns[] = {"mean_posterior", "min_posterior",
+                                                    "gc_fraction", "cpg_obs_exp"};
 
 enum class BedStyle {
     plain,    ///< BED6+4: chrom start end name score strand + extra columns
@@ -30,14 +30,16 @@ std::string format_bed_header(BedStyle style, const Model& model, const std::str
 
 /// One BED line for a call on `contig` (adds contig.offset to the coordinates).
 /// score = round(1000 * mean posterior); strand "."; o/e "NA" when N(C)*N(G) = 0.
-std::string format_bed_line(BedStyle style, const Model& model, const Contig& contig, const Call& call);
+std::string format_bed_line(BedStyle style, const Model& model, const Contig& contig,
+                            const Call& call);
 
 /// GFF3: version pragma; a sequence-region pragma per contig; one feature per call (type
 /// CpG_island, SO:0000307, for a region named cpg_island, otherwise region, SO:0000001;
 /// score = mean posterior; the BED extra columns as attributes). IDs number calls from 1.
 std::string format_gff3_header();
 std::string format_gff3_sequence_region(const Contig& contig);
-std::string format_gff3_feature(const Model& model, const Contig& contig, const Call& call, int64_t serial);
+std::string format_gff3_feature(const Model& model, const Contig& contig, const Call& call,
+                                int64_t serial);
 
 /// Collects bedGraph-like intervals and writes a bigWig file with libBigWig at close(); the
 /// sequence list (needed by the bigWig header) grows as sequences are added.
@@ -102,12 +104,12 @@ enum class TrackFormat { bedgraph, bigwig };
 inline constexpr int64_t track_gap_min_length = 100;
 
 struct TrackOptions {
-    std::string prefix;          ///< files are PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw
-    int digits = 3;              ///< decimals kept (0..12)
-    int64_t bin = 1;             ///< average the posterior over bins of this many bases
+    std::string prefix;  ///< files are PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw
+    int digits = 3;      ///< decimals kept (0..12)
+    int64_t bin = 1;     ///< average the posterior over bins of this many bases
     TrackFormat format = TrackFormat::bedgraph;
-    bool bgzip = false;          ///< bedGraph only: BGZF-compress and tabix-index
-    bool track_line = false;     ///< bedGraph only: start with a browser `track` line
+    bool bgzip = false;       ///< bedGraph only: BGZF-compress and tabix-index
+    bool track_line = false;  ///< bedGraph only: start with a browser `track` line
 };
 
 /// Writes one posterior track per reportable region: P(region) per base (or bin mean), rounded

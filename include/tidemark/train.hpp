@@ -26,7 +26,7 @@ namespace tidemark {
 /// layer, shard.hpp) that this process decodes, and what it needs to decode them as one
 /// process would: the seams of every segment of the record.
 struct SplitRecordPart {
-    size_t segments = 0;  ///< of the whole record
+    size_t segments = 0;                            ///< of the whole record
     std::vector<std::pair<size_t, size_t>> pieces;  ///< segments [first, last) decoded here
     std::vector<SegmentSeam> seams;                 ///< of every segment, from every process
 };
@@ -101,8 +101,9 @@ struct WindowTally {
 /// Expected (or, from labels, observed) counts at the level of the profile's parameters.
 /// Chain copies of a state are pooled into that state.
 struct TrainingCounts {
-    std::vector<double> initial;                   ///< per profile state: P(state at base 0) summed over contigs
-    std::vector<std::vector<double>> transitions;  ///< [from][to] profile states, all chain copies pooled
+    std::vector<double> initial;  ///< per profile state: P(state at base 0) summed over contigs
+    std::vector<std::vector<double>>
+        transitions;  ///< [from][to] profile states, all chain copies pooled
     /// Per profile state: the part of its in-region transition counts made by chain copies
     /// 1..L-1 (forced steps; they carry the in-region shares but not the in/out split).
     std::vector<double> chain_steps;
@@ -157,13 +158,13 @@ private:
     const Model& model_;
     bool sparse_ = false;
     TrainingCounts counts_;
-    std::vector<double> edge_;      ///< per CSR out-edge, this contig (dense: S*S, without A)
-    std::vector<double> part_;      ///< edge_'s share of the current block
-    std::vector<double> weight_;    ///< per state e_t * b_t, scratch
-    std::vector<double> pooled_;    ///< per profile state posterior, scratch
+    std::vector<double> edge_;    ///< per CSR out-edge, this contig (dense: S*S, without A)
+    std::vector<double> part_;    ///< edge_'s share of the current block
+    std::vector<double> weight_;  ///< per state e_t * b_t, scratch
+    std::vector<double> pooled_;  ///< per profile state posterior, scratch
     const Contig* contig_ = nullptr;
-    bool started_ = false;          ///< a block of the current span was seen
-    RollingContext ctx_;            ///< rolling context over the largest order
+    bool started_ = false;  ///< a block of the current span was seen
+    RollingContext ctx_;    ///< rolling context over the largest order
 };
 
 /// Runs the posterior engine over all of data with profile's compiled model and returns the
@@ -182,7 +183,7 @@ struct Freeze {
     bool transitions = false;                    ///< every transition row
     bool emissions = false;                      ///< every emission table
     std::vector<std::string> transition_states;  ///< these states' transition rows
-    std::vector<std::string> emission_states;    ///< these states' emission tables (whole tie group)
+    std::vector<std::string> emission_states;  ///< these states' emission tables (whole tie group)
 };
 
 /// Parses one --freeze word: "initial", "transitions", "emissions", "transitions:STATE" or
@@ -207,11 +208,11 @@ struct MStepOptions {
 /// the posterior-weighted windows by Minka's fixed-point iteration (Minka T (2000) "Estimating a
 /// Dirichlet distribution", technical report, the Polya (Dirichlet-multinomial) case with two
 /// categories), started from the current values, so EM never lowers the likelihood; no prior.
-/// structure fixes which entries may be non-zero (normally the starting profile); current supplies frozen values and rows without any count. Rows are
-/// normalised counts, except for states of a min_length region, whose row is the exact
-/// maximiser for the chain: in-region shares from all copies' counts, the in/out split from the
-/// tail copy's counts (in-region mass floored at 1e-12 so the chain stays defined). Tie groups
-/// pool their members' emission counts.
+/// structure fixes which entries may be non-zero (normally the starting profile); current supplies
+/// frozen values and rows without any count. Rows are normalised counts, except for states of a
+/// min_length region, whose row is the exact maximiser for the chain: in-region shares from all
+/// copies' counts, the in/out split from the tail copy's counts (in-region mass floored at 1e-12 so
+/// the chain stays defined). Tie groups pool their members' emission counts.
 Profile maximise(const Profile& structure, const Profile& current, const TrainingCounts& counts,
                  const FreezeMask& freeze, const MStepOptions& options);
 
@@ -235,24 +236,24 @@ struct FitOptions {
     int restarts = 1;           ///< runs: the first from the start profile, the others perturbed
     double perturbation = 0.5;  ///< restarts scale free entries by exp(U(-p, p)) and renormalise
     Freeze freeze;
-    bool order_by_gc = false;   ///< reorder states and regions by GC (templates: class1..classK)
-    int64_t block_size = 0;     ///< decoder block (0 = automatic)
-    int threads = 0;            ///< E-step threads (0 = every core); results do not depend on it
+    bool order_by_gc = false;  ///< reorder states and regions by GC (templates: class1..classK)
+    int64_t block_size = 0;    ///< decoder block (0 = automatic)
+    int threads = 0;           ///< E-step threads (0 = every core); results do not depend on it
 };
 
 /// One E-step of a run.
 struct IterationRecord {
     int restart = 0;
-    int iteration = 0;       ///< parameter updates before this evaluation
+    int iteration = 0;  ///< parameter updates before this evaluation
     double log_likelihood = 0;
-    double objective = 0;    ///< log_likelihood + log_prior (what EM with pseudocounts increases)
+    double objective = 0;  ///< log_likelihood + log_prior (what EM with pseudocounts increases)
     double seconds = 0;
 };
 
 struct FitResult {
     Profile profile;
-    double log_likelihood = 0;   ///< of profile on the data
-    int iterations = 0;          ///< parameter updates of the chosen run
+    double log_likelihood = 0;  ///< of profile on the data
+    int iterations = 0;         ///< parameter updates of the chosen run
     bool converged = false;
     int best_restart = 0;
     std::vector<double> restart_log_likelihoods;
@@ -309,8 +310,8 @@ Profile seed_from_data(const Profile& profile, TrainingData& data, const SeedOpt
 /// Throws InputError for unknown region names, overlapping labels, labels past a contig's end,
 /// or a segment shorter than its region's min_length that the contig end does not cut.
 TrainingCounts labelled_counts(const Profile& profile, TrainingData& data,
-                               const std::vector<Interval>& labels, const std::string& default_region,
-                               const Logger& log);
+                               const std::vector<Interval>& labels,
+                               const std::string& default_region, const Logger& log);
 
 // ---------------------------------------------------------------------------------------------
 // Model selection
@@ -331,7 +332,8 @@ struct Selection {
     size_t chosen = 0;
 };
 Selection select_classes(TrainingData& data, int classes_min, int classes_max, int order,
-                         const SeedOptions& seed_options, const FitOptions& options, const Logger& log);
+                         const SeedOptions& seed_options, const FitOptions& options,
+                         const Logger& log);
 
 /// The selection table (classes, log-likelihood, parameters, BIC, the chosen row marked).
 std::string selection_table(const Selection& selection);
@@ -340,29 +342,29 @@ std::string selection_table(const Selection& selection);
 // The fit job
 
 struct FitJobOptions {
-    std::vector<std::string> inputs;   ///< FASTA paths (read once per pass, so not stdin)
-    std::vector<std::string> regions;  ///< region strings (faidx)
-    std::string regions_bed;           ///< BED of regions (faidx)
+    std::vector<std::string> inputs;            ///< FASTA paths (read once per pass, so not stdin)
+    std::vector<std::string> regions;           ///< region strings (faidx)
+    std::string regions_bed;                    ///< BED of regions (faidx)
     SoftMasked soft_masked = SoftMasked::base;  ///< lowercase bases: as their base, or unknown
-    std::string profile;               ///< starting profile: built-in or file ("" = none)
-    int classes_min = 0;               ///< template class counts (0 = no template)
+    std::string profile;                        ///< starting profile: built-in or file ("" = none)
+    int classes_min = 0;                        ///< template class counts (0 = no template)
     int classes_max = 0;
-    int order = 1;                     ///< emission order of templates
-    std::string select;                ///< "bic" to choose among classes_min..classes_max
-    bool init_from_data = false;       ///< reseed the starting profile's emissions from the data
+    int order = 1;                ///< emission order of templates
+    std::string select;           ///< "bic" to choose among classes_min..classes_max
+    bool init_from_data = false;  ///< reseed the starting profile's emissions from the data
     SeedOptions seed;
-    std::string labels;                ///< labelled BED: supervised counting instead of EM
-    std::string default_region;        ///< region of unlabelled bases ("" = the only unreported one)
-    std::string output = "-";          ///< profile JSON
-    std::string name;                  ///< name of the output profile ("" = derived)
+    std::string labels;          ///< labelled BED: supervised counting instead of EM
+    std::string default_region;  ///< region of unlabelled bases ("" = the only unreported one)
+    std::string output = "-";    ///< profile JSON
+    std::string name;            ///< name of the output profile ("" = derived)
     FitOptions fit;
-    ShardSpec shard;                   ///< with emit_stats: only this shard's records (shard_spec.hpp)
-    bool whole_contigs = false;        ///< shards never split a record (no seams step)
-    std::string emit_seams;            ///< step 1 for shared records: write only their seams
-    std::vector<std::string> seams;    ///< step 2 (with emit_stats): the seams files of every shard
-    std::string emit_stats;            ///< write one E-step's counts here instead of fitting ("" = no)
+    ShardSpec shard;             ///< with emit_stats: only this shard's records (shard_spec.hpp)
+    bool whole_contigs = false;  ///< shards never split a record (no seams step)
+    std::string emit_seams;      ///< step 1 for shared records: write only their seams
+    std::vector<std::string> seams;  ///< step 2 (with emit_stats): the seams files of every shard
+    std::string emit_stats;  ///< write one E-step's counts here instead of fitting ("" = no)
     std::vector<std::string> from_stats;  ///< M-step on the summed counts of these files (no FASTA)
-    std::string command_line;          ///< recorded in provenance (without --shard)
+    std::string command_line;             ///< recorded in provenance (without --shard)
 };
 
 /// The name of a fitted profile when --name is not given: the starting profile's name with
@@ -403,7 +405,8 @@ FitResult emit_statistics(const FitJobOptions& options, const Logger& log);
 FitResult fit_from_statistics(const FitJobOptions& options, const Logger& log);
 
 /// Parses one statistics file's counts (exposed for tests). Throws InputError naming `where`.
-TrainingCounts counts_from_json(const std::string& json_text, const Profile& profile, const std::string& where);
+TrainingCounts counts_from_json(const std::string& json_text, const Profile& profile,
+                                const std::string& where);
 /// The counts as a JSON object (full precision).
 std::string counts_to_json(const TrainingCounts& counts);
 

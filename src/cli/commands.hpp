@@ -24,7 +24,8 @@ void add_compare(CLI::App& app, Context& ctx);
 void add_merge(CLI::App& app, Context& ctx);
 /// A parse error in tidemark's words: the wrong word named, the closest subcommand, option or
 /// value suggested.
-std::string explain_usage_error(const CLI::App& app, const CLI::ParseError& e, int argc, char** argv);
+std::string explain_usage_error(const CLI::App& app, const CLI::ParseError& e, int argc,
+                                char** argv);
 /// Where to look next: 'tidemark --help' or 'tidemark SUBCOMMAND --help'.
 std::string help_hint(const CLI::App& app);
 

@@ -1,8 +1,9 @@
 // tidemark entry point: builds the command line, runs the chosen subcommand, maps errors to
 // documented exit codes (0 ok, 1 input, 2 usage, 3 output, 4 internal).
+#include <htslib/hts.h>
+
 #include <cstdio>
 #include <exception>
-#include <htslib/hts.h>
 
 #include "commands.hpp"
 #include "tidemark/error.hpp"
@@ -49,7 +50,8 @@ int main(int argc, char** argv) {
     } catch (const CLI::CallForVersion& e) {
         return app.exit(e);
     } catch (const CLI::ParseError& e) {
-        std::fprintf(stderr, "tidemark: usage error: %s\n(%s)\n", cli::explain_usage_error(app, e, argc, argv).c_str(),
+        std::fprintf(stderr, "tidemark: usage error: %s\n(%s)\n",
+                     cli::explain_usage_error(app, e, argc, argv).c_str(),
                      cli::help_hint(app).c_str());
         return static_cast<int>(ExitCode::usage);
     } catch (const Error& e) {

@@ -21,14 +21,17 @@ void add_merge(CLI::App& app, Context& ctx) {
     cmd->add_option("--shard-beds", opts->shard_beds, "every shard's BED (scan -o; plain or bgzip)")
         ->group(input);
     cmd->add_option("--shard-gff3", opts->shard_gff3, "every shard's scan --gff3")->group(input);
-    cmd->add_option("--shard-posteriors", opts->shard_tracks,
-                    "every shard's scan --posteriors PREFIX (bedGraph or bigWig, as the shards wrote them)")
+    cmd->add_option(
+           "--shard-posteriors", opts->shard_tracks,
+           "every shard's scan --posteriors PREFIX (bedGraph or bigWig, as the shards wrote them)")
         ->group(input);
-    cmd->add_option("--shard-chrom-sizes", opts->shard_chrom_sizes, "every shard's scan --chrom-sizes")
+    cmd->add_option("--shard-chrom-sizes", opts->shard_chrom_sizes,
+                    "every shard's scan --chrom-sizes")
         ->group(input);
-    cmd->add_option("-p,--profile", opts->profile,
-                    "the run's profile, when records were shared between shards and the recorded one "
-                    "cannot be found from here (checked against the recorded checksum)")
+    cmd->add_option(
+           "-p,--profile", opts->profile,
+           "the run's profile, when records were shared between shards and the recorded one "
+           "cannot be found from here (checked against the recorded checksum)")
         ->group(input);
     const char* output = "Merged outputs";
     cmd->add_option("-o,--output", opts->output,
@@ -41,8 +44,9 @@ void add_merge(CLI::App& app, Context& ctx) {
     cmd->add_option("--gff3", opts->gff3_path,
                     "merged GFF3 (feature IDs renumbered in input order)")
         ->group(output);
-    cmd->add_option("--posteriors", opts->tracks_prefix,
-                    "merged tracks PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw (the shards' format)")
+    cmd->add_option(
+           "--posteriors", opts->tracks_prefix,
+           "merged tracks PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw (the shards' format)")
         ->group(output);
     cmd->add_option("--chrom-sizes", opts->chrom_sizes_path, "merged chrom sizes (name<TAB>length)")
         ->group(output);

@@ -14,7 +14,8 @@ void add_profiles(CLI::App& app, Context& ctx) {
 
     CLI::App* show = cmd->add_subcommand("show", "Print a profile's JSON (built-in name or file)");
     show->add_option("profile", *name, "built-in name or file")->required();
-    CLI::App* check = cmd->add_subcommand("check", "Validate a profile file; prints a one-line summary");
+    CLI::App* check =
+        cmd->add_subcommand("check", "Validate a profile file; prints a one-line summary");
     check->add_option("file", *file, "profile JSON file or built-in name")->required();
 
     cmd->callback([=, &ctx] {
@@ -26,8 +27,8 @@ void add_profiles(CLI::App& app, Context& ctx) {
                 const Profile p = load_profile(*file);
                 int reported = 0;
                 for (const auto& r : p.regions) reported += r.report;
-                out.write(fmt::format("{}: ok: profile '{}', {} states, {} regions ({} reported)\n", *file,
-                                      p.name, p.states.size(), p.regions.size(), reported));
+                out.write(fmt::format("{}: ok: profile '{}', {} states, {} regions ({} reported)\n",
+                                      *file, p.name, p.states.size(), p.regions.size(), reported));
             } else {
                 for (const auto& b : builtin_profiles()) {
                     const Profile p = parse_profile(b.json, std::string(b.name));

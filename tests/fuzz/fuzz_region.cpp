@@ -1,9 +1,10 @@
 // Fuzz target: region strings against a fixed indexed FASTA resolve to in-range regions or
 // throw InputError.
+#include <unistd.h>
+
 #include <cstdio>
 #include <cstdlib>
 #include <string>
-#include <unistd.h>
 
 #include "tidemark/error.hpp"
 #include "tidemark/sequence.hpp"
@@ -15,7 +16,8 @@ const std::string& indexed_fasta() {
         const std::string d = mkdtemp(dir);
         const std::string p = d + "/ref.fa";
         std::FILE* f = std::fopen(p.c_str(), "w");
-        std::fputs(">chr1 first\nACGTACGTAC\nGTACG\n>chr1:5-9\nAAAA\n>x\nNNNNNNNNNNNNNNNNNNNN\n", f);
+        std::fputs(">chr1 first\nACGTACGTAC\nGTACG\n>chr1:5-9\nAAAA\n>x\nNNNNNNNNNNNNNNNNNNNN\n",
+                   f);
         std::fclose(f);
         return p;
     }();
