@@ -85,6 +85,33 @@ std::string random_sequence(std::mt19937_64& rng, size_t n) {
     return s;
 }
 
+// Posterior and Viterbi decoding of c with each block size against the enumeration: posteriors
+// and log-likelihoods within 1e-12, and with check_path the Viterbi path itself (only where the
+// best path is unique).
+void check_decoders_against(const Model& m, const Contig& c, const Enumeration& truth,
+                            std::initializer_list<int64_t> blocks, bool check_path) {
+    const int S = m.states;
+    for (int64_t block : blocks) {
+        DecoderOptions opt;
+        opt.block_size = block;
+        PosteriorDecoder dec(m, opt);
+        Collect sink;
+        const DecodeResult r = dec.run(c, sink);
+        REQUIRE(sink.posterior.size() == truth.posterior.size());
+        for (size_t i = 0; i < truth.posterior.size(); ++i)
+            REQUIRE(sink.posterior[i] == Approx(truth.posterior[i]).margin(1e-12));
+        REQUIRE(r.log_likelihood == Approx(std::log(truth.total)).epsilon(0).margin(1e-12));
+
+        ViterbiDecoder vit(m, opt);
+        Collect vsink;
+        const DecodeResult vr = vit.run(c, vsink);
+        REQUIRE(vr.log_likelihood == Approx(std::log(truth.best)).epsilon(0).margin(1e-12));
+        if (check_path)
+            for (size_t t = 0; t < truth.best_path.size(); ++t)
+                REQUIRE(vsink.posterior[t * S + truth.best_path[t]] == 1.0);
+    }
+}
+
 }  // namespace
 
 TEST_CASE("posterior decoding equals exhaustive enumeration over all state paths", "[decode]") {
@@ -101,24 +128,8 @@ TEST_CASE("posterior decoding equals exhaustive enumeration over all state paths
         const Enumeration truth = enumerate_paths(p, seq);
         const Model m = compile(p);
         const Contig c = test::contig_from(seq);
-        for (int64_t block : {0, 1, 3, 4}) {  // block sizes that cut the sequence anywhere
-            DecoderOptions opt;
-            opt.block_size = block;
-            PosteriorDecoder dec(m, opt);
-            Collect sink;
-            const DecodeResult r = dec.run(c, sink);
-            REQUIRE(sink.posterior.size() == truth.posterior.size());
-            for (size_t i = 0; i < truth.posterior.size(); ++i)
-                REQUIRE(sink.posterior[i] == Approx(truth.posterior[i]).margin(1e-12));
-            REQUIRE(r.log_likelihood == Approx(std::log(truth.total)).epsilon(0).margin(1e-12));
-
-            ViterbiDecoder vit(m, opt);
-            Collect vsink;
-            const DecodeResult vr = vit.run(c, vsink);
-            REQUIRE(vr.log_likelihood == Approx(std::log(truth.best)).epsilon(0).margin(1e-12));
-            for (size_t t = 0; t < seq.size(); ++t)
-                REQUIRE(vsink.posterior[t * S + truth.best_path[t]] == 1.0);
-        }
+        // block sizes that cut the sequence anywhere
+        check_decoders_against(m, c, truth, {0, 1, 3, 4}, /*check_path=*/true);
         ++cases;
     }
     CHECK(cases == 60);
@@ -139,21 +150,7 @@ TEST_CASE("built-in CpG-island profiles equal exhaustive enumeration over all st
             const std::string seq = random_sequence(rng, n);
             const Enumeration truth = enumerate_paths(p, seq);
             const Contig c = test::contig_from(seq);
-            for (int64_t block : {0, 1, 3}) {
-                DecoderOptions opt;
-                opt.block_size = block;
-                PosteriorDecoder dec(m, opt);
-                Collect sink;
-                const DecodeResult r = dec.run(c, sink);
-                REQUIRE(sink.posterior.size() == truth.posterior.size());
-                for (size_t i = 0; i < truth.posterior.size(); ++i)
-                    REQUIRE(sink.posterior[i] == Approx(truth.posterior[i]).margin(1e-12));
-                REQUIRE(r.log_likelihood == Approx(std::log(truth.total)).epsilon(0).margin(1e-12));
-                ViterbiDecoder vit(m, opt);
-                Collect vsink;
-                const DecodeResult vr = vit.run(c, vsink);
-                REQUIRE(vr.log_likelihood == Approx(std::log(truth.best)).epsilon(0).margin(1e-12));
-            }
+            check_decoders_against(m, c, truth, {0, 1, 3}, /*check_path=*/false);
         }
     }
 }
