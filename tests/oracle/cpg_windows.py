@@ -5,7 +5,7 @@ Source: Takai D, Jones PA (2002), "Comprehensive analysis of CpG islands in huma
 and 22", PNAS 99:3740-3745. Their thresholds are GC >= 55 %, observed/expected CpG >= 0.65 and
 length > 500 bp, and their procedure moves 200-bp windows along the sequence.
 
-Which details come from memory (see /work/shared/REFERENCES.md, "CpG-island definitions as
+Which details come from memory (see shared/REFERENCES.md, "CpG-island definitions as
 procedures"; not checked against the paper):
   - the window is 200 bp and first slides 1 bp at a time until it meets both thresholds;
   - from a window that meets them, the next window starts 200 bp further on (no overlap), as
