@@ -4,14 +4,13 @@
 #include <fmt/format.h>
 
 #include <algorithm>
-#include <deque>
-#include <future>
 #include <limits>
 #include <memory>
 #include <nlohmann/json.hpp>
 #include <unordered_map>
 
 #include "byte_source.hpp"
+#include "pipeline.hpp"
 #include "thread_pool.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/intervals.hpp"
@@ -120,7 +119,14 @@ struct Decoder {
         }
         return posterior ? posterior->run(c, sink, pool) : viterbi->run(c, sink);
     }
-    bool splits(int64_t length) const { return posterior && posterior->splits(length); }
+    /// Whether a record of this length should have the whole pool of `threads` workers: when it
+    /// splits into at least two segments per worker. Fewer segments share a pool poorly (a
+    /// 2-Mbp record in two segments kept the second worker idle half the time); such records
+    /// are one worker's job, their segments decoded one after another, with the same results.
+    bool decodes_alone(int64_t length, int threads) const {
+        return posterior && posterior->splits(length) &&
+               posterior->segment_count(length) >= 2 * static_cast<size_t>(threads);
+    }
 };
 
 RunOptions run_options(const ScanOptions& o, const CallOptions& c) {
@@ -164,9 +170,9 @@ void check_unique_name(std::unordered_map<std::string, std::string>& first_input
 }
 
 // Step 1 for shared records: the seams of this shard's segments, and nothing else.
-std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard,
-                                      const std::string& identity, Decoder& decoder, int threads,
-                                      const Logger& log, const std::vector<Region>& regions) {
+void emit_seams(const ScanOptions& o, ShardFilter& shard, const std::string& identity,
+                Decoder& decoder, int threads, const Logger& log,
+                const std::vector<Region>& regions) {
     OutputFile out(o.emit_seams);
     TaskPool pool(threads);
     const std::vector<SeamsRecord> records =
@@ -177,7 +183,6 @@ std::vector<ContigSummary> emit_seams(const ScanOptions& o, ShardFilter& shard,
     out.commit();
     log.info(fmt::format("shard {}/{}: seams of {} segments of {} shared records", o.shard.index,
                          o.shard.count, segments, records.size()));
-    return {};
 }
 
 // Step 2 for a shared record: this shard's segments, decoded from every shard's seams; each
@@ -232,9 +237,152 @@ SplitRecord decode_split(const Contig& contig, int64_t input_index, const ShardF
     return record;
 }
 
+class ScanJob;
+
+// What a scan writes, and the run-wide sinks every record's forks join into.
+struct ScanOutputs {
+    ScanOutputs(const ScanOptions& o, const Model& model, const CallOptions& calling,
+                int64_t total_bases, const Logger& log)
+        : o(o),
+          model(model),
+          log(log),
+          bed(o.output, bed_format(o)),
+          caller(model, calling),
+          totals(model),
+          progress(o.progress, total_bases),
+          summary(
+              model, o.soft_masked == SoftMasked::unknown,
+              {!o.summary_path.empty(), !o.report_path.empty(), log.level() >= LogLevel::verbose}),
+          keep_summaries(!o.html_path.empty() || o.shard.active()) {
+        bed.write(format_bed_header(o.bed_style, model, o.command_line));
+        if (!o.gff3_path.empty()) {
+            gff3 = std::make_unique<OutputFile>(o.gff3_path);
+            gff3->write(format_gff3_header());
+        }
+        if (!o.chrom_sizes_path.empty()) sizes = std::make_unique<OutputFile>(o.chrom_sizes_path);
+        if (!o.tracks.prefix.empty()) {
+            TrackOptions t = o.tracks;
+            t.bgzip = o.bgzip && t.format == TrackFormat::bedgraph;
+            tracks = std::make_unique<PosteriorTracks>(model, t);
+        }
+        if (!o.html_path.empty()) html = std::make_unique<HtmlReport>(model);
+    }
+
+    /// Joins a decoded record's forks (in input order) and writes its outputs.
+    void finish(ScanJob& job);
+
+    static OutputFormat bed_format(const ScanOptions& o) {
+        OutputFormat f;
+        f.bgzip = o.bgzip;
+        f.tabix = o.bgzip;
+        f.skip_lines = o.bed_style == BedStyle::browser ? 1 : 0;
+        return f;
+    }
+
+    /// One line of --chrom-sizes per sequence (several regions of one sequence: once).
+    void write_size(const Contig& contig) {
+        if (!sizes || contig.name == last_sized) return;
+        sizes->write(fmt::format("{}\t{}\n", contig.name, contig.full_length()));
+        last_sized = contig.name;
+    }
+
+    const ScanOptions& o;
+    const Model& model;
+    const Logger& log;
+    OutputFile bed;
+    std::unique_ptr<OutputFile> gff3, sizes;
+    std::unique_ptr<PosteriorTracks> tracks;
+    IntervalCaller caller;
+    RegionTotals totals;
+    ProgressMeter progress;
+    std::unique_ptr<HtmlReport> html;
+    SummaryBuilder summary;
+    bool keep_summaries;              ///< --html and shard runs list every record's summary
+    std::vector<ContigSummary> kept;  ///< those summaries
+    ContigSummary record;             ///< the record being finished (its storage reused)
+    std::vector<SplitRecord> shared;  ///< this shard's pieces of records split between shards
+    int64_t serial = 0;               ///< GFF3 feature number
+    std::string last_sized, lines, gff_lines;
+};
+
+// One record of a scan: forks of the run's sinks, decoded on a worker, joined back in order.
+class ScanJob final : public detail::PipelineJob {
+public:
+    ScanJob(ScanOutputs& run, std::vector<Decoder>& decoders, const std::string& input)
+        : run_(run), decoders_(decoders), input(input) {}
+    void fork_sinks() {
+        caller = run_.caller.fork();
+        totals = run_.totals.fork();
+        if (run_.tracks) tracks = run_.tracks->fork();
+        progress = run_.progress.fork();
+        if (run_.html) html = run_.html->fork();
+    }
+    void decode(int worker, TaskPool* segments) override {
+        std::vector<DecodeSink*> sinks = {caller.get(), totals.get()};
+        if (tracks) sinks.push_back(tracks.get());
+        sinks.push_back(progress.get());
+        if (html) sinks.push_back(html.get());
+        SinkFanout fanout(sinks);
+        result = decoders_[static_cast<size_t>(worker)].run(contig, fanout, segments);
+    }
+    void finish() override { run_.finish(*this); }
+
+    const std::string& input;
+    int64_t input_index = 0;
+    std::unique_ptr<DecodeSink> caller, totals, tracks, progress, html;
+    DecodeResult result;
+
+private:
+    ScanOutputs& run_;
+    std::vector<Decoder>& decoders_;
+};
+
+void ScanOutputs::finish(ScanJob& job) {
+    const Contig& contig = job.contig;
+    caller.join(*job.caller);
+    totals.join(*job.totals);
+    if (tracks) tracks->join(*job.tracks);
+    if (html) {
+        html->join(*job.html);
+        html->finish_sequence(contig, caller.calls());
+    }
+    if (contig.length == 0) {
+        progress.finish();
+        log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(job.input),
+                             contig.name));
+    }
+    ContigSummary& s = record;
+    s.name = contig.name;
+    s.input_index = job.input_index;
+    s.offset = contig.offset;
+    s.length = contig.length;
+    s.unknown = contig.unknown_count();
+    s.soft_masked = contig.soft_masked;
+    s.composition = composition(contig, 0, contig.length);
+    s.log_likelihood = job.result.log_likelihood;
+    s.expected_bases = totals.expected_bases();
+    s.reset_calls(model.region_names.size());
+    lines.clear();
+    gff_lines.clear();
+    if (gff3) gff_lines = format_gff3_sequence_region(contig);
+    for (const Call& call : caller.calls()) {
+        lines += format_bed_line(o.bed_style, model, contig, call);
+        if (gff3) gff_lines += format_gff3_feature(model, contig, call, ++serial);
+        s.add_call(call, model.region_names.size());
+    }
+    bed.write(lines);
+    if (gff3) gff3->write(gff_lines);
+    write_size(contig);
+    if (log.level() >= LogLevel::verbose) progress.finish();
+    log.detail(fmt::format("{}: {} bp, {} unknown, GC {:.4f}, log-likelihood {:.4f}, {} calls",
+                           s.name, s.length, s.unknown, s.composition.gc_fraction(),
+                           s.log_likelihood, caller.calls().size()));
+    summary.add(s);
+    if (keep_summaries) kept.push_back(s);
+}
 }  // namespace
 
-std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
+void run_scan(const ScanOptions& o, const Logger& log) {
     const Stopwatch clock;
     validate(o);
     if (o.bgzip && o.output == "-" && o.emit_seams.empty())
@@ -300,8 +448,10 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     const std::string identity =
         seams_identity(o.inputs, o.regions, o.regions_bed, profile_checksum(profile), o.block_size,
                        o.tracks.bin, segment_length);
-    if (!o.emit_seams.empty())
-        return emit_seams(o, shard, identity, decoders[0], threads, log, regions);
+    if (!o.emit_seams.empty()) {
+        emit_seams(o, shard, identity, decoders[0], threads, log, regions);
+        return;
+    }
     if (shard.has_pieces() && o.seams.empty())
         throw UsageError(
             fmt::format("shard {}/{} decodes part of a record shared between shards ({}). Such "
@@ -315,117 +465,24 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     const SeamsTable seams =
         o.seams.empty() ? SeamsTable() : SeamsTable(o.seams, identity, o.shard);
 
-    OutputFormat bed_format;
-    bed_format.bgzip = o.bgzip;
-    bed_format.tabix = o.bgzip;
-    bed_format.skip_lines = o.bed_style == BedStyle::browser ? 1 : 0;
-    OutputFile bed(o.output, bed_format);
-    bed.write(format_bed_header(o.bed_style, model, o.command_line));
-    std::unique_ptr<OutputFile> gff3, sizes;
-    if (!o.gff3_path.empty()) {
-        gff3 = std::make_unique<OutputFile>(o.gff3_path);
-        gff3->write(format_gff3_header());
-    }
-    if (!o.chrom_sizes_path.empty()) sizes = std::make_unique<OutputFile>(o.chrom_sizes_path);
-    std::unique_ptr<PosteriorTracks> tracks;
-    if (!o.tracks.prefix.empty()) {
-        TrackOptions t = o.tracks;
-        t.bgzip = o.bgzip && t.format == TrackFormat::bedgraph;
-        tracks = std::make_unique<PosteriorTracks>(model, t);
-    }
-
-    IntervalCaller caller(model, call_options);
-    RegionTotals totals(model);
-    ProgressMeter progress(o.progress, total_bases);
-    std::unique_ptr<HtmlReport> html;
-    if (!o.html_path.empty()) html = std::make_unique<HtmlReport>(model);
-
-    // Contigs are decoded in a pool, each into forks of the sinks above, and joined back in
-    // input order; at most threads + 1 contigs are held at once.
-    struct Job {
-        Contig contig;
-        std::string input;
-        int64_t input_index = 0;
-        std::unique_ptr<DecodeSink> caller, totals, tracks, progress, html;
-        DecodeResult result;
-        std::future<void> done;
-    };
-    std::deque<std::unique_ptr<Job>> jobs;
-    std::vector<Contig> spare;
-    TaskPool pool(threads);  // after jobs and decoders: destroyed first, while they still exist
-
-    std::vector<ContigSummary> summaries;
-    std::vector<SplitRecord> shared;
-    std::string lines, gff_lines;
-    int64_t serial = 0;
-    std::string last_sized;
-    // Joins the oldest job's sinks and writes its outputs.
-    const auto finish_oldest = [&] {
-        Job& job = *jobs.front();
-        job.done.get();  // rethrows the worker's error, in input order
-        const Contig& contig = job.contig;
-        caller.join(*job.caller);
-        totals.join(*job.totals);
-        if (tracks) tracks->join(*job.tracks);
-        if (html) {
-            html->join(*job.html);
-            html->finish_sequence(contig, caller.calls());
-        }
-        if (contig.length == 0) {
-            progress.finish();
-            log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(job.input),
-                                 contig.name));
-        }
-        ContigSummary s;
-        s.name = contig.name;
-        s.input_index = job.input_index;
-        s.offset = contig.offset;
-        s.length = contig.length;
-        s.unknown = contig.unknown_count();
-        s.soft_masked = contig.soft_masked;
-        s.composition = composition(contig, 0, contig.length);
-        s.log_likelihood = job.result.log_likelihood;
-        s.expected_bases = totals.expected_bases();
-        s.reset_calls(model.region_names.size());
-        lines.clear();
-        gff_lines.clear();
-        if (gff3) gff_lines = format_gff3_sequence_region(contig);
-        for (const Call& call : caller.calls()) {
-            lines += format_bed_line(o.bed_style, model, contig, call);
-            if (gff3) gff_lines += format_gff3_feature(model, contig, call, ++serial);
-            s.add_call(call, model.region_names.size());
-        }
-        bed.write(lines);
-        if (gff3) gff3->write(gff_lines);
-        if (sizes && contig.name != last_sized) {  // several regions of one sequence: once
-            sizes->write(fmt::format("{}\t{}\n", contig.name, contig.full_length()));
-            last_sized = contig.name;
-        }
-        if (log.level() >= LogLevel::verbose) progress.finish();
-        log.detail(fmt::format("{}: {} bp, {} unknown, GC {:.4f}, log-likelihood {:.4f}, {} calls",
-                               s.name, s.length, s.unknown, s.composition.gc_fraction(),
-                               s.log_likelihood, caller.calls().size()));
-        summaries.push_back(std::move(s));
-        spare.push_back(std::move(job.contig));  // its chunks serve a later record
-        jobs.pop_front();
-    };
+    ScanOutputs run(o, model, call_options, total_bases, log);
+    // Records are decoded in a pool (small ones batched, long ones over the whole pool) and
+    // finished in input order (pipeline.hpp).
+    detail::DecodePipeline pipeline(
+        threads, [&](int64_t length) { return decoders[0].decodes_alone(length, threads); });
 
     std::unordered_map<std::string, std::string> names;  // record name -> the input it came from
     for (const auto& input : o.inputs) {
         std::unique_ptr<SequenceSource> source = shard.open(input, regions);
         int64_t records = 0;
         for (;;) {
-            auto job = std::make_unique<Job>();
-            if (!spare.empty()) {
-                job->contig = std::move(spare.back());
-                spare.pop_back();
-            }
+            auto job = std::make_unique<ScanJob>(run, decoders, input);
+            pipeline.reuse_storage(job->contig);
             bool more = false;
             try {
                 more = source->next(job->contig);
             } catch (...) {
-                // An earlier record's error comes first, as in a run with one thread.
-                while (!jobs.empty()) finish_oldest();
+                pipeline.drain();  // an earlier record's error comes first, as with one thread
                 throw;
             }
             if (!more) break;
@@ -433,68 +490,29 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
             if (regions.empty() && o.inputs.size() > 1)
                 check_unique_name(names, input, job->contig.name);
             if (!shard.take(job->contig)) continue;  // another shard's record
-            job->input = input;
             job->input_index = shard.record_index();
             if (shard.split()) {  // this shard's segments of a shared record
-                while (!jobs.empty()) finish_oldest();
-                shared.push_back(decode_split(job->contig, job->input_index, shard, seams,
-                                              *decoders[0].posterior, caller, totals, tracks.get(),
-                                              progress, threads > 1 ? &pool : nullptr));
-                if (sizes && job->contig.name != last_sized) {
-                    sizes->write(
-                        fmt::format("{}\t{}\n", job->contig.name, job->contig.full_length()));
-                    last_sized = job->contig.name;
-                }
-                spare.push_back(std::move(job->contig));
+                pipeline.drain();
+                run.shared.push_back(decode_split(job->contig, job->input_index, shard, seams,
+                                                  *decoders[0].posterior, run.caller, run.totals,
+                                                  run.tracks.get(), run.progress, pipeline.pool()));
+                run.write_size(job->contig);
                 continue;
             }
-            job->caller = caller.fork();
-            job->totals = totals.fork();
-            if (tracks) job->tracks = tracks->fork();
-            job->progress = progress.fork();
-            if (html) job->html = html->fork();
-            Job* j = job.get();
-            const auto decode = [j, &decoders](int worker, TaskPool* segment_pool) {
-                std::vector<DecodeSink*> sinks = {j->caller.get(), j->totals.get()};
-                if (j->tracks) sinks.push_back(j->tracks.get());
-                sinks.push_back(j->progress.get());
-                if (j->html) sinks.push_back(j->html.get());
-                SinkFanout fanout(sinks);
-                j->result =
-                    decoders[static_cast<size_t>(worker)].run(j->contig, fanout, segment_pool);
-            };
-            if (threads > 1 && decoders[0].splits(j->contig.length)) {
-                // A long contig: its segments take the whole pool, which must be idle first.
-                while (!jobs.empty()) finish_oldest();
-                jobs.push_back(std::move(job));
-                std::promise<void> ran;
-                try {
-                    decode(0, &pool);
-                    ran.set_value();
-                } catch (...) {
-                    ran.set_exception(std::current_exception());
-                }
-                j->done = ran.get_future();
-                finish_oldest();
-                continue;
-            }
-            while (jobs.size() > static_cast<size_t>(threads)) finish_oldest();
-            jobs.push_back(std::move(job));
-            j->done = pool.submit([decode](int worker) { decode(worker, nullptr); });
-            // One thread: the job has run; write it now, so nothing waits in memory.
-            if (threads == 1) finish_oldest();
+            job->fork_sinks();
+            pipeline.queue(std::move(job));
         }
         if (records == 0 && !shard.reading_share()) {
-            while (!jobs.empty()) finish_oldest();  // keep messages in input order
-            progress.finish();
+            pipeline.drain();  // keep messages in input order
+            run.progress.finish();
             log.warn(fmt::format("{}: no FASTA records", display(input)));
         }
     }
-    while (!jobs.empty()) finish_oldest();
-    progress.finish();
+    pipeline.drain();
+    run.progress.finish();
     shard.finish();
     // Nothing decoded is a wrong input, not a result (a shard may hold no record of a small input).
-    if (summaries.empty() && shared.empty() && !o.shard.active())
+    if (run.summary.contigs() == 0 && run.shared.empty() && !o.shard.active())
         throw InputError(
             fmt::format("no FASTA records in {}: nothing to decode", join_words(o.inputs)));
 
@@ -508,37 +526,40 @@ std::vector<ContigSummary> run_scan(const ScanOptions& o, const Logger& log) {
     info.soft_masked_unknown = o.soft_masked == SoftMasked::unknown;
     if (o.shard.active())
         info.shard_json =
-            shard_json(shard, *info.options, info.profile_checksum, summaries, shared);
+            shard_json(shard, *info.options, info.profile_checksum, run.kept, run.shared);
     if (!o.shard.active())  // a shard sees part of the input: merge judges the whole
-        for (const DepletionWarning& w : depletion_warnings(model, summaries)) log.warn(w.message);
+        for (const DepletionWarning& w : run.summary.depletion_warnings()) log.warn(w.message);
     std::unique_ptr<OutputFile> summary, report;
     if (!o.summary_path.empty()) {
         summary = std::make_unique<OutputFile>(o.summary_path);
-        summary->write(summary_json(info, model, summaries));
+        run.summary.write_summary(info, [&](std::string_view text) { summary->write(text); });
     }
     std::unique_ptr<OutputFile> page;
-    if (html) {
+    if (run.html) {
         page = std::make_unique<OutputFile>(o.html_path);
-        page->write(
-            format_html_report({&info, &profile, &model, &call_options, &summaries, html.get()}));
+        page->write(format_html_report(
+            {&info, &profile, &model, &call_options, &run.kept, run.html.get()}));
     }
     // Commit only after everything has been computed and written.
-    if (tracks) tracks->close();
-    if (gff3) gff3->commit();
-    if (sizes) sizes->commit();
+    if (run.tracks) run.tracks->close();
+    if (run.gff3) run.gff3->commit();
+    if (run.sizes) run.sizes->commit();
     if (summary) summary->commit();
     if (page) page->commit();
-    bed.commit();
+    run.bed.commit();
     const ResourceUsage usage = clock.now();
     if (!o.report_path.empty()) {
         report = std::make_unique<OutputFile>(o.report_path);
-        report->write(report_json(info, model, summaries, usage));
+        run.summary.write_report(info, usage, [&](std::string_view text) { report->write(text); });
         report->commit();
     }
-    log.verbose_text(summary_table(model, summaries));
+    if (log.level() >= LogLevel::verbose) {
+        std::string table;
+        run.summary.write_table([&](std::string_view text) { table += text; });
+        log.verbose_text(table);
+    }
     if (log.level() >= LogLevel::normal)
-        std::fputs(genome_table(model, summaries, usage).c_str(), stderr);
-    return summaries;
+        std::fputs(run.summary.genome_table(usage).c_str(), stderr);
 }
 
 }  // namespace tidemark

@@ -5,7 +5,10 @@
 
 #include <algorithm>
 #include <array>
+#include <cerrno>
 #include <cmath>
+#include <cstdio>
+#include <cstring>
 #include <nlohmann/json.hpp>
 
 #include "summary_internal.hpp"
@@ -67,36 +70,48 @@ RunOptions run_options_from_json(const nlohmann::json& j, const std::string& whe
     return o;
 }
 
-ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs) {
-    const size_t R = model.region_names.size();
+namespace {
+
+// Adds one contig to genome-wide totals sized for R regions.
+void add_to_total(ContigSummary& total, const ContigSummary& c, size_t R) {
+    total.length += c.length;
+    total.unknown += c.unknown;
+    total.soft_masked += c.soft_masked;
+    total.log_likelihood += c.log_likelihood;
+    total.composition.a += c.composition.a;
+    total.composition.c += c.composition.c;
+    total.composition.g += c.composition.g;
+    total.composition.t += c.composition.t;
+    total.composition.unknown += c.composition.unknown;
+    total.composition.cpg += c.composition.cpg;
+    for (size_t r = 0; r < R; ++r) {
+        if (r < c.expected_bases.size()) total.expected_bases[r] += c.expected_bases[r];
+        if (r < c.calls.size()) {
+            total.called_bases[r] += c.called_bases[r];
+            total.calls[r] += c.calls[r];
+            total.confidence_sum[r] += c.confidence_sum[r];
+            total.call_lengths[r].insert(total.call_lengths[r].end(), c.call_lengths[r].begin(),
+                                         c.call_lengths[r].end());
+            total.call_confidences[r].insert(total.call_confidences[r].end(),
+                                             c.call_confidences[r].begin(),
+                                             c.call_confidences[r].end());
+        }
+    }
+}
+
+ContigSummary empty_total(size_t R) {
     ContigSummary total;
     total.name = "(all)";
     total.reset_calls(R);
-    for (const auto& c : contigs) {
-        total.length += c.length;
-        total.unknown += c.unknown;
-        total.soft_masked += c.soft_masked;
-        total.log_likelihood += c.log_likelihood;
-        total.composition.a += c.composition.a;
-        total.composition.c += c.composition.c;
-        total.composition.g += c.composition.g;
-        total.composition.t += c.composition.t;
-        total.composition.unknown += c.composition.unknown;
-        total.composition.cpg += c.composition.cpg;
-        for (size_t r = 0; r < R; ++r) {
-            if (r < c.expected_bases.size()) total.expected_bases[r] += c.expected_bases[r];
-            if (r < c.calls.size()) {
-                total.called_bases[r] += c.called_bases[r];
-                total.calls[r] += c.calls[r];
-                total.confidence_sum[r] += c.confidence_sum[r];
-                total.call_lengths[r].insert(total.call_lengths[r].end(), c.call_lengths[r].begin(),
-                                             c.call_lengths[r].end());
-                total.call_confidences[r].insert(total.call_confidences[r].end(),
-                                                 c.call_confidences[r].begin(),
-                                                 c.call_confidences[r].end());
-            }
-        }
-    }
+    return total;
+}
+
+}  // namespace
+
+ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs) {
+    const size_t R = model.region_names.size();
+    ContigSummary total = empty_total(R);
+    for (const auto& c : contigs) add_to_total(total, c, R);
     return total;
 }
 
@@ -191,87 +206,13 @@ ordered_json contig_json(const Model& model, const ContigSummary& c, bool report
     return o;
 }
 
-ordered_json document(const char* format, const RunInfo& info, const Model& model,
-                      const std::vector<ContigSummary>& contigs, bool report) {
-    ordered_json doc;
-    doc["format"] = format;
-    doc["tool_version"] = TIDEMARK_VERSION;
-    doc["command"] = info.command_line;
-    doc["inputs"] = info.inputs;
-    doc["profile"] = info.profile_name;
-    if (report) {
-        doc["profile_crc32"] = info.profile_checksum;
-        doc["options"] = info.options ? run_options_json(*info.options) : ordered_json::object();
-    }
-    doc["decode"] = info.decode_mode;
-    if (info.soft_masked_unknown) doc["soft_masked"] = "unknown";
-    const ContigSummary total = genome_total(model, contigs);
-    doc["genome"] = contig_json(model, total, report, info.soft_masked_unknown);
-    doc["genome"].erase("name");
-    doc["genome"].erase("input_index");
-    if (report)
-        for (size_t r = 0; r < model.region_names.size(); ++r)
-            if (model.region_report[r])
-                doc["genome"]["regions"][model.region_names[r]].update(call_histograms(total, r));
-    doc["genome"]["contigs"] = contigs.size();
-    ordered_json list = ordered_json::array();
-    for (const auto& c : contigs)
-        list.push_back(contig_json(model, c, report, info.soft_masked_unknown));
-    doc["contigs"] = list;
-    const std::vector<DepletionWarning> warnings = depletion_warnings(model, contigs);
-    if (!warnings.empty()) {  // absent otherwise, so that earlier summaries stay as they were
-        ordered_json w = ordered_json::array();
-        for (const auto& x : warnings)
-            w.push_back(
-                {{"kind", "cpg_not_depleted"},
-                 {"contig", x.contig.empty() ? ordered_json(nullptr) : ordered_json(x.contig)},
-                 {"cpg_obs_exp", x.cpg_obs_exp},
-                 {"known_bases", x.known_bases},
-                 {"message", x.message}});
-        doc["warnings"] = w;
-    }
-    if (!info.shard_json.empty()) doc["shard"] = ordered_json::parse(info.shard_json);
-    return doc;
-}
-
 }  // namespace
 
 std::vector<DepletionWarning> depletion_warnings(const Model& model,
                                                  const std::vector<ContigSummary>& contigs) {
-    std::vector<DepletionWarning> out;
-    if (std::find(model.region_names.begin(), model.region_names.end(), "cpg_island") ==
-        model.region_names.end())
-        return out;
-    const auto warning = [&](const std::string& contig, const Composition& comp, double limit) {
-        DepletionWarning w;
-        w.contig = contig;
-        w.cpg_obs_exp = comp.cpg_obs_exp();
-        w.known_bases = comp.known();
-        w.message = fmt::format(
-            "{} has CpG o/e {:.3f} over {} known bases, above {}: CpG is not depleted there, but "
-            "profile '{}' "
-            "assumes a CpG-depleted (vertebrate) genome, so its calls there are GC-rich stretches "
-            "rather than "
-            "CpG islands",
-            contig.empty() ? std::string("the input") : "contig '" + contig + "'", w.cpg_obs_exp,
-            w.known_bases, limit, model.name);
-        out.push_back(std::move(w));
-    };
-    const ContigSummary total = genome_total(model, contigs);
-    // NaN (no C or no G) compares false: nothing to judge.
-    const int64_t known = total.composition.known();
-    const double limit = known >= DepletionRule::min_genome_known
-                             ? DepletionRule::max_obs_exp
-                             : DepletionRule::short_max_obs_exp;
-    if (known >= DepletionRule::short_min_known && total.composition.cpg_obs_exp() > limit) {
-        warning("", total.composition, limit);
-        return out;
-    }
-    for (const auto& c : contigs)
-        if (c.composition.known() >= DepletionRule::min_contig_known &&
-            c.composition.cpg_obs_exp() > DepletionRule::max_obs_exp)
-            warning(c.name, c.composition, DepletionRule::max_obs_exp);
-    return out;
+    SummaryBuilder run(model, false, {});
+    for (const auto& c : contigs) run.add(c);
+    return run.depletion_warnings();
 }
 
 std::vector<double> call_length_edges(int64_t longest) {
@@ -394,71 +335,251 @@ void RegionTotals::block(const BlockView& view) {
     for (int s = 0; s < S; ++s) expected_[model_.region_of_state[s]] += by_state_[s];
 }
 
-std::string summary_json(const RunInfo& info, const Model& model,
-                         const std::vector<ContigSummary>& contigs) {
-    return document("tidemark-summary/1", info, model, contigs, false).dump(2) + "\n";
-}
-
-std::string report_json(const RunInfo& info, const Model& model,
-                        const std::vector<ContigSummary>& contigs, const ResourceUsage& usage) {
-    ordered_json doc = document("tidemark-report/1", info, model, contigs, true);
-    int64_t bases = 0;
-    for (const auto& c : contigs) bases += c.length;
-    // Times differ between runs; keeping them in one object leaves the rest comparable.
-    doc["resources"] = {
-        {"wall_seconds", usage.wall_seconds},
-        {"cpu_seconds", usage.cpu_seconds},
-        {"mbp_per_second",
-         usage.wall_seconds > 0 ? static_cast<double>(bases) / 1e6 / usage.wall_seconds : 0.0},
-        {"peak_rss_bytes", usage.peak_rss_bytes}};
-    return doc.dump(2) + "\n";
-}
-
-std::string summary_table(const Model& model, const std::vector<ContigSummary>& contigs) {
-    std::string out = fmt::format("{:<24} {:>12} {:>10} {:>7} {:>16}", "contig", "length",
-                                  "unknown", "GC", "log_likelihood");
-    for (size_t r = 0; r < model.region_names.size(); ++r)
-        if (model.region_report[r])
-            out += fmt::format(" {:>14} {:>7}", model.region_names[r] + "%", "calls");
-    out += '\n';
-    std::vector<ContigSummary> rows = contigs;
-    rows.push_back(genome_total(model, contigs));
-    for (const auto& c : rows) {
-        out += fmt::format("{:<24} {:>12} {:>10} {:>7.4f} {:>16.4f}", c.name, c.length, c.unknown,
-                           c.composition.gc_fraction(), c.log_likelihood);
-        for (size_t r = 0; r < model.region_names.size(); ++r)
-            if (model.region_report[r]) {
-                const double frac =
-                    c.length > 0 && r < c.expected_bases.size()
-                        ? 100.0 * c.expected_bases[r] / static_cast<double>(c.length)
-                        : 0.0;
-                out += fmt::format(" {:>14.4f} {:>7}", frac, r < c.calls.size() ? c.calls[r] : 0);
-            }
-        out += '\n';
+// Spooled text: in memory up to a limit, then in an unnamed temporary file.
+class SummaryBuilder::Spool {
+public:
+    Spool() = default;
+    Spool(const Spool&) = delete;
+    Spool& operator=(const Spool&) = delete;
+    ~Spool() {
+        if (file_) std::fclose(file_);
     }
+    void append(std::string_view text) {
+        if (!file_ && memory_.size() + text.size() <= in_memory) {
+            memory_ += text;
+            return;
+        }
+        if (!file_) {
+            file_ = std::tmpfile();
+            if (!file_)
+                throw IoError(fmt::format(
+                    "cannot create a temporary file for the per-record summary entries: {}",
+                    std::strerror(errno)));
+        }
+        if (std::fwrite(text.data(), 1, text.size(), file_) != text.size())
+            throw IoError(
+                fmt::format("cannot write the temporary file of per-record summary "
+                            "entries: {}",
+                            std::strerror(errno)));
+    }
+    void replay(const Writer& out) const {
+        out(memory_);
+        if (!file_) return;
+        if (std::fflush(file_) != 0 || std::fseek(file_, 0, SEEK_SET) != 0)
+            throw IoError("cannot read back the temporary file of per-record summary entries");
+        std::string buffer(size_t{1} << 20, '\0');
+        for (;;) {
+            const size_t got = std::fread(buffer.data(), 1, buffer.size(), file_);
+            if (got > 0) out(std::string_view(buffer.data(), got));
+            if (got < buffer.size()) break;
+        }
+        if (std::ferror(file_))
+            throw IoError("cannot read back the temporary file of per-record summary entries");
+        std::fseek(file_, 0, SEEK_END);
+    }
+
+private:
+    static constexpr size_t in_memory = size_t{8} << 20;
+    std::string memory_;
+    std::FILE* file_ = nullptr;
+};
+
+namespace {
+
+// One entry of the "contigs" array as ordered_json::dump(2) writes it there: at depth 2, so
+// every line indented by 4 more spaces; entries after the first start with the separator.
+std::string array_entry(const ordered_json& entry, bool first) {
+    std::string text = first ? "    " : ",\n    ";
+    const std::string body = entry.dump(2);  // JSON strings escape newlines: one line each
+    for (const char c : body) {
+        text += c;
+        if (c == '\n') text += "    ";
+    }
+    return text;
+}
+
+std::string table_row(const Model& model, const ContigSummary& c) {
+    std::string out = fmt::format("{:<24} {:>12} {:>10} {:>7.4f} {:>16.4f}", c.name, c.length,
+                                  c.unknown, c.composition.gc_fraction(), c.log_likelihood);
+    for (size_t r = 0; r < model.region_names.size(); ++r)
+        if (model.region_report[r]) {
+            const double frac = c.length > 0 && r < c.expected_bases.size()
+                                    ? 100.0 * c.expected_bases[r] / static_cast<double>(c.length)
+                                    : 0.0;
+            out += fmt::format(" {:>14.4f} {:>7}", frac, r < c.calls.size() ? c.calls[r] : 0);
+        }
+    return out + '\n';
+}
+
+}  // namespace
+
+SummaryBuilder::SummaryBuilder(const Model& model, bool soft_masked_unknown, Parts parts)
+    : model_(model),
+      masked_(soft_masked_unknown),
+      parts_(parts),
+      total_(empty_total(model.region_names.size())),
+      summary_entries_(std::make_unique<Spool>()),
+      report_entries_(std::make_unique<Spool>()),
+      table_rows_(std::make_unique<Spool>()) {}
+
+SummaryBuilder::~SummaryBuilder() = default;
+
+void SummaryBuilder::add(const ContigSummary& c) {
+    add_to_total(total_, c, model_.region_names.size());
+    const bool first = contigs_ == 0;
+    ++contigs_;
+    if (parts_.summary)
+        summary_entries_->append(array_entry(contig_json(model_, c, false, masked_), first));
+    if (parts_.report)
+        report_entries_->append(array_entry(contig_json(model_, c, true, masked_), first));
+    if (parts_.table) table_rows_->append(table_row(model_, c));
+    // NaN (no C or no G) compares false: nothing to judge.
+    if (c.composition.known() >= DepletionRule::min_contig_known &&
+        c.composition.cpg_obs_exp() > DepletionRule::max_obs_exp) {
+        ContigSummary named;
+        named.name = c.name;
+        named.composition = c.composition;
+        undepleted_.push_back(std::move(named));
+    }
+}
+
+std::vector<DepletionWarning> SummaryBuilder::depletion_warnings() const {
+    std::vector<DepletionWarning> out;
+    if (std::find(model_.region_names.begin(), model_.region_names.end(), "cpg_island") ==
+        model_.region_names.end())
+        return out;
+    const auto warning = [&](const std::string& contig, const Composition& comp, double limit) {
+        DepletionWarning w;
+        w.contig = contig;
+        w.cpg_obs_exp = comp.cpg_obs_exp();
+        w.known_bases = comp.known();
+        w.message = fmt::format(
+            "{} has CpG o/e {:.3f} over {} known bases, above {}: CpG is not depleted there, but "
+            "profile '{}' "
+            "assumes a CpG-depleted (vertebrate) genome, so its calls there are GC-rich stretches "
+            "rather than "
+            "CpG islands",
+            contig.empty() ? std::string("the input") : "contig '" + contig + "'", w.cpg_obs_exp,
+            w.known_bases, limit, model_.name);
+        out.push_back(std::move(w));
+    };
+    const int64_t known = total_.composition.known();
+    const double limit = known >= DepletionRule::min_genome_known
+                             ? DepletionRule::max_obs_exp
+                             : DepletionRule::short_max_obs_exp;
+    if (known >= DepletionRule::short_min_known && total_.composition.cpg_obs_exp() > limit) {
+        warning("", total_.composition, limit);
+        return out;
+    }
+    for (const auto& c : undepleted_) warning(c.name, c.composition, DepletionRule::max_obs_exp);
     return out;
 }
 
-std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs,
-                         const ResourceUsage& usage) {
-    const ContigSummary g = genome_total(model, contigs);
+void SummaryBuilder::write_document(const char* format, const RunInfo& info, bool report,
+                                    const Spool& entries, const ResourceUsage* usage,
+                                    const Writer& out) const {
+    ordered_json doc;
+    doc["format"] = format;
+    doc["tool_version"] = TIDEMARK_VERSION;
+    doc["command"] = info.command_line;
+    doc["inputs"] = info.inputs;
+    doc["profile"] = info.profile_name;
+    if (report) {
+        doc["profile_crc32"] = info.profile_checksum;
+        doc["options"] = info.options ? run_options_json(*info.options) : ordered_json::object();
+    }
+    doc["decode"] = info.decode_mode;
+    if (info.soft_masked_unknown) doc["soft_masked"] = "unknown";
+    doc["genome"] = contig_json(model_, total_, report, info.soft_masked_unknown);
+    doc["genome"].erase("name");
+    doc["genome"].erase("input_index");
+    if (report)
+        for (size_t r = 0; r < model_.region_names.size(); ++r)
+            if (model_.region_report[r])
+                doc["genome"]["regions"][model_.region_names[r]].update(call_histograms(total_, r));
+    doc["genome"]["contigs"] = contigs_;
+    // The entries are spooled: a placeholder marks where they go.
+    static const std::string placeholder = "tidemark: contig entries";
+    doc["contigs"] = placeholder;
+    const std::vector<DepletionWarning> warnings = depletion_warnings();
+    if (!warnings.empty()) {  // absent otherwise, so that earlier summaries stay as they were
+        ordered_json w = ordered_json::array();
+        for (const auto& x : warnings)
+            w.push_back(
+                {{"kind", "cpg_not_depleted"},
+                 {"contig", x.contig.empty() ? ordered_json(nullptr) : ordered_json(x.contig)},
+                 {"cpg_obs_exp", x.cpg_obs_exp},
+                 {"known_bases", x.known_bases},
+                 {"message", x.message}});
+        doc["warnings"] = w;
+    }
+    if (!info.shard_json.empty()) doc["shard"] = ordered_json::parse(info.shard_json);
+    if (usage) {
+        // Times differ between runs; keeping them in one object leaves the rest comparable.
+        const double bases = static_cast<double>(total_.length);
+        doc["resources"] = {
+            {"wall_seconds", usage->wall_seconds},
+            {"cpu_seconds", usage->cpu_seconds},
+            {"mbp_per_second", usage->wall_seconds > 0 ? bases / 1e6 / usage->wall_seconds : 0.0},
+            {"peak_rss_bytes", usage->peak_rss_bytes}};
+    }
+    const std::string text = doc.dump(2) + "\n";
+    const std::string marker = '"' + placeholder + '"';
+    const size_t at = text.find(marker);
+    if (at == std::string::npos) throw InternalError("summary document without its contig list");
+    out(std::string_view(text).substr(0, at));
+    if (contigs_ == 0) {
+        out("[]");
+    } else {
+        out("[\n");
+        entries.replay(out);
+        out("\n  ]");
+    }
+    out(std::string_view(text).substr(at + marker.size()));
+}
+
+void SummaryBuilder::write_summary(const RunInfo& info, const Writer& out) const {
+    if (!parts_.summary) throw InternalError("SummaryBuilder: the summary was not asked for");
+    write_document("tidemark-summary/1", info, false, *summary_entries_, nullptr, out);
+}
+
+void SummaryBuilder::write_report(const RunInfo& info, const ResourceUsage& usage,
+                                  const Writer& out) const {
+    if (!parts_.report) throw InternalError("SummaryBuilder: the report was not asked for");
+    write_document("tidemark-report/1", info, true, *report_entries_, &usage, out);
+}
+
+void SummaryBuilder::write_table(const Writer& out) const {
+    if (!parts_.table) throw InternalError("SummaryBuilder: the table was not asked for");
+    std::string header = fmt::format("{:<24} {:>12} {:>10} {:>7} {:>16}", "contig", "length",
+                                     "unknown", "GC", "log_likelihood");
+    for (size_t r = 0; r < model_.region_names.size(); ++r)
+        if (model_.region_report[r])
+            header += fmt::format(" {:>14} {:>7}", model_.region_names[r] + "%", "calls");
+    out(header + '\n');
+    table_rows_->replay(out);
+    out(table_row(model_, total_));
+}
+
+std::string SummaryBuilder::genome_table(const ResourceUsage& usage) const {
+    const ContigSummary& g = total_;
     const double obs_exp = g.composition.cpg_obs_exp();  // NaN without C or G: NA, as in the BED
     std::string out = fmt::format(
         "tidemark: {} contig{}, {} bp ({} unknown), GC {:.4f}, CpG o/e {}, log-likelihood {:.4f}\n",
-        contigs.size(), contigs.size() == 1 ? "" : "s", g.length, g.unknown,
-        g.composition.gc_fraction(),
+        contigs_, contigs_ == 1 ? "" : "s", g.length, g.unknown, g.composition.gc_fraction(),
         std::isnan(obs_exp) ? std::string("NA") : fmt::format("{:.4f}", obs_exp), g.log_likelihood);
     out +=
         fmt::format("tidemark: {:<16} {:>10} {:>9} {:>14} {:>8} {:>8} {:>8} {:>10}\n", "region",
                     "calls", "called%", "expected%", "min_len", "med_len", "max_len", "mean_conf");
-    for (size_t r = 0; r < model.region_names.size(); ++r) {
-        if (!model.region_report[r]) continue;
+    for (size_t r = 0; r < model_.region_names.size(); ++r) {
+        if (!model_.region_report[r]) continue;
         const LengthStats ls = length_stats(g.call_lengths[r]);
         const double len = g.length > 0 ? static_cast<double>(g.length) : 1.0;
         out += fmt::format(
             "tidemark: {:<16} {:>10} {:>9.4f} {:>14.4f} {:>8} {:>8.1f} {:>8} {:>10.4f}\n",
-            model.region_names[r], g.calls[r], 100.0 * static_cast<double>(g.called_bases[r]) / len,
-            100.0 * g.expected_bases[r] / len, ls.min, ls.median, ls.max,
+            model_.region_names[r], g.calls[r],
+            100.0 * static_cast<double>(g.called_bases[r]) / len, 100.0 * g.expected_bases[r] / len,
+            ls.min, ls.median, ls.max,
             g.calls[r] > 0 ? g.confidence_sum[r] / static_cast<double>(g.calls[r]) : 0.0);
     }
     out += fmt::format(
@@ -467,6 +588,44 @@ std::string genome_table(const Model& model, const std::vector<ContigSummary>& c
         usage.wall_seconds > 0 ? static_cast<double>(g.length) / 1e6 / usage.wall_seconds : 0.0,
         static_cast<double>(usage.peak_rss_bytes) / (1 << 20));
     return out;
+}
+
+namespace {
+
+// A whole document built in memory from a list of contigs (merge).
+std::string collect(const std::function<void(const SummaryBuilder::Writer&)>& write) {
+    std::string text;
+    write([&](std::string_view piece) { text += piece; });
+    return text;
+}
+
+}  // namespace
+
+std::string summary_json(const RunInfo& info, const Model& model,
+                         const std::vector<ContigSummary>& contigs) {
+    SummaryBuilder run(model, info.soft_masked_unknown, {true, false, false});
+    for (const auto& c : contigs) run.add(c);
+    return collect([&](const SummaryBuilder::Writer& out) { run.write_summary(info, out); });
+}
+
+std::string report_json(const RunInfo& info, const Model& model,
+                        const std::vector<ContigSummary>& contigs, const ResourceUsage& usage) {
+    SummaryBuilder run(model, info.soft_masked_unknown, {false, true, false});
+    for (const auto& c : contigs) run.add(c);
+    return collect([&](const SummaryBuilder::Writer& out) { run.write_report(info, usage, out); });
+}
+
+std::string summary_table(const Model& model, const std::vector<ContigSummary>& contigs) {
+    SummaryBuilder run(model, false, {false, false, true});
+    for (const auto& c : contigs) run.add(c);
+    return collect([&](const SummaryBuilder::Writer& out) { run.write_table(out); });
+}
+
+std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs,
+                         const ResourceUsage& usage) {
+    SummaryBuilder run(model, false, {});
+    for (const auto& c : contigs) run.add(c);
+    return run.genome_table(usage);
 }
 
 }  // namespace tidemark

@@ -4,11 +4,10 @@
 
 #include <algorithm>
 #include <cmath>
-#include <deque>
-#include <future>
 #include <memory>
 
 #include "byte_source.hpp"
+#include "pipeline.hpp"
 #include "thread_pool.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
@@ -293,6 +292,22 @@ void copy_contig(const Contig& from, Contig& to) {
     to.soft_masked = from.soft_masked;
 }
 
+// One record's counts: decoded into a fork of the run's accumulator, added in input order.
+class CountJob final : public detail::PipelineJob {
+public:
+    CountJob(std::vector<std::unique_ptr<PosteriorDecoder>>& decoders, CountAccumulator& total)
+        : decoders_(decoders), total_(total), acc_(total.fork()) {}
+    void decode(int worker, TaskPool* segments) override {
+        decoders_[static_cast<size_t>(worker)]->run(contig, *acc_, segments);
+    }
+    void finish() override { total_.join(*acc_); }
+
+private:
+    std::vector<std::unique_ptr<PosteriorDecoder>>& decoders_;
+    CountAccumulator& total_;
+    std::unique_ptr<DecodeSink> acc_;
+};
+
 }  // namespace
 
 TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64_t block_size,
@@ -329,48 +344,20 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
         });
         return total.counts();
     }
-    struct Job {
-        Contig contig;
-        std::unique_ptr<DecodeSink> acc;
-        std::future<void> done;
-    };
-    std::deque<std::unique_ptr<Job>> jobs;
-    std::vector<Contig> spare;
-    TaskPool pool(T);  // declared last: destroyed first, while jobs and decoders still exist
-    const auto finish_oldest = [&] {
-        Job& job = *jobs.front();
-        job.done.get();
-        total.join(*job.acc);
-        spare.push_back(std::move(job.contig));
-        jobs.pop_front();
-    };
+    detail::DecodePipeline pipeline(T, [&](int64_t length) {
+        return decoders[0]->segment_count(length) >= 2 * static_cast<size_t>(T);
+    });
     data.for_each([&](const Contig& c) {
         if (data.current_is_split()) {
-            while (!jobs.empty()) finish_oldest();
-            return count_split(c, &pool);
+            pipeline.drain();
+            return count_split(c, pipeline.pool());
         }
-        if (decoders[0]->splits(c.length)) {
-            // A long contig: its segments take the whole pool, which must be idle first.
-            while (!jobs.empty()) finish_oldest();
-            const std::unique_ptr<DecodeSink> acc = total.fork();
-            decoders[0]->run(c, *acc, &pool);
-            total.join(*acc);
-            return;
-        }
-        while (jobs.size() > static_cast<size_t>(T)) finish_oldest();
-        auto job = std::make_unique<Job>();
-        if (!spare.empty()) {
-            job->contig = std::move(spare.back());
-            spare.pop_back();
-        }
+        auto job = std::make_unique<CountJob>(decoders, total);
+        pipeline.reuse_storage(job->contig);
         copy_contig(c, job->contig);
-        job->acc = total.fork();
-        Job* j = job.get();
-        jobs.push_back(std::move(job));
-        j->done = pool.submit(
-            [j, &decoders](int w) { decoders[static_cast<size_t>(w)]->run(j->contig, *j->acc); });
+        pipeline.queue(std::move(job));
     });
-    while (!jobs.empty()) finish_oldest();
+    pipeline.drain();
     return total.counts();
 }
 

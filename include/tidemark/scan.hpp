@@ -57,6 +57,6 @@ std::string recorded_command_line(const std::string& command_line);
 void validate(const ScanOptions& options);
 
 /// Runs the whole scan. File outputs appear only when the whole run succeeds.
-std::vector<ContigSummary> run_scan(const ScanOptions& options, const Logger& log);
+void run_scan(const ScanOptions& options, const Logger& log);
 
 }  // namespace tidemark

@@ -3,8 +3,11 @@
 #pragma once
 
 #include <cstdint>
+#include <functional>
+#include <memory>
 #include <optional>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "tidemark/call.hpp"
@@ -128,6 +131,47 @@ std::vector<DepletionWarning> depletion_warnings(const Model& model,
 
 /// Genome-wide totals of the contigs (name "(all)"; call lengths and confidences of all contigs).
 ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs);
+
+/// The summary of a run, built as its records finish: genome-wide totals and the depletion
+/// guard's candidates, while each record's entries in the summary and report JSON and its row
+/// of the verbose table are formatted at once and spooled (in memory, then in a temporary
+/// file). Memory does not grow with the number of records, only with the number of calls
+/// (their lengths and confidences feed the genome-wide medians and histograms). The documents
+/// are those of summary_json and report_json below, byte for byte.
+class SummaryBuilder {
+public:
+    struct Parts {
+        bool summary = false, report = false, table = false;  ///< what will be written
+    };
+    SummaryBuilder(const Model& model, bool soft_masked_unknown, Parts parts);
+    ~SummaryBuilder();
+    SummaryBuilder(const SummaryBuilder&) = delete;
+    SummaryBuilder& operator=(const SummaryBuilder&) = delete;
+
+    void add(const ContigSummary& contig);
+    int64_t contigs() const { return contigs_; }
+    const ContigSummary& total() const { return total_; }
+    std::vector<DepletionWarning> depletion_warnings() const;
+
+    /// Receives a document piece by piece.
+    using Writer = std::function<void(std::string_view)>;
+    void write_summary(const RunInfo& info, const Writer& out) const;
+    void write_report(const RunInfo& info, const ResourceUsage& usage, const Writer& out) const;
+    void write_table(const Writer& out) const;  ///< as summary_table
+    std::string genome_table(const ResourceUsage& usage) const;
+
+private:
+    class Spool;
+    void write_document(const char* format, const RunInfo& info, bool report, const Spool& entries,
+                        const ResourceUsage* usage, const Writer& out) const;
+    const Model& model_;
+    bool masked_;
+    Parts parts_;
+    int64_t contigs_ = 0;
+    ContigSummary total_;
+    std::vector<ContigSummary> undepleted_;  ///< contigs the guard names (name, composition)
+    std::unique_ptr<Spool> summary_entries_, report_entries_, table_rows_;
+};
 
 struct LengthStats {
     int64_t min = 0, max = 0;
