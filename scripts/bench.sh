@@ -8,6 +8,7 @@ set -euo pipefail
 usage() {
     cat <<'EOF'
 usage: scripts/bench.sh [--quick] [--repeats N] [--build-dir DIR] [--no-real] [--threads-only]
+                        [--shapes-only] [--compare OLD_TIDEMARK]
 
 Builds tidemark (Release) and the benchmark helpers in DIR (default: build-bench at the top of
 the repository), checks on a small input that tidemark and the baseline agree (posteriors to
@@ -19,6 +20,16 @@ the repository), checks on a small input that tidemark and the baseline agree (p
 Threads: tidemark with --threads 1 and --threads 2 (alternating, N runs each, fastest kept) on
 100 contigs of 1 Mbp (decoded in parallel, one contig per thread) and on one contig of 100 Mbp
 (decoded in parallel segments); targets 1.8x and 1.5x. --threads-only runs only this part.
+
+Input shapes: tidemark scan -p cpg-island on a fragmented draft (300,000 contigs of 700 bp), on
+105 contigs of 2 Mbp (both simulated with -p cpg-island --seed 5, 210 Mbp each) and on human
+chrX as .fa.gz and as plain text, with 1 and 2 threads; the draft also with --summary and
+bedGraph tracks (peak RSS) and with bigWig tracks. Targets: draft Mbp/s >= 0.8x that of the
+2-Mbp contigs (1 thread); 2 threads >= 1.8x over 1 on the draft, the 2-Mbp contigs and chrX
+.fa.gz; chrX .fa.gz within 1.15x of plain text (2 threads); draft RSS <= 64 MiB + 100 B per
+contig; bigWig within 2x of bedGraph. --shapes-only runs only this part. --compare OLD_TIDEMARK
+also times another build (e.g. of an earlier commit) with 1 thread on each shape, alternating
+with this one, and reports this build's speed over it.
 EOF
 }
 
@@ -28,6 +39,8 @@ QUICK=0
 REPEATS=""
 REAL=1
 THREADS_ONLY=0
+SHAPES_ONLY=0
+COMPARE=""
 while [ $# -gt 0 ]; do
     case "$1" in
         --quick) QUICK=1 ;;
@@ -35,6 +48,8 @@ while [ $# -gt 0 ]; do
         --build-dir) BUILD=${2:?--build-dir needs a directory}; shift ;;
         --no-real) REAL=0 ;;
         --threads-only) THREADS_ONLY=1 ;;
+        --shapes-only) SHAPES_ONLY=1 ;;
+        --compare) COMPARE=${2:?--compare needs a tidemark binary}; shift ;;
         -h|--help) usage; exit 0 ;;
         *) echo "bench: unknown argument '$1'" >&2; usage >&2; exit 2 ;;
     esac
@@ -79,7 +94,7 @@ check() {  # name fasta
         --tolerance 1e-9 | tee -a "$DATA/agreement.txt" >&2
 }
 : >"$DATA/agreement.txt"
-if [ $THREADS_ONLY -eq 0 ]; then
+if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ]; then
 # Three 100 kbp contigs with islands every ~20 kb and runs of N every ~40 kb, so that unknown
 # bases, contig starts and contexts broken by N are all exercised.
 "$GEN" --length 100000 --contigs 3 --seed 11 --island-spacing 20000 --gap-spacing 40000 \
@@ -157,7 +172,7 @@ bench_input() {  # label fasta bases(or empty: from the baseline's report)
     [ "$same" = yes ] || { log "calls differ between tidemark and the baseline on $label"; FAILED=1; }
 }
 
-[ $THREADS_ONLY -eq 1 ] && SIZES_MBP=() && REAL=0
+[ $THREADS_ONLY -eq 1 ] || [ $SHAPES_ONLY -eq 1 ] && SIZES_MBP=() && REAL=0
 for mbp in "${SIZES_MBP[@]}"; do
     fasta=$DATA/synthetic-${mbp}M.fa
     if [ ! -s "$fasta" ]; then
@@ -208,18 +223,93 @@ bench_threads() {  # label fasta bases
     awk -v label="$label" -v t1="$best1" -v t2="$best2" -v want="$4" 'BEGIN {
         if (t1 / t2 < want) { printf "bench: TARGET MISSED on %s: 2-thread speed-up %.2fx < %.1fx\n", label, t1 / t2, want; exit 1 } }' >&2 || FAILED=1
 }
-MANY=$DATA/synthetic-100x1M.fa
-if [ ! -s "$MANY" ]; then
-    log "generating $MANY"
-    "$GEN" --length 1000000 --contigs 100 --seed 100 -o "$MANY.tmp" && mv "$MANY.tmp" "$MANY"
+if [ $SHAPES_ONLY -eq 0 ]; then
+    MANY=$DATA/synthetic-100x1M.fa
+    if [ ! -s "$MANY" ]; then
+        log "generating $MANY"
+        "$GEN" --length 1000000 --contigs 100 --seed 100 -o "$MANY.tmp" && mv "$MANY.tmp" "$MANY"
+    fi
+    ONE=$DATA/synthetic-100M.fa
+    if [ ! -s "$ONE" ]; then
+        log "generating $ONE"
+        "$GEN" --length 100000000 --seed 101 -o "$ONE.tmp" && mv "$ONE.tmp" "$ONE"
+    fi
+    bench_threads "100 contigs x 1 Mbp" "$MANY" 100000000 1.8
+    bench_threads "one contig, 100 Mbp" "$ONE" 100000000 1.5
 fi
-ONE=$DATA/synthetic-100M.fa
-if [ ! -s "$ONE" ]; then
-    log "generating $ONE"
-    "$GEN" --length 100000000 --seed 101 -o "$ONE.tmp" && mv "$ONE.tmp" "$ONE"
+
+# --- input shapes: fragmented draft, mid-size contigs, chrX gzip and plain ------------------
+declare -a SROWS=() SNOTES=()
+# best_of LABEL N CMD...: runs CMD N times; sets BEST (fastest wall), BEST_CPU, PEAK (largest RSS).
+best_of() {
+    local label=$1 n=$2 r wall rss cpu; shift 2
+    BEST="" BEST_CPU="" PEAK=0
+    for ((r = 1; r <= n; r++)); do
+        run_timed "$DATA/run.shape" "$@" || exit 1
+        read -r wall rss cpu <"$DATA/run.shape.result"
+        if [ -z "$BEST" ] || awk "BEGIN{exit !($wall < $BEST)}"; then BEST=$wall; BEST_CPU=$cpu; fi
+        if [ "$rss" -gt "$PEAK" ]; then PEAK=$rss; fi
+    done
+}
+# shape LABEL FASTA BASES CONTIGS: 1 and 2 threads alternating (and --compare's build, 1 thread).
+shape() {
+    local label=$1 fasta=$2 bases=$3 contigs=$4 t1="" t2="" old="" r
+    log "timing $label with 1 and 2 threads ($REPEATS runs each)"
+    for ((r = 1; r <= REPEATS; r++)); do
+        best_of "$label" 1 "$TM" scan -q -t 1 -p cpg-island "$fasta" -o "$DATA/shape.t1.bed"
+        if [ -z "$t1" ] || awk "BEGIN{exit !($BEST < $t1)}"; then t1=$BEST; fi
+        best_of "$label" 1 "$TM" scan -q -t 2 -p cpg-island "$fasta" -o "$DATA/shape.t2.bed"
+        if [ -z "$t2" ] || awk "BEGIN{exit !($BEST < $t2)}"; then t2=$BEST; fi
+        if [ -n "$COMPARE" ]; then
+            best_of "$label" 1 "$COMPARE" scan -q -t 1 -p cpg-island "$fasta" -o "$DATA/shape.old.bed"
+            if [ -z "$old" ] || awk "BEGIN{exit !($BEST < $old)}"; then old=$BEST; fi
+        fi
+    done
+    cmp -s <(grep -v '^#' "$DATA/shape.t1.bed") <(grep -v '^#' "$DATA/shape.t2.bed") ||
+        { log "calls differ between 1 and 2 threads on $label"; FAILED=1; }
+    SHAPE_T1=$t1 SHAPE_T2=$t2
+    SROWS+=("$(awk -v label="$label" -v n="$bases" -v k="$contigs" -v t1="$t1" -v t2="$t2" -v old="$old" 'BEGIN {
+        printf "| %s | %d | %.0f | %.2f | %.1f | %.2f | %.1f | **%.2fx** | %s |", label, k, n / 1e6, t1, n / 1e6 / t1,
+            t2, n / 1e6 / t2, t1 / t2, (old == "" ? "-" : sprintf("%.2fx", old / t1)) }')")
+}
+# target OK_EXPRESSION TEXT: records a target line; a missed target fails the benchmark.
+target() {
+    if awk "BEGIN{exit !($1)}"; then SNOTES+=("- met: $2"); else SNOTES+=("- **MISSED**: $2"); log "TARGET MISSED: $2"; FAILED=1; fi
+}
+if [ $THREADS_ONLY -eq 0 ]; then
+    DRAFT=$DATA/draft-300000x700.fa MID=$DATA/mid-105x2M.fa
+    [ -s "$DRAFT" ] || "$TM" simulate -q -p cpg-island --seed 5 --contigs 300000 --length 700 -o "$DRAFT"
+    [ -s "$MID" ] || "$TM" simulate -q -p cpg-island --seed 5 --contigs 105 --length 2000000 -o "$MID"
+    shape "draft, 300,000 x 700 bp" "$DRAFT" 210000000 300000
+    d1=$SHAPE_T1 d2=$SHAPE_T2
+    shape "105 x 2 Mbp" "$MID" 210000000 105
+    m1=$SHAPE_T1 m2=$SHAPE_T2
+    target "$m1 / $d1 >= 0.8" "draft 1-thread Mbp/s $(awk "BEGIN{printf \"%.2f\", $m1 / $d1}")x that of 2-Mbp contigs (>= 0.8x)"
+    target "$d1 / $d2 >= 1.8" "draft 2 threads $(awk "BEGIN{printf \"%.2f\", $d1 / $d2}")x over 1 (>= 1.8x)"
+    target "$m1 / $m2 >= 1.8" "2-Mbp contigs 2 threads $(awk "BEGIN{printf \"%.2f\", $m1 / $m2}")x over 1 (>= 1.8x)"
+    log "timing the draft with --summary and bedGraph, and with bigWig tracks (1 thread)"
+    best_of draft "$REPEATS" "$TM" scan -q -t 1 -p cpg-island "$DRAFT" -o "$DATA/shape.bed" \
+        --summary "$DATA/shape.json" --posteriors "$DATA/shape.bg"
+    bg=$BEST bg_rss=$PEAK
+    best_of draft "$REPEATS" "$TM" scan -q -t 1 -p cpg-island "$DRAFT" -o "$DATA/shape.bed" \
+        --posteriors "$DATA/shape.bw" --track-format bigwig
+    bw=$BEST
+    target "$bg_rss <= 64 * 1048576 + 100 * 300000" "draft peak RSS with --summary and bedGraph $(awk "BEGIN{printf \"%.1f\", $bg_rss / 1048576}") MiB (<= 64 MiB + 100 B x 300,000 contigs = 92.6 MiB)"
+    target "$bw / $bg <= 2" "draft with bigWig tracks $(awk "BEGIN{printf \"%.2f\", $bw / $bg}")x the time with bedGraph and --summary ($bw s vs $bg s; <= 2x)"
+    if [ -r "$CHRX" ]; then
+        PLAIN=$DATA/hs37chrXtrunc.fa
+        [ -s "$PLAIN" ] || gzip -dc "$CHRX" >"$PLAIN"
+        chrx_bases=$(grep -v '>' "$PLAIN" | tr -d '\n' | wc -c)
+        shape "human chrX 1-70 Mb, .fa.gz" "$CHRX" "$chrx_bases" 1
+        g1=$SHAPE_T1 g2=$SHAPE_T2
+        shape "human chrX 1-70 Mb, plain" "$PLAIN" "$chrx_bases" 1
+        p2=$SHAPE_T2
+        target "$g1 / $g2 >= 1.8" "chrX .fa.gz 2 threads $(awk "BEGIN{printf \"%.2f\", $g1 / $g2}")x over 1 (>= 1.8x)"
+        target "$g2 / $p2 <= 1.15" "chrX .fa.gz $(awk "BEGIN{printf \"%.2f\", $g2 / $p2}")x the time of plain text, 2 threads (<= 1.15x)"
+        PROJECTED=$(awk -v t="$g2" -v n="$chrx_bases" 'BEGIN{printf "%.0f", t / n * 3.1e9}')
+        target "$PROJECTED < 40" "a 3.1-Gbp human assembly as .fa.gz with 2 threads, at chrX's .fa.gz speed: ${PROJECTED} s (< 40 s)"
+    fi
 fi
-bench_threads "100 contigs x 1 Mbp" "$MANY" 100000000 1.8
-bench_threads "one contig, 100 Mbp" "$ONE" 100000000 1.5
 
 # --- report ------------------------------------------------------------------------------
 declare -a ROWS=()
@@ -241,7 +331,7 @@ flat=""
         END { printf "%.1f to %.1f ns/base end to end (max/min %.2f); %.1f to %.1f ns/base (max/min %.2f) net of the %.1f ms start-up",
               lo, hi, hi / lo, nlo, nhi, nhi / nlo, t0 * 1e3 }')
 {
-if [ $THREADS_ONLY -eq 0 ]; then
+if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ]; then
     echo "### tidemark scan -p cpg-island-2state vs. simple baseline (one thread)"
     echo
     echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//'),"\
@@ -263,6 +353,7 @@ if [ $THREADS_ONLY -eq 0 ]; then
     echo
     echo
 fi
+if [ $SHAPES_ONLY -eq 0 ]; then
     echo "### tidemark scan -p cpg-island-2state with 1 and 2 threads"
     echo
     echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(nproc) cores shared with other work. Fastest of $REPEATS runs each,"\
@@ -272,7 +363,22 @@ fi
     echo "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|:-:|"
     printf '%s\n' "${TROWS[@]}"
     echo
-    echo "Command: scripts/bench.sh$([ $QUICK -eq 1 ] && echo ' --quick') --repeats $REPEATS$([ $REAL -eq 1 ] || echo ' --no-real')$([ $THREADS_ONLY -eq 1 ] && echo ' --threads-only')"
+fi
+if [ $THREADS_ONLY -eq 0 ]; then
+    echo "### tidemark scan -p cpg-island on input shapes"
+    echo
+    echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(nproc) cores; fastest of $REPEATS runs, 1 and 2 threads alternating,"\
+         "BED to a file; the draft and the 2-Mbp contigs simulated with -p cpg-island --seed 5."\
+         "'vs old' = the --compare build's 1-thread time over this build's."
+    echo
+    echo "| input | contigs | Mbp | 1 thread s | Mbp/s | 2 threads s | Mbp/s | speed-up | vs old |"
+    echo "|---|---:|---:|---:|---:|---:|---:|---:|---:|"
+    printf '%s\n' "${SROWS[@]}"
+    echo
+    printf '%s\n' "${SNOTES[@]}"
+    echo
+fi
+    echo "Command: scripts/bench.sh$([ $QUICK -eq 1 ] && echo ' --quick') --repeats $REPEATS$([ $REAL -eq 1 ] || echo ' --no-real')$([ $THREADS_ONLY -eq 1 ] && echo ' --threads-only')$([ $SHAPES_ONLY -eq 1 ] && echo ' --shapes-only')$([ -n "$COMPARE" ] && echo " --compare $COMPARE")"
 } | tee "$RESULTS"
 log "table written to $RESULTS"
 [ $FAILED -eq 0 ] || { log "some targets were missed (see above)"; exit 1; }

@@ -92,7 +92,12 @@ void ProgressMeter::begin_contig(const Contig& contig) {
     draw(true);
 }
 
+bool ProgressMeter::enabled() const {
+    return shared_->enabled;
+}
+
 void ProgressMeter::block(const BlockView& view) {
+    if (!shared_->enabled) return;
     shared_->done.fetch_add(view.size, std::memory_order_relaxed);
     draw(false);
 }

@@ -241,11 +241,11 @@ class ScanJob;
 
 // What a scan writes, and the run-wide sinks every record's forks join into.
 struct ScanOutputs {
-    ScanOutputs(const ScanOptions& o, const Model& model, const CallOptions& calling,
-                int64_t total_bases, const Logger& log)
-        : o(o),
-          model(model),
-          log(log),
+    ScanOutputs(const ScanOptions& options, const Model& region_model, const CallOptions& calling,
+                int64_t total_bases, const Logger& logger)
+        : o(options),
+          model(region_model),
+          log(logger),
           bed(o.output, bed_format(o)),
           caller(model, calling),
           totals(model),
@@ -308,19 +308,20 @@ struct ScanOutputs {
 // One record of a scan: forks of the run's sinks, decoded on a worker, joined back in order.
 class ScanJob final : public detail::PipelineJob {
 public:
-    ScanJob(ScanOutputs& run, std::vector<Decoder>& decoders, const std::string& input)
-        : run_(run), decoders_(decoders), input(input) {}
+    ScanJob(ScanOutputs& run, std::vector<Decoder>& decoders, const std::string& from)
+        : input(from), run_(run), decoders_(decoders) {}
     void fork_sinks() {
         caller = run_.caller.fork();
         totals = run_.totals.fork();
         if (run_.tracks) tracks = run_.tracks->fork();
-        progress = run_.progress.fork();
+        // A progress line counts every block into shared atomics: only when it is drawn.
+        if (run_.progress.enabled()) progress = run_.progress.fork();
         if (run_.html) html = run_.html->fork();
     }
     void decode(int worker, TaskPool* segments) override {
         std::vector<DecodeSink*> sinks = {caller.get(), totals.get()};
         if (tracks) sinks.push_back(tracks.get());
-        sinks.push_back(progress.get());
+        if (progress) sinks.push_back(progress.get());
         if (html) sinks.push_back(html.get());
         SinkFanout fanout(sinks);
         result = decoders_[static_cast<size_t>(worker)].run(contig, fanout, segments);
@@ -373,10 +374,12 @@ void ScanOutputs::finish(ScanJob& job) {
     bed.write(lines);
     if (gff3) gff3->write(gff_lines);
     write_size(contig);
-    if (log.level() >= LogLevel::verbose) progress.finish();
-    log.detail(fmt::format("{}: {} bp, {} unknown, GC {:.4f}, log-likelihood {:.4f}, {} calls",
-                           s.name, s.length, s.unknown, s.composition.gc_fraction(),
-                           s.log_likelihood, caller.calls().size()));
+    if (log.level() >= LogLevel::verbose) {  // formatted only when shown: a draft has 10^5 records
+        progress.finish();
+        log.detail(fmt::format("{}: {} bp, {} unknown, GC {:.4f}, log-likelihood {:.4f}, {} calls",
+                               s.name, s.length, s.unknown, s.composition.gc_fraction(),
+                               s.log_likelihood, caller.calls().size()));
+    }
     summary.add(s);
     if (keep_summaries) kept.push_back(s);
 }
@@ -525,8 +528,8 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     info.options = run_options(o, call_options);
     info.soft_masked_unknown = o.soft_masked == SoftMasked::unknown;
     if (o.shard.active())
-        info.shard_json =
-            shard_json(shard, *info.options, info.profile_checksum, run.kept, run.shared);
+        info.shard = std::make_shared<const nlohmann::ordered_json>(
+            shard_section(shard, *info.options, info.profile_checksum, run.kept, run.shared));
     if (!o.shard.active())  // a shard sees part of the input: merge judges the whole
         for (const DepletionWarning& w : run.summary.depletion_warnings()) log.warn(w.message);
     std::unique_ptr<OutputFile> summary, report;

@@ -564,9 +564,10 @@ ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where
     }
 }
 
-std::string shard_json(const ShardFilter& filter, const RunOptions& options,
-                       const std::string& profile_crc32, const std::vector<ContigSummary>& contigs,
-                       const std::vector<SplitRecord>& shared) {
+ordered_json shard_section(const ShardFilter& filter, const RunOptions& options,
+                           const std::string& profile_crc32,
+                           const std::vector<ContigSummary>& contigs,
+                           const std::vector<SplitRecord>& shared) {
     ordered_json o;
     o["index"] = filter.spec().index;
     o["count"] = filter.spec().count;
@@ -581,7 +582,7 @@ std::string shard_json(const ShardFilter& filter, const RunOptions& options,
     ordered_json parts = ordered_json::array();
     for (const auto& r : shared) parts.push_back(split_record_to_json(r));
     o["shared"] = parts;
-    return o.dump();
+    return o;
 }
 
 }  // namespace tidemark

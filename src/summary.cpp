@@ -513,7 +513,7 @@ void SummaryBuilder::write_document(const char* format, const RunInfo& info, boo
                  {"message", x.message}});
         doc["warnings"] = w;
     }
-    if (!info.shard_json.empty()) doc["shard"] = ordered_json::parse(info.shard_json);
+    if (info.shard) doc["shard"] = *info.shard;
     if (usage) {
         // Times differ between runs; keeping them in one object leaves the rest comparable.
         const double bases = static_cast<double>(total_.length);

@@ -40,6 +40,8 @@ public:
     std::unique_ptr<DecodeSink> fork() const override;
     /// Erases the line (call before printing anything else to stderr).
     void finish();
+    /// Whether the line is drawn (forks of a meter that is not need not be decoded into).
+    bool enabled() const;
 
     /// True when file descriptor 2 is a terminal and TERM is not "dumb".
     static bool stderr_is_terminal();

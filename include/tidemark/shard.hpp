@@ -232,11 +232,12 @@ SplitSegment describe_segment(const Contig& contig, size_t index, int64_t begin,
 /// The "shard" object of a shard's summary and report: index, count, records of the whole input,
 /// the effective options (a JSON object, so that merge can refuse shards of different runs even
 /// from summaries), and every ContigSummary field of this shard's contigs at full precision
-/// (what merge needs to rebuild the genome-wide totals exactly). Returned as JSON text.
+/// (what merge needs to rebuild the genome-wide totals exactly).
 /// Also the profile checksum (merge checks the profile it loads for split records against it);
 /// split records go under "shared".
-std::string shard_json(const ShardFilter& filter, const RunOptions& options,
-                       const std::string& profile_crc32, const std::vector<ContigSummary>& contigs,
-                       const std::vector<SplitRecord>& shared);
+nlohmann::ordered_json shard_section(const ShardFilter& filter, const RunOptions& options,
+                                     const std::string& profile_crc32,
+                                     const std::vector<ContigSummary>& contigs,
+                                     const std::vector<SplitRecord>& shared);
 
 }  // namespace tidemark

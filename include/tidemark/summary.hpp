@@ -5,6 +5,7 @@
 #include <cstdint>
 #include <functional>
 #include <memory>
+#include <nlohmann/json_fwd.hpp>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -94,7 +95,9 @@ struct RunInfo {
     std::string command_line;
     std::vector<std::string> inputs;
     std::optional<RunOptions> options;  ///< the effective options (reports); unset = none recorded
-    std::string shard_json;  ///< shard runs: what merge needs (shard.hpp); "" = not sharded
+    /// Shard runs: the "shard" section, what merge needs (shard.hpp: shard_section); null = not
+    /// sharded. The scale-out layer writes it; the summary only places it.
+    std::shared_ptr<const nlohmann::ordered_json> shard;
     bool soft_masked_unknown =
         false;  ///< lowercase bases were read as unknown (--soft-masked unknown)
 };
