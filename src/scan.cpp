@@ -383,19 +383,8 @@ void ScanOutputs::finish(ScanJob& job) {
     summary.add(s);
     if (keep_summaries) kept.push_back(s);
 }
-}  // namespace
-
-void run_scan(const ScanOptions& o, const Logger& log) {
-    const Stopwatch clock;
-    validate(o);
-    if (o.bgzip && o.output == "-" && o.emit_seams.empty())
-        log.warn(bgzip_to_stdout("-o/--output"));
-    const Profile profile = load_profile(o.profile);
-    const Model decoding_model = compile(profile);
-    // Window models decode one position per window; calls, tracks and totals see their
-    // posteriors base by base, one state per region (window.hpp).
-    const Model model = decoding_model.window > 0 ? region_view(decoding_model) : decoding_model;
-
+// The calling options: the profile's, overridden by the command line.
+CallOptions calling_options(const ScanOptions& o, const Profile& profile, const Model& model) {
     if (o.criteria != IslandCriteria::none &&
         std::find(model.region_names.begin(), model.region_names.end(), island_region_name) ==
             model.region_names.end())
@@ -409,6 +398,75 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     call_options.min_length = o.min_length.value_or(profile.calling.min_length);
     call_options.high_posterior = o.high_posterior;
     call_options.criteria = o.criteria;
+    return call_options;
+}
+
+std::vector<Decoder> make_decoders(const ScanOptions& o, const Model& decoding_model,
+                                   const DecoderOptions& options, int threads) {
+    std::vector<Decoder> decoders(static_cast<size_t>(threads));
+    for (auto& d : decoders) {
+        if (o.decode == DecodeMode::posterior)
+            d.posterior = std::make_unique<PosteriorDecoder>(decoding_model, options);
+        else
+            d.viterbi = std::make_unique<ViterbiDecoder>(decoding_model, options);
+        if (decoding_model.window > 0) d.window_model = &decoding_model;
+    }
+    return decoders;
+}
+
+// The summary, HTML page and report, then every output committed; the tables on stderr.
+void write_run_documents(ScanOutputs& run, const RunInfo& info, const Profile& profile,
+                         const CallOptions& call_options, const Stopwatch& clock) {
+    const ScanOptions& o = run.o;
+    const Model& model = run.model;
+    const Logger& log = run.log;
+    std::unique_ptr<OutputFile> summary, report;
+    if (!o.summary_path.empty()) {
+        summary = std::make_unique<OutputFile>(o.summary_path);
+        run.summary.write_summary(info, [&](std::string_view text) { summary->write(text); });
+    }
+    std::unique_ptr<OutputFile> page;
+    if (run.html) {
+        page = std::make_unique<OutputFile>(o.html_path);
+        page->write(format_html_report(
+            {&info, &profile, &model, &call_options, &run.kept, run.html.get()}));
+    }
+    // Commit only after everything has been computed and written.
+    if (run.tracks) run.tracks->close();
+    if (run.gff3) run.gff3->commit();
+    if (run.sizes) run.sizes->commit();
+    if (summary) summary->commit();
+    if (page) page->commit();
+    run.bed.commit();
+    const ResourceUsage usage = clock.now();
+    if (!o.report_path.empty()) {
+        report = std::make_unique<OutputFile>(o.report_path);
+        run.summary.write_report(info, usage, [&](std::string_view text) { report->write(text); });
+        report->commit();
+    }
+    if (log.level() >= LogLevel::verbose) {
+        std::string table;
+        run.summary.write_table([&](std::string_view text) { table += text; });
+        log.verbose_text(table);
+    }
+    if (log.level() >= LogLevel::normal)
+        std::fputs(run.summary.genome_table(usage).c_str(), stderr);
+}
+
+}  // namespace
+
+void run_scan(const ScanOptions& o, const Logger& log) {
+    const Stopwatch clock;
+    validate(o);
+    if (o.bgzip && o.output == "-" && o.emit_seams.empty())
+        log.warn(bgzip_to_stdout("-o/--output"));
+    const Profile profile = load_profile(o.profile);
+    const Model decoding_model = compile(profile);
+    // Window models decode one position per window; calls, tracks and totals see their
+    // posteriors base by base, one state per region (window.hpp).
+    const Model model = decoding_model.window > 0 ? region_view(decoding_model) : decoding_model;
+
+    const CallOptions call_options = calling_options(o, profile, model);
     log.detail(fmt::format(
         "profile {}: {} states, {} regions, max order {}; calling: min posterior {}, "
         "merge gap {}, min length {}",
@@ -434,14 +492,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     // With more than one thread, compressed input is inflated ahead of the parser on a thread of
     // its own (byte_source.hpp), off the decoding path.
     const detail::DecompressionThreads decompression(threads > 1 ? 1 : 0);
-    std::vector<Decoder> decoders(static_cast<size_t>(threads));
-    for (auto& d : decoders) {
-        if (o.decode == DecodeMode::posterior)
-            d.posterior = std::make_unique<PosteriorDecoder>(decoding_model, decoder_options);
-        else
-            d.viterbi = std::make_unique<ViterbiDecoder>(decoding_model, decoder_options);
-        if (decoding_model.window > 0) d.window_model = &decoding_model;
-    }
+    std::vector<Decoder> decoders = make_decoders(o, decoding_model, decoder_options, threads);
     const int64_t segment_length =
         decoders[0].posterior && !o.whole_contigs ? decoders[0].posterior->segment_length() : 0;
 
@@ -532,37 +583,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
             shard_section(shard, *info.options, info.profile_checksum, run.kept, run.shared));
     if (!o.shard.active())  // a shard sees part of the input: merge judges the whole
         for (const DepletionWarning& w : run.summary.depletion_warnings()) log.warn(w.message);
-    std::unique_ptr<OutputFile> summary, report;
-    if (!o.summary_path.empty()) {
-        summary = std::make_unique<OutputFile>(o.summary_path);
-        run.summary.write_summary(info, [&](std::string_view text) { summary->write(text); });
-    }
-    std::unique_ptr<OutputFile> page;
-    if (run.html) {
-        page = std::make_unique<OutputFile>(o.html_path);
-        page->write(format_html_report(
-            {&info, &profile, &model, &call_options, &run.kept, run.html.get()}));
-    }
-    // Commit only after everything has been computed and written.
-    if (run.tracks) run.tracks->close();
-    if (run.gff3) run.gff3->commit();
-    if (run.sizes) run.sizes->commit();
-    if (summary) summary->commit();
-    if (page) page->commit();
-    run.bed.commit();
-    const ResourceUsage usage = clock.now();
-    if (!o.report_path.empty()) {
-        report = std::make_unique<OutputFile>(o.report_path);
-        run.summary.write_report(info, usage, [&](std::string_view text) { report->write(text); });
-        report->commit();
-    }
-    if (log.level() >= LogLevel::verbose) {
-        std::string table;
-        run.summary.write_table([&](std::string_view text) { table += text; });
-        log.verbose_text(table);
-    }
-    if (log.level() >= LogLevel::normal)
-        std::fputs(run.summary.genome_table(usage).c_str(), stderr);
+    write_run_documents(run, info, profile, call_options, clock);
 }
 
 }  // namespace tidemark
