@@ -271,13 +271,15 @@ struct Vec<0> {
 // segmented (sweep_segments) decoding both run this, so they compute the same numbers. The
 // recursion vectors, the exponent and the last sum are locals (not the caller's) so that the
 // compiler can keep them in registers: it cannot know that they do not alias the block buffers.
+// Out of line: inlined into the segment sweep (decode_segments.cpp) it made the whole scan of
+// chrX 7-10 % slower than the segment sweep's own copy before the two were unified (user time,
+// alternating runs against a build of 802f571); one call per block costs nothing measurable.
 template <int Fixed>
-[[gnu::always_inline]] inline void sweep_block(const Model& m, const Contig& contig,
-                                               const double* A, bool sparse, const double* folded,
-                                               int64_t start, int64_t n, const uint32_t* rows,
-                                               const double* em, double* fw, double* bw,
-                                               double* post, double* forward_before,
-                                               int64_t& exponent_io, double& last_sum_io) {
+[[gnu::noinline]] void sweep_block(const Model& m, const Contig& contig, const double* A,
+                                   bool sparse, const double* folded, int64_t start, int64_t n,
+                                   const uint32_t* rows, const double* em, double* fw, double* bw,
+                                   double* post, double* forward_before, int64_t& exponent_io,
+                                   double& last_sum_io) {
     const int S = Fixed > 0 ? Fixed : m.states;
     int64_t exponent = exponent_io;
     double last_sum = last_sum_io;
