@@ -97,8 +97,9 @@ void IntervalCaller::join(DecodeSink& later) {
     auto* other = dynamic_cast<IntervalCaller*>(&later);
     if (!other) throw InternalError("IntervalCaller::join: not a fork of an IntervalCaller");
     if (other->ended_ || !contig_ || ended_) {  // a whole later contig
-        calls_ = std::move(other->calls_);
-        lanes_ = std::move(other->lanes_);
+        // Swapped: a fork reused for a later contig keeps these buffers (pipeline.hpp).
+        calls_.swap(other->calls_);
+        lanes_.swap(other->lanes_);
         contig_ = other->contig_;
         ended_ = other->ended_;
         return;

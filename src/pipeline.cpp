@@ -9,9 +9,9 @@ namespace tidemark::detail {
 
 namespace {
 
-// Finished records whose storage is kept for later ones: enough for the records in flight of a
-// run of long contigs; the storage of the many small records of a draft is cheap to allocate.
-constexpr size_t max_spare = 16;
+// Finished jobs kept for reuse. No more jobs exist at once than fit in the batches in flight, so
+// this only caps the list for drafts of tiny records.
+constexpr size_t max_finished = size_t{1} << 16;
 
 }  // namespace
 
@@ -23,15 +23,16 @@ DecodePipeline::DecodePipeline(int threads, AloneRule alone, int64_t batch_bases
 
 DecodePipeline::~DecodePipeline() = default;
 
-void DecodePipeline::reuse_storage(Contig& into) {
-    if (spare_.empty()) return;
-    into = std::move(spare_.back());
-    spare_.pop_back();
-    into.clear();
+std::unique_ptr<PipelineJob> DecodePipeline::reuse_finished() {
+    if (finished_.empty()) return nullptr;
+    std::unique_ptr<PipelineJob> job = std::move(finished_.back());
+    finished_.pop_back();
+    job->contig.clear();
+    return job;
 }
 
 void DecodePipeline::recycle(std::unique_ptr<PipelineJob> job) {
-    if (spare_.size() < max_spare) spare_.push_back(std::move(job->contig));
+    if (finished_.size() < max_finished) finished_.push_back(std::move(job));
 }
 
 void DecodePipeline::queue(std::unique_ptr<PipelineJob> job) {

@@ -46,9 +46,11 @@ public:
     /// few batches in flight hold a few Mbp of sequence.
     static constexpr int64_t default_batch_bases = int64_t{1} << 20;
 
-    /// Moves the storage of a finished record into `into` (cleared), so that reading the next
-    /// record allocates nothing; leaves `into` alone when there is none.
-    void reuse_storage(Contig& into);
+    /// A finished job to reuse for the next record, its contig cleared (its storage, and what
+    /// else the job keeps, such as sink forks, then serve again: a draft's 10^5 records would
+    /// otherwise allocate and free a few objects each, across threads); nullptr when none is
+    /// free. Jobs of one pipeline are of one type.
+    std::unique_ptr<PipelineJob> reuse_finished();
     /// Queues a job. Jobs queued earlier may be finished during the call. An error of a job
     /// (thrown by decode or finish) is rethrown here or by a later call, after every job queued
     /// before it has been finished, as with one thread.
@@ -76,7 +78,7 @@ private:
     std::unique_ptr<Batch> open_;  ///< the batch being filled
     int64_t open_bases_ = 0;
     std::deque<std::unique_ptr<Batch>> in_flight_;
-    std::vector<Contig> spare_;
+    std::vector<std::unique_ptr<PipelineJob>> finished_;
     TaskPool pool_;  ///< last: destroyed first, waiting for running batches while they exist
 };
 

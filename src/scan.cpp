@@ -308,14 +308,16 @@ struct ScanOutputs {
 // One record of a scan: forks of the run's sinks, decoded on a worker, joined back in order.
 class ScanJob final : public detail::PipelineJob {
 public:
-    ScanJob(ScanOutputs& run, std::vector<Decoder>& decoders, const std::string& from)
-        : input(from), run_(run), decoders_(decoders) {}
+    ScanJob(ScanOutputs& run, std::vector<Decoder>& decoders) : run_(run), decoders_(decoders) {}
+    /// Forks of the run's sinks for the next record. A reused job keeps its caller and totals
+    /// forks (they start afresh at every contig, and their joins swap buffers, so reuse
+    /// allocates nothing); track and report forks are made anew.
     void fork_sinks() {
-        caller = run_.caller.fork();
-        totals = run_.totals.fork();
+        if (!caller) caller = run_.caller.fork();
+        if (!totals) totals = run_.totals.fork();
         if (run_.tracks) tracks = run_.tracks->fork();
         // A progress line counts every block into shared atomics: only when it is drawn.
-        if (run_.progress.enabled()) progress = run_.progress.fork();
+        if (run_.progress.enabled() && !progress) progress = run_.progress.fork();
         if (run_.html) html = run_.html->fork();
     }
     void decode(int worker, TaskPool* segments) override {
@@ -328,7 +330,7 @@ public:
     }
     void finish() override { run_.finish(*this); }
 
-    const std::string& input;
+    const std::string* input = nullptr;  ///< the file the record comes from
     int64_t input_index = 0;
     std::unique_ptr<DecodeSink> caller, totals, tracks, progress, html;
     DecodeResult result;
@@ -349,7 +351,7 @@ void ScanOutputs::finish(ScanJob& job) {
     }
     if (contig.length == 0) {
         progress.finish();
-        log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(job.input),
+        log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(*job.input),
                              contig.name));
     }
     ContigSummary& s = record;
@@ -530,8 +532,10 @@ void run_scan(const ScanOptions& o, const Logger& log) {
         std::unique_ptr<SequenceSource> source = shard.open(input, regions);
         int64_t records = 0;
         for (;;) {
-            auto job = std::make_unique<ScanJob>(run, decoders, input);
-            pipeline.reuse_storage(job->contig);
+            std::unique_ptr<ScanJob> job(
+                static_cast<ScanJob*>(pipeline.reuse_finished().release()));
+            if (!job) job = std::make_unique<ScanJob>(run, decoders);
+            job->input = &input;
             bool more = false;
             try {
                 more = source->next(job->contig);

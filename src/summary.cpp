@@ -273,7 +273,7 @@ void RegionTotals::join(DecodeSink& later) {
     auto* other = dynamic_cast<RegionTotals*>(&later);
     if (!other) throw InternalError("RegionTotals::join: not a fork of a RegionTotals");
     if (other->ended_ || !begun_ || ended_) {
-        expected_ = std::move(other->expected_);
+        expected_.swap(other->expected_);  // a reused fork keeps the old buffer (pipeline.hpp)
         begun_ = other->begun_;
         ended_ = other->ended_;
         return;

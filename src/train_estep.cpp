@@ -301,6 +301,7 @@ public:
         decoders_[static_cast<size_t>(worker)]->run(contig, *acc_, segments);
     }
     void finish() override { total_.join(*acc_); }
+    void restart() { acc_ = total_.fork(); }
 
 private:
     std::vector<std::unique_ptr<PosteriorDecoder>>& decoders_;
@@ -352,8 +353,12 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
             pipeline.drain();
             return count_split(c, pipeline.pool());
         }
-        auto job = std::make_unique<CountJob>(decoders, total);
-        pipeline.reuse_storage(job->contig);
+        // A finished job's contig storage serves again; its counts are added, so a new fork.
+        std::unique_ptr<CountJob> job(static_cast<CountJob*>(pipeline.reuse_finished().release()));
+        if (job)
+            job->restart();
+        else
+            job = std::make_unique<CountJob>(decoders, total);
         copy_contig(c, job->contig);
         pipeline.queue(std::move(job));
     });

@@ -107,15 +107,20 @@ TEST_CASE("pipeline: an error comes after exactly the jobs queued before it") {
     }
 }
 
-TEST_CASE("pipeline: a finished record's storage serves the next one, cleared") {
+TEST_CASE("pipeline: a finished job serves the next record, its contig cleared") {
     DecodePipeline pipeline(2, nullptr, 1);
     Log log;
     log.had_pool.assign(2, false);
-    pipeline.queue(std::make_unique<RecordingJob>(log, 0, 3000, -1));
+    CHECK(pipeline.reuse_finished() == nullptr);
+    auto first = std::make_unique<RecordingJob>(log, 0, 3000, -1);
+    const PipelineJob* address = first.get();
+    pipeline.queue(std::move(first));
     pipeline.drain();
-    Contig next;
-    pipeline.reuse_storage(next);
-    CHECK(next.length == 0);
-    CHECK(next.name.empty());
+    const std::unique_ptr<PipelineJob> next = pipeline.reuse_finished();
+    REQUIRE(next != nullptr);
+    CHECK(next.get() == address);
+    CHECK(next->contig.length == 0);
+    CHECK(next->contig.name.empty());
+    CHECK(pipeline.reuse_finished() == nullptr);
     CHECK(log.finished == std::vector<int>{0});
 }
