@@ -91,7 +91,7 @@ check() {  # name fasta
     /usr/bin/python3 "$ROOT/scripts/bench/check_agreement.py" --tidemark-bedgraph "$out.tm.cpg_island.bedgraph" \
         --tidemark-summary "$out.tm.json" --tidemark-bed "$out.tm.bed" \
         --baseline-posteriors "$out.bl.tsv" --baseline-log "$out.bl.log" --baseline-bed "$out.bl.bed" \
-        --tolerance 1e-9 | tee -a "$DATA/agreement.txt" >&2
+        --fasta "$fasta" --tolerance 1e-9 | tee -a "$DATA/agreement.txt" >&2
 }
 : >"$DATA/agreement.txt"
 if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ]; then
