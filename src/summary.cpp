@@ -615,17 +615,4 @@ std::string report_json(const RunInfo& info, const Model& model,
     return collect([&](const SummaryBuilder::Writer& out) { run.write_report(info, usage, out); });
 }
 
-std::string summary_table(const Model& model, const std::vector<ContigSummary>& contigs) {
-    SummaryBuilder run(model, false, {false, false, true});
-    for (const auto& c : contigs) run.add(c);
-    return collect([&](const SummaryBuilder::Writer& out) { run.write_table(out); });
-}
-
-std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs,
-                         const ResourceUsage& usage) {
-    SummaryBuilder run(model, false, {});
-    for (const auto& c : contigs) run.add(c);
-    return run.genome_table(usage);
-}
-
 }  // namespace tidemark

@@ -160,7 +160,9 @@ public:
     using Writer = std::function<void(std::string_view)>;
     void write_summary(const RunInfo& info, const Writer& out) const;
     void write_report(const RunInfo& info, const ResourceUsage& usage, const Writer& out) const;
-    void write_table(const Writer& out) const;  ///< as summary_table
+    /// The verbose table: one line per record plus a total line.
+    void write_table(const Writer& out) const;
+    /// The genome-wide lines printed at the end of a run.
     std::string genome_table(const ResourceUsage& usage) const;
 
 private:
@@ -203,12 +205,5 @@ std::string summary_json(const RunInfo& info, const Model& model,
 /// peak memory.
 std::string report_json(const RunInfo& info, const Model& model,
                         const std::vector<ContigSummary>& contigs, const ResourceUsage& usage);
-
-/// One line per contig plus a total line.
-std::string summary_table(const Model& model, const std::vector<ContigSummary>& contigs);
-
-/// The genome-wide part only, for the end of a run.
-std::string genome_table(const Model& model, const std::vector<ContigSummary>& contigs,
-                         const ResourceUsage& usage);
 
 }  // namespace tidemark
