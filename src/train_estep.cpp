@@ -345,13 +345,21 @@ TrainingCounts expected_counts(const Profile& profile, TrainingData& data, int64
         });
         return total.counts();
     }
-    detail::DecodePipeline pipeline(T, [&](int64_t length) {
+    const auto alone = [&](int64_t length) {
         return decoders[0]->segment_count(length) >= 2 * static_cast<size_t>(T);
-    });
+    };
+    detail::DecodePipeline pipeline(T, alone);
     data.for_each([&](const Contig& c) {
         if (data.current_is_split()) {
             pipeline.drain();
             return count_split(c, pipeline.pool());
+        }
+        if (alone(c.length)) {  // decoded over the whole pool from the lent contig, not a copy
+            pipeline.drain();
+            const std::unique_ptr<DecodeSink> acc = total.fork();
+            decoders[0]->run(c, *acc, pipeline.pool());
+            total.join(*acc);
+            return;
         }
         // A finished job's contig storage serves again; its counts are added, so a new fork.
         std::unique_ptr<CountJob> job(static_cast<CountJob*>(pipeline.reuse_finished().release()));
