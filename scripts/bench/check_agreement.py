@@ -48,24 +48,29 @@ def read_baseline_posteriors(path, region):
     return out
 
 
-def long_gap_masks(path, min_run=100):
-    """Per record of a FASTA file (plain or gzip), True at bases in runs of >= min_run N."""
+def read_fasta(path):
+    """Per record of a FASTA file (plain or gzip), its sequence in upper case."""
     opener = gzip.open if path.endswith(".gz") else open
     seqs, name, parts = {}, None, []
     with opener(path, "rt") as f:
         for line in f:
             if line.startswith(">"):
                 if name is not None:
-                    seqs[name] = "".join(parts)
+                    seqs[name] = "".join(parts).upper()
                 name, parts = line[1:].split()[0], []
             else:
                 parts.append(line.strip())
     if name is not None:
-        seqs[name] = "".join(parts)
+        seqs[name] = "".join(parts).upper()
+    return seqs
+
+
+def long_gap_masks(path, min_run=100):
+    """Per record of a FASTA file (plain or gzip), True at bases in runs of >= min_run N."""
     masks = {}
-    for contig, seq in seqs.items():
+    for contig, seq in read_fasta(path).items():
         mask = np.zeros(len(seq), dtype=bool)
-        for m in re.finditer(r"[Nn]{%d,}" % min_run, seq):
+        for m in re.finditer(r"N{%d,}" % min_run, seq):
             mask[m.start():m.end()] = True
         masks[contig] = mask
     return masks

@@ -7,42 +7,16 @@ baseline does not have. So the baseline's calls without a CpG in the input are l
 comparing. Prints "yes" when the rest are identical, else "NO" and the first difference on
 stderr.
 """
-import gzip
 import sys
 
-
-def read_fasta(path):
-    opener = gzip.open if path.endswith(".gz") else open
-    seqs, name, parts = {}, None, []
-    with opener(path, "rt") as f:
-        for line in f:
-            if line.startswith(">"):
-                if name is not None:
-                    seqs[name] = "".join(parts).upper()
-                name, parts = line[1:].split()[0], []
-            else:
-                parts.append(line.strip())
-    if name is not None:
-        seqs[name] = "".join(parts).upper()
-    return seqs
-
-
-def calls(path):
-    out = []
-    with open(path) as f:
-        for line in f:
-            if line.startswith(("#", "track", "browser")) or not line.strip():
-                continue
-            chrom, start, end = line.split("\t")[:3]
-            out.append((chrom, int(start), int(end)))
-    return out
+from check_agreement import read_fasta, read_intervals
 
 
 def main():
     tidemark_bed, baseline_bed, fasta = sys.argv[1:4]
     seqs = read_fasta(fasta)
-    baseline = [c for c in calls(baseline_bed) if "CG" in seqs[c[0]][c[1]:c[2]]]
-    ours = calls(tidemark_bed)
+    baseline = [c for c in read_intervals(baseline_bed) if "CG" in seqs[c[0]][c[1]:c[2]]]
+    ours = read_intervals(tidemark_bed)
     if ours == baseline:
         print("yes")
         return
