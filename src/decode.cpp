@@ -110,6 +110,16 @@ std::vector<double> fold_transitions(const Model& m, const std::vector<double>& 
     return folded;
 }
 
+// folded with each S x S matrix transposed: the backward step's lanes load its columns.
+std::vector<double> transpose_each(const std::vector<double>& folded, int states) {
+    const size_t S = static_cast<size_t>(states);
+    std::vector<double> out(folded.size());
+    for (size_t r = 0; r < folded.size() / (S * S); ++r)
+        for (size_t i = 0; i < S; ++i)
+            for (size_t j = 0; j < S; ++j) out[(r * S + j) * S + i] = folded[(r * S + i) * S + j];
+    return out;
+}
+
 // Segments hold whole blocks except at their ends; 16 blocks make the matrix checkpoints and
 // the per-segment scheduling negligible next to the work.
 constexpr int64_t blocks_per_segment = 16;
@@ -125,6 +135,57 @@ int64_t choose_segment(const Model& m, int64_t block, const DecoderOptions& o) {
     return (want + multiple - 1) / multiple * multiple;
 }
 
+// c = b(pos - 1) from c = b(pos) on the transposed folded matrices (sweep 1 of unsplit
+// decoding), rescaled like every backward step.
+template <int S>
+[[gnu::always_inline]] inline void backward_step(const Model& m, const Contig& contig,
+                                                 const double* columns, uint32_t row, int64_t pos,
+                                                 Lanes<S>& c) {
+    Lanes<S> x;
+    backward_lanes<S>(columns + row * static_cast<size_t>(S * S), c, x);
+    c = x;
+    if (some_lane_at_least<S>(c, rescale_below)) return;
+    const double s = lane_sum<S>(c);
+    if (!(s > 0)) impossible(m, contig, pos);
+    if (s < rescale_below) rescale_lanes<S>(c, s);
+}
+
+// The steps of block [start, start + n): c = b(start + n - 1) on entry, b(start) on exit.
+// Compiled also for AVX2 (use_avx2_kernels).
+template <int S>
+[[gnu::always_inline]] inline void backward_steps_body(const Model& m, const Contig& contig,
+                                                       const double* columns, const uint32_t* rows,
+                                                       int64_t start, int64_t n, Lanes<S>& c) {
+    for (int64_t t = n - 2; t >= 0; --t)
+        backward_step<S>(m, contig, columns, rows[t + 1], start + t + 1, c);
+}
+
+template <int S>
+[[gnu::noinline]] void backward_steps_portable(const Model& m, const Contig& contig,
+                                               const double* columns, const uint32_t* rows,
+                                               int64_t start, int64_t n, Lanes<S>& c) {
+    backward_steps_body<S>(m, contig, columns, rows, start, n, c);
+}
+#if TIDEMARK_AVX2_KERNELS
+template <int S>
+[[gnu::noinline, gnu::target("avx2")]] void backward_steps_avx2(const Model& m,
+                                                                const Contig& contig,
+                                                                const double* columns,
+                                                                const uint32_t* rows, int64_t start,
+                                                                int64_t n, Lanes<S>& c) {
+    backward_steps_body<S>(m, contig, columns, rows, start, n, c);
+}
+#endif
+
+template <int S>
+void backward_steps(const Model& m, const Contig& contig, const double* columns,
+                    const uint32_t* rows, int64_t start, int64_t n, Lanes<S>& c) {
+#if TIDEMARK_AVX2_KERNELS
+    if (use_avx2_kernels()) return backward_steps_avx2<S>(m, contig, columns, rows, start, n, c);
+#endif
+    backward_steps_portable<S>(m, contig, columns, rows, start, n, c);
+}
+
 }  // namespace
 
 PosteriorDecoder::PosteriorDecoder(const Model& model, DecoderOptions options)
@@ -133,7 +194,8 @@ PosteriorDecoder::PosteriorDecoder(const Model& model, DecoderOptions options)
       segment_(choose_segment(model, block_, options)),
       fast_emission_(build_decoder_table(model)),
       folded_(model.states <= max_fixed_states ? fold_transitions(model, fast_emission_)
-                                               : std::vector<double>{}) {
+                                               : std::vector<double>{}),
+      folded_columns_(transpose_each(folded_, model.states)) {
     if (fast_emission_.empty() || folded_.empty()) segment_ = 0;
 }
 
@@ -173,7 +235,7 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     posterior_.resize(BS);
     checkpoints_.resize(static_cast<size_t>(blocks) * S);
     before_.resize(S);
-    Vec<Fixed> g(S), cur(S), fprev(S);
+    Vec<Fixed> fprev(S);
     // A local copy of the transitions: the compiler can then keep them in registers, knowing
     // that stores to the block buffers cannot change them.
     std::array<double, Fixed * Fixed> fixed_a{};
@@ -206,45 +268,32 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
             for (int s = 0; s < S; ++s) out[s] = src[s];
         }
     };
-    // out = F_row v (the backward step of sweep 1); sums in index order.
-    const auto folded_back = [&](uint32_t row, const double* v, double* out) {
-        const double* F = folded + static_cast<size_t>(row) * S * S;
-        for (int i = 0; i < S; ++i) {
-            double acc = F[i * S] * v[0];
-            for (int j = 1; j < S; ++j) acc += F[i * S + j] * v[j];
-            out[i] = acc;
-        }
-    };
-
     // Sweep 1, backward over the whole contig: keep the scaled backward vector at the last
-    // position of every block. cur carries b(t+1) across positions and blocks (the generic
-    // path carries g = e(t+1) * b(t+1) instead).
-    for (int64_t k = blocks - 1; k >= 0; --k) {
-        const int64_t start = k * B;
-        const int64_t n = std::min(B, N - start);
-        double* c = cur.data();
-        double* gg = g.data();
-        if constexpr (Fixed > 0) {
+    // position of every block. The fixed-size path carries b(t+1) across positions and blocks,
+    // the generic path g = e(t+1) * b(t+1).
+    if constexpr (Fixed > 0) {
+        const double* columns = folded_columns_.data();
+        Lanes<Fixed> c{};
+        for (int64_t k = blocks - 1; k >= 0; --k) {
+            const int64_t start = k * B;
+            const int64_t n = std::min(B, N - start);
             const uint32_t next_row = rows_[0];  // row of position start + n, from block k + 1
             fill_rows(start, n);
             if (start + n == N) {
-                for (int i = 0; i < S; ++i) c[i] = 1.0;
+                for (int i = 0; i < Fixed; ++i) c[i] = 1.0;
             } else {
-                folded_back(next_row, c, gg);
-                const double s = sum_of(gg, S);
-                if (!(s > 0)) impossible(m, contig, start + n);
-                if (s < rescale_below) rescale(gg, S, s);
-                copy_vec(gg, S, c);
+                backward_step<Fixed>(m, contig, columns, next_row, start + n, c);
             }
-            copy_vec(c, S, checkpoints_.data() + k * S);
-            for (int64_t t = n - 2; t >= 0; --t) {
-                folded_back(rows_[t + 1], c, gg);
-                const double s = sum_of(gg, S);
-                if (!(s > 0)) impossible(m, contig, start + t + 1);
-                if (s < rescale_below) rescale(gg, S, s);
-                copy_vec(gg, S, c);
-            }
-        } else {
+            store_lanes<Fixed>(c, checkpoints_.data() + k * S);
+            backward_steps<Fixed>(m, contig, columns, rows_.data(), start, n, c);
+        }
+    } else {
+        Vec<0> g(S), cur(S);
+        double* c = cur.data();
+        double* gg = g.data();
+        for (int64_t k = blocks - 1; k >= 0; --k) {
+            const int64_t start = k * B;
+            const int64_t n = std::min(B, N - start);
             fill_block(start, n);
             const double* em = emission_.data();
             for (int64_t t = n - 1; t >= 0; --t) {
@@ -252,7 +301,7 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
                 if (pos == N - 1) {
                     for (int i = 0; i < S; ++i) c[i] = 1.0;
                 } else {
-                    step_backward<Fixed>(m, A, sparse, gg, c);
+                    step_backward(m, A, sparse, gg, c);
                     const double s = sum_of(c, S);
                     if (!(s > 0)) impossible(m, contig, pos + 1);
                     if (s < rescale_below) rescale(c, S, s);
@@ -277,8 +326,9 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
         double* fw = forward_.data();
         copy_vec(checkpoints_.data() + k * S, S, bw + (n - 1) * S);
         if (k > 0) copy_vec(before_.data(), S, fprev.data());
-        sweep_block<Fixed>(m, contig, A, sparse, folded, start, n, rows_.data(), emission_.data(),
-                           fw, bw, posterior_.data(), fprev.data(), exponent, last_sum);
+        sweep_block<Fixed>({m, contig, A, sparse, folded, folded_columns_.data(), start, n,
+                            rows_.data(), emission_.data(), fw, bw, posterior_.data(), fprev.data(),
+                            exponent, last_sum});
         BlockView view;
         view.begin = start;
         view.size = n;

@@ -9,7 +9,9 @@
 #include <array>
 #include <bit>
 #include <cmath>
+#include <cstdlib>
 #include <cstring>
+#include <string_view>
 #include <type_traits>
 #include <vector>
 
@@ -70,12 +72,11 @@ inline bool use_sparse(const Model& m) {
     return 2 * m.in_from.size() < static_cast<size_t>(m.states) * static_cast<size_t>(m.states);
 }
 
-// out_j = sum_i prev_i A_ij
-template <int Fixed>
+// out_j = sum_i prev_i A_ij (the generic path; fixed-size models step in lanes)
 inline void step_forward(const Model& m, const double* A, bool sparse, const double* prev,
                          double* out) {
-    const int S = Fixed > 0 ? Fixed : m.states;
-    if (Fixed == 0 && sparse) {
+    const int S = m.states;
+    if (sparse) {
         for (int j = 0; j < S; ++j) {
             double acc = 0;
             for (int e = m.in_begin[j]; e < m.in_begin[j + 1]; ++e)
@@ -94,12 +95,11 @@ inline void step_forward(const Model& m, const double* A, bool sparse, const dou
     }
 }
 
-// out_i = sum_j A_ij g_j
-template <int Fixed>
+// out_i = sum_j A_ij g_j (the generic path)
 inline void step_backward(const Model& m, const double* A, bool sparse, const double* g,
                           double* out) {
-    const int S = Fixed > 0 ? Fixed : m.states;
-    if (Fixed == 0 && sparse) {
+    const int S = m.states;
+    if (sparse) {
         for (int i = 0; i < S; ++i) {
             double acc = 0;
             for (int e = m.out_begin[i]; e < m.out_begin[i + 1]; ++e)
@@ -139,9 +139,7 @@ inline double sum_of(const double* v, int S) {
 
 // p = f * b / (f . b), the posterior row from scaled forward and backward vectors; false when
 // f . b is not positive (the sequence is impossible there).
-template <int Fixed>
-inline bool combine_posterior(const double* f, const double* b, int states, double* p) {
-    const int S = Fixed > 0 ? Fixed : states;
+inline bool combine_posterior(const double* f, const double* b, int S, double* p) {
     double dot = f[0] * b[0];
     for (int i = 1; i < S; ++i) dot += f[i] * b[i];
     if (!(dot > 0)) return false;
@@ -260,87 +258,270 @@ struct Vec<0> {
 };
 
 // ---------------------------------------------------------------------------------------------
+// Lane vectors of the fixed-size recursions
+
+// An S-vector held as one GCC/Clang vector of S rounded up to a power of two lanes (spare lanes
+// hold 0). Vector operations are element-wise IEEE arithmetic, so each lane computes exactly
+// what a scalar loop computes for its index, in the same order: results are bit for bit those
+// of scalar code, whatever instructions the compiler picks (SSE2 pairs, AVX, NEON). Scalar code
+// left the compiler one double per instruction and spilled the 4 x 4 matrix sweep to the stack.
+using Lanes1 = double __attribute__((vector_size(1 * sizeof(double))));
+using Lanes2 = double __attribute__((vector_size(2 * sizeof(double))));
+using Lanes4 = double __attribute__((vector_size(4 * sizeof(double))));
+using Lanes8 = double __attribute__((vector_size(8 * sizeof(double))));
+template <int S>
+using Lanes = std::conditional_t<
+    S == 1, Lanes1, std::conditional_t<S == 2, Lanes2, std::conditional_t<S <= 4, Lanes4, Lanes8>>>;
+
+// The fixed-size kernels are compiled twice on x86-64: for the baseline instruction set (SSE2,
+// whose 16 registers hold a 4 x 4 matrix sweep only with spills to the stack) and for AVX2 (one
+// register per row of 4), chosen at run time. Each kernel is an always-inline body with two
+// out-of-line callers, one with the AVX2 target attribute; everything the body inlines is
+// compiled for its caller. No FMA: the AVX2 code does the same multiplications and additions,
+// so both give the same bits (whole scan of chrX 1-70 Mb, one thread: 2.3 s portable,
+// 1.5 s AVX2).
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
+#define TIDEMARK_AVX2_KERNELS 1
+// TIDEMARK_KERNELS=portable in the environment keeps the baseline build (tests and benchmarks
+// compare the two).
+inline bool use_avx2_kernels() {
+    static const bool yes = [] {
+        const char* choice = std::getenv("TIDEMARK_KERNELS");
+        return __builtin_cpu_supports("avx2") &&
+               !(choice && std::string_view(choice) == "portable");
+    }();
+    return yes;
+}
+#else
+#define TIDEMARK_AVX2_KERNELS 0
+inline bool use_avx2_kernels() {
+    return false;
+}
+#endif
+
+// Vectors go by reference, never by value: a by-value vector's calling convention depends on
+// the instruction set, and these helpers must mean the same in every translation unit.
+template <int S>
+[[gnu::always_inline]] inline void load_lanes(const double* p, Lanes<S>& v) {
+    v = Lanes<S>{};
+    std::memcpy(&v, p, S * sizeof(double));
+}
+
+template <int S>
+[[gnu::always_inline]] inline void store_lanes(const Lanes<S>& v, double* p) {
+    std::memcpy(p, &v, S * sizeof(double));
+}
+
+// The sum of the S lanes in index order (sum_of's order).
+template <int S>
+[[gnu::always_inline]] inline double lane_sum(const Lanes<S>& v) {
+    double s = v[0];
+    for (int i = 1; i < S; ++i) s += v[i];
+    return s;
+}
+
+// x = f F (the forward step on a folded matrix): lane j is sum_i f_i F_ij, summed in i order.
+template <int S>
+[[gnu::always_inline]] inline void forward_lanes(const double* F, const Lanes<S>& f, Lanes<S>& x) {
+    Lanes<S> row;
+    load_lanes<S>(F, row);
+    x = f[0] * row;
+    for (int i = 1; i < S; ++i) {
+        load_lanes<S>(F + i * S, row);
+        x += f[i] * row;
+    }
+}
+
+// x = F b (the backward step), from the transposed matrix C (C_ji = F_ij): lane i is
+// sum_j F_ij b_j, summed in j order.
+template <int S>
+[[gnu::always_inline]] inline void backward_lanes(const double* C, const Lanes<S>& b, Lanes<S>& x) {
+    Lanes<S> column;
+    load_lanes<S>(C, column);
+    x = column * b[0];
+    for (int j = 1; j < S; ++j) {
+        load_lanes<S>(C + j * S, column);
+        x += column * b[j];
+    }
+}
+
+// True when some lane is at least `bound`. A sum of non-negative numbers, rounded in any order,
+// is at least its largest term, so then the ordered sum (lane_sum) is too: a test without the
+// ordered sum's chain of dependent additions that settles most steps' rescaling check.
+template <int S>
+[[gnu::always_inline]] inline bool some_lane_at_least(const Lanes<S>& v, double bound) {
+    const auto at_least = v >= bound;  // lanes of -1 (true) or 0
+    auto any = at_least[0];
+    for (int i = 1; i < S; ++i) any |= at_least[i];
+    return any != 0;
+}
+
+// rescale() for lanes.
+template <int S>
+[[gnu::always_inline]] inline int rescale_lanes(Lanes<S>& v, double sum) {
+    const int e = exponent_of(sum);
+    v *= pow2(-e);
+    return e;
+}
+
+// ---------------------------------------------------------------------------------------------
 // The block sweep
 
 // The forward sweep over one block [start, start + n) with the block's backward vectors rebuilt
 // from its checkpoint (bw row n-1 on entry): the two recursions interleaved (interleaved_block),
 // posteriors into post. fp holds the forward vector before the block on entry (unused at
 // position 0) and the block's last on exit; exponent and last_sum follow the forward
-// recursion's rescaling. Fixed > 0 steps with the folded matrices of each position's table row
-// (rows); Fixed = 0 with A (dense or sparse) and the emission rows em. Unsplit (run_fixed) and
-// segmented (sweep_segments) decoding both run this, so they compute the same numbers. The
-// recursion vectors, the exponent and the last sum are locals (not the caller's) so that the
-// compiler can keep them in registers: it cannot know that they do not alias the block buffers.
-// Out of line: inlined into the segment sweep (decode_segments.cpp) it made the whole scan of
-// chrX 7-10 % slower than the segment sweep's own copy before the two were unified (user time,
-// alternating runs against a build of 802f571); one call per block costs nothing measurable.
+// recursion's rescaling. Fixed > 0 steps in lanes with the folded matrices of each position's
+// table row (rows; their transposes, columns, for the backward steps); Fixed = 0 with A (dense
+// or sparse) and the emission rows em. Unsplit (run_fixed) and segmented (sweep_segments)
+// decoding both run this, so they compute the same numbers. The recursion vectors and the
+// exponent are locals (not the caller's) so that the compiler can keep them in registers: it
+// cannot know that they do not alias the block buffers.
+// Out of line (sweep_block_portable, sweep_block_avx2): inlined into the segment sweep
+// (decode_segments.cpp) it made the whole scan of chrX 7-10 % slower than the segment sweep's
+// own copy before the two were unified; one call per block costs nothing measurable.
+struct BlockSweep {
+    const Model& m;
+    const Contig& contig;
+    const double* A;        ///< transitions (generic path)
+    bool sparse;            ///< A as incoming/outgoing lists (generic path)
+    const double* folded;   ///< folded matrices per table row (fixed-size path)
+    const double* columns;  ///< their transposes (fixed-size path)
+    int64_t start, n;
+    const uint32_t* rows;
+    const double* em;
+    double *fw, *bw, *post;
+    double* forward_before;
+    int64_t& exponent_io;
+    double& last_sum_io;
+};
+
 template <int Fixed>
-[[gnu::noinline]] void sweep_block(const Model& m, const Contig& contig, const double* A,
-                                   bool sparse, const double* folded, int64_t start, int64_t n,
-                                   const uint32_t* rows, const double* em, double* fw, double* bw,
-                                   double* post, double* forward_before, int64_t& exponent_io,
-                                   double& last_sum_io) {
-    const int S = Fixed > 0 ? Fixed : m.states;
-    int64_t exponent = exponent_io;
-    double last_sum = last_sum_io;
-    Vec<Fixed> fpv(S), xv(S), bnv(S), ggv(S);
-    double* fp = fpv.data();
-    double* x = xv.data();
-    double* bn = bnv.data();
-    double* gg = ggv.data();
-    copy_vec(forward_before, S, fp);
-    copy_vec(bw + (n - 1) * S, S, bn);
-    const auto forward_at = [&](int64_t t) {
-        const int64_t pos = start + t;
-        if (pos == 0) {
-            const double* e = em + t * S;
-            for (int i = 0; i < S; ++i) x[i] = m.initial[i] * e[i];
-        } else if constexpr (Fixed > 0) {
-            const double* F = folded + static_cast<size_t>(rows[t]) * S * S;
-            for (int j = 0; j < S; ++j) x[j] = fp[0] * F[j];
-            for (int i = 1; i < S; ++i)
-                for (int j = 0; j < S; ++j) x[j] += fp[i] * F[i * S + j];
-        } else {
-            step_forward<Fixed>(m, A, sparse, fp, x);
-            const double* e = em + t * S;
-            for (int i = 0; i < S; ++i) x[i] *= e[i];
-        }
-        double s = sum_of(x, S);
-        if (!(s > 0)) impossible(m, contig, pos);
-        if (s < rescale_below) {
-            exponent += rescale(x, S, s);
-            s = sum_of(x, S);
-        }
-        last_sum = s;
-        double* f = fw + t * S;
-        for (int i = 0; i < S; ++i) f[i] = fp[i] = x[i];
-    };
-    const auto backward_at = [&](int64_t u) {  // from bn = backward at u + 1
-        if constexpr (Fixed > 0) {
-            const double* F = folded + static_cast<size_t>(rows[u + 1]) * S * S;
-            for (int i = 0; i < S; ++i) {
-                double acc = F[i * S] * bn[0];
-                for (int j = 1; j < S; ++j) acc += F[i * S + j] * bn[j];
-                gg[i] = acc;
+[[gnu::always_inline]] inline void sweep_block_body(const BlockSweep& a) {
+    const Model& m = a.m;
+    const Contig& contig = a.contig;
+    const int64_t start = a.start, n = a.n;
+    const uint32_t* rows = a.rows;
+    const double* em = a.em;
+    double *fw = a.fw, *bw = a.bw, *post = a.post;
+    int64_t exponent = a.exponent_io;
+    if constexpr (Fixed > 0) {
+        constexpr int S = Fixed;
+        constexpr size_t SS = static_cast<size_t>(S) * S;
+        using V = Lanes<S>;
+        const double* folded = a.folded;
+        const double* columns = a.columns;
+        V fp, bn;
+        load_lanes<S>(a.forward_before, fp);
+        load_lanes<S>(bw + (n - 1) * S, bn);
+        const auto forward_at = [&](int64_t t) __attribute__((always_inline)) {
+            const int64_t pos = start + t;
+            V x;
+            if (pos == 0) {
+                V e;
+                load_lanes<S>(m.initial.data(), x);
+                load_lanes<S>(em + t * S, e);
+                x *= e;
+            } else {
+                forward_lanes<S>(folded + rows[t] * SS, fp, x);
             }
-            copy_vec(gg, S, bn);
-        } else {
+            if (!some_lane_at_least<S>(x, rescale_below)) {
+                const double s = lane_sum<S>(x);
+                if (!(s > 0)) impossible(m, contig, pos);
+                if (s < rescale_below) exponent += rescale_lanes<S>(x, s);
+            }
+            store_lanes<S>(x, fw + t * S);
+            fp = x;
+        };
+        const auto backward_at = [&](int64_t u) __attribute__((always_inline)) {
+            V x;  // from bn = backward at u + 1
+            backward_lanes<S>(columns + rows[u + 1] * SS, bn, x);
+            bn = x;
+            if (!some_lane_at_least<S>(bn, rescale_below)) {
+                const double s = lane_sum<S>(bn);
+                if (s < rescale_below) rescale_lanes<S>(bn, s);
+            }
+            store_lanes<S>(bn, bw + u * S);
+        };
+        const auto posterior_at = [&](int64_t t) __attribute__((always_inline)) {
+            V both, b;
+            load_lanes<S>(fw + t * S, both);
+            load_lanes<S>(bw + t * S, b);
+            both *= b;
+            const double dot = lane_sum<S>(both);
+            if (!(dot > 0)) impossible(m, contig, start + t);
+            store_lanes<S>(both * (1.0 / dot), post + t * S);
+        };
+        interleaved_block(n, forward_at, backward_at, posterior_at);
+        store_lanes<S>(fp, a.forward_before);
+        a.last_sum_io = lane_sum<S>(fp);  // the last step's sum, after any rescaling
+    } else {
+        const int S = m.states;
+        const double* A = a.A;
+        const bool sparse = a.sparse;
+        double last_sum = a.last_sum_io;
+        Vec<0> fpv(S), xv(S), bnv(S), ggv(S);
+        double* fp = fpv.data();
+        double* x = xv.data();
+        double* bn = bnv.data();
+        double* gg = ggv.data();
+        copy_vec(a.forward_before, S, fp);
+        copy_vec(bw + (n - 1) * S, S, bn);
+        const auto forward_at = [&](int64_t t) {
+            const int64_t pos = start + t;
+            const double* e = em + t * S;
+            if (pos == 0) {
+                for (int i = 0; i < S; ++i) x[i] = m.initial[i] * e[i];
+            } else {
+                step_forward(m, A, sparse, fp, x);
+                for (int i = 0; i < S; ++i) x[i] *= e[i];
+            }
+            double s = sum_of(x, S);
+            if (!(s > 0)) impossible(m, contig, pos);
+            if (s < rescale_below) {
+                exponent += rescale(x, S, s);
+                s = sum_of(x, S);
+            }
+            last_sum = s;
+            double* f = fw + t * S;
+            for (int i = 0; i < S; ++i) f[i] = fp[i] = x[i];
+        };
+        const auto backward_at = [&](int64_t u) {  // from bn = backward at u + 1
             const double* e = em + (u + 1) * S;
             for (int i = 0; i < S; ++i) gg[i] = e[i] * bn[i];
-            step_backward<Fixed>(m, A, sparse, gg, bn);
-        }
-        const double s = sum_of(bn, S);
-        if (s < rescale_below) rescale(bn, S, s);
-        copy_vec(bn, S, bw + u * S);
-    };
-    const auto posterior_at = [&](int64_t t) {
-        if (!combine_posterior<Fixed>(fw + t * S, bw + t * S, S, post + t * S))
-            impossible(m, contig, start + t);
-    };
-    interleaved_block(n, forward_at, backward_at, posterior_at);
-    copy_vec(fp, S, forward_before);
-    exponent_io = exponent;
-    last_sum_io = last_sum;
+            step_backward(m, A, sparse, gg, bn);
+            const double s = sum_of(bn, S);
+            if (s < rescale_below) rescale(bn, S, s);
+            copy_vec(bn, S, bw + u * S);
+        };
+        const auto posterior_at = [&](int64_t t) {
+            if (!combine_posterior(fw + t * S, bw + t * S, S, post + t * S))
+                impossible(m, contig, start + t);
+        };
+        interleaved_block(n, forward_at, backward_at, posterior_at);
+        copy_vec(fp, S, a.forward_before);
+        a.last_sum_io = last_sum;
+    }
+    a.exponent_io = exponent;
+}
+
+template <int Fixed>
+[[gnu::noinline]] void sweep_block_portable(const BlockSweep& a) {
+    sweep_block_body<Fixed>(a);
+}
+#if TIDEMARK_AVX2_KERNELS
+template <int Fixed>
+[[gnu::noinline, gnu::target("avx2")]] void sweep_block_avx2(const BlockSweep& a) {
+    sweep_block_body<Fixed>(a);
+}
+#endif
+
+template <int Fixed>
+void sweep_block(const BlockSweep& a) {
+#if TIDEMARK_AVX2_KERNELS
+    if (Fixed > 0 && use_avx2_kernels()) return sweep_block_avx2<Fixed>(a);
+#endif
+    sweep_block_portable<Fixed>(a);
 }
 
 // Posterior decoding of a window model (decode_windows.cpp), with the forward and backward

@@ -35,38 +35,47 @@ namespace {
 // sweep's step); returns the exponent removed by rescaling. M is row-major S x S; its columns
 // are independent vector recursions, so a step costs about as much time as one vector step of
 // the sequential sweep. Sets failed = k when the k-th step makes the matrix all zero (the
-// contig is impossible).
+// contig is impossible). The matrix rows are lanes (Lanes): row i of the product is
+// sum_j F_ij W_j, summed in j order as the scalar loop summed each entry.
 template <int S, typename RowAt>
-inline int64_t matrix_steps(const double* folded, int64_t count, RowAt row_at, double* M,
-                            int64_t& failed) {
-    constexpr int SS = S * S;
-    double W[SS];
-    for (int q = 0; q < SS; ++q) W[q] = M[q];
+[[gnu::always_inline]] inline int64_t matrix_steps(const double* folded, int64_t count,
+                                                   RowAt row_at, double* M, int64_t& failed) {
+    using V = Lanes<S>;
+    constexpr size_t SS = static_cast<size_t>(S) * S;
+    V W[S];
+    for (int i = 0; i < S; ++i) load_lanes<S>(M + i * S, W[i]);
     int64_t exponent = 0;
     for (int64_t k = 0; k < count; ++k) {
-        const double* F = folded + static_cast<size_t>(row_at(k)) * SS;
-        double T[SS];
-        for (int i = 0; i < S; ++i)
-            for (int c = 0; c < S; ++c) {
-                double acc = F[i * S] * W[c];
-                for (int j = 1; j < S; ++j) acc += F[i * S + j] * W[j * S + c];
-                T[i * S + c] = acc;
+        const double* F = folded + row_at(k) * SS;
+        V T[S];
+        for (int i = 0; i < S; ++i) {
+            T[i] = F[i * S] * W[0];
+            for (int j = 1; j < S; ++j) T[i] += F[i * S + j] * W[j];
+        }
+        // Rescaling is decided on the sum of the S x S entries in row-major order, a chain of
+        // S * S - 1 dependent additions (a fifth of the step's time at S = 4), formed only
+        // when no entry reaches the threshold (some_lane_at_least).
+        bool large = some_lane_at_least<S>(T[0], rescale_below);
+        for (int i = 1; i < S; ++i) large |= some_lane_at_least<S>(T[i], rescale_below);
+        if (!large) [[unlikely]] {
+            double entries[SS];
+            for (int i = 0; i < S; ++i) store_lanes<S>(T[i], entries + i * S);
+            double s = entries[0];
+            for (size_t q = 1; q < SS; ++q) s += entries[q];
+            if (!(s > 0)) {
+                failed = k;
+                break;
             }
-        double s = T[0];
-        for (int q = 1; q < SS; ++q) s += T[q];
-        if (!(s > 0)) {
-            failed = k;
-            break;
+            if (s < rescale_below) {
+                const int e = exponent_of(s);
+                const double f = pow2(-e);
+                for (int i = 0; i < S; ++i) T[i] *= f;
+                exponent += e;
+            }
         }
-        if (s < rescale_below) {
-            const int e = exponent_of(s);
-            const double f = pow2(-e);
-            for (int q = 0; q < SS; ++q) T[q] *= f;
-            exponent += e;
-        }
-        for (int q = 0; q < SS; ++q) W[q] = T[q];
+        for (int i = 0; i < S; ++i) W[i] = T[i];
     }
-    for (int q = 0; q < SS; ++q) M[q] = W[q];
+    for (int i = 0; i < S; ++i) store_lanes<S>(W[i], M + i * S);
     return exponent;
 }
 
@@ -78,14 +87,42 @@ inline int64_t matrix_step(const double* folded, uint32_t row, double* M, int64_
 }
 
 // The steps of one block: M_t = F_{rows[t+1]} M_{t+1} for t = n-2 down to 0. On failure,
-// failed = the position (in the block) whose row made the matrix zero.
+// failed = the position (in the block) whose row made the matrix zero. The bulk of the matrix
+// sweep, so compiled also for AVX2 (use_avx2_kernels).
 template <int S>
-inline int64_t matrix_steps_back(const double* folded, const uint32_t* rows, int64_t n, double* M,
-                                 int64_t& failed) {
+[[gnu::always_inline]] inline int64_t matrix_steps_back_body(const double* folded,
+                                                             const uint32_t* rows, int64_t n,
+                                                             double* M, int64_t& failed) {
     const int64_t exponent = matrix_steps<S>(
-        folded, n - 1, [rows, n](int64_t k) { return rows[n - 1 - k]; }, M, failed);
+        folded, n - 1,
+        [ rows, n ](int64_t k) __attribute__((always_inline)) { return rows[n - 1 - k]; }, M,
+        failed);
     if (failed >= 0) failed = n - 1 - failed;
     return exponent;
+}
+
+template <int S>
+[[gnu::noinline]] int64_t matrix_steps_back_portable(const double* folded, const uint32_t* rows,
+                                                     int64_t n, double* M, int64_t& failed) {
+    return matrix_steps_back_body<S>(folded, rows, n, M, failed);
+}
+#if TIDEMARK_AVX2_KERNELS
+template <int S>
+[[gnu::noinline, gnu::target("avx2")]] int64_t matrix_steps_back_avx2(const double* folded,
+                                                                      const uint32_t* rows,
+                                                                      int64_t n, double* M,
+                                                                      int64_t& failed) {
+    return matrix_steps_back_body<S>(folded, rows, n, M, failed);
+}
+#endif
+
+template <int S>
+int64_t matrix_steps_back(const double* folded, const uint32_t* rows, int64_t n, double* M,
+                          int64_t& failed) {
+#if TIDEMARK_AVX2_KERNELS
+    if (use_avx2_kernels()) return matrix_steps_back_avx2<S>(folded, rows, n, M, failed);
+#endif
+    return matrix_steps_back_portable<S>(folded, rows, n, M, failed);
 }
 
 }  // namespace
@@ -285,8 +322,9 @@ DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<
                 if (s < rescale_below) rescale(c, S, s);
             }
             copy_vec(fp.data(), S, before.data());
-            sweep_block<Fixed>(m, contig, nullptr, false, folded, start, n, rows, em, fw, bw,
-                               ws.posterior.data(), fp.data(), exponent, last_sum);
+            sweep_block<Fixed>({m, contig, nullptr, false, folded, folded_columns_.data(), start, n,
+                                rows, em, fw, bw, ws.posterior.data(), fp.data(), exponent,
+                                last_sum});
             BlockView view;
             view.begin = start;
             view.size = n;

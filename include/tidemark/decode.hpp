@@ -182,10 +182,11 @@ private:
     int64_t block_ = 0;
     int64_t segment_ = 0;                                 ///< segment length; 0 = never split
     std::vector<std::unique_ptr<Workspace>> workspaces_;  ///< one per pool worker
-    std::vector<double> fast_emission_;  ///< emission rows: full contexts, [(ctx * 4 + base) * S
-                                         ///< + s], then unknown bases and short contexts
-    std::vector<double> folded_;         ///< per emission row r: A[i][j] * e_r[j], S x S (S <= 6)
-    std::vector<uint32_t> rows_;         ///< emission row of each position of the current block
+    std::vector<double> fast_emission_;   ///< emission rows: full contexts, [(ctx * 4 + base) * S
+                                          ///< + s], then unknown bases and short contexts
+    std::vector<double> folded_;          ///< per emission row r: A[i][j] * e_r[j], S x S (S <= 6)
+    std::vector<double> folded_columns_;  ///< folded_ with each matrix transposed
+    std::vector<uint32_t> rows_;          ///< emission row of each position of the current block
     std::vector<uint8_t> bases_;
     std::vector<double> emission_, forward_, backward_, posterior_, checkpoints_, before_;
 };

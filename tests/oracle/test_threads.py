@@ -1,7 +1,10 @@
 """scan and fit with --threads 1, 2 and 3 against each other (every output byte for byte, the
 report apart from its "resources"), on many contigs and on one contig long enough to be decoded
-in segments; and the segmented posteriors against numpy's own forward-backward in log space."""
+in segments; the same with the portable decoder kernels (TIDEMARK_KERNELS=portable) against the
+ones chosen for this processor (AVX2 where it has it); and the segmented posteriors of both
+against numpy's own scaled forward-backward."""
 
+import contextlib
 import json
 import os
 
@@ -11,6 +14,17 @@ import tmtest
 
 ONE = "the same command with --threads 1 (outputs must not depend on the thread count)"
 NUMPY = "scaled forward-backward written here in numpy (independent of tidemark)"
+KERNELS = ("the same command with the kernels chosen for this processor (both kernels do the same IEEE "
+           "multiplications and additions in the same order, so their bits must agree)")
+
+
+@contextlib.contextmanager
+def portable_kernels():
+    os.environ["TIDEMARK_KERNELS"] = "portable"
+    try:
+        yield
+    finally:
+        del os.environ["TIDEMARK_KERNELS"]
 
 
 def records(rng, lengths, prefix):
@@ -108,6 +122,11 @@ def body(checks, binary, workdir):
             checks.equal(sorted(other), sorted(base), f"{tag}: same output files with --threads {threads}", ONE)
             for name in sorted(base):
                 checks.check(other.get(name) == base[name], f"{tag}: {name} identical with --threads {threads}", ONE)
+        with portable_kernels():
+            other = outputs(binary, workdir, tag + "-portable", fasta, 2, extra)
+        checks.equal(sorted(other), sorted(base), f"{tag}: same output files with portable kernels", KERNELS)
+        for name in sorted(base):
+            checks.check(other.get(name) == base[name], f"{tag}: {name} identical with portable kernels", KERNELS)
 
     # fit: the E-step in a pool; the fitted profile (with provenance) must not change.
     def fit(threads, fasta, iterations):
@@ -119,6 +138,8 @@ def body(checks, binary, workdir):
     base = fit(1, many, 2)
     for threads in (2, 3):
         checks.check(fit(threads, many, 2) == base, f"fitted profile identical with --threads {threads}", ONE)
+    with portable_kernels():
+        checks.check(fit(2, many, 2) == base, "fitted profile identical with portable kernels", KERNELS)
     base = fit(1, long_fa, 1)
     checks.check(fit(2, long_fa, 1) == base, "fit on one long (segmented) contig identical with --threads 2", ONE)
 
@@ -128,21 +149,24 @@ def body(checks, binary, workdir):
     tmtest.write_fasta(small, [(name, seq)])
     profile = json.loads(tmtest.run(binary, ["profiles", "show", "cpg-island"]))
     want, ll = numpy_posteriors(profile, seq)
-    prefix = os.path.join(workdir, "seg")
-    tmtest.run(binary, ["scan", "-q", "-t", "2", small, "-o", prefix + ".bed", "--block", "160",
-                        "--posteriors", prefix, "--posterior-digits", "12", "--summary", prefix + ".json"])
-    got = tmtest.read_bedgraph(prefix + ".cpg_island.bedgraph", {name: len(seq)})[name]
     region_of = [s["region"] for s in profile["states"]]
     expect = sum(want[:, i] for i, r in enumerate(region_of) if r == "cpg_island")
     gap = tmtest.long_unknown_runs(seq)  # left out of tracks (README)
-    checks.check(np.array_equal(np.isnan(got), gap), "segmented track covers all but the long unknown runs",
-                 "unknown runs counted in Python")
-    got, expect = got[~gap], expect[~gap]
-    checks.at_most(float(np.max(np.abs(got - expect))), 1e-9 + 0.5e-12,
-                   "segmented P(cpg_island) per base (12 digits) vs numpy", NUMPY)
-    summary = tmtest.read_json(prefix + ".json")
-    got_ll = summary["contigs"][0]["log_likelihood"]
-    checks.at_most(abs(got_ll - ll) / abs(ll), 1e-9, "segmented log-likelihood vs numpy (relative)", NUMPY)
+    for kernels in ("chosen", "portable"):
+        prefix = os.path.join(workdir, "seg-" + kernels)
+        with portable_kernels() if kernels == "portable" else contextlib.nullcontext():
+            tmtest.run(binary, ["scan", "-q", "-t", "2", small, "-o", prefix + ".bed", "--block", "160",
+                                "--posteriors", prefix, "--posterior-digits", "12", "--summary", prefix + ".json"])
+        got = tmtest.read_bedgraph(prefix + ".cpg_island.bedgraph", {name: len(seq)})[name]
+        checks.check(np.array_equal(np.isnan(got), gap),
+                     f"segmented track covers all but the long unknown runs ({kernels} kernels)",
+                     "unknown runs counted in Python")
+        checks.at_most(float(np.max(np.abs(got[~gap] - expect[~gap]))), 1e-9 + 0.5e-12,
+                       f"segmented P(cpg_island) per base (12 digits) vs numpy ({kernels} kernels)", NUMPY)
+        summary = tmtest.read_json(prefix + ".json")
+        got_ll = summary["contigs"][0]["log_likelihood"]
+        checks.at_most(abs(got_ll - ll) / abs(ll), 1e-9,
+                       f"segmented log-likelihood vs numpy, relative ({kernels} kernels)", NUMPY)
 
 
 if __name__ == "__main__":
