@@ -145,26 +145,32 @@ size_t PosteriorDecoder::segment_count(int64_t length) const {
     return splits(length) ? static_cast<size_t>((length + segment_ - 1) / segment_) : 1;
 }
 
-// Runs task(k, workspace) for k in [first, last), in parallel when there is a pool; waits for
-// all of them, then rethrows the first failure in segment order.
-void PosteriorDecoder::size_workspaces(TaskPool* pool) {
+void PosteriorDecoder::make_workspaces(TaskPool* pool) {
     const int workers = pool ? pool->threads() : 1;
     while (static_cast<int>(workspaces_.size()) < workers)
         workspaces_.push_back(std::make_unique<Workspace>());
-    for (auto& w : workspaces_) w->size(std::min(block_, segment_), model_.states);
 }
 
+PosteriorDecoder::Workspace& PosteriorDecoder::sized_workspace(int worker) {
+    // Sized by the worker that uses it, not up front: a chromosome's first segments then do not
+    // wait for the zeroing of every worker's buffers (2 % of a 2-thread scan of chrX).
+    Workspace& w = *workspaces_[static_cast<size_t>(worker)];
+    w.size(std::min(block_, segment_), model_.states);
+    return w;
+}
+
+// Runs task(k, workspace) for k in [first, last), in parallel when there is a pool; waits for
+// all of them, then rethrows the first failure in segment order.
 void PosteriorDecoder::for_segments(size_t first, size_t last, TaskPool* pool,
                                     const std::function<void(size_t, Workspace&)>& task) {
-    size_workspaces(pool);
+    make_workspaces(pool);
     if (!pool) {
-        for (size_t k = first; k < last; ++k) task(k, *workspaces_[0]);
+        for (size_t k = first; k < last; ++k) task(k, sized_workspace(0));
         return;
     }
     std::vector<std::future<void>> done;
     for (size_t k = first; k < last; ++k)
-        done.push_back(
-            pool->submit([&, k](int w) { task(k, *workspaces_[static_cast<size_t>(w)]); }));
+        done.push_back(pool->submit([&, k](int w) { task(k, sized_workspace(w)); }));
     for (auto& f : done) f.wait();
     for (auto& f : done) f.get();
 }
@@ -245,7 +251,7 @@ DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<
     const double* table = fast_emission_.data();
     const double* folded = folded_.data();
     const int workers = pool ? pool->threads() : 1;
-    size_workspaces(pool);
+    make_workspaces(pool);
     // (b) Chaining: backward vectors at segment ends from the contig end, forward vectors before
     // segment starts from the initial distribution.
     const size_t K = segs.size();
@@ -365,11 +371,10 @@ DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<
             p.fork->begin_contig(contig);
             DecodeSink* out = p.fork.get();
             if (pool) {
-                p.done = pool->submit(
-                    [&, k, out](int w) { sweep(k, *workspaces_[static_cast<size_t>(w)], *out); });
+                p.done = pool->submit([&, k, out](int w) { sweep(k, sized_workspace(w), *out); });
             } else {
                 std::promise<void> ready;
-                sweep(k, *workspaces_[0], *out);
+                sweep(k, sized_workspace(0), *out);
                 ready.set_value();
                 p.done = ready.get_future();
             }

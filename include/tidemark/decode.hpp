@@ -167,7 +167,8 @@ private:
     DecodeResult run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool);
     std::vector<Segment> make_segments(int64_t length) const;
     uint32_t bases_crc32(const Contig& contig, int64_t begin, int64_t end) const;
-    void size_workspaces(TaskPool* pool);  ///< one workspace per pool worker, sized for a block
+    void make_workspaces(TaskPool* pool);    ///< one workspace per pool worker
+    Workspace& sized_workspace(int worker);  ///< that worker's, sized for a block
     void for_segments(size_t first, size_t last, TaskPool* pool,
                       const std::function<void(size_t, Workspace&)>& task);
     template <int Fixed>
