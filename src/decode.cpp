@@ -137,11 +137,11 @@ int64_t choose_segment(const Model& m, int64_t block, const DecoderOptions& o) {
 
 // c = b(pos - 1) from c = b(pos) on the transposed folded matrices (sweep 1 of unsplit
 // decoding), rescaled like every backward step.
-template <int S>
+template <int S, class V>
 [[gnu::always_inline]] inline void backward_step(const Model& m, const Contig& contig,
                                                  const double* columns, uint32_t row, int64_t pos,
-                                                 Lanes<S>& c) {
-    Lanes<S> x;
+                                                 V& c) {
+    V x;
     backward_lanes<S>(columns + row * static_cast<size_t>(S * S), c, x);
     c = x;
     if (some_lane_at_least<S>(c, rescale_below)) return;
@@ -150,40 +150,54 @@ template <int S>
     if (s < rescale_below) rescale_lanes<S>(c, s);
 }
 
-// The steps of block [start, start + n): c = b(start + n - 1) on entry, b(start) on exit.
-// Compiled also for AVX2 (use_avx2_kernels).
-template <int S>
+// The steps into block [start, start + n), on the S doubles b: b(start + n) on entry (unused
+// when last), b(start) on exit, and b(start + n - 1) stored to checkpoint. Compiled also for
+// AVX2 (use_avx2_kernels).
+template <int S, bool Avx2>
 [[gnu::always_inline]] inline void backward_steps_body(const Model& m, const Contig& contig,
                                                        const double* columns, const uint32_t* rows,
-                                                       int64_t start, int64_t n, Lanes<S>& c) {
+                                                       uint32_t next_row, int64_t start, int64_t n,
+                                                       bool last, double* b, double* checkpoint) {
+    KernelVector<S, Avx2> c;
+    if (last) {
+        for (int i = 0; i < S; ++i) c[i] = 1.0;
+    } else {
+        load_lanes<S>(b, c);
+        backward_step<S>(m, contig, columns, next_row, start + n, c);
+    }
+    store_lanes<S>(c, checkpoint);
     for (int64_t t = n - 2; t >= 0; --t)
         backward_step<S>(m, contig, columns, rows[t + 1], start + t + 1, c);
+    store_lanes<S>(c, b);
 }
 
 template <int S>
 [[gnu::noinline]] void backward_steps_portable(const Model& m, const Contig& contig,
                                                const double* columns, const uint32_t* rows,
-                                               int64_t start, int64_t n, Lanes<S>& c) {
-    backward_steps_body<S>(m, contig, columns, rows, start, n, c);
+                                               uint32_t next_row, int64_t start, int64_t n,
+                                               bool last, double* b, double* checkpoint) {
+    backward_steps_body<S, false>(m, contig, columns, rows, next_row, start, n, last, b,
+                                  checkpoint);
 }
 #if TIDEMARK_AVX2_KERNELS
 template <int S>
-[[gnu::noinline, gnu::target("avx2")]] void backward_steps_avx2(const Model& m,
-                                                                const Contig& contig,
-                                                                const double* columns,
-                                                                const uint32_t* rows, int64_t start,
-                                                                int64_t n, Lanes<S>& c) {
-    backward_steps_body<S>(m, contig, columns, rows, start, n, c);
+[[gnu::noinline, gnu::target("avx2")]] void backward_steps_avx2(
+    const Model& m, const Contig& contig, const double* columns, const uint32_t* rows,
+    uint32_t next_row, int64_t start, int64_t n, bool last, double* b, double* checkpoint) {
+    backward_steps_body<S, true>(m, contig, columns, rows, next_row, start, n, last, b, checkpoint);
 }
 #endif
 
 template <int S>
 void backward_steps(const Model& m, const Contig& contig, const double* columns,
-                    const uint32_t* rows, int64_t start, int64_t n, Lanes<S>& c) {
+                    const uint32_t* rows, uint32_t next_row, int64_t start, int64_t n, bool last,
+                    double* b, double* checkpoint) {
 #if TIDEMARK_AVX2_KERNELS
-    if (use_avx2_kernels()) return backward_steps_avx2<S>(m, contig, columns, rows, start, n, c);
+    if (use_avx2_kernels())
+        return backward_steps_avx2<S>(m, contig, columns, rows, next_row, start, n, last, b,
+                                      checkpoint);
 #endif
-    backward_steps_portable<S>(m, contig, columns, rows, start, n, c);
+    backward_steps_portable<S>(m, contig, columns, rows, next_row, start, n, last, b, checkpoint);
 }
 
 }  // namespace
@@ -273,19 +287,14 @@ DecodeResult PosteriorDecoder::run_fixed(const Contig& contig, DecodeSink& sink)
     // the generic path g = e(t+1) * b(t+1).
     if constexpr (Fixed > 0) {
         const double* columns = folded_columns_.data();
-        Lanes<Fixed> c{};
+        std::array<double, Fixed> b{};  // b(start + n) between blocks
         for (int64_t k = blocks - 1; k >= 0; --k) {
             const int64_t start = k * B;
             const int64_t n = std::min(B, N - start);
             const uint32_t next_row = rows_[0];  // row of position start + n, from block k + 1
             fill_rows(start, n);
-            if (start + n == N) {
-                for (int i = 0; i < Fixed; ++i) c[i] = 1.0;
-            } else {
-                backward_step<Fixed>(m, contig, columns, next_row, start + n, c);
-            }
-            store_lanes<Fixed>(c, checkpoints_.data() + k * S);
-            backward_steps<Fixed>(m, contig, columns, rows_.data(), start, n, c);
+            backward_steps<Fixed>(m, contig, columns, rows_.data(), next_row, start, n,
+                                  start + n == N, b.data(), checkpoints_.data() + k * S);
         }
     } else {
         Vec<0> g(S), cur(S);

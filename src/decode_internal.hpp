@@ -273,6 +273,43 @@ template <int S>
 using Lanes = std::conditional_t<
     S == 1, Lanes1, std::conditional_t<S == 2, Lanes2, std::conditional_t<S <= 4, Lanes4, Lanes8>>>;
 
+// The same operations on S separate doubles: where an S-vector would not fit one register
+// (S = 5, 6; and S = 3, 4 without AVX) the vector types spilled to the stack and decoded up to
+// 2.5 times slower than plain loops, so these sizes keep the loops (same operations, same order,
+// same bits).
+template <int S>
+struct ScalarLanes {
+    double v[S];
+    double& operator[](int i) { return v[i]; }
+    double operator[](int i) const { return v[i]; }
+    ScalarLanes& operator+=(const ScalarLanes& o) {
+        for (int i = 0; i < S; ++i) v[i] += o.v[i];
+        return *this;
+    }
+    ScalarLanes& operator*=(const ScalarLanes& o) {
+        for (int i = 0; i < S; ++i) v[i] *= o.v[i];
+        return *this;
+    }
+    ScalarLanes& operator*=(double f) {
+        for (int i = 0; i < S; ++i) v[i] *= f;
+        return *this;
+    }
+    friend ScalarLanes operator*(double a, const ScalarLanes& x) {
+        ScalarLanes r;
+        for (int i = 0; i < S; ++i) r.v[i] = a * x.v[i];
+        return r;
+    }
+    friend ScalarLanes operator*(const ScalarLanes& x, double a) {
+        ScalarLanes r;
+        for (int i = 0; i < S; ++i) r.v[i] = x.v[i] * a;
+        return r;
+    }
+};
+
+// The kernels' S-vector: lanes where they fit registers (Avx2: the kernel is the AVX2 build).
+template <int S, bool Avx2>
+using KernelVector = std::conditional_t<S <= 2 || (Avx2 && S <= 4), Lanes<S>, ScalarLanes<S>>;
+
 // The fixed-size kernels are compiled twice on x86-64: for the baseline instruction set (SSE2,
 // whose 16 registers hold a 4 x 4 matrix sweep only with spills to the stack) and for AVX2 (one
 // register per row of 4), chosen at run time. Each kernel is an always-inline body with two
@@ -301,29 +338,54 @@ inline bool use_avx2_kernels() {
 
 // Vectors go by reference, never by value: a by-value vector's calling convention depends on
 // the instruction set, and these helpers must mean the same in every translation unit.
+// S below the lane count (3, 5, 6) is built element by element: a copy of S doubles into the
+// vector went through the stack, and the wider load after the narrower stores stalled (the
+// 3-state decoding took 2.4 times as long as with scalar code).
+template <int S>
+[[gnu::always_inline]] inline void load_lanes(const double* p, ScalarLanes<S>& v) {
+    for (int i = 0; i < S; ++i) v[i] = p[i];
+}
+
+template <int S>
+[[gnu::always_inline]] inline void store_lanes(const ScalarLanes<S>& v, double* p) {
+    for (int i = 0; i < S; ++i) p[i] = v[i];
+}
+
 template <int S>
 [[gnu::always_inline]] inline void load_lanes(const double* p, Lanes<S>& v) {
-    v = Lanes<S>{};
-    std::memcpy(&v, p, S * sizeof(double));
+    if constexpr (S == 3) {
+        v = Lanes<S>{p[0], p[1], p[2], 0.0};
+    } else if constexpr (S == 5) {
+        v = Lanes<S>{p[0], p[1], p[2], p[3], p[4], 0.0, 0.0, 0.0};
+    } else if constexpr (S == 6) {
+        v = Lanes<S>{p[0], p[1], p[2], p[3], p[4], p[5], 0.0, 0.0};
+    } else {
+        static_assert(sizeof(Lanes<S>) == S * sizeof(double), "lanes of S without padding");
+        std::memcpy(&v, p, sizeof v);
+    }
 }
 
 template <int S>
 [[gnu::always_inline]] inline void store_lanes(const Lanes<S>& v, double* p) {
-    std::memcpy(p, &v, S * sizeof(double));
+    if constexpr (sizeof(Lanes<S>) == S * sizeof(double)) {
+        std::memcpy(p, &v, sizeof v);
+    } else {
+        for (int i = 0; i < S; ++i) p[i] = v[i];
+    }
 }
 
 // The sum of the S lanes in index order (sum_of's order).
-template <int S>
-[[gnu::always_inline]] inline double lane_sum(const Lanes<S>& v) {
+template <int S, class V>
+[[gnu::always_inline]] inline double lane_sum(const V& v) {
     double s = v[0];
     for (int i = 1; i < S; ++i) s += v[i];
     return s;
 }
 
 // x = f F (the forward step on a folded matrix): lane j is sum_i f_i F_ij, summed in i order.
-template <int S>
-[[gnu::always_inline]] inline void forward_lanes(const double* F, const Lanes<S>& f, Lanes<S>& x) {
-    Lanes<S> row;
+template <int S, class V>
+[[gnu::always_inline]] inline void forward_lanes(const double* F, const V& f, V& x) {
+    V row;
     load_lanes<S>(F, row);
     x = f[0] * row;
     for (int i = 1; i < S; ++i) {
@@ -334,9 +396,9 @@ template <int S>
 
 // x = F b (the backward step), from the transposed matrix C (C_ji = F_ij): lane i is
 // sum_j F_ij b_j, summed in j order.
-template <int S>
-[[gnu::always_inline]] inline void backward_lanes(const double* C, const Lanes<S>& b, Lanes<S>& x) {
-    Lanes<S> column;
+template <int S, class V>
+[[gnu::always_inline]] inline void backward_lanes(const double* C, const V& b, V& x) {
+    V column;
     load_lanes<S>(C, column);
     x = column * b[0];
     for (int j = 1; j < S; ++j) {
@@ -348,17 +410,23 @@ template <int S>
 // True when some lane is at least `bound`. A sum of non-negative numbers, rounded in any order,
 // is at least its largest term, so then the ordered sum (lane_sum) is too: a test without the
 // ordered sum's chain of dependent additions that settles most steps' rescaling check.
-template <int S>
-[[gnu::always_inline]] inline bool some_lane_at_least(const Lanes<S>& v, double bound) {
-    const auto at_least = v >= bound;  // lanes of -1 (true) or 0
-    auto any = at_least[0];
-    for (int i = 1; i < S; ++i) any |= at_least[i];
-    return any != 0;
+template <int S, class V>
+[[gnu::always_inline]] inline bool some_lane_at_least(const V& v, double bound) {
+    if constexpr (std::is_same_v<V, ScalarLanes<S>>) {
+        bool any = v[0] >= bound;
+        for (int i = 1; i < S; ++i) any |= v[i] >= bound;
+        return any;
+    } else {
+        const auto at_least = v >= bound;  // lanes of -1 (true) or 0
+        auto any = at_least[0];
+        for (int i = 1; i < S; ++i) any |= at_least[i];
+        return any != 0;
+    }
 }
 
 // rescale() for lanes.
-template <int S>
-[[gnu::always_inline]] inline int rescale_lanes(Lanes<S>& v, double sum) {
+template <int S, class V>
+[[gnu::always_inline]] inline int rescale_lanes(V& v, double sum) {
     const int e = exponent_of(sum);
     v *= pow2(-e);
     return e;
@@ -396,7 +464,7 @@ struct BlockSweep {
     double& last_sum_io;
 };
 
-template <int Fixed>
+template <int Fixed, bool Avx2>
 [[gnu::always_inline]] inline void sweep_block_body(const BlockSweep& a) {
     const Model& m = a.m;
     const Contig& contig = a.contig;
@@ -408,7 +476,7 @@ template <int Fixed>
     if constexpr (Fixed > 0) {
         constexpr int S = Fixed;
         constexpr size_t SS = static_cast<size_t>(S) * S;
-        using V = Lanes<S>;
+        using V = KernelVector<S, Avx2>;
         const double* folded = a.folded;
         const double* columns = a.columns;
         V fp, bn;
@@ -507,12 +575,12 @@ template <int Fixed>
 
 template <int Fixed>
 [[gnu::noinline]] void sweep_block_portable(const BlockSweep& a) {
-    sweep_block_body<Fixed>(a);
+    sweep_block_body<Fixed, false>(a);
 }
 #if TIDEMARK_AVX2_KERNELS
 template <int Fixed>
 [[gnu::noinline, gnu::target("avx2")]] void sweep_block_avx2(const BlockSweep& a) {
-    sweep_block_body<Fixed>(a);
+    sweep_block_body<Fixed, true>(a);
 }
 #endif
 

@@ -37,10 +37,10 @@ namespace {
 // the sequential sweep. Sets failed = k when the k-th step makes the matrix all zero (the
 // contig is impossible). The matrix rows are lanes (Lanes): row i of the product is
 // sum_j F_ij W_j, summed in j order as the scalar loop summed each entry.
-template <int S, typename RowAt>
+template <int S, bool Avx2, typename RowAt>
 [[gnu::always_inline]] inline int64_t matrix_steps(const double* folded, int64_t count,
                                                    RowAt row_at, double* M, int64_t& failed) {
-    using V = Lanes<S>;
+    using V = KernelVector<S, Avx2>;
     constexpr size_t SS = static_cast<size_t>(S) * S;
     V W[S];
     for (int i = 0; i < S; ++i) load_lanes<S>(M + i * S, W[i]);
@@ -82,18 +82,18 @@ template <int S, typename RowAt>
 // One step with one row.
 template <int S>
 inline int64_t matrix_step(const double* folded, uint32_t row, double* M, int64_t& failed) {
-    return matrix_steps<S>(
+    return matrix_steps<S, false>(
         folded, 1, [row](int64_t) { return row; }, M, failed);
 }
 
 // The steps of one block: M_t = F_{rows[t+1]} M_{t+1} for t = n-2 down to 0. On failure,
 // failed = the position (in the block) whose row made the matrix zero. The bulk of the matrix
 // sweep, so compiled also for AVX2 (use_avx2_kernels).
-template <int S>
+template <int S, bool Avx2>
 [[gnu::always_inline]] inline int64_t matrix_steps_back_body(const double* folded,
                                                              const uint32_t* rows, int64_t n,
                                                              double* M, int64_t& failed) {
-    const int64_t exponent = matrix_steps<S>(
+    const int64_t exponent = matrix_steps<S, Avx2>(
         folded, n - 1,
         [ rows, n ](int64_t k) __attribute__((always_inline)) { return rows[n - 1 - k]; }, M,
         failed);
@@ -104,7 +104,7 @@ template <int S>
 template <int S>
 [[gnu::noinline]] int64_t matrix_steps_back_portable(const double* folded, const uint32_t* rows,
                                                      int64_t n, double* M, int64_t& failed) {
-    return matrix_steps_back_body<S>(folded, rows, n, M, failed);
+    return matrix_steps_back_body<S, false>(folded, rows, n, M, failed);
 }
 #if TIDEMARK_AVX2_KERNELS
 template <int S>
@@ -112,7 +112,7 @@ template <int S>
                                                                       const uint32_t* rows,
                                                                       int64_t n, double* M,
                                                                       int64_t& failed) {
-    return matrix_steps_back_body<S>(folded, rows, n, M, failed);
+    return matrix_steps_back_body<S, true>(folded, rows, n, M, failed);
 }
 #endif
 
