@@ -114,8 +114,13 @@ def body(checks, binary, workdir):
     long_fa = os.path.join(workdir, "long.fa")
     tmtest.write_fasta(long_fa, records(rng, [2_300_000], "chrL"))
     # --block 2000: 64 Ki segments (the floor), so the many-contig input is also split inside contigs.
+    # Profiles of 3 and 5 states as well: their decoder kernels differ from the 4-state ones (plain
+    # loops where the vectors of the AVX2 build do not fit registers).
+    profiles = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "data", "profiles")
     for tag, fasta, extra in [("many", many, []), ("many-small-blocks", many, ["--block", "2000"]),
-                              ("long", long_fa, [])]:
+                              ("long", long_fa, []),
+                              ("long-3-states", long_fa, ["-p", os.path.join(profiles, "gc-shift-per-base.json")]),
+                              ("long-5-states", long_fa, ["-p", os.path.join(profiles, "isochore-per-base.json")])]:
         base = outputs(binary, workdir, tag, fasta, 1, extra)
         for threads in (2, 3):
             other = outputs(binary, workdir, tag, fasta, threads, extra)
