@@ -144,7 +144,7 @@ template <int S, class V>
     V x;
     backward_lanes<S>(columns + row * static_cast<size_t>(S * S), c, x);
     c = x;
-    if (some_lane_at_least<S>(c, rescale_below)) return;
+    if (surely_at_least<S>(c, rescale_below)) return;
     const double s = lane_sum<S>(c);
     if (!(s > 0)) impossible(m, contig, pos);
     if (s < rescale_below) rescale_lanes<S>(c, s);

@@ -53,11 +53,11 @@ template <int S, bool Avx2, typename RowAt>
             for (int j = 1; j < S; ++j) T[i] += F[i * S + j] * W[j];
         }
         // Rescaling is decided on the sum of the S x S entries in row-major order, a chain of
-        // S * S - 1 dependent additions (a fifth of the step's time at S = 4), formed only
-        // when no entry reaches the threshold (some_lane_at_least).
-        bool large = some_lane_at_least<S>(T[0], rescale_below);
-        for (int i = 1; i < S; ++i) large |= some_lane_at_least<S>(T[i], rescale_below);
-        if (!large) [[unlikely]] {
+        // S * S - 1 dependent additions (a fifth of the step's time at S = 4), formed unless
+        // surely_at_least settles it.
+        bool large = surely_at_least<S>(T[0], rescale_below);
+        for (int i = 1; i < S; ++i) large |= surely_at_least<S>(T[i], rescale_below);
+        if (!large) {
             double entries[SS];
             for (int i = 0; i < S; ++i) store_lanes<S>(T[i], entries + i * S);
             double s = entries[0];
