@@ -35,7 +35,7 @@ namespace {
 // sweep's step); returns the exponent removed by rescaling. M is row-major S x S; its columns
 // are independent vector recursions, so a step costs about as much time as one vector step of
 // the sequential sweep. Sets failed = k when the k-th step makes the matrix all zero (the
-// contig is impossible). The matrix rows are lanes (Lanes): row i of the product is
+// contig is impossible). The matrix rows are S-vectors (KernelVector): row i of the product is
 // sum_j F_ij W_j, summed in j order as the scalar loop summed each entry.
 template <int S, bool Avx2, typename RowAt>
 [[gnu::always_inline]] inline int64_t matrix_steps(const double* folded, int64_t count,
