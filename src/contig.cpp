@@ -138,7 +138,9 @@ uint8_t* Contig::chunk_room(size_t chunk, int64_t bytes) {
             int64_t room = std::max<int64_t>(2 * have, 256);
             while (room < bytes) room *= 2;
             room = std::min(room, chunk_bytes);
-            auto grown = std::make_unique<uint8_t[]>(static_cast<size_t>(room));
+            // A new array, not a resize: a prefix sharing the old one keeps it (shared_prefix).
+            std::shared_ptr<uint8_t[]> grown =
+                std::make_unique<uint8_t[]>(static_cast<size_t>(room));
             if (have > 0) std::memcpy(grown.get(), chunks_[0].get(), static_cast<size_t>(have));
             if (chunks_.empty())
                 chunks_.push_back(std::move(grown));
@@ -150,6 +152,25 @@ uint8_t* Contig::chunk_room(size_t chunk, int64_t bytes) {
         chunks_.push_back(new_chunk());
     }
     return chunks_[chunk].get();
+}
+
+Contig Contig::shared_prefix(int64_t n) const {
+    if (n < 0 || n > (length & ~int64_t{3}))
+        throw InternalError("Contig::shared_prefix: not a prefix of whole bytes");
+    Contig prefix;
+    prefix.name = name;
+    prefix.offset = offset;
+    prefix.length = n;
+    prefix.sequence_length = sequence_length;
+    prefix.chunks_.assign(
+        chunks_.begin(),
+        chunks_.begin() + static_cast<std::ptrdiff_t>((n + chunk_bases - 1) >> chunk_shift));
+    prefix.first_chunk_bytes_ = first_chunk_bytes_;
+    for (const UnknownRun& r : unknown) {  // the run at the end may still grow: clip it
+        if (r.begin >= n) break;
+        prefix.unknown.push_back({r.begin, std::min(r.length, n - r.begin)});
+    }
+    return prefix;
 }
 
 void Contig::push(uint8_t code) {

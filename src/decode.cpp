@@ -213,14 +213,17 @@ PosteriorDecoder::PosteriorDecoder(const Model& model, DecoderOptions options)
     if (fast_emission_.empty() || folded_.empty()) segment_ = 0;
 }
 
-DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink, TaskPool* pool) {
+DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink, TaskPool* pool,
+                                   EarlySweeps* early) {
+    const bool segmented = model_.window == 0 && model_.states <= max_fixed_states &&
+                           splits(contig.length) && sink.fork();
+    if (early && !segmented) early->reset();  // (sweep_early starts none for such a run)
     // Window models: few positions (one per window), emissions kept as logs (decode_windows).
     if (model_.window > 0) return decode_windows(model_, block_, contig, sink);
     if (model_.states > max_fixed_states) return run_fixed<0>(contig, sink);
-    const bool segmented = splits(contig.length) && sink.fork();
     return with_fixed_states(model_.states, [&](auto fixed) {
         constexpr int S = decltype(fixed)::value;
-        return segmented ? run_segmented<S>(contig, sink, pool) : run_fixed<S>(contig, sink);
+        return segmented ? run_segmented<S>(contig, sink, pool, early) : run_fixed<S>(contig, sink);
     });
 }
 

@@ -175,9 +175,10 @@ void PosteriorDecoder::for_segments(size_t first, size_t last, TaskPool* pool,
     for (auto& f : done) f.get();
 }
 
+// (a) The matrix sweep of one segment: M = I at the segment's last position,
+// M_t = F_{t+1} M_{t+1}; the matrix at every block end, and the segment's product.
 template <int Fixed>
-void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first,
-                                     size_t last, TaskPool* pool) {
+void PosteriorDecoder::matrix_sweep(const Contig& contig, Segment& sg, Workspace& ws) const {
     constexpr int S = Fixed;
     constexpr int SS = S * S;
     const Model& m = model_;
@@ -185,57 +186,127 @@ void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>&
     const TableLayout layout(m.max_order);
     const double* table = fast_emission_.data();
     const double* folded = folded_.data();
-    // (a) Matrix sweep per segment: M = I at the segment's last position, M_t = F_{t+1} M_{t+1}.
-    for_segments(first, last, pool, [&](size_t k, Workspace& ws) {
-        Segment& sg = segs[k];
-        if (!sg.marks.empty()) return;  // given (run_segments)
-        const int64_t n_seg = sg.end - sg.begin;
-        const int64_t nb = (n_seg + B - 1) / B;
-        sg.marks.assign(static_cast<size_t>(nb) * SS, 0.0);
-        double M[SS];
-        int64_t mexp = 0;
-        uint32_t next_row = 0;
-        for (int64_t j = nb - 1; j >= 0; --j) {
-            const int64_t start = sg.begin + j * B;
-            const int64_t n = std::min(B, sg.end - start);
-            fill_rows_of(m, contig, layout, start, n, ws.bases.data(), ws.rows.data());
-            const uint32_t* rows = ws.rows.data();
-            if (j == nb - 1) {
-                for (int q = 0; q < SS; ++q) M[q] = 0.0;
-                for (int i = 0; i < S; ++i) M[i * S + i] = 1.0;
-            } else {
-                int64_t failed = -1;
-                mexp += matrix_step<S>(folded, next_row, M, failed);
-                if (failed >= 0) impossible(m, contig, start + n);
-            }
-            std::copy(M, M + SS, sg.marks.begin() + j * SS);
-            if (n >= 2) {
-                int64_t failed = -1;
-                // rows[n-1], ..., rows[1]: the steps to positions n-2, ..., 0
-                mexp += matrix_steps_back<S>(folded, rows, n, M, failed);
-                if (failed >= 0) impossible(m, contig, start + failed);
-            }
-            next_row = rows[0];
-        }
-        const auto step = [&](uint32_t row, int64_t pos) {
+    const int64_t n_seg = sg.end - sg.begin;
+    const int64_t nb = (n_seg + B - 1) / B;
+    sg.marks.assign(static_cast<size_t>(nb) * SS, 0.0);
+    double M[SS];
+    int64_t mexp = 0;
+    uint32_t next_row = 0;
+    for (int64_t j = nb - 1; j >= 0; --j) {
+        const int64_t start = sg.begin + j * B;
+        const int64_t n = std::min(B, sg.end - start);
+        fill_rows_of(m, contig, layout, start, n, ws.bases.data(), ws.rows.data());
+        const uint32_t* rows = ws.rows.data();
+        if (j == nb - 1) {
+            for (int q = 0; q < SS; ++q) M[q] = 0.0;
+            for (int i = 0; i < S; ++i) M[i * S + i] = 1.0;
+        } else {
             int64_t failed = -1;
-            mexp += matrix_step<S>(folded, row, M, failed);
-            if (failed >= 0) impossible(m, contig, pos);
-        };
-        if (sg.begin == 0) {  // the row vector (pi * e_0) M_0
-            const double* e = table + static_cast<size_t>(next_row) * S;
-            sg.product.assign(S, 0.0);
-            for (int c = 0; c < S; ++c) {
-                double acc = m.initial[0] * e[0] * M[c];
-                for (int i = 1; i < S; ++i) acc += m.initial[i] * e[i] * M[i * S + c];
-                sg.product[c] = acc;
-            }
-            sg.product_exponent = mexp;
-        } else {  // F_begin M_begin
-            step(next_row, sg.begin);
-            sg.product.assign(M, M + SS);
-            sg.product_exponent = mexp;
+            mexp += matrix_step<S>(folded, next_row, M, failed);
+            if (failed >= 0) impossible(m, contig, start + n);
         }
+        std::copy(M, M + SS, sg.marks.begin() + j * SS);
+        if (n >= 2) {
+            int64_t failed = -1;
+            // rows[n-1], ..., rows[1]: the steps to positions n-2, ..., 0
+            mexp += matrix_steps_back<S>(folded, rows, n, M, failed);
+            if (failed >= 0) impossible(m, contig, start + failed);
+        }
+        next_row = rows[0];
+    }
+    const auto step = [&](uint32_t row, int64_t pos) {
+        int64_t failed = -1;
+        mexp += matrix_step<S>(folded, row, M, failed);
+        if (failed >= 0) impossible(m, contig, pos);
+    };
+    if (sg.begin == 0) {  // the row vector (pi * e_0) M_0
+        const double* e = table + static_cast<size_t>(next_row) * S;
+        sg.product.assign(S, 0.0);
+        for (int c = 0; c < S; ++c) {
+            double acc = m.initial[0] * e[0] * M[c];
+            for (int i = 1; i < S; ++i) acc += m.initial[i] * e[i] * M[i * S + c];
+            sg.product[c] = acc;
+        }
+        sg.product_exponent = mexp;
+    } else {  // F_begin M_begin
+        step(next_row, sg.begin);
+        sg.product.assign(M, M + SS);
+        sg.product_exponent = mexp;
+    }
+}
+
+// The early sweeps of one record: segment k is segments[k], done[k] its task.
+struct PosteriorDecoder::EarlySweeps::State {
+    const PosteriorDecoder* decoder = nullptr;
+    std::deque<Segment> segments;  // a deque: tasks hold references to earlier ones while it grows
+    std::vector<std::future<void>> done;
+    State() = default;
+    State(const State&) = delete;
+    State& operator=(const State&) = delete;
+    ~State() {
+        for (auto& f : done)
+            if (f.valid()) f.wait();  // the tasks write segments
+    }
+};
+
+PosteriorDecoder::EarlySweeps::EarlySweeps() = default;
+PosteriorDecoder::EarlySweeps::~EarlySweeps() = default;
+void PosteriorDecoder::EarlySweeps::reset() {
+    state_.reset();
+}
+size_t PosteriorDecoder::EarlySweeps::started() const {
+    return state_ ? state_->segments.size() : 0;
+}
+
+void PosteriorDecoder::sweep_early(const Contig& reading, TaskPool& pool, EarlySweeps& early) {
+    if (model_.window > 0 || model_.states > max_fixed_states || !splits(reading.length)) return;
+    if (!early.state_) {
+        early.state_ = std::make_unique<EarlySweeps::State>();
+        early.state_->decoder = this;
+        make_workspaces(&pool);
+    }
+    EarlySweeps::State& st = *early.state_;
+    if (st.decoder != this) throw InternalError("decoder: early sweeps of another decoder");
+    // Segments in the bases whose bytes appending never writes again (shared_prefix).
+    const auto ready = static_cast<size_t>((reading.length & ~int64_t{3}) / segment_);
+    if (ready <= st.segments.size()) return;
+    auto prefix = std::make_shared<const Contig>(
+        reading.shared_prefix(static_cast<int64_t>(ready) * segment_));
+    for (size_t k = st.segments.size(); k < ready; ++k) {
+        Segment& sg = st.segments.emplace_back();
+        sg.begin = static_cast<int64_t>(k) * segment_;
+        sg.end = sg.begin + segment_;
+        st.done.push_back(pool.submit([this, prefix, &sg](int worker) {
+            with_fixed_states(model_.states, [&](auto fixed) {
+                matrix_sweep<decltype(fixed)::value>(*prefix, sg, sized_workspace(worker));
+            });
+        }));
+    }
+}
+
+// Moves the early sweeps into segs once they are done; rethrows the first failure in segment
+// order (they precede every other segment, so it is the failure a run without them meets first).
+void PosteriorDecoder::take_early(EarlySweeps& early, std::vector<Segment>& segs) const {
+    const std::unique_ptr<EarlySweeps::State> st = std::move(early.state_);
+    if (!st) return;
+    for (auto& f : st->done) f.wait();
+    if (st->decoder != this || st->segments.size() > segs.size())
+        throw InternalError("decoder: early sweeps of another decoder or record");
+    for (size_t k = 0; k < st->segments.size(); ++k) {
+        st->done[k].get();
+        Segment& sg = st->segments[k];
+        if (sg.begin != segs[k].begin || sg.end != segs[k].end)
+            throw InternalError("decoder: early sweeps of another record");
+        segs[k] = std::move(sg);
+    }
+}
+
+template <int Fixed>
+void PosteriorDecoder::matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first,
+                                     size_t last, TaskPool* pool) {
+    for_segments(first, last, pool, [&](size_t k, Workspace& ws) {
+        // Segments with marks are done: given (run_segments) or swept early (take_early).
+        if (segs[k].marks.empty()) matrix_sweep<Fixed>(contig, segs[k], ws);
     });
 }
 
@@ -400,13 +471,14 @@ DecodeResult PosteriorDecoder::sweep_segments(const Contig& contig, std::vector<
 }
 
 template <int Fixed>
-DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& sink,
-                                             TaskPool* pool) {
+DecodeResult PosteriorDecoder::run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool,
+                                             EarlySweeps* early) {
     static_assert(Fixed > 0, "segmented decoding needs a compile-time state count");
     if (fast_emission_.empty() || folded_.empty())
         throw InternalError("decoder: emission table missing for a small model");
     sink.begin_contig(contig);
     std::vector<Segment> segs = make_segments(contig.length);
+    if (early) take_early(*early, segs);
     matrix_sweeps<Fixed>(contig, segs, 0, segs.size(), pool);
     const DecodeResult result = sweep_segments<Fixed>(
         contig, segs, 0, segs.size(), sink, [&](size_t, DecodeSink& fork) { sink.join(fork); },
@@ -502,11 +574,17 @@ DecodeResult PosteriorDecoder::run_segments(const Contig& contig,
         return sweep_segments<decltype(fixed)::value>(contig, segs, first, last, sink, take, pool);
     });
 }
-template DecodeResult PosteriorDecoder::run_segmented<1>(const Contig&, DecodeSink&, TaskPool*);
-template DecodeResult PosteriorDecoder::run_segmented<2>(const Contig&, DecodeSink&, TaskPool*);
-template DecodeResult PosteriorDecoder::run_segmented<3>(const Contig&, DecodeSink&, TaskPool*);
-template DecodeResult PosteriorDecoder::run_segmented<4>(const Contig&, DecodeSink&, TaskPool*);
-template DecodeResult PosteriorDecoder::run_segmented<5>(const Contig&, DecodeSink&, TaskPool*);
-template DecodeResult PosteriorDecoder::run_segmented<6>(const Contig&, DecodeSink&, TaskPool*);
+template DecodeResult PosteriorDecoder::run_segmented<1>(const Contig&, DecodeSink&, TaskPool*,
+                                                         EarlySweeps*);
+template DecodeResult PosteriorDecoder::run_segmented<2>(const Contig&, DecodeSink&, TaskPool*,
+                                                         EarlySweeps*);
+template DecodeResult PosteriorDecoder::run_segmented<3>(const Contig&, DecodeSink&, TaskPool*,
+                                                         EarlySweeps*);
+template DecodeResult PosteriorDecoder::run_segmented<4>(const Contig&, DecodeSink&, TaskPool*,
+                                                         EarlySweeps*);
+template DecodeResult PosteriorDecoder::run_segmented<5>(const Contig&, DecodeSink&, TaskPool*,
+                                                         EarlySweeps*);
+template DecodeResult PosteriorDecoder::run_segmented<6>(const Contig&, DecodeSink&, TaskPool*,
+                                                         EarlySweeps*);
 
 }  // namespace tidemark

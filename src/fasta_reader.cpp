@@ -3,6 +3,7 @@
 #include <fmt/format.h>
 
 #include <array>
+#include <limits>
 #include <memory>
 #include <vector>
 
@@ -135,7 +136,12 @@ private:
         const auto& classes = detail::byte_classes();
         const auto& fast = detail::sequence_codes(soft_masked_);
         int64_t column = 0;
+        int64_t report_at = growth_hook_ ? growth_step_ : std::numeric_limits<int64_t>::max();
         for (;;) {
+            if (contig.length >= report_at) {
+                growth_hook_(contig);
+                report_at = contig.length + growth_step_;
+            }
             if (at_line_start_) {
                 if (!skip_pending_lf()) return;
                 at_line_start_ = false;

@@ -57,6 +57,12 @@ void DecodePipeline::queue(std::unique_ptr<PipelineJob> job) {
     if (open_bases_ >= batch_bases_) submit_open_batch();
 }
 
+void DecodePipeline::reading(PipelineJob& job) {
+    if (threads_ == 1 || !alone_ || !alone_(job.contig.length)) return;
+    drain();  // what the job's queue() would wait for anyway; the pool is then its own
+    job.decode_early(pool_);
+}
+
 void DecodePipeline::submit_open_batch() {
     if (!open_) return;
     // Each worker busy, one batch more waiting: the reader stays at most that far ahead.
@@ -79,12 +85,24 @@ void DecodePipeline::submit_open_batch() {
 void DecodePipeline::finish_oldest() {
     std::unique_ptr<Batch> b = std::move(in_flight_.front());
     in_flight_.pop_front();
-    b->done.get();
-    for (size_t k = 0; k < b->decoded; ++k) {
-        b->jobs[k]->finish();
-        recycle(std::move(b->jobs[k]));
+    try {
+        b->done.get();
+        for (size_t k = 0; k < b->decoded; ++k) {
+            b->jobs[k]->finish();
+            recycle(std::move(b->jobs[k]));
+        }
+        if (b->error) std::rethrow_exception(b->error);
+    } catch (...) {
+        abandon();
+        throw;
     }
-    if (b->error) std::rethrow_exception(b->error);
+}
+
+void DecodePipeline::abandon() {
+    open_.reset();
+    open_bases_ = 0;
+    for (auto& later : in_flight_) later->done.wait();  // their tasks use the batches
+    in_flight_.clear();
 }
 
 void DecodePipeline::drain() {

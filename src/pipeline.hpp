@@ -27,6 +27,9 @@ public:
     /// contig is decoded alone in parallel segments, else nullptr (segments, if any, then run
     /// one after another on this worker: the results are the same).
     virtual void decode(int worker, TaskPool* segments) = 0;
+    /// Starts work on the bases read so far, on the whole pool, while the rest of the record is
+    /// read (records decoded alone only); decode(0, pool) takes it over. Default: nothing.
+    virtual void decode_early(TaskPool& pool) { (void)pool; }
     /// Joins the results into the run and writes its outputs: on the queuing thread, in order.
     virtual void finish() = 0;
 };
@@ -55,6 +58,10 @@ public:
     /// (thrown by decode or finish) is rethrown here or by a later call, after every job queued
     /// before it has been finished, as with one thread.
     void queue(std::unique_ptr<PipelineJob> job);
+    /// For a job whose record is still being read (SequenceSource::watch_growth): once the
+    /// record is long enough to be decoded alone, finishes the jobs queued before it and lets
+    /// it start on its bases read so far (PipelineJob::decode_early). Queue it when read.
+    void reading(PipelineJob& job);
     /// Finishes every job queued so far.
     void drain();
     /// The pool, for work that must run with no job in flight (after drain()); nullptr with
@@ -70,6 +77,10 @@ private:
     };
     void submit_open_batch();
     void finish_oldest();
+    /// After an error: the jobs queued after the failed one are never finished (as with one
+    /// thread), so that a later drain() (a caller's cleanup) neither writes their outputs nor
+    /// throws their errors in place of the first.
+    void abandon();
     void recycle(std::unique_ptr<PipelineJob> job);
 
     int threads_;

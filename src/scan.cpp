@@ -112,12 +112,13 @@ struct Decoder {
     std::unique_ptr<PosteriorDecoder> posterior;
     std::unique_ptr<ViterbiDecoder> viterbi;
     const Model* window_model = nullptr;  ///< set for window models: sinks then see bases
-    DecodeResult run(const Contig& c, DecodeSink& sink, TaskPool* pool = nullptr) {
+    DecodeResult run(const Contig& c, DecodeSink& sink, TaskPool* pool = nullptr,
+                     PosteriorDecoder::EarlySweeps* early = nullptr) {
         if (window_model) {
             WindowExpander bases(*window_model, sink);
-            return posterior ? posterior->run(c, bases, pool) : viterbi->run(c, bases);
+            return posterior ? posterior->run(c, bases, pool, early) : viterbi->run(c, bases);
         }
-        return posterior ? posterior->run(c, sink, pool) : viterbi->run(c, sink);
+        return posterior ? posterior->run(c, sink, pool, early) : viterbi->run(c, sink);
     }
     /// Whether a record of this length should have the whole pool of `threads` workers: when it
     /// splits into at least two segments per worker. Fewer segments share a pool poorly (a
@@ -326,7 +327,11 @@ public:
         if (progress) sinks.push_back(progress.get());
         if (html) sinks.push_back(html.get());
         SinkFanout fanout(sinks);
-        result = decoders_[static_cast<size_t>(worker)].run(contig, fanout, segments);
+        result = decoders_[static_cast<size_t>(worker)].run(contig, fanout, segments, &early_);
+    }
+    // The records decoded alone are worker 0's (DecodePipeline::queue), so are their sweeps.
+    void decode_early(TaskPool& pool) override {
+        if (decoders_[0].posterior) decoders_[0].posterior->sweep_early(contig, pool, early_);
     }
     void finish() override { run_.finish(*this); }
 
@@ -338,6 +343,7 @@ public:
 private:
     ScanOutputs& run_;
     std::vector<Decoder>& decoders_;
+    PosteriorDecoder::EarlySweeps early_;
 };
 
 void ScanOutputs::finish(ScanJob& job) {
@@ -530,12 +536,19 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     std::unordered_map<std::string, std::string> names;  // record name -> the input it came from
     for (const auto& input : o.inputs) {
         std::unique_ptr<SequenceSource> source = shard.open(input, regions);
+        // A chromosome's first segments start decoding while the rest of it is read (a shard
+        // may read records another shard decodes, or decode only some of their segments).
+        ScanJob* being_read = nullptr;
+        if (threads > 1 && segment_length > 0 && !o.shard.active())
+            source->watch_growth([&](const Contig&) { pipeline.reading(*being_read); },
+                                 segment_length);
         int64_t records = 0;
         for (;;) {
             std::unique_ptr<ScanJob> job(
                 static_cast<ScanJob*>(pipeline.reuse_finished().release()));
             if (!job) job = std::make_unique<ScanJob>(run, decoders);
             job->input = &input;
+            being_read = job.get();
             bool more = false;
             try {
                 more = source->next(job->contig);

@@ -52,6 +52,23 @@ std::string random_sequence(std::mt19937_64& rng, size_t n,
     return s;
 }
 
+// seq appended to a contig `piece` bases at a time, as a reader does, with dec.sweep_early
+// after each piece.
+Contig grow_sweeping(PosteriorDecoder& dec, const std::string& seq, size_t piece, TaskPool& pool,
+                     PosteriorDecoder::EarlySweeps& early, const std::string& name = "seq") {
+    Contig c;
+    c.name = name;
+    std::vector<uint8_t> codes;
+    for (size_t at = 0; at < seq.size(); at += piece) {
+        codes.clear();
+        for (size_t i = at; i < std::min(seq.size(), at + piece); ++i)
+            codes.push_back(detail::byte_classes()[static_cast<unsigned char>(seq[i])]);
+        c.append(codes.data(), static_cast<int64_t>(codes.size()));
+        dec.sweep_early(c, pool, early);
+    }
+    return c;
+}
+
 }  // namespace
 
 TEST_CASE("segmented decoding equals exhaustive enumeration, with and without threads",
@@ -61,6 +78,7 @@ TEST_CASE("segmented decoding equals exhaustive enumeration, with and without th
     // compared with the sequential engine, which tests/decode.cpp checks against enumeration.
     std::mt19937_64 rng(7001);
     TaskPool pool2(2), pool3(3);
+    PosteriorDecoder::EarlySweeps early_sweeps;
     for (int trial = 0; trial < 40; ++trial) {
         const int S = 2 + trial % 3;
         const Profile p = test::random_profile(rng, S, 1 + trial % 2, {trial % 3, (trial + 1) % 3});
@@ -95,6 +113,13 @@ TEST_CASE("segmented decoding equals exhaustive enumeration, with and without th
                     REQUIRE(rp.log_likelihood == r.log_likelihood);
                     REQUIRE(par.posterior == rows.posterior);
                     REQUIRE(par.starts == rows.starts);
+                    // and with segments swept while the contig is appended to, base by base
+                    const Contig grown = grow_sweeping(dec, seq, 1, *pool, early_sweeps);
+                    Rows early;
+                    const DecodeResult re = dec.run(grown, early, pool, &early_sweeps);
+                    REQUIRE(re.log_likelihood == r.log_likelihood);
+                    REQUIRE(early.posterior == rows.posterior);
+                    REQUIRE(early.starts == rows.starts);
                 }
                 // E-step through segments against the enumeration's expected counts.
                 CountAccumulator acc(p, m);
@@ -146,6 +171,91 @@ TEST_CASE("segmented posteriors equal the sequential engine within 1e-9 on long 
             CHECK(worst <= 1e-9);
         }
     }
+}
+
+TEST_CASE("segments swept while the contig is read give the bits of a run after reading",
+          "[parallel]") {
+    // Reference: run() on the whole contig (the test above ties it to enumeration, test_threads.py
+    // to numpy). 300 kbp with unknown runs across segment ends, appended 777 bases at a time, so
+    // that sweeps start on prefixes ending inside a run that then grows on; segments of 5113
+    // bases (not whole bytes of 4).
+    std::mt19937_64 rng(7003);
+    TaskPool pool(2);
+    for (const int S : {2, 4, 5}) {
+        const Profile p = test::random_profile(rng, S, std::min(S, 2), {2, 1, 0, 2, 1});
+        const Model m = compile(p);
+        std::string seq = random_sequence(rng, 300000, "ACGTACGTACGTACGTACGTacgtN");
+        for (const size_t run_begin : {5000, 3 * 5113 - 10, 10 * 5113 + 1, 40 * 5113 - 3000})
+            for (size_t i = run_begin; i < run_begin + 4000; ++i) seq[i] = 'N';
+        const Contig whole = test::contig_from(seq);
+        DecoderOptions opt;
+        opt.block_size = 1000;
+        opt.segment_size = 5113;
+        PosteriorDecoder dec(m, opt);
+        Rows want;
+        const DecodeResult r = dec.run(whole, want, &pool);
+        PosteriorDecoder::EarlySweeps early;
+        const Contig grown = grow_sweeping(dec, seq, 777, pool, early);
+        // Every segment wholly inside the last whole byte before the end was started early.
+        CHECK(early.started() == (300000 / 4 * 4) / 5113);
+        Rows got;
+        const DecodeResult re = dec.run(grown, got, &pool, &early);
+        CHECK(early.started() == 0);
+        INFO("S " << S);
+        CHECK(re.log_likelihood == r.log_likelihood);
+        CHECK(got.posterior == want.posterior);
+        CHECK(got.starts == want.starts);
+        // A sink that cannot fork decodes in one pass: the early sweeps are dropped.
+        PlainRows plain;
+        grow_sweeping(dec, seq, 777, pool, early);
+        dec.run(grown, plain, &pool, &early);
+        DecoderOptions seq_opt;
+        seq_opt.segment_size = -1;
+        PosteriorDecoder sequential(m, seq_opt);
+        PlainRows reference;
+        sequential.run(whole, reference);
+        CHECK(plain.posterior == reference.posterior);
+        // Sweeps of a record never decoded (its reading failed) are waited for and dropped.
+        grow_sweeping(dec, seq.substr(0, 100000), 777, pool, early);
+        early.reset();
+        Rows again;
+        dec.run(whole, again, &pool, &early);
+        CHECK(again.posterior == want.posterior);
+    }
+}
+
+TEST_CASE("an impossible segment swept early fails as it does after reading", "[parallel]") {
+    // One state that never emits G (as in tests/decode.cpp): the first G is impossible. With the
+    // early sweeps the error must be the one of a run after reading, whose text decode.cpp checks.
+    Profile p;
+    p.name = "no-g";
+    p.regions = {{"a", true, ""}};
+    p.states = {{"x", 0, 0, {{0.5, 0.5, 0.0, 0.0}}}};
+    p.initial = {1.0};
+    p.transitions = {{1.0}};
+    const Model m = compile(p);
+    std::string seq(2000, 'A');
+    for (size_t i = 1; i < seq.size(); i += 2) seq[i] = 'C';
+    seq[1234] = seq[1700] = 'G';
+    DecoderOptions opt;
+    opt.block_size = 10;
+    opt.segment_size = 100;
+    PosteriorDecoder dec(m, opt);
+    TaskPool pool(2);
+    const auto message = [&](const Contig& c, PosteriorDecoder::EarlySweeps* early) {
+        Rows rows;
+        try {
+            dec.run(c, rows, &pool, early);
+        } catch (const InputError& e) {
+            return std::string(e.what());
+        }
+        return std::string("no error");
+    };
+    const std::string want = message(test::contig_from(seq, "chrQ"), nullptr);
+    CHECK(want.find("chrQ") != std::string::npos);
+    PosteriorDecoder::EarlySweeps early;
+    const Contig grown = grow_sweeping(dec, seq, 50, pool, early, "chrQ");
+    CHECK(message(grown, &early) == want);
 }
 
 TEST_CASE("sinks that cannot fork and models with many states decode in one pass", "[parallel]") {

@@ -37,6 +37,15 @@ public:
         log_.had_pool[static_cast<size_t>(id_)] = segments != nullptr;
     }
     void finish() override { log_.finished.push_back(id_); }
+    void decode_early(TaskPool& pool) override {
+        early.push_back({contig.length, log_.finished.size(), pool.threads()});
+    }
+    struct Early {
+        int64_t length;
+        size_t finished_before;  ///< jobs finished when it was called
+        int pool_threads;
+    };
+    std::vector<Early> early;
 
 private:
     Log& log_;
@@ -123,4 +132,66 @@ TEST_CASE("pipeline: a finished job serves the next record, its contig cleared")
     CHECK(next->contig.name.empty());
     CHECK(pipeline.reuse_finished() == nullptr);
     CHECK(log.finished == std::vector<int>{0});
+}
+
+TEST_CASE("pipeline: a record being read starts early once it is long enough to be alone") {
+    // The record grows past the alone length (5000) while two small records are queued ahead of
+    // it: no early start before that length or with one thread; at it, the earlier jobs are
+    // finished first (the pool is then the record's alone), as queue() would do.
+    for (const int threads : {1, 2}) {
+        DecodePipeline pipeline(
+            threads, [](int64_t length) { return length >= alone_length; }, 1 << 20);
+        Log log;
+        log.had_pool.assign(3, false);
+        pipeline.queue(std::make_unique<RecordingJob>(log, 0, 10, -1));
+        pipeline.queue(std::make_unique<RecordingJob>(log, 1, 20, -1));
+        auto reading = std::make_unique<RecordingJob>(log, 2, 4000, -1);
+        pipeline.reading(*reading);
+        const std::vector<uint8_t> more(1500, 1);
+        reading->contig.append(more.data(), 1500);
+        pipeline.reading(*reading);
+        reading->contig.append(more.data(), 1500);
+        pipeline.reading(*reading);
+        const std::vector<RecordingJob::Early> early = reading->early;
+        pipeline.queue(std::move(reading));
+        pipeline.drain();
+        CHECK(log.finished == std::vector<int>{0, 1, 2});
+        if (threads == 1) {
+            CHECK(early.empty());
+            continue;
+        }
+        REQUIRE(early.size() == 2);
+        CHECK((early[0].length == 5500 && early[0].finished_before == 2 &&
+               early[0].pool_threads == 2));
+        CHECK((early[1].length == 7000 && early[1].finished_before == 2));
+        CHECK(log.had_pool[2]);
+    }
+}
+
+TEST_CASE("pipeline: after an error, a cleanup drain finishes nothing queued after it") {
+    // Jobs 0..9 in batches of one record; job 3 fails. The error surfaces in reading() (as it
+    // would inside a reader's next()); the caller's cleanup then drains, and must neither finish
+    // jobs 4..9 nor throw the error of job 6 in place of job 3's, as with one thread.
+    DecodePipeline pipeline(
+        2, [](int64_t length) { return length >= alone_length; }, 1);
+    Log log;
+    log.had_pool.assign(11, false);
+    std::string error;
+    try {
+        for (int i = 0; i < 10; ++i)
+            pipeline.queue(std::make_unique<RecordingJob>(log, i, 10, i == 6 ? 6 : 3));
+    } catch (const std::runtime_error& e) {
+        error = e.what();
+    }
+    if (error.empty()) {
+        RecordingJob reading(log, 10, alone_length, -1);
+        try {
+            pipeline.reading(reading);
+        } catch (const std::runtime_error& e) {
+            error = e.what();
+        }
+    }
+    CHECK(error == "job 3");
+    pipeline.drain();
+    CHECK(log.finished == std::vector<int>{0, 1, 2});
 }

@@ -277,6 +277,65 @@ TEST_CASE("append_unknown equals pushing unknown bases one by one", "[sequence]"
     }
 }
 
+TEST_CASE("a shared prefix keeps its bases while the contig grows on", "[sequence]") {
+    // Expected bases: the generator below, written independently of the storage. The prefix is
+    // taken while chunk 0 is small (it is regrown, then a second chunk added) and while an
+    // unknown run crosses its end (the contig's run grows on; the prefix's stops at its end).
+    const auto code_at = [](int64_t i) {
+        return (i >= 900 && i < 1300) ? uint8_t{base_unknown}
+                                      : static_cast<uint8_t>((i * 5 + i / 7) % 4);
+    };
+    Contig c;
+    c.name = "grow";
+    for (int64_t i = 0; i < 1003; ++i) c.push(code_at(i));
+    CHECK_THROWS_AS(c.shared_prefix(1004), InternalError);  // past the last whole byte
+    CHECK_THROWS_AS(c.shared_prefix(1001), InternalError);  // that byte is written again
+    const Contig prefix = c.shared_prefix(1000);
+    const int64_t n = (int64_t{1} << Contig::chunk_shift) + 5000;
+    std::vector<uint8_t> codes;
+    for (int64_t i = 1003; i < n; ++i) codes.push_back(code_at(i));
+    c.append(codes.data(), static_cast<int64_t>(codes.size()));
+    REQUIRE(c.unknown.size() == 1);
+    CHECK((c.unknown[0].begin == 900 && c.unknown[0].length == 400));
+    CHECK(prefix.name == "grow");
+    REQUIRE(prefix.length == 1000);
+    REQUIRE(prefix.unknown.size() == 1);
+    CHECK((prefix.unknown[0].begin == 900 && prefix.unknown[0].length == 100));
+    std::vector<uint8_t> got(1000);
+    prefix.unpack(0, 1000, got.data());
+    for (int64_t i = 0; i < 1000; ++i) REQUIRE(got[static_cast<size_t>(i)] == code_at(i));
+    for (int64_t i = 0; i < n; i += 997) REQUIRE(c.base(i) == code_at(i));
+}
+
+TEST_CASE("a watched record is seen as it grows, and read as without watching", "[sequence]") {
+    // 10,000 bases in lines of 60, then a second record; the hook every 1,000 bases. Expected:
+    // the record's line ends at or past each next 1,000 bases, counted here.
+    std::string text = ">first\n";
+    std::string bases;
+    for (int i = 0; i < 10000; ++i) bases += "ACGTTGCANNAC"[i % 12];
+    for (size_t at = 0; at < bases.size(); at += 60) text += bases.substr(at, 60) + "\n";
+    text += ">second\nACGT\n";
+    const TempFile f(text, ".fa");
+    std::vector<int64_t> want;
+    for (int64_t next = 1000, end = 60; end < 10060; end += 60) {
+        const int64_t len = std::min<int64_t>(end, 10000);  // the last line holds 40
+        if (len >= next) {
+            want.push_back(len);
+            next = len + 1000;
+        }
+    }
+    auto src = open_fasta(f.path());
+    std::vector<std::pair<std::string, int64_t>> seen;
+    src->watch_growth([&](const Contig& c) { seen.emplace_back(c.name, c.length); }, 1000);
+    Contig c;
+    Records records;
+    while (src->next(c)) records.emplace_back(c.name, decode(c));
+    CHECK(records == read_all(f.path()));
+    REQUIRE(seen.size() == want.size());
+    for (size_t k = 0; k < seen.size(); ++k)
+        CHECK((seen[k].first == "first" && seen[k].second == want[k]));
+}
+
 TEST_CASE("composition and the observed/expected CpG ratio", "[sequence]") {
     // Hand count of "CGCGAATTNCG": A2 C3 G3 T2, one N; CpG at 0-1, 2-3, 9-10 = 3 (none spans the
     // N). Known length L = 10, o/e = N(CpG) L / (N(C) N(G)) = 3*10/(3*3) = 3.3333 (formula of

@@ -129,9 +129,37 @@ class PosteriorDecoder {
 public:
     explicit PosteriorDecoder(const Model& model, DecoderOptions options = {});
     ~PosteriorDecoder();
+    /// Step (a) of a long record's segments started while the record is still being read
+    /// (sweep_early), so that reading a chromosome does not leave the pool idle; run() takes
+    /// them over once the record is read whole. Waits for its tasks when destroyed.
+    class EarlySweeps {
+    public:
+        EarlySweeps();
+        ~EarlySweeps();
+        EarlySweeps(const EarlySweeps&) = delete;
+        EarlySweeps& operator=(const EarlySweeps&) = delete;
+        /// Waits for the tasks and forgets them (the record is not decoded after all).
+        void reset();
+        /// Segments started (0 once run() has taken them).
+        size_t started() const;
+
+    private:
+        friend class PosteriorDecoder;
+        struct State;
+        std::unique_ptr<State> state_;
+    };
+
     /// pool: runs the segments of a long contig in parallel (nullptr = on this thread). The
-    /// pool's workers must be idle (not waiting on this call).
-    DecodeResult run(const Contig& contig, DecodeSink& sink, TaskPool* pool = nullptr);
+    /// pool's workers must be idle (not waiting on this call), or running only `early`'s
+    /// sweeps. early: the sweeps sweep_early started for this contig while it was read (they
+    /// give bit for bit what run() would compute); run() waits for them and empties it.
+    DecodeResult run(const Contig& contig, DecodeSink& sink, TaskPool* pool = nullptr,
+                     EarlySweeps* early = nullptr);
+    /// Starts on `pool` step (a) of each segment of `reading` that is now read whole and not
+    /// yet in `early`, on a shared prefix of its bases (Contig::shared_prefix). `reading` is a
+    /// record still being appended to; nothing is started unless its length already splits().
+    /// The pool must run no other work of this decoder until run() takes `early`.
+    void sweep_early(const Contig& reading, TaskPool& pool, EarlySweeps& early);
     /// True when a contig of this length is decoded in segments (given a forkable sink).
     bool splits(int64_t length) const;
     /// Segment length of long contigs; 0 = this model is never split.
@@ -164,7 +192,8 @@ private:
     template <int Fixed>
     DecodeResult run_fixed(const Contig& contig, DecodeSink& sink);
     template <int Fixed>
-    DecodeResult run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool);
+    DecodeResult run_segmented(const Contig& contig, DecodeSink& sink, TaskPool* pool,
+                               EarlySweeps* early);
     std::vector<Segment> make_segments(int64_t length) const;
     uint32_t bases_crc32(const Contig& contig, int64_t begin, int64_t end) const;
     void make_workspaces(TaskPool* pool);    ///< one workspace per pool worker
@@ -172,8 +201,11 @@ private:
     void for_segments(size_t first, size_t last, TaskPool* pool,
                       const std::function<void(size_t, Workspace&)>& task);
     template <int Fixed>
+    void matrix_sweep(const Contig& contig, Segment& segment, Workspace& ws) const;
+    template <int Fixed>
     void matrix_sweeps(const Contig& contig, std::vector<Segment>& segs, size_t first, size_t last,
                        TaskPool* pool);
+    void take_early(EarlySweeps& early, std::vector<Segment>& segs) const;
     template <int Fixed>
     DecodeResult sweep_segments(const Contig& contig, std::vector<Segment>& segs, size_t first,
                                 size_t last, DecodeSink& sink, const SegmentTaker& take,

@@ -2,7 +2,9 @@
 // yielding one compactly stored contig at a time.
 #pragma once
 
+#include <algorithm>
 #include <cstdint>
+#include <functional>
 #include <memory>
 #include <string>
 #include <vector>
@@ -33,8 +35,16 @@ struct Composition;
 ///
 /// Storage is chunked (4 Mi bases per chunk) so that growing a chromosome copies at most its
 /// first chunk and peak memory stays at about 0.25 bytes per base. Reusing one Contig for many
-/// records keeps its chunks allocated.
+/// records keeps its chunks allocated. Not copyable (a copy would share the chunks); see
+/// shared_prefix for the one read-only copy there is.
 struct Contig {
+    Contig() = default;
+    Contig(const Contig&) = delete;
+    Contig& operator=(const Contig&) = delete;
+    Contig(Contig&&) = default;
+    Contig& operator=(Contig&&) = default;
+    ~Contig() = default;
+
     std::string name;             ///< record name: first word of the FASTA header
     int64_t offset = 0;           ///< 0-based position of base 0 on the named sequence (regions)
     int64_t length = 0;           ///< number of bases, known and unknown
@@ -60,6 +70,13 @@ struct Contig {
     void append(const uint8_t* codes, int64_t n);
     /// Appends n unknown bases (one run; no per-base work).
     void append_unknown(int64_t n);
+    /// A read-only contig of the first n bases, sharing this one's storage, for reading on
+    /// another thread while this one is still appended to (a long record's first segments are
+    /// decoded before the rest is read). n is at most length rounded down to a multiple of 4:
+    /// appending rewrites the byte of the last, partly filled group of 4 bases, never earlier
+    /// ones, and frees no storage a prefix holds. clear() and reuse do write over it, so the
+    /// prefix must be gone by then.
+    Contig shared_prefix(int64_t n) const;
 
     static constexpr int chunk_shift = 22;  // bases per chunk = 4 Mi (1 MiB packed)
 
@@ -68,7 +85,7 @@ private:
                                    int64_t end);  // reads chunks_
     /// Chunk `chunk` with room for at least `bytes` bytes (allocated or grown as needed).
     uint8_t* chunk_room(size_t chunk, int64_t bytes);
-    std::vector<std::unique_ptr<uint8_t[]>> chunks_;
+    std::vector<std::shared_ptr<uint8_t[]>> chunks_;  ///< shared with prefixes (shared_prefix)
     /// Bytes allocated for chunks_[0]: it starts small and doubles up to a whole chunk, so that
     /// a short record (a draft's contigs are often under 1 kbp) costs its bytes, not a chunk.
     int64_t first_chunk_bytes_ = 0;
@@ -112,9 +129,19 @@ public:
     /// How lowercase bases of the records read from now on are taken [SoftMasked::base].
     virtual void set_soft_masked(SoftMasked mode) { soft_masked_ = mode; }
     SoftMasked soft_masked() const { return soft_masked_; }
+    /// Has `hook` called with the record being read each time about `bases` more of its bases
+    /// have been read (at the end of a line or of an input buffer), so that work on a long
+    /// record's first bases can start before the rest is read. Streamed FASTA calls it; other
+    /// sources never do. An exception from the hook leaves next() and ends the reading.
+    void watch_growth(std::function<void(const Contig&)> hook, int64_t bases) {
+        growth_hook_ = std::move(hook);
+        growth_step_ = std::max<int64_t>(1, bases);
+    }
 
 protected:
     SoftMasked soft_masked_ = SoftMasked::base;
+    std::function<void(const Contig&)> growth_hook_;
+    int64_t growth_step_ = 0;
 };
 
 /// Streams every record of a FASTA file. path "-" is stdin. Plain, gzip and bgzip are read

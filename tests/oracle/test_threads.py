@@ -113,12 +113,14 @@ def body(checks, binary, workdir):
     tmtest.write_fasta(many, records(rng, [61000, 150000, 4000, 230000, 90000, 12000, 47000, 1], "ctg"))
     long_fa = os.path.join(workdir, "long.fa")
     tmtest.write_fasta(long_fa, records(rng, [2_300_000], "chrL"))
-    # --block 2000: 64 Ki segments (the floor), so the many-contig input is also split inside contigs.
+    # --block 2000: 64 Ki segments (the floor), so the many-contig input is also split inside contigs,
+    # and the long contig has 36 segments: with 2 and 3 threads it is decoded alone, its first
+    # segments swept while the rest is still read.
     # Profiles of 3 and 5 states as well: their decoder kernels differ from the 4-state ones (plain
     # loops where the vectors of the AVX2 build do not fit registers).
     profiles = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "data", "profiles")
     for tag, fasta, extra in [("many", many, []), ("many-small-blocks", many, ["--block", "2000"]),
-                              ("long", long_fa, []),
+                              ("long", long_fa, []), ("long-small-blocks", long_fa, ["--block", "2000"]),
                               ("long-3-states", long_fa, ["-p", os.path.join(profiles, "gc-shift-per-base.json")]),
                               ("long-5-states", long_fa, ["-p", os.path.join(profiles, "isochore-per-base.json")])]:
         base = outputs(binary, workdir, tag, fasta, 1, extra)
@@ -148,7 +150,8 @@ def body(checks, binary, workdir):
     base = fit(1, long_fa, 1)
     checks.check(fit(2, long_fa, 1) == base, "fit on one long (segmented) contig identical with --threads 2", ONE)
 
-    # Segmented posteriors against numpy on a 40 kbp contig cut into 16 segments (--block 160).
+    # Segmented posteriors against numpy on a 40 kbp contig cut into 16 segments (--block 160),
+    # with 2 threads: decoded alone, its first segments swept while the rest is read.
     name, seq = records(rng, [40000], "chrP")[0]
     small = os.path.join(workdir, "small.fa")
     tmtest.write_fasta(small, [(name, seq)])
