@@ -217,7 +217,7 @@ DecodeResult PosteriorDecoder::run(const Contig& contig, DecodeSink& sink, TaskP
                                    EarlySweeps* early) {
     const bool segmented = model_.window == 0 && model_.states <= max_fixed_states &&
                            splits(contig.length) && sink.fork();
-    if (early && !segmented) early->reset();  // (sweep_early starts none for such a run)
+    if (early && !segmented) early->reset();  // e.g. a sink that cannot fork: one pass
     // Window models: few positions (one per window), emissions kept as logs (decode_windows).
     if (model_.window > 0) return decode_windows(model_, block_, contig, sink);
     if (model_.states > max_fixed_states) return run_fixed<0>(contig, sink);

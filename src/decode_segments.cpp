@@ -272,15 +272,21 @@ void PosteriorDecoder::sweep_early(const Contig& reading, TaskPool& pool, EarlyS
     if (ready <= st.segments.size()) return;
     auto prefix = std::make_shared<const Contig>(
         reading.shared_prefix(static_cast<int64_t>(ready) * segment_));
+    st.done.reserve(ready);  // push_back below cannot throw once a task is running
     for (size_t k = st.segments.size(); k < ready; ++k) {
         Segment& sg = st.segments.emplace_back();
         sg.begin = static_cast<int64_t>(k) * segment_;
         sg.end = sg.begin + segment_;
-        st.done.push_back(pool.submit([this, prefix, &sg](int worker) {
-            with_fixed_states(model_.states, [&](auto fixed) {
-                matrix_sweep<decltype(fixed)::value>(*prefix, sg, sized_workspace(worker));
-            });
-        }));
+        try {
+            st.done.push_back(pool.submit([this, prefix, &sg](int worker) {
+                with_fixed_states(model_.states, [&](auto fixed) {
+                    matrix_sweep<decltype(fixed)::value>(*prefix, sg, sized_workspace(worker));
+                });
+            }));
+        } catch (...) {              // submit failed: no task holds sg
+            st.segments.pop_back();  // one task per segment, as take_early expects
+            throw;
+        }
     }
 }
 
