@@ -150,9 +150,10 @@ def body(checks, binary, workdir):
     base = fit(1, long_fa, 1)
     checks.check(fit(2, long_fa, 1) == base, "fit on one long (segmented) contig identical with --threads 2", ONE)
 
-    # Segmented posteriors against numpy on a 40 kbp contig cut into 16 segments (--block 160),
-    # with 2 threads: decoded alone, its first segments swept while the rest is read.
-    name, seq = records(rng, [40000], "chrP")[0]
+    # Segmented posteriors against numpy on a 300-kbp contig in 5 segments of 64 Ki bases (--block
+    # 2000: segments are 16 blocks but at least 64 Ki, README), with 2 threads: decoded alone, its
+    # first segments swept while the rest is read.
+    name, seq = records(rng, [300000], "chrP")[0]
     small = os.path.join(workdir, "small.fa")
     tmtest.write_fasta(small, [(name, seq)])
     profile = json.loads(tmtest.run(binary, ["profiles", "show", "cpg-island"]))
@@ -163,7 +164,7 @@ def body(checks, binary, workdir):
     for kernels in ("chosen", "portable"):
         prefix = os.path.join(workdir, "seg-" + kernels)
         with portable_kernels() if kernels == "portable" else contextlib.nullcontext():
-            tmtest.run(binary, ["scan", "-q", "-t", "2", small, "-o", prefix + ".bed", "--block", "160",
+            tmtest.run(binary, ["scan", "-q", "-t", "2", small, "-o", prefix + ".bed", "--block", "2000",
                                 "--posteriors", prefix, "--posterior-digits", "12", "--summary", prefix + ".json"])
         got = tmtest.read_bedgraph(prefix + ".cpg_island.bedgraph", {name: len(seq)})[name]
         checks.check(np.array_equal(np.isnan(got), gap),
