@@ -243,13 +243,7 @@ TEST_CASE("long sequences do not underflow and block size does not change result
 }
 
 TEST_CASE("a sequence impossible under the profile names contig and position", "[decode]") {
-    Profile p;
-    p.name = "no-g";
-    p.regions = {{"a", true, ""}};
-    p.states = {{"x", 0, 0, {{0.5, 0.5, 0.0, 0.0}}}};
-    p.initial = {1.0};
-    p.transitions = {{1.0}};
-    const Model m = compile(p);
+    const Model m = compile(test::profile_without_g());
     const Contig c = test::contig_from("ACACAGAC", "chrQ");
     PosteriorDecoder dec(m);
     Collect sink;

@@ -227,13 +227,7 @@ TEST_CASE("segments swept while the contig is read give the bits of a run after 
 TEST_CASE("an impossible segment swept early fails as it does after reading", "[parallel]") {
     // One state that never emits G (as in tests/decode.cpp): the first G is impossible. With the
     // early sweeps the error must be the one of a run after reading, whose text decode.cpp checks.
-    Profile p;
-    p.name = "no-g";
-    p.regions = {{"a", true, ""}};
-    p.states = {{"x", 0, 0, {{0.5, 0.5, 0.0, 0.0}}}};
-    p.initial = {1.0};
-    p.transitions = {{1.0}};
-    const Model m = compile(p);
+    const Model m = compile(test::profile_without_g());
     std::string seq(2000, 'A');
     for (size_t i = 1; i < seq.size(); i += 2) seq[i] = 'C';
     seq[1234] = seq[1700] = 'G';

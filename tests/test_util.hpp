@@ -37,6 +37,17 @@ private:
     std::string dir_, path_;
 };
 
+/// One order-0 state that emits only A and C: any G or T makes a sequence impossible.
+inline Profile profile_without_g() {
+    Profile p;
+    p.name = "no-g";
+    p.regions = {{"a", true, ""}};
+    p.states = {{"x", 0, 0, {{0.5, 0.5, 0.0, 0.0}}}};
+    p.initial = {1.0};
+    p.transitions = {{1.0}};
+    return p;
+}
+
 /// A random valid profile: S states in R regions (region 0 reported), the given orders.
 inline Profile random_profile(std::mt19937_64& rng, int S, int R, const std::vector<int>& orders,
                               bool with_zeros = false) {
