@@ -483,6 +483,14 @@ std::string profile_checksum(const Profile& profile) {
     return fmt::format("{:08x}", crc);
 }
 
+void require_fitted(const Profile& p) {
+    if (!p.is_template) return;
+    throw ProfileError(fmt::format(
+        "profile '{0}' is a template whose classes have not been fitted; fit it to your genome "
+        "first ('tidemark fit GENOME.fa -p {0} -o P.json'), then scan with '-p P.json'",
+        p.name));
+}
+
 Profile load_profile(const std::string& name_or_path) {
     for (const auto& b : builtin_profiles())
         if (b.name == name_or_path)

@@ -91,6 +91,12 @@ struct Profile {
     int region_index(std::string_view region) const;  ///< -1 when absent
 };
 
+/// Scanning needs fitted classes: a template's emissions are placeholders that only fix the
+/// classes' order (fit reseeds them on the genome), so decoding with them labels a genome by
+/// numbers nobody fitted. Throws ProfileError naming `tidemark fit` when profile.is_template.
+/// Simulation may draw from a template (its placeholders define a model like any other).
+void require_fitted(const Profile& profile);
+
 /// Parses and validates profile JSON. origin names the source in error messages.
 /// Throws ProfileError naming the offending field: unknown or missing fields, rows that do not
 /// sum to 1 within 1e-6, negative or non-finite values, unresolved names, an order outside
