@@ -106,6 +106,37 @@ private:
     std::string origin_;
 };
 
+// gc.below / gc.above: the reference exists, is another unconstrained and untied state, the mean
+// is on its side already (training keeps it there but must start there), and one reference
+// orders at most max_gc_ordered states (the M-step tries every subset of them tied to it).
+void check_gc_order(const Profile& p, const Validator& v) {
+    for (size_t i = 0; i < p.states.size(); ++i) {
+        const StateSpec& s = p.states[i];
+        if (s.gc_reference.empty()) continue;
+        const char* key = s.gc_side < 0 ? "below" : "above";
+        const std::string where = fmt::format("states[{}] ('{}').gc.{}", i, s.name, key);
+        const int r = p.state_index(s.gc_reference);
+        if (r < 0) v.fail(where, "names unknown state '" + s.gc_reference + "'");
+        if (r == static_cast<int>(i)) v.fail(where, "names the state itself");
+        const StateSpec& ref = p.states[r];
+        if (!ref.gc_reference.empty())
+            v.fail(where, fmt::format("names '{}', which is ordered itself (gc.below/above); a "
+                                      "reference must be unconstrained",
+                                      ref.name));
+        if (!s.tie.empty() || !ref.tie.empty())
+            v.fail(where, "ordered states and their reference cannot be tied");
+        if (s.gc_side * (s.gc.mean - ref.gc.mean) < 0)
+            v.fail(where, fmt::format("mean {} is not {} the mean {} of '{}'", s.gc.mean, key,
+                                      ref.gc.mean, ref.name));
+        const auto ordered = std::count_if(p.states.begin(), p.states.end(), [&](const auto& u) {
+            return u.gc_reference == s.gc_reference;
+        });
+        if (ordered > max_gc_ordered)
+            v.fail(where, fmt::format("'{}' orders {} states; at most {} may refer to one state",
+                                      ref.name, ordered, max_gc_ordered));
+    }
+}
+
 // Tied states share one table, so the file must not give them different ones.
 void check_ties(const Profile& p, const Validator& v) {
     constexpr double tie_tolerance = 1e-9;
@@ -280,8 +311,10 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         }
         p.regions.push_back(std::move(r));
     }
-    if (std::none_of(p.regions.begin(), p.regions.end(),
-                     [](const RegionSpec& r) { return r.report; }))
+    // One region alone may be unreported: a genome that is all one class (e.g. a fit that found
+    // no shifted class in it) has nothing to call.
+    if (p.regions.size() > 1 && std::none_of(p.regions.begin(), p.regions.end(),
+                                             [](const RegionSpec& r) { return r.report; }))
         v.fail("regions", "no region has \"report\": true, so nothing would be called");
 
     const json& states = v.field(doc, "states", "top level");
@@ -314,7 +347,14 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         if (s.region < 0) v.fail(where + ".region", "names unknown region '" + region + "'");
         if (p.window_size > 0) {
             const json& gc = v.field(states[i], "gc", where);
-            v.only_fields(gc, where + ".gc", {"mean", "dispersion"});
+            v.only_fields(gc, where + ".gc", {"mean", "dispersion", "below", "above"});
+            if (gc.contains("below") && gc.contains("above"))
+                v.fail(where + ".gc", "give 'below' or 'above', not both");
+            for (const auto& [key, side] : {std::pair{"below", -1}, std::pair{"above", 1}})
+                if (gc.contains(key)) {
+                    s.gc_reference = v.string_field(gc, key, where + ".gc");
+                    s.gc_side = side;
+                }
             const auto open_unit = [&](const char* key) {
                 const json& x = v.field(gc, key, where + ".gc");
                 const std::string at = where + ".gc." + key;
@@ -369,6 +409,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         p.states.push_back(std::move(s));
     }
     check_ties(p, v);
+    check_gc_order(p, v);
     for (size_t r = 0; r < p.regions.size(); ++r)
         if (std::none_of(p.states.begin(), p.states.end(),
                          [&](const StateSpec& s) { return s.region == static_cast<int>(r); }))
@@ -449,6 +490,8 @@ std::string to_json(const Profile& p) {
         if (p.window_size > 0) {
             if (!s.tie.empty()) o["tie"] = s.tie;
             o["gc"] = {{"mean", s.gc.mean}, {"dispersion", s.gc.dispersion}};
+            if (!s.gc_reference.empty())
+                o["gc"][s.gc_side < 0 ? "below" : "above"] = s.gc_reference;
             doc["states"].push_back(o);
             continue;
         }

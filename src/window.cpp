@@ -58,6 +58,14 @@ WindowCount window_count(const Model& m, const Contig& contig, int64_t pos) {
     return {c.c + c.g, c.known()};
 }
 
+double beta_binomial_log_kernel(double a, double b, int64_t k, int64_t n) {
+    if (a >= stirling_from && b >= stirling_from)
+        return large_kernel(a, b, static_cast<double>(k), static_cast<double>(n));
+    return std::lgamma(static_cast<double>(k) + a) + std::lgamma(static_cast<double>(n - k) + b) -
+           std::lgamma(static_cast<double>(n) + a + b) -
+           (std::lgamma(a) + std::lgamma(b) - std::lgamma(a + b));
+}
+
 double window_log_probability(const Model& m, int s, int64_t k, int64_t n) {
     if (n == 0) return 0;
     const double a = m.gc_alpha[s], b = m.gc_beta[s];

@@ -17,6 +17,9 @@ inline constexpr int max_emission_order = 5;
 /// Upper bound on the number of compiled states (duration chains included): the decoders also
 /// keep a dense S x S transition matrix, 32 MiB at this size.
 inline constexpr int max_compiled_states = 2048;
+/// Upper bound on the window states one state's GC mean orders (gc.below / gc.above): the
+/// constrained M-step tries all 2^n ways of tying them to it.
+inline constexpr int max_gc_ordered = 8;
 
 /// A region type: what a call is named after. Several states may belong to one region.
 struct RegionSpec {
@@ -57,6 +60,12 @@ struct StateSpec {
     /// Tie group: states that name the same non-empty group share one emission table (same
     /// order, identical rows), and training estimates it from their pooled counts.
     std::string tie;
+    /// Window states: the state whose GC mean this state's mean stays on one side of
+    /// (gc.below / gc.above in the file; "" = unconstrained), so that a class named for a GC
+    /// direction keeps it: training maximises under this order (train.hpp, maximise). The
+    /// reference is itself unconstrained, and neither is tied.
+    std::string gc_reference;
+    int gc_side = 0;  ///< -1: mean <= the reference's mean (below); +1: mean >= it (above)
 };
 
 /// Interval-calling defaults a profile may carry (overridden by command-line options).
