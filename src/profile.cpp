@@ -266,9 +266,15 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     }
     if (doc.contains("window")) {
         const json& w = doc["window"];
-        v.only_fields(w, "window", {"size"});
+        v.only_fields(w, "window", {"size", "min_known"});
         p.window_size = v.nonnegative_integer(v.field(w, "size", "window"), "window.size");
         if (p.window_size < 1) v.fail("window.size", "must be at least 1 base");
+        if (w.contains("min_known")) {
+            p.window_min_known = v.nonnegative_integer(w["min_known"], "window.min_known");
+            if (p.window_min_known < 1 || p.window_min_known > p.window_size)
+                v.fail("window.min_known", fmt::format("must be from 1 to window.size ({}), not {}",
+                                                       p.window_size, p.window_min_known));
+        }
     }
 
     const json& regions = v.field(doc, "regions", "top level");
@@ -472,6 +478,7 @@ std::string to_json(const Profile& p) {
     doc["sources"] = p.sources;
     if (p.is_template) doc["template"] = true;
     if (p.window_size > 0) doc["window"] = {{"size", p.window_size}};
+    if (p.window_min_known > 1) doc["window"]["min_known"] = p.window_min_known;
     doc["regions"] = ordered_json::array();
     for (const auto& r : p.regions) {
         ordered_json o;
@@ -585,6 +592,7 @@ Model compile(const Profile& p) {
     }
     m.emission = std::move(tables);
     m.window = p.window_size;
+    m.window_min_known = p.window_min_known;
     for (int s = 0; s < P; ++s) {
         const StateSpec& st = p.states[s];
         const int L = first[s + 1] - first[s];

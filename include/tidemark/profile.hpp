@@ -89,6 +89,11 @@ struct Profile {
     /// Window profiles: bases per window (the sequence is cut into windows of this size from each
     /// contig's start; the last may be shorter). 0 = per-base emissions.
     int64_t window_size = 0;
+    /// Window profiles: a window with fewer known bases than this carries no evidence: it emits
+    /// 1 in every state, like a window of unknown bases, so that its posterior is what its
+    /// neighbours and the transitions support (window.min_known; 1 = every window with a known
+    /// base counts).
+    int64_t window_min_known = 1;
     /// A template: its emissions only fix the classes' order, and fit reseeds them from the data
     /// before Baum-Welch (as --init-from-data does). Fitted profiles are not templates.
     bool is_template = false;
@@ -183,6 +188,8 @@ struct Model {
     int max_order = 0;
     /// Window profiles: bases per decoding position (positions are windows); 0 = per base.
     int64_t window = 0;
+    /// Window profiles: windows with fewer known bases emit 1 (Profile::window_min_known).
+    int64_t window_min_known = 1;
     /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
     /// lbeta(alpha, beta) (the normaliser, precomputed).
     std::vector<double> gc_alpha, gc_beta, gc_lbeta;

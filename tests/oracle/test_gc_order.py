@@ -2,7 +2,8 @@
 the M-step) on a real genome where they used to cross: E. coli K-12 MG1655 (Debian
 ragout-examples), fitted with the README's recipe. Checks the log-likelihood history, the fitted
 order, every call's measured GC against its name, and each constrained M-step against scipy's
-constrained maximisation of the same expected log-likelihood."""
+constrained maximisation of the same expected log-likelihood; and the evidence rule on a draft's
+short contigs."""
 
 import gzip
 import json
@@ -136,6 +137,16 @@ def body(checks, binary, work):
     checks.check(active > 0, "K-12: the order constraint was active in some M-step (the genome where classes "
                  "used to cross)", "issue 21: K-12 fitted gc_shifted 0.496 below typical 0.516 before",
                  f"{active} of {steps} steps")
+
+    # The evidence rule: a 56-bp homopolymer contig and a 1-kb contig beside K-12 get no call.
+    draft = os.path.join(work, "draft.fa")
+    tmtest.write_fasta(draft, [("k12", seqs[next(iter(seqs))]), ("polyA", "A" * 56),
+                               ("sliver", seqs[next(iter(seqs))][1000:2000].replace("G", "A").replace("C", "T"))])
+    folder = os.path.join(work, "recipe")
+    tmtest.run_in(binary, folder, ["scan", draft, "-p", "P.json", "-o", "draft.bed", "-q"])
+    short = [r for r in tmtest.read_bed(os.path.join(folder, "draft.bed")) if r[0] in ("polyA", "sliver")]
+    checks.check(not short, "a 56-bp homopolymer contig and a 1-kb all-A/T contig are not called (fewer known "
+                 "bases than window.min_known: no evidence)", "README: the evidence rule", str(short))
 
 
 if __name__ == "__main__":
