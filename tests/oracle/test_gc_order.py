@@ -103,7 +103,7 @@ def body(checks, binary, work):
     # from the seeded template (transitions kept, as fit does for a template).
     folder = os.path.join(work, "steps")
     tmtest.run_in(binary, folder, ["fit", fasta, "-p", "gc-shift", "--max-iter", "0", "-o", "p0.json", "-q"])
-    current, active, steps, worst = "p0.json", 0, 0, None
+    current, active, steps, worst, lls = "p0.json", 0, 0, None, []
     for step in range(25):
         tmtest.run_in(binary, folder, ["fit", fasta, "-p", current, "--emit-stats", "s.json", "-q", "-t", "2"])
         tmtest.run_in(binary, folder, ["fit", "--from-stats", "s.json", "--freeze", "transitions", "--freeze",
@@ -111,6 +111,7 @@ def body(checks, binary, work):
         stats = tmtest.read_json(os.path.join(folder, "s.json"))
         used = json.loads(stats["profile"]) if isinstance(stats["profile"], str) else stats["profile"]
         nxt = tmtest.read_json(os.path.join(folder, f"p{step + 1}.json"))
+        lls.append(stats["counts"]["log_likelihood"])
         windows = stats["counts"]["windows"]
         k = np.array([t[0] for t in windows], float)
         n = np.array([t[1] for t in windows], float)
@@ -134,6 +135,9 @@ def body(checks, binary, work):
     checks.check(steps == 25, "K-12: every M-step keeps the order, does not lower Q and is no worse than "
                  "scipy's constrained maximum (relative 1e-6)", SCIPY,
                  f"{steps} steps, largest shortfall {worst:.3g} nats")
+    checks.check(all(b >= a - 1e-9 * abs(a) for a, b in zip(lls, lls[1:])),
+                 "K-12: the three-class model's log-likelihood never decreases across the constrained EM steps", EM,
+                 f"{lls[0]:.3f} -> {lls[-1]:.3f} over {len(lls)} E-steps")
     checks.check(active > 0, "K-12: the order constraint was active in some M-step (the genome where classes "
                  "used to cross)", "issue 21: K-12 fitted gc_shifted 0.496 below typical 0.516 before",
                  f"{active} of {steps} steps")
