@@ -20,7 +20,7 @@ test_packages=(
   # test oracles and open datasets
   python3 python3-numpy python3-scipy python3-pomegranate python3-pybigwig python3-matplotlib
   tabix bedtools genometools gzip xz-utils bzip2 zstd
-  bowtie2-examples smalt-examples bowtie-examples cct-examples sibelia-examples
+  bowtie2-examples smalt-examples bowtie-examples cct-examples sibelia-examples ragout-examples
   # the HTML report (scan --html): rendered by a real browser, validated by two HTML parsers
   chromium python3-pil python3-html5lib tidy
   # the install test renders the man page (man -l, groff)

@@ -106,6 +106,37 @@ private:
     std::string origin_;
 };
 
+// gc.below / gc.above: the reference exists, is another unconstrained and untied state, the mean
+// is on its side already (training keeps it there but must start there), and one reference
+// orders at most max_gc_ordered states (the M-step tries every subset of them tied to it).
+void check_gc_order(const Profile& p, const Validator& v) {
+    for (size_t i = 0; i < p.states.size(); ++i) {
+        const StateSpec& s = p.states[i];
+        if (s.gc_reference.empty()) continue;
+        const char* key = s.gc_side < 0 ? "below" : "above";
+        const std::string where = fmt::format("states[{}] ('{}').gc.{}", i, s.name, key);
+        const int r = p.state_index(s.gc_reference);
+        if (r < 0) v.fail(where, "names unknown state '" + s.gc_reference + "'");
+        if (r == static_cast<int>(i)) v.fail(where, "names the state itself");
+        const StateSpec& ref = p.states[r];
+        if (!ref.gc_reference.empty())
+            v.fail(where, fmt::format("names '{}', which is ordered itself (gc.below/above); a "
+                                      "reference must be unconstrained",
+                                      ref.name));
+        if (!s.tie.empty() || !ref.tie.empty())
+            v.fail(where, "ordered states and their reference cannot be tied");
+        if (s.gc_side * (s.gc.mean - ref.gc.mean) < 0)
+            v.fail(where, fmt::format("mean {} is not {} the mean {} of '{}'", s.gc.mean, key,
+                                      ref.gc.mean, ref.name));
+        const auto ordered = std::count_if(p.states.begin(), p.states.end(), [&](const auto& u) {
+            return u.gc_reference == s.gc_reference;
+        });
+        if (ordered > max_gc_ordered)
+            v.fail(where, fmt::format("'{}' orders {} states; at most {} may refer to one state",
+                                      ref.name, ordered, max_gc_ordered));
+    }
+}
+
 // Tied states share one table, so the file must not give them different ones.
 void check_ties(const Profile& p, const Validator& v) {
     constexpr double tie_tolerance = 1e-9;
@@ -235,9 +266,15 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     }
     if (doc.contains("window")) {
         const json& w = doc["window"];
-        v.only_fields(w, "window", {"size"});
+        v.only_fields(w, "window", {"size", "min_known"});
         p.window_size = v.nonnegative_integer(v.field(w, "size", "window"), "window.size");
         if (p.window_size < 1) v.fail("window.size", "must be at least 1 base");
+        if (w.contains("min_known")) {
+            p.window_min_known = v.nonnegative_integer(w["min_known"], "window.min_known");
+            if (p.window_min_known < 1 || p.window_min_known > p.window_size)
+                v.fail("window.min_known", fmt::format("must be from 1 to window.size ({}), not {}",
+                                                       p.window_size, p.window_min_known));
+        }
     }
 
     const json& regions = v.field(doc, "regions", "top level");
@@ -280,8 +317,10 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         }
         p.regions.push_back(std::move(r));
     }
-    if (std::none_of(p.regions.begin(), p.regions.end(),
-                     [](const RegionSpec& r) { return r.report; }))
+    // One region alone may be unreported: a genome that is all one class (e.g. a fit that found
+    // no shifted class in it) has nothing to call.
+    if (p.regions.size() > 1 && std::none_of(p.regions.begin(), p.regions.end(),
+                                             [](const RegionSpec& r) { return r.report; }))
         v.fail("regions", "no region has \"report\": true, so nothing would be called");
 
     const json& states = v.field(doc, "states", "top level");
@@ -314,7 +353,14 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         if (s.region < 0) v.fail(where + ".region", "names unknown region '" + region + "'");
         if (p.window_size > 0) {
             const json& gc = v.field(states[i], "gc", where);
-            v.only_fields(gc, where + ".gc", {"mean", "dispersion"});
+            v.only_fields(gc, where + ".gc", {"mean", "dispersion", "below", "above"});
+            if (gc.contains("below") && gc.contains("above"))
+                v.fail(where + ".gc", "give 'below' or 'above', not both");
+            for (const auto& [key, side] : {std::pair{"below", -1}, std::pair{"above", 1}})
+                if (gc.contains(key)) {
+                    s.gc_reference = v.string_field(gc, key, where + ".gc");
+                    s.gc_side = side;
+                }
             const auto open_unit = [&](const char* key) {
                 const json& x = v.field(gc, key, where + ".gc");
                 const std::string at = where + ".gc." + key;
@@ -369,6 +415,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         p.states.push_back(std::move(s));
     }
     check_ties(p, v);
+    check_gc_order(p, v);
     for (size_t r = 0; r < p.regions.size(); ++r)
         if (std::none_of(p.states.begin(), p.states.end(),
                          [&](const StateSpec& s) { return s.region == static_cast<int>(r); }))
@@ -431,6 +478,7 @@ std::string to_json(const Profile& p) {
     doc["sources"] = p.sources;
     if (p.is_template) doc["template"] = true;
     if (p.window_size > 0) doc["window"] = {{"size", p.window_size}};
+    if (p.window_min_known > 1) doc["window"]["min_known"] = p.window_min_known;
     doc["regions"] = ordered_json::array();
     for (const auto& r : p.regions) {
         ordered_json o;
@@ -449,6 +497,8 @@ std::string to_json(const Profile& p) {
         if (p.window_size > 0) {
             if (!s.tie.empty()) o["tie"] = s.tie;
             o["gc"] = {{"mean", s.gc.mean}, {"dispersion", s.gc.dispersion}};
+            if (!s.gc_reference.empty())
+                o["gc"][s.gc_side < 0 ? "below" : "above"] = s.gc_reference;
             doc["states"].push_back(o);
             continue;
         }
@@ -481,6 +531,14 @@ std::string profile_checksum(const Profile& profile) {
     const uLong crc = crc32(crc32(0L, Z_NULL, 0), reinterpret_cast<const Bytef*>(text.data()),
                             static_cast<uInt>(text.size()));
     return fmt::format("{:08x}", crc);
+}
+
+void require_fitted(const Profile& p) {
+    if (!p.is_template) return;
+    throw ProfileError(fmt::format(
+        "profile '{0}' is a template whose classes have not been fitted; fit it to your genome "
+        "first ('tidemark fit GENOME.fa -p {0} -o P.json'), then scan with '-p P.json'",
+        p.name));
 }
 
 Profile load_profile(const std::string& name_or_path) {
@@ -534,6 +592,7 @@ Model compile(const Profile& p) {
     }
     m.emission = std::move(tables);
     m.window = p.window_size;
+    m.window_min_known = p.window_min_known;
     for (int s = 0; s < P; ++s) {
         const StateSpec& st = p.states[s];
         const int L = first[s + 1] - first[s];

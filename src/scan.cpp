@@ -469,6 +469,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     if (o.bgzip && o.output == "-" && o.emit_seams.empty())
         log.warn(bgzip_to_stdout("-o/--output"));
     const Profile profile = load_profile(o.profile);
+    require_fitted(profile);
     const Model decoding_model = compile(profile);
     // Window models decode one position per window; calls, tracks and totals see their
     // posteriors base by base, one state per region (window.hpp).

@@ -129,6 +129,13 @@ Profile perturb(const Profile& start, const FreezeMask& freeze, uint64_t seed, i
         }
         for (auto& row : p.states[s].emissions) jitter(row.begin(), row.end(), rng, amount);
     }
+    // A restart must start where the M-step may go: an ordered state's mean is put back on its
+    // side of its reference's (the M-step keeps it there, and EM's guarantee needs a start there).
+    for (auto& st : p.states) {
+        if (st.gc_reference.empty()) continue;
+        const double bound = p.states[p.state_index(st.gc_reference)].gc.mean;
+        if (st.gc_side * (st.gc.mean - bound) < 0) st.gc.mean = bound;
+    }
     return p;
 }
 
@@ -158,6 +165,7 @@ FitResult baum_welch(const Profile& start, TrainingData& data, const FitOptions&
             best.known_bases = run.last.known;
             best.positions = run.last.positions;
             best.contigs = run.last.contigs;
+            best.windows = static_cast<int64_t>(run.last.windows.size());
         }
     }
     if (o.restarts > 1)

@@ -139,10 +139,10 @@ void CountAccumulator::add_window_emissions(const BlockView& v) {
         if (v.begin + t == 0)
             for (int s = 0; s < S; ++s) counts_.initial[m.profile_state[s]] += post[s];
         const WindowCount w = window_count(m, *contig_, v.begin + t);
-        if (w.known == 0) continue;
+        counts_.known += w.known;
+        if (!window_has_evidence(m, w)) continue;  // it emitted 1: nothing to learn from it
         WindowTally tally{w.gc, w.known, std::vector<double>(P, 0.0)};
         for (int s = 0; s < S; ++s) tally.weight[m.profile_state[s]] += post[s];
-        counts_.known += w.known;
         counts_.windows.push_back(std::move(tally));
     }
     const int64_t first = v.begin * m.window;

@@ -34,6 +34,32 @@ std::string learned_classes(const Profile& p) {
     return out;
 }
 
+bool has_ordered_classes(const Profile& p) {
+    return std::any_of(p.states.begin(), p.states.end(),
+                       [](const StateSpec& s) { return !s.gc_reference.empty(); });
+}
+
+// A fitted profile's regions say what was fitted, not what the template hoped for: each region
+// of one window state gets its fitted G+C (and its reference's, for an ordered class).
+void describe_fitted_classes(Profile& p) {
+    for (size_t r = 0; r < p.regions.size(); ++r) {
+        int only = -1, count = 0;
+        for (size_t s = 0; s < p.states.size(); ++s)
+            if (p.states[s].region == static_cast<int>(r)) {
+                only = static_cast<int>(s);
+                ++count;
+            }
+        if (count != 1) continue;
+        const StateSpec& st = p.states[only];
+        std::string text = fmt::format("G+C {:.3f}", st.gc.mean);
+        if (!st.gc_reference.empty())
+            text += fmt::format(" ({} {:.3f})", st.gc_reference,
+                                p.states[p.state_index(st.gc_reference)].gc.mean);
+        p.regions[r].description =
+            text + fmt::format(", dispersion {:.3g}: fitted by tidemark fit", st.gc.dispersion);
+    }
+}
+
 }  // namespace
 
 namespace {
@@ -301,6 +327,15 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
         result = baum_welch(start, data, fit, log);
         result.profile.is_template = false;
         warn_on_swaps(start, result.profile, log);
+        if (has_ordered_classes(result.profile) && fit.max_iter > 0) {  // --max-iter 0: the start
+            result = drop_unsupported_classes(std::move(result), data, fit, log);
+            if (!has_ordered_classes(result.profile))
+                log.warn(fmt::format(
+                    "fit: the genome supports none of the shifted classes of '{}': the profile "
+                    "has only '{}', and scanning with it calls nothing",
+                    start.name, result.profile.states[0].name));
+            describe_fitted_classes(result.profile);
+        }
         if (result.profile.windowed()) log.info(learned_classes(result.profile));
     }
 
@@ -354,6 +389,7 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     if (!o.regions.empty()) opts["regions"] = o.regions;
     if (!o.regions_bed.empty()) opts["regions_bed"] = o.regions_bed;
     prov["options"] = opts;
+    if (!result.dropped.empty()) prov["dropped_classes"] = result.dropped;
     prov["known_bases"] = result.known_bases;
     prov["log_likelihood"] = result.log_likelihood;
     if (method == "baum-welch") {

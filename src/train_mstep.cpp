@@ -5,9 +5,11 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
+#include "tidemark/window.hpp"
 
 namespace tidemark {
 namespace {
@@ -82,6 +84,198 @@ WindowGC fit_window_gc(const WindowGC& current,
     out.mean = std::clamp(alpha / (alpha + beta), 1e-9, 1 - 1e-9);
     out.dispersion = 1 / (A + 1);
     return out;
+}
+
+// ---------------------------------------------------------------------------------------------
+// The GC order of window states (gc.below / gc.above): the M-step under the constraint.
+//
+// Why EM still never lowers the likelihood. The window part of Q is a sum over states of
+// Q_s(mean_s, rho_s) = sum_i w_is ln BB(k_i | n_i, mean_s, rho_s). The order constraints
+// (mean_c <= mean_r for a 'below' state c of reference r, >= for 'above') define a feasible
+// set that holds the current parameters (the validator requires a profile to satisfy its
+// order, and every M-step returns a feasible point). The step below returns the feasible
+// candidate of largest Q among a set that always contains the current parameters, so
+// Q(new) >= Q(current); by the EM inequality ln L(new) - ln L(current) >= Q(new) - Q(current)
+// (Dempster, Laird & Rubin 1977, J. R. Statist. Soc. B 39:1-38: any step that does not lower Q
+// is a generalised EM step) the likelihood does not decrease. The other candidates aim at the
+// constrained maximum: at it, each ordered state is either at its own unconstrained optimum
+// (constraint inactive) or shares its reference's mean (active), and the reference's mean then
+// maximises the sum over the tied block; trying every subset of tied states (at most 2^8) and
+// keeping the feasible ones finds it when each state's profile function g_s(m) = max_rho Q_s is
+// unimodal (the block's maximiser then lies between its members' own optima).
+
+// Windows with the same (k, n) share every term of Q: one entry per distinct pair.
+struct WindowGroups {
+    std::vector<int64_t> k, n;
+    std::vector<size_t> of_window;  // group of each window of counts.windows
+};
+
+WindowGroups group_windows(const std::vector<WindowTally>& windows) {
+    std::vector<size_t> order(windows.size());
+    for (size_t i = 0; i < order.size(); ++i) order[i] = i;
+    std::sort(order.begin(), order.end(), [&](size_t a, size_t b) {
+        return std::pair(windows[a].known, windows[a].gc) <
+               std::pair(windows[b].known, windows[b].gc);
+    });
+    WindowGroups g;
+    g.of_window.resize(windows.size());
+    for (size_t i : order) {
+        if (g.k.empty() || g.k.back() != windows[i].gc || g.n.back() != windows[i].known) {
+            g.k.push_back(windows[i].gc);
+            g.n.push_back(windows[i].known);
+        }
+        g.of_window[i] = g.k.size() - 1;
+    }
+    return g;
+}
+
+// Q_s(mean, total) with total = alpha + beta = 1/rho - 1.
+double window_q(const WindowGroups& g, const std::vector<double>& w, double mean, double total) {
+    const double alpha = mean * total, beta = (1 - mean) * total;
+    double q = 0;
+    for (size_t j = 0; j < w.size(); ++j)
+        if (w[j] != 0) q += w[j] * beta_binomial_log_kernel(alpha, beta, g.k[j], g.n[j]);
+    return q;
+}
+
+double window_q(const WindowGroups& g, const std::vector<double>& w, const WindowGC& gc) {
+    return window_q(g, w, gc.mean, 1 / gc.dispersion - 1);
+}
+
+// Golden-section search for the maximum of f on [lo, hi] (unimodal f), to width tol.
+template <class F>
+double golden_max(F f, double lo, double hi, double tol) {
+    const double r = (std::sqrt(5.0) - 1) / 2;
+    double a = lo, b = hi;
+    double x1 = b - r * (b - a), x2 = a + r * (b - a);
+    double f1 = f(x1), f2 = f(x2);
+    while (b - a > tol) {
+        if (f1 < f2) {
+            a = x1;
+            x1 = x2;
+            f1 = f2;
+            x2 = a + r * (b - a);
+            f2 = f(x2);
+        } else {
+            b = x2;
+            x2 = x1;
+            f2 = f1;
+            x1 = b - r * (b - a);
+            f1 = f(x1);
+        }
+    }
+    return f1 < f2 ? x2 : x1;
+}
+
+// The range of alpha + beta the M-step keeps (rho from 1e-12 to 1 - 1e-6), as fit_window_gc.
+constexpr double min_total = 1e-6, max_total = 1e12;
+
+// The dispersion that maximises Q_s at a fixed mean (on the log scale of alpha + beta).
+WindowGC best_dispersion(const WindowGroups& g, const std::vector<double>& w, double mean) {
+    const double u = golden_max([&](double x) { return window_q(g, w, mean, std::exp(x)); },
+                                std::log(min_total), std::log(max_total), 1e-9);
+    return WindowGC{mean, 1 / (std::exp(u) + 1)};
+}
+
+// One reference and the states its mean orders, with everything the candidates need.
+struct OrderGroup {
+    size_t reference = 0;
+    std::vector<size_t> ordered;
+};
+
+void maximise_ordered_window_states(const Profile& structure, const Profile& current,
+                                    const TrainingCounts& counts, const FreezeMask& freeze,
+                                    const std::vector<WindowGC>& unconstrained, Profile& out) {
+    const size_t P = structure.states.size();
+    std::vector<OrderGroup> groups;
+    for (size_t s = 0; s < P; ++s) {
+        if (structure.states[s].gc_reference.empty()) continue;
+        const size_t r =
+            static_cast<size_t>(structure.state_index(structure.states[s].gc_reference));
+        auto it = std::find_if(groups.begin(), groups.end(),
+                               [&](const OrderGroup& o) { return o.reference == r; });
+        if (it == groups.end()) {
+            groups.push_back(OrderGroup{r, {}});
+            it = groups.end() - 1;
+        }
+        it->ordered.push_back(s);
+    }
+    if (groups.empty()) return;
+    const WindowGroups wg = group_windows(counts.windows);
+    const auto weights = [&](size_t s) {
+        std::vector<double> w(wg.k.size(), 0.0);
+        for (size_t i = 0; i < counts.windows.size(); ++i)
+            w[wg.of_window[i]] += counts.windows[i].weight[s];
+        return w;
+    };
+    for (const OrderGroup& group : groups) {
+        std::vector<size_t> members{group.reference};
+        members.insert(members.end(), group.ordered.begin(), group.ordered.end());
+        std::vector<std::vector<double>> w;
+        for (size_t s : members) w.push_back(weights(s));
+        const auto side = [&](size_t m) { return structure.states[members[m]].gc_side; };
+        const auto total_q = [&](const std::vector<WindowGC>& gc) {
+            double q = 0;
+            for (size_t m = 0; m < members.size(); ++m) q += window_q(wg, w[m], gc[m]);
+            return q;
+        };
+        // Each member's own optimum (frozen members keep their values).
+        std::vector<WindowGC> own(members.size());
+        for (size_t m = 0; m < members.size(); ++m)
+            own[m] = freeze.emissions[members[m]] ? current.states[members[m]].gc
+                                                  : unconstrained[members[m]];
+        const bool reference_frozen = freeze.emissions[group.reference];
+
+        std::vector<WindowGC> best(members.size());
+        for (size_t m = 0; m < members.size(); ++m) best[m] = current.states[members[m]].gc;
+        bool current_feasible = true;
+        for (size_t m = 1; m < members.size(); ++m)
+            if (side(m) * (best[m].mean - best[0].mean) < 0) current_feasible = false;
+        double best_q = current_feasible ? total_q(best) : -std::numeric_limits<double>::infinity();
+
+        const size_t subsets = size_t{1} << group.ordered.size();
+        for (size_t mask = 0; mask < subsets; ++mask) {
+            std::vector<size_t> tied;  // member indices tied to the reference
+            bool possible = true;
+            for (size_t j = 0; j < group.ordered.size(); ++j)
+                if ((mask >> j) & 1) {
+                    if (freeze.emissions[group.ordered[j]]) possible = false;
+                    tied.push_back(j + 1);
+                }
+            if (!possible) continue;
+            std::vector<WindowGC> gc = own;
+            if (!tied.empty()) {
+                // The block's mean: between its members' own optima, or the frozen reference's.
+                double mean = own[0].mean;
+                const auto block_q = [&](double mu) {
+                    double q =
+                        reference_frozen ? 0.0 : window_q(wg, w[0], best_dispersion(wg, w[0], mu));
+                    for (size_t m : tied) q += window_q(wg, w[m], best_dispersion(wg, w[m], mu));
+                    return q;
+                };
+                if (!reference_frozen) {
+                    double lo = own[0].mean, hi = own[0].mean;
+                    for (size_t m : tied) {
+                        lo = std::min(lo, own[m].mean);
+                        hi = std::max(hi, own[m].mean);
+                    }
+                    if (hi > lo) mean = golden_max(block_q, lo, hi, 1e-10);
+                    gc[0] = best_dispersion(wg, w[0], mean);
+                }
+                for (size_t m : tied) gc[m] = best_dispersion(wg, w[m], mean);
+            }
+            bool feasible = true;
+            for (size_t m = 1; m < members.size(); ++m)
+                if (side(m) * (gc[m].mean - gc[0].mean) < 0) feasible = false;
+            if (!feasible) continue;
+            const double q = total_q(gc);
+            if (q > best_q) {
+                best_q = q;
+                best = gc;
+            }
+        }
+        for (size_t m = 0; m < members.size(); ++m) out.states[members[m]].gc = best[m];
+    }
 }
 
 void check_shapes(const Profile& a, const Profile& b) {
@@ -210,7 +404,9 @@ Profile maximise(const Profile& structure, const Profile& current, const Trainin
 
     const std::vector<int> leader = tie_leaders(structure);
     if (structure.windowed()) {
+        std::vector<WindowGC> unconstrained(P);
         for (size_t s = 0; s < P; ++s) {
+            unconstrained[s] = current.states[s].gc;
             if (leader[s] != static_cast<int>(s) || freeze.emissions[s]) continue;
             std::vector<std::pair<const WindowTally*, double>> data;
             data.reserve(counts.windows.size());
@@ -221,9 +417,11 @@ Profile maximise(const Profile& structure, const Profile& current, const Trainin
                 data.emplace_back(&t, w);
             }
             const WindowGC gc = fit_window_gc(current.states[s].gc, data);
+            unconstrained[s] = gc;
             for (size_t u = 0; u < P; ++u)
                 if (leader[u] == static_cast<int>(s)) out.states[u].gc = gc;
         }
+        maximise_ordered_window_states(structure, current, counts, freeze, unconstrained, out);
         return out;
     }
     for (size_t s = 0; s < P; ++s) {

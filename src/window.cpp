@@ -58,6 +58,14 @@ WindowCount window_count(const Model& m, const Contig& contig, int64_t pos) {
     return {c.c + c.g, c.known()};
 }
 
+double beta_binomial_log_kernel(double a, double b, int64_t k, int64_t n) {
+    if (a >= stirling_from && b >= stirling_from)
+        return large_kernel(a, b, static_cast<double>(k), static_cast<double>(n));
+    return std::lgamma(static_cast<double>(k) + a) + std::lgamma(static_cast<double>(n - k) + b) -
+           std::lgamma(static_cast<double>(n) + a + b) -
+           (std::lgamma(a) + std::lgamma(b) - std::lgamma(a + b));
+}
+
 double window_log_probability(const Model& m, int s, int64_t k, int64_t n) {
     if (n == 0) return 0;
     const double a = m.gc_alpha[s], b = m.gc_beta[s];
@@ -76,10 +84,11 @@ void fill_window_log_emissions(const Model& m, const Contig& contig, int64_t fir
     for (int64_t t = 0; t < count; ++t) {
         const WindowCount w = window_count(m, contig, first + t);
         double* row = log_emission + t * S;
-        known[t] = w.known > 0 ? 0 : base_unknown;
+        const bool evidence = window_has_evidence(m, w);
+        known[t] = evidence ? 0 : base_unknown;
         // Chain copies share their profile state's distribution: compute each distinct one once.
         for (int s = 0; s < S; ++s)
-            row[s] = w.known == 0 ? 0.0
+            row[s] = !evidence ? 0.0
                      : (s > 0 && m.profile_state[s] == m.profile_state[s - 1])
                          ? row[s - 1]
                          : window_log_probability(m, s, w.gc, w.known);

@@ -213,3 +213,181 @@ TEST_CASE("Perturbed restarts keep structural zeros, sums and ties", "[train]") 
     // The result is a valid profile.
     CHECK_NOTHROW(parse_profile(to_json(q), "perturbed"));
 }
+
+namespace {
+
+// A window profile of three classes ordered around 'typical' (the gc-shift template's shape).
+Profile ordered_window_profile() {
+    return parse_profile(R"({
+      "format": "tidemark-profile/1", "name": "ordered", "window": {"size": 1000},
+      "regions": [{"name": "at_shifted", "report": true}, {"name": "typical", "report": false},
+                  {"name": "gc_shifted", "report": true}],
+      "states": [
+        {"name": "at_shifted", "region": "at_shifted",
+         "gc": {"mean": 0.4, "dispersion": 0.01, "below": "typical"}},
+        {"name": "typical", "region": "typical", "gc": {"mean": 0.5, "dispersion": 0.01}},
+        {"name": "gc_shifted", "region": "gc_shifted",
+         "gc": {"mean": 0.6, "dispersion": 0.01, "above": "typical"}}],
+      "initial": {"at_shifted": 0.1, "typical": 0.8, "gc_shifted": 0.1},
+      "transitions": {"at_shifted": {"at_shifted": 0.9, "typical": 0.1},
+                      "typical": {"at_shifted": 0.05, "typical": 0.9, "gc_shifted": 0.05},
+                      "gc_shifted": {"gc_shifted": 0.9, "typical": 0.1}}})",
+                         "test");
+}
+
+// Q of one state written out with std::lgamma (the test's own arithmetic, not tidemark's).
+double q_state(const TrainingCounts& c, int s, double mean, double total) {
+    const double a = mean * total, b = (1 - mean) * total;
+    double q = 0;
+    for (const WindowTally& t : c.windows) {
+        const double k = static_cast<double>(t.gc), n = static_cast<double>(t.known);
+        q += t.weight[s] * (std::lgamma(k + a) + std::lgamma(n - k + b) - std::lgamma(n + a + b) -
+                            std::lgamma(a) - std::lgamma(b) + std::lgamma(a + b));
+    }
+    return q;
+}
+
+// max over alpha + beta at a fixed mean, by a log grid refined twice around its best point.
+double q_profile(const TrainingCounts& c, int s, double mean) {
+    double lo = std::log(1.0), hi = std::log(1e6), best = -1e300, at = lo;
+    for (int round = 0; round < 3; ++round) {
+        for (int i = 0; i <= 200; ++i) {
+            const double u = lo + (hi - lo) * i / 200;
+            const double q = q_state(c, s, mean, std::exp(u));
+            if (q > best) {
+                best = q;
+                at = u;
+            }
+        }
+        const double step = (hi - lo) / 200;
+        lo = at - 2 * step;
+        hi = at + 2 * step;
+    }
+    return best;
+}
+
+}  // namespace
+
+TEST_CASE("M-step: ordered window classes stay on their side of the reference (grid search)",
+          "[train]") {
+    const Profile p = ordered_window_profile();
+    TrainingCounts c = TrainingCounts::zero(p);
+    // Windows of 1000 bases, overdispersed (spread beyond the binomial's 16): 'typical' ones
+    // around GC 0.50, 'gc_shifted' ones around 0.45 (the wrong side: unconstrained, gc_shifted
+    // would fit below typical), 'at_shifted' ones around 0.35 (the right side: its constraint
+    // stays inactive).
+    const auto add = [&](int state, std::initializer_list<int> gcs) {
+        for (int k : gcs) {
+            WindowTally t{k, 1000, {0.0, 0.0, 0.0}};
+            t.weight[state] = 1;
+            c.windows.push_back(t);
+        }
+    };
+    add(1, {440, 470, 490, 500, 505, 510, 520, 530, 560, 480, 495, 515, 500, 545});
+    add(2, {420, 445, 460, 490, 465, 430});
+    add(0, {300, 350, 380, 345, 325, 390});
+    FreezeMask freeze = resolve_freeze(Freeze{}, p);
+    const Profile out = maximise(p, p, c, freeze, MStepOptions{0});
+    const auto& at = out.states[0].gc;
+    const auto& typical = out.states[1].gc;
+    const auto& gc = out.states[2].gc;
+    CHECK(at.mean < typical.mean);
+    CHECK(gc.mean >= typical.mean);
+
+    // Independent: the constrained optimum by exhaustive search. gc_shifted's own optimum is
+    // below typical's, so at the optimum the two share one mean m maximising
+    // g_typical(m) + g_gc(m) (each maximised over its own dispersion); at_shifted is free.
+    double best = -1e300, best_m = 0;
+    for (int i = 0; i <= 300; ++i) {  // m from 0.42 to 0.53, then refined
+        const double m = 0.42 + 0.11 * i / 300;
+        const double q = q_profile(c, 1, m) + q_profile(c, 2, m);
+        if (q > best) {
+            best = q;
+            best_m = m;
+        }
+    }
+    for (int i = -50; i <= 50; ++i) {
+        const double m = best_m + 0.0003 * i / 50;
+        const double q = q_profile(c, 1, m) + q_profile(c, 2, m);
+        if (q > best) {
+            best = q;
+            best_m = m;
+        }
+    }
+    CHECK(gc.mean == typical.mean);  // the constraint is active
+    CHECK(std::abs(typical.mean - best_m) < 2e-5);
+    const double q_tidemark = q_state(c, 1, typical.mean, 1 / typical.dispersion - 1) +
+                              q_state(c, 2, gc.mean, 1 / gc.dispersion - 1);
+    CHECK(q_tidemark >= best - 1e-6);  // no worse than the grid's optimum
+    // at_shifted, unconstrained, is at its own maximum: the grid over its mean agrees.
+    double at_best = -1e300, at_m = 0;
+    for (int i = 0; i <= 400; ++i) {
+        const double m = 0.30 + 0.10 * i / 400;
+        const double q = q_profile(c, 0, m);
+        if (q > at_best) {
+            at_best = q;
+            at_m = m;
+        }
+    }
+    CHECK(std::abs(at.mean - at_m) < 3e-4);
+    CHECK(q_state(c, 0, at.mean, 1 / at.dispersion - 1) >= at_best - 1e-6);
+}
+
+TEST_CASE("M-step: an ordered class never lowers Q, from any feasible start", "[train]") {
+    const Profile p = ordered_window_profile();
+    TrainingCounts c = TrainingCounts::zero(p);
+    for (int k : {400, 420, 480, 500, 520, 560, 600, 610}) {
+        WindowTally t{k, 1000, {0.2, 0.5, 0.3}};
+        c.windows.push_back(t);
+    }
+    FreezeMask freeze = resolve_freeze(Freeze{}, p);
+    const auto q_all = [&](const Profile& x) {
+        double q = 0;
+        for (int s = 0; s < 3; ++s)
+            q += q_state(c, s, x.states[s].gc.mean, 1 / x.states[s].gc.dispersion - 1);
+        return q;
+    };
+    Profile current = p;
+    for (int step = 0; step < 5; ++step) {
+        const Profile next = maximise(p, current, c, freeze, MStepOptions{0});
+        CHECK(q_all(next) >= q_all(current) - 1e-9);
+        CHECK(next.states[0].gc.mean <= next.states[1].gc.mean);
+        CHECK(next.states[2].gc.mean >= next.states[1].gc.mean);
+        current = next;
+    }
+}
+
+TEST_CASE("Profiles: gc.below / gc.above are validated", "[profile]") {
+    const std::string good = to_json(ordered_window_profile());
+    CHECK(parse_profile(good, "x").states[0].gc_side == -1);
+    CHECK(parse_profile(good, "x").states[2].gc_reference == "typical");
+    const auto bad = [&](const std::string& from, const std::string& to) {
+        std::string text = good;
+        const auto at = text.find(from);
+        REQUIRE(at != std::string::npos);
+        text.replace(at, from.size(), to);
+        return text;
+    };
+    CHECK_THROWS_WITH(parse_profile(bad("\"below\": \"typical\"", "\"below\": \"nobody\""), "x"),
+                      Catch::Contains("names unknown state 'nobody'"));
+    CHECK_THROWS_WITH(parse_profile(bad("\"mean\": 0.4", "\"mean\": 0.55"), "x"),
+                      Catch::Contains("mean 0.55 is not below the mean 0.5 of 'typical'"));
+    CHECK_THROWS_WITH(
+        parse_profile(bad("\"below\": \"typical\"", "\"below\": \"gc_shifted\""), "x"),
+        Catch::Contains("a reference must be unconstrained"));
+}
+
+TEST_CASE("without_state hands the removed class's entries to its reference", "[train]") {
+    const Profile p = ordered_window_profile();
+    const Profile q = without_state(p, 2);
+    REQUIRE(q.states.size() == 2);
+    REQUIRE(q.regions.size() == 2);
+    CHECK(q.transitions[1][1] == Approx(0.95));  // typical -> typical gets typical -> gc_shifted
+    CHECK(q.transitions[1][0] == Approx(0.05));
+    CHECK(q.initial[1] == Approx(0.9));
+    const Profile only = without_state(q, 0);
+    CHECK(only.states.size() == 1);
+    CHECK(only.transitions[0][0] == Approx(1.0));
+    // One unreported region is a valid profile: a genome with no shifted class calls nothing.
+    CHECK_NOTHROW(parse_profile(to_json(only), "x"));
+}

@@ -17,6 +17,9 @@ inline constexpr int max_emission_order = 5;
 /// Upper bound on the number of compiled states (duration chains included): the decoders also
 /// keep a dense S x S transition matrix, 32 MiB at this size.
 inline constexpr int max_compiled_states = 2048;
+/// Upper bound on the window states one state's GC mean orders (gc.below / gc.above): the
+/// constrained M-step tries all 2^n ways of tying them to it.
+inline constexpr int max_gc_ordered = 8;
 
 /// A region type: what a call is named after. Several states may belong to one region.
 struct RegionSpec {
@@ -57,6 +60,12 @@ struct StateSpec {
     /// Tie group: states that name the same non-empty group share one emission table (same
     /// order, identical rows), and training estimates it from their pooled counts.
     std::string tie;
+    /// Window states: the state whose GC mean this state's mean stays on one side of
+    /// (gc.below / gc.above in the file; "" = unconstrained), so that a class named for a GC
+    /// direction keeps it: training maximises under this order (train.hpp, maximise). The
+    /// reference is itself unconstrained, and neither is tied.
+    std::string gc_reference;
+    int gc_side = 0;  ///< -1: mean <= the reference's mean (below); +1: mean >= it (above)
 };
 
 /// Interval-calling defaults a profile may carry (overridden by command-line options).
@@ -80,6 +89,11 @@ struct Profile {
     /// Window profiles: bases per window (the sequence is cut into windows of this size from each
     /// contig's start; the last may be shorter). 0 = per-base emissions.
     int64_t window_size = 0;
+    /// Window profiles: a window with fewer known bases than this carries no evidence: it emits
+    /// 1 in every state, like a window of unknown bases, so that its posterior is what its
+    /// neighbours and the transitions support (window.min_known; 1 = every window with a known
+    /// base counts).
+    int64_t window_min_known = 1;
     /// A template: its emissions only fix the classes' order, and fit reseeds them from the data
     /// before Baum-Welch (as --init-from-data does). Fitted profiles are not templates.
     bool is_template = false;
@@ -90,6 +104,12 @@ struct Profile {
     int state_index(std::string_view state) const;    ///< -1 when absent
     int region_index(std::string_view region) const;  ///< -1 when absent
 };
+
+/// Scanning needs fitted classes: a template's emissions are placeholders that only fix the
+/// classes' order (fit reseeds them on the genome), so decoding with them labels a genome by
+/// numbers nobody fitted. Throws ProfileError naming `tidemark fit` when profile.is_template.
+/// Simulation may draw from a template (its placeholders define a model like any other).
+void require_fitted(const Profile& profile);
 
 /// Parses and validates profile JSON. origin names the source in error messages.
 /// Throws ProfileError naming the offending field: unknown or missing fields, rows that do not
@@ -168,6 +188,8 @@ struct Model {
     int max_order = 0;
     /// Window profiles: bases per decoding position (positions are windows); 0 = per base.
     int64_t window = 0;
+    /// Window profiles: windows with fewer known bases emit 1 (Profile::window_min_known).
+    int64_t window_min_known = 1;
     /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
     /// lbeta(alpha, beta) (the normaliser, precomputed).
     std::vector<double> gc_alpha, gc_beta, gc_lbeta;

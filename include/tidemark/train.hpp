@@ -261,6 +261,9 @@ struct FitResult {
     int64_t known_bases = 0;
     int64_t positions = 0;
     int64_t contigs = 0;
+    int64_t windows = 0;  ///< window profiles: windows with evidence (window_has_evidence)
+    /// Classes drop_unsupported_classes removed, each with its reason and figures.
+    std::vector<std::string> dropped;
 };
 
 /// Baum-Welch from start. Logs one line per iteration (restart, iteration, log-likelihood,
@@ -315,6 +318,23 @@ TrainingCounts labelled_counts(const Profile& profile, TrainingData& data,
 
 // ---------------------------------------------------------------------------------------------
 // Model selection
+
+/// profile without state s (and its region when no other state has it): the probability of
+/// entering s (transitions and initial) goes to s's GC reference (gc.below / gc.above), or to
+/// the row's own state when s has none, so that what s explained becomes that class.
+Profile without_state(const Profile& profile, int s);
+
+/// After Baum-Welch on a window profile with ordered classes (gc.below / gc.above): removes the
+/// ordered classes the genome does not support, one at a time, refitting after each removal.
+/// Unsupported: (1) a class whose fitted mean sits on its reference's (the order constraint is
+/// active: the genome gave the class no GC direction, so its name would not be true); else
+/// (2) the class whose removal lowers BIC = -2 ln L + k ln(n) most (Schwarz 1978, "Estimating
+/// the dimension of a model", Ann. Statist. 6:461-464), with k the free parameters and n the
+/// windows with evidence, the observations of a window model. Stops when neither applies.
+/// Each removal is logged and listed in FitResult::dropped. Profiles without ordered classes
+/// are returned unchanged.
+FitResult drop_unsupported_classes(FitResult fitted, TrainingData& data, const FitOptions& options,
+                                   const Logger& log);
 
 /// One fitted candidate of a selection.
 struct Candidate {

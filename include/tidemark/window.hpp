@@ -21,21 +21,34 @@ struct WindowCount {
 /// Counts of window `pos` of a contig under a window model (bases [pos w, min((pos+1) w, L))).
 WindowCount window_count(const Model& model, const Contig& contig, int64_t pos);
 
+/// True when a window's counts are evidence under the model: at least one known base and at
+/// least model.window_min_known of them. Other windows emit 1 in every state (decoding) and add
+/// no statistics (training): a contig of a few hundred bases then stays at what its neighbours
+/// and the prior support instead of being called from a sliver of a window.
+inline bool window_has_evidence(const Model& model, const WindowCount& w) {
+    return w.known > 0 && w.known >= model.window_min_known;
+}
+
+/// log B(k + alpha, n - k + beta) - log B(alpha, beta): the beta-binomial log probability of k
+/// among n without the binomial coefficient, accurate also for the large alpha + beta of small
+/// dispersions (the same arithmetic as window_log_probability). Training maximises sums of it.
+double beta_binomial_log_kernel(double alpha, double beta, int64_t k, int64_t n);
+
 /// Natural log of the beta-binomial probability of k G+C among n known bases in compiled state s
 /// (with the binomial coefficient, so it is a distribution over k). n = 0 gives 0 (probability 1).
 double window_log_probability(const Model& model, int s, int64_t k, int64_t n);
 
 /// Natural-log emission rows of windows [first, first+count) (row-major count x S): the
-/// window_log_probability of every state, 0 for an all-unknown window; known[t] as below. The
+/// window_log_probability of every state, 0 for a window without evidence; known[t] as below. The
 /// decoders run on these: one window's states can differ by thousands of nats, beyond the range
 /// of scaled probabilities.
 void fill_window_log_emissions(const Model& model, const Contig& contig, int64_t first,
                                int64_t count, uint8_t* known, double* log_emission);
 
 /// Emission rows of windows [first, first+count) (row-major count x S), each divided by its
-/// largest entry so that none underflows; known[t] is 0 for a window with known bases and
-/// base_unknown for an all-unknown one (whose row is all ones). Returns the natural log of the
-/// factors divided out (add it to the log-likelihood).
+/// largest entry so that none underflows; known[t] is 0 for a window with evidence
+/// (window_has_evidence) and base_unknown for one without (whose row is all ones). Returns the
+/// natural log of the factors divided out (add it to the log-likelihood).
 double fill_window_emissions(const Model& model, const Contig& contig, int64_t first, int64_t count,
                              uint8_t* known, double* emission);
 

@@ -104,8 +104,8 @@ def guard(checks, binary, work):
     err, s = scan(ECOLI, "ecoli2", "cpg-island-2state")
     checks.check("warnings" in s and "CpG-depleted" in err, "E. coli 536 with cpg-island-2state: warned too",
                  GUARD)
-    err, s = scan(ECOLI, "ecoli3", "gc-shift")
-    checks.check("warnings" not in s and "CpG-depleted" not in err, "E. coli 536 with gc-shift: no warning",
+    err, s = scan(ECOLI, "ecoli3", "isochore")
+    checks.check("warnings" not in s and "CpG-depleted" not in err, "E. coli 536 with isochore: no warning",
                  "README: only profiles with a cpg_island region")
     # Lambda: o/e about 1.04 over 48,502 bp: below 50 kb the limit is 0.8.
     oe, n = python_oe(LAMBDA)
