@@ -247,6 +247,7 @@ struct ScanOutputs {
         : o(options),
           model(region_model),
           log(logger),
+          empty_records(logger, "empty records"),
           bed(o.output, bed_format(o)),
           caller(model, calling),
           totals(model),
@@ -290,6 +291,7 @@ struct ScanOutputs {
     const ScanOptions& o;
     const Model& model;
     const Logger& log;
+    RepeatedWarning empty_records;
     OutputFile bed;
     std::unique_ptr<OutputFile> gff3, sizes;
     std::unique_ptr<PosteriorTracks> tracks;
@@ -357,8 +359,8 @@ void ScanOutputs::finish(ScanJob& job) {
     }
     if (contig.length == 0) {
         progress.finish();
-        log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(*job.input),
-                             contig.name));
+        empty_records.warn(fmt::format("{}: record '{}' is empty; no calls for it",
+                                       display(*job.input), contig.name));
     }
     ContigSummary& s = record;
     s.name = contig.name;
@@ -552,6 +554,8 @@ void run_scan(const ScanOptions& o, const Logger& log) {
             bool more = false;
             try {
                 more = source->next(job->contig);
+                if (more && !o.tracks.prefix.empty() && o.tracks.format == TrackFormat::bigwig)
+                    check_bigwig_length(job->contig.name, job->contig.full_length());
             } catch (...) {
                 pipeline.drain();  // an earlier record's error comes first, as with one thread
                 throw;
@@ -581,6 +585,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     }
     pipeline.drain();
     run.progress.finish();
+    run.empty_records.finish();
     shard.finish();
     // Nothing decoded is a wrong input, not a result (a shard may hold no record of a small input).
     if (run.summary.contigs() == 0 && run.shared.empty() && !o.shard.active())
@@ -598,8 +603,12 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     if (o.shard.active())
         info.shard = std::make_shared<const nlohmann::ordered_json>(
             shard_section(shard, *info.options, info.profile_checksum, run.kept, run.shared));
-    if (!o.shard.active())  // a shard sees part of the input: merge judges the whole
-        for (const DepletionWarning& w : run.summary.depletion_warnings()) log.warn(w.message);
+    if (!o.shard.active()) {  // a shard sees part of the input: merge judges the whole
+        RepeatedWarning undepleted(log, "records whose CpG is not depleted");
+        for (const DepletionWarning& w : run.summary.depletion_warnings())
+            undepleted.warn(w.message);
+        undepleted.finish();
+    }
     write_run_documents(run, info, profile, call_options, clock);
 }
 
