@@ -7,9 +7,9 @@
 #include <limits>
 #include <memory>
 #include <nlohmann/json.hpp>
-#include <unordered_map>
 
 #include "byte_source.hpp"
+#include "name_set.hpp"
 #include "pipeline.hpp"
 #include "thread_pool.hpp"
 #include "tidemark/error.hpp"
@@ -160,15 +160,26 @@ std::string join_words(const std::vector<std::string>& words) {
 
 // Record names key every output (BED, tracks, summary), so they must be unique across all inputs,
 // as the reader checks within one file.
-void check_unique_name(std::unordered_map<std::string, std::string>& first_input,
-                       const std::string& input, const std::string& name) {
-    const auto [at, inserted] = first_input.emplace(name, input);
-    if (!inserted && at->second != input)
-        throw InputError(
-            fmt::format("{}: record '{}' has the same name as a record of {}; record names must be "
-                        "unique across all inputs (outputs name records by name)",
-                        display(input), name, display(at->second)));
-}
+// Names across inputs, one compact set per input (the reader already refuses a name repeated
+// within one): about 16-32 B a record plus the name, where a map of name -> input took over
+// 100; a record is looked up in each earlier input's set.
+class NamesByInput {
+public:
+    void check(const std::string& input, const std::string& name) {
+        if (inputs_.empty() || inputs_.back().first != input)
+            inputs_.emplace_back(input, detail::NameSet());
+        for (size_t i = 0; i + 1 < inputs_.size(); ++i)
+            if (inputs_[i].second.contains(name))
+                throw InputError(fmt::format(
+                    "{}: record '{}' has the same name as a record of {}; record names must be "
+                    "unique across all inputs (outputs name records by name)",
+                    display(input), name, display(inputs_[i].first)));
+        inputs_.back().second.insert(name);
+    }
+
+private:
+    std::vector<std::pair<std::string, detail::NameSet>> inputs_;
+};
 
 // Step 1 for shared records: the seams of this shard's segments, and nothing else.
 void emit_seams(const ScanOptions& o, ShardFilter& shard, const std::string& identity,
@@ -535,7 +546,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     detail::DecodePipeline pipeline(
         threads, [&](int64_t length) { return decoders[0].decodes_alone(length, threads); });
 
-    std::unordered_map<std::string, std::string> names;  // record name -> the input it came from
+    NamesByInput names;
     for (const auto& input : o.inputs) {
         std::unique_ptr<SequenceSource> source = shard.open(input, regions);
         // A chromosome's first segments start decoding while the rest of it is read (a shard
@@ -562,8 +573,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
             }
             if (!more) break;
             ++records;
-            if (regions.empty() && o.inputs.size() > 1)
-                check_unique_name(names, input, job->contig.name);
+            if (regions.empty() && o.inputs.size() > 1) names.check(input, job->contig.name);
             if (!shard.take(job->contig)) continue;  // another shard's record
             job->input_index = shard.record_index();
             if (shard.split()) {  // this shard's segments of a shared record
