@@ -156,10 +156,13 @@ open("empties.fa", "w").write("".join(f">{n}\n{lines(s)}" for n, s in recs))
 PY
 "$tm" scan empties.fa -q -r a:1-2000 -o r.bed > /dev/null 2> err.txt
 check "an empty last record: the file is indexed and read by region" test -s empties.fa.fai
-fails_with "-r on an empty record says so" "record 'e1' of empties.fa is empty (0 bases)" \
-  "$tm" scan empties.fa -q -r e1
-fails_with "-r on an empty last record says so" "record 'last' of empties.fa is empty (0 bases)" \
-  "$tm" scan empties.fa -q -r last:1-10
+for extra in "" "-t 2" "--shard 1/2"; do
+  fails_with "-r on an empty record says so ($extra)" "record 'e1' of empties.fa is empty (0 bases)" \
+    "$tm" scan empties.fa -q $extra -r e1 -o none.bed
+  fails_with "-r on an empty last record says so ($extra)" \
+    "record 'last' of empties.fa is empty (0 bases)" "$tm" scan empties.fa -q $extra -r last:1-10 -o none.bed
+  check "-r on an empty record leaves no output ($extra)" test ! -e none.bed
+done
 "$tm" scan empties.fa -q -o e.bed --gff3 e.gff3 2> /dev/null
 check "GFF3 with empty records passes gt gff3validator" gt gff3validator e.gff3 > /dev/null
 check "GFF3: no sequence-region for an empty record" sh -c '! grep -q "sequence-region e1" e.gff3'
@@ -181,6 +184,14 @@ check "CR-only line ends: -r gives the LF file's track" same cr.cpg_island.bedgr
 check "CR-only line ends: -r gives the LF file's calls" same_data cr.bed lf.bed
 "$tm" scan cr.fa -q -t 2 -r a:101-2900 -r b -o cr2.bed
 check "CR-only line ends: -t 2 the same" same_data cr2.bed lf.bed
+for i in 1 2; do
+  mkdir -p cr$i && (cd cr$i && "$tm" scan ../cr.fa -q --shard $i/2 -r a:101-2900 -r b -o calls.bed \
+    --summary summary.json --posteriors post 2> /dev/null)
+done
+"$tm" merge -q --shard-summaries cr{1,2}/summary.json --shard-beds cr{1,2}/calls.bed \
+  --shard-posteriors cr{1,2}/post -o crr.bed --posteriors crr 2> /dev/null
+check "CR-only line ends: -r with --shard + merge the same track" \
+  same crr.cpg_island.bedgraph lf.cpg_island.bedgraph
 for i in 1 2; do "$tm" scan cr.fa -q --shard $i/2 -o crs$i.bed --summary crs$i.json 2> /dev/null; done
 "$tm" scan empties.fa -q -o lfall.bed 2> /dev/null
 "$tm" merge -q --shard-summaries crs1.json crs2.json --shard-beds crs1.bed crs2.bed -o crm.bed 2> /dev/null
