@@ -2,7 +2,9 @@
 #pragma once
 
 #include <cstdio>
+#include <string>
 #include <string_view>
+#include <vector>
 
 namespace tidemark {
 
@@ -13,7 +15,13 @@ public:
     explicit Logger(LogLevel level = LogLevel::normal, std::FILE* out = stderr)
         : level_(level), out_(out) {}
     LogLevel level() const { return level_; }
-    void warn(std::string_view msg) const { write(LogLevel::quiet, "tidemark: warning: ", msg); }
+    /// Warnings are printed at every level and kept, so that a run's documents can list them
+    /// (the HTML report's box). Called from the thread that runs the job, not from workers.
+    void warn(std::string_view msg) const {
+        warnings_.emplace_back(msg);
+        write(LogLevel::quiet, "tidemark: warning: ", msg);
+    }
+    const std::vector<std::string>& warnings() const { return warnings_; }
     void info(std::string_view msg) const { write(LogLevel::normal, "tidemark: ", msg); }
     void detail(std::string_view msg) const { write(LogLevel::verbose, "tidemark: ", msg); }
     /// Text shown as is at verbose level (tables).
@@ -29,6 +37,7 @@ private:
     }
     LogLevel level_;
     std::FILE* out_;
+    mutable std::vector<std::string> warnings_;
 };
 
 }  // namespace tidemark

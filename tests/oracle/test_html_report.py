@@ -45,6 +45,21 @@ def text_of(tree):
     return "".join(tree.itertext())
 
 
+def section(tree, ident):
+    return next(el for el in tree.iter(XHTML + "section") if el.get("id") == ident)
+
+
+def listed_calls(tree):
+    """(sequence, 1-based start, 1-based end) of each row of the page's table of all calls."""
+    rows = []
+    for tr in section(tree, "list").find(".//" + XHTML + "div[@class='scroll']").iter(XHTML + "tr"):
+        cells = ["".join(td.itertext()) for td in tr.iter(XHTML + "td")]
+        if cells:
+            title = tr.find(XHTML + "td[2]").get("title")
+            rows.append((title or cells[1], int(cells[2].replace(",", "")), int(cells[3].replace(",", ""))))
+    return rows
+
+
 def body(checks, tm, work):
     records = tmtest.read_fasta(DEMO)
     lengths = {n: len(s) for n, s in records}
@@ -153,7 +168,7 @@ def body(checks, tm, work):
         checks.check(island >= 300, "the cpg_island colour (0,110,120) fills at least 300 pixels", "PIL",
                      f"{island} pixels")
 
-    # 6. A fragmented assembly: 230 sequences, the 200 longest are drawn and listed, in input order.
+    # 6. A fragmented assembly: 230 sequences, the 200 longest are drawn and listed, longest first.
     lengths = [1000 + (i * 97) % 230 * 20 for i in range(230)]  # distinct: 97 is prime to 230
     tmtest.run(tm, ["simulate", "--lengths", ",".join(map(str, lengths)), "--seed", "3", "-o", "frag.fa"], cwd=work)
     tmtest.run(tm, ["scan", "frag.fa", "-q", "-o", "/dev/null", "--html", "frag.html"], cwd=work)
@@ -161,21 +176,55 @@ def body(checks, tm, work):
     along = next(s for s in ftree.iter(SVG + "svg") if "along each sequence" in s.get("aria-label", ""))
     drawn = [g.find(SVG + "title").text.split(":")[0] for g in along.iter(SVG + "g")]
     longest = sorted(range(230), key=lambda i: -lengths[i])[:200]
-    checks.equal(drawn, [f"sim{i + 1}" for i in sorted(longest)], "the 200 longest of 230 sequences are drawn, "
-                 "in input order", "lengths given to simulate")
+    checks.equal(drawn, [f"sim{i + 1}" for i in longest], "the 200 longest of 230 sequences are drawn, "
+                 "longest first", "lengths given to simulate")
     checks.check("The 200 longest of 230 sequences" in text_of(ftree), "the page says how many are shown",
                  "page text")
-    rows = [tr for t in ftree.iter(XHTML + "table") for tr in t.iter(XHTML + "tr")
+    n50 = next(n for n in sorted(lengths, reverse=True)
+               if 2 * sum(x for x in lengths if x >= n) >= sum(lengths))
+    checks.check(f"{n50:,}" in text_of(section(ftree, "genome")), f"the genome table gives the N50, {n50:,} bp",
+                 "N50 computed here from the lengths given to simulate")
+    rows = [tr for tr in section(ftree, "sequences").iter(XHTML + "tr")
             if any(td.text and td.text.startswith("sim") for td in tr.iter(XHTML + "td"))]
     checks.equal(len(rows), 200, "the sequences table lists the same 200", "page DOM")
 
-    # 7. Not with --shard: a usage error (exit 2), and no file.
+    # 7. A simulated 3-Mbp genome with gaps and 20 or more calls: every call of the BED is in the
+    #    page's table, in position order (start + 1: positions on the page are 1-based).
+    tmtest.run(tm, ["simulate", "--lengths", "2000000,1000000", "--seed", "5", "--gaps", "0.01", "--gap-length",
+                    "5000", "-o", "sim3.fa"], cwd=work)
+    tmtest.run(tm, ["scan", "sim3.fa", "-q", "-o", "sim3.bed", "--html", "sim3.html"], cwd=work)
+    sim_calls = [(c[0], int(c[1]) + 1, int(c[2])) for c in tmtest.read_bed(os.path.join(work, "sim3.bed"))]
+    checks.check(len(sim_calls) >= 20, f"the simulated genome has 20 or more calls ({len(sim_calls)})", "sim3.bed")
+    stree = parse_strict(os.path.join(work, "sim3.html"))
+    checks.equal(listed_calls(stree), sim_calls, "every call is listed with its coordinates, in position order",
+                 "sim3.bed (BED start + 1)")
+    checks.check(f"All {len(sim_calls)} calls in position order" in text_of(stree),
+                 "the table says it lists all calls", "page text")
+
+    # 8. The CpG-depletion warning of stderr is on the page, in the box at the top: DNA without
+    #    CpG depletion (drawn from the gc-shift profile, CpG o/e about 1).
+    tmtest.run(tm, ["simulate", "-p", "gc-shift", "--lengths", "200000", "--seed", "2", "-o", "flat.fa"], cwd=work)
+    proc = subprocess.run([tm, "scan", "flat.fa", "-o", "/dev/null", "--html", "flat.html"], cwd=work,
+                          capture_output=True, text=True, check=True)
+    warnings = [line[len("tidemark: warning: "):] for line in proc.stderr.splitlines()
+                if line.startswith("tidemark: warning: ")]
+    checks.check(any("CpG o/e" in w for w in warnings), "the run warns of CpG not being depleted", "stderr")
+    wtree = parse_strict(os.path.join(work, "flat.html"))
+    box = section(wtree, "warnings")
+    checks.equal(["".join(li.itertext()) for li in box.iter(XHTML + "li")], warnings,
+                 "the page's warning box holds every warning of stderr", "stderr of the same run")
+    first = next(el for el in wtree.iter(XHTML + "section"))
+    checks.check(first is box, "the warning box is the page's first section", "html5lib DOM")
+    checks.check("warnings" not in [el.get("id") for el in tree.iter(XHTML + "section")] if tree is not None else True,
+                 "a run without warnings has no warning box", "demo run: no warning on stderr")
+
+    # 9. Not with --shard: a usage error (exit 2), and no file.
     proc = subprocess.run([tm, "scan", DEMO, "--shard", "1/2", "-o", "/dev/null", "--html", "shard.html"], cwd=work,
                           capture_output=True, text=True)
     checks.check(proc.returncode == 2 and "--html" in proc.stderr and not os.path.exists(os.path.join(work, "shard.html")),
                  "--html with --shard is a usage error naming --html", "README exit codes", proc.stderr.strip())
 
-    # 8. Markup in the inputs comes out as text and runs nothing.
+    # 10. Markup in the inputs comes out as text and runs nothing.
     evil_name = "<script>alert(1)</script>"
     evil_file = os.path.join(work, "a&b'<i>.fa")
     seq = records[0][1][80000:100000]
