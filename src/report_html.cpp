@@ -78,16 +78,15 @@ struct Page {
         line += c.merge_gap > 1
                     ? fmt::format("; runs fewer than {} bp apart merged", grouped(c.merge_gap))
                     : std::string("; runs not merged");
-        const int64_t unit = model.window > 0 ? model.window : 1;
+        // The profile, not the model: window profiles reach the report through a per-base
+        // model without the window chains.
+        const Profile& profile = *in.profile;
+        const int64_t window = profile.window_size;
         std::vector<std::pair<std::string, int64_t>> shortest;  // per reported region
-        for (const int r : reported) {
-            int64_t chain = 1;
-            for (size_t s = 0; s < model.region_of_state.size(); ++s)
-                if (model.region_of_state[s] == r)
-                    chain = std::max<int64_t>(chain, model.chain_length[s]);
-            shortest.emplace_back(model.region_names[static_cast<size_t>(r)],
-                                  std::max(c.min_length, chain * unit));
-        }
+        for (const int r : reported)
+            shortest.emplace_back(
+                model.region_names[static_cast<size_t>(r)],
+                std::max(c.min_length, profile.chain_length(r) * std::max<int64_t>(window, 1)));
         const bool same = std::all_of(shortest.begin(), shortest.end(), [&](const auto& x) {
             return x.second == shortest.front().second;
         });
@@ -98,18 +97,16 @@ struct Page {
             for (const auto& [name, bp] : shortest)
                 minimum += (minimum.empty() ? "" : ", ") + esc(name) + " " + grouped(bp) + " bp";
         line += "; calls &ge; " + minimum;
-        if (model.window > 0 || c.min_length < (shortest.empty() ? 1 : shortest.front().second))
+        const bool from_profile = std::any_of(shortest.begin(), shortest.end(), [&](const auto& x) {
+            return x.second > c.min_length;
+        });
+        if (window > 0 || from_profile)
             line += fmt::format(
                 " <span class=\"dim\">(--min-length {} bp{}{}; a call cut by the end of a "
                 "sequence may be shorter)</span>",
                 grouped(c.min_length),
-                model.window > 0
-                    ? fmt::format(", decoded on {}-bp windows, calls are whole windows",
-                                  grouped(model.window))
-                    : "",
-                same && shortest.front().second == c.min_length
-                    ? ""
-                    : ", the profile's minimum segment length (regions[].min_length) above it");
+                from_profile ? "; the profile's minimum segment (regions[].min_length)" : "",
+                window > 0 ? fmt::format("; calls are whole {}-bp windows", grouped(window)) : "");
         line += fmt::format("; core P &ge; {}; island criteria {}", num(c.high_posterior, 3),
                             criteria_name(c.criteria));
         return line;
@@ -331,7 +328,9 @@ struct Page {
                 out += fmt::format(
                     "<text x=\"{}\" y=\"{}\" class=\"sub\" text-anchor=\"end\">{}</text>\n",
                     px(label_w - 8), px(y + area * 0.5 + strip * 0.5 + 16),
-                    bases_label(static_cast<double>(s.length)));
+                    s.offset ? fmt::format("{}\u2013{}", grouped(s.offset + 1),
+                                           grouped(s.offset + s.length))
+                             : bases_label(static_cast<double>(s.length)));
             // Background of the posterior band and the sequence bar.
             out +=
                 fmt::format("<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" class=\"band\"/>\n",
@@ -793,7 +792,7 @@ struct Page {
             "Confidence: the call's mean posterior; core %: the share of the call at P &ge; {}; "
             "GC{}: of the call's known bases{}.</p>\n",
             num(in.calling->high_posterior, 2), cpg_profile() ? " and CpG o/e" : "",
-            model.window > 0 ? " (the evidence of a window profile is its windows' GC)" : "");
+            in.profile->windowed() ? " (the evidence of a window profile is its windows' GC)" : "");
         const auto& confident = in.sketch->most_confident();
         const auto& longest = in.sketch->longest();
         out += "<div class=\"figs\">\n<div>\n";

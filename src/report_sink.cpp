@@ -323,11 +323,12 @@ void HtmlReport::finish_sequence(const Contig& contig, const std::vector<Call>& 
             for (size_t k = 0; k < R; ++k) w.posterior.push_back(mean(b, e, k));
             w.unknown.push_back(unknown_share(b * resolution_, std::min(e * resolution_, length)));
         }
-        // The composition over steps of whole points, each of at least 100 bases (unless the
-        // window is shorter), at most about 80 across the window: GC and CpG o/e of a dozen
-        // bases are noise. The points are shared out evenly, so no step is a short remainder.
+        // The composition over steps of whole points, each of at least 200 bases (the window
+        // length of the Gardiner-Garden & Frommer 1987 island criteria; unless the window is
+        // shorter), at most about 80 across the window: GC and CpG o/e of a dozen bases are
+        // noise. The points are shared out evenly, so no step is a short remainder.
         const int64_t span = w.end - w.begin;
-        const int64_t step_bases = std::max<int64_t>(100, (span + 79) / 80);
+        const int64_t step_bases = std::max<int64_t>(200, (span + 79) / 80);
         const int64_t group = std::max<int64_t>(1, (step_bases + w.bin - 1) / w.bin);
         const auto n_points = static_cast<int64_t>(w.unknown.size());
         const int64_t steps = std::max<int64_t>(1, n_points / group);

@@ -151,14 +151,14 @@ TEST_CASE("the sketch's bins are the means of the per-base posteriors, whole or 
                 const int64_t hi = std::min(lo + w.bin, w.end);
                 CHECK(w.posterior[i] == Approx(known_mean(rows.p, lo, hi)).margin(1e-5));
             }
-            // GC: runs of points with one value are steps of at least 100 bases (the last may
+            // GC: runs of points with one value are steps of at least 200 bases (the last may
             // be shorter when the window is) whose GC, counted here from the bases, is that value.
             for (size_t i = 0; i < w.gc.size();) {
                 size_t j = i;
                 while (j < w.gc.size() && w.gc[j] == w.gc[i]) ++j;
                 const int64_t lo = w.begin + static_cast<int64_t>(i) * w.bin;
                 const int64_t hi = std::min(w.begin + static_cast<int64_t>(j) * w.bin, w.end);
-                CHECK(hi - lo >= 100);
+                CHECK(hi - lo >= 200);
                 int64_t gc = 0, known = 0;
                 for (int64_t p = lo; p < hi; ++p) {
                     const uint8_t base = contig.base(p);

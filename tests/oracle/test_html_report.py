@@ -201,6 +201,25 @@ def body(checks, tm, work):
     checks.check(f"All {len(sim_calls)} calls in position order" in text_of(stree),
                  "the table says it lists all calls", "page text")
 
+    # The calling line states the minimums that act, for a per-base and a window profile: from the
+    #    profile JSON (calling.merge_gap, calling.min_length, regions[].min_length, window.size).
+    for name in ("cpg-island", "isochore", "gc-shift"):
+        prof = json.loads(tmtest.run(tm, ["profiles", "show", name]))
+        window = (prof.get("window") or {}).get("size", 0)
+        shortest = max(prof["calling"]["min_length"],
+                       *[(-(-r.get("min_length", 1) // window) * window if window else r.get("min_length", 1))
+                         for r in prof["regions"] if r["report"]])
+        gap = prof["calling"]["merge_gap"]
+        tmtest.run(tm, ["scan", "sim3.fa", "-q", "-p", name, "-o", "/dev/null", "--html", f"{name}.html"], cwd=work)
+        ptree = parse_strict(os.path.join(work, f"{name}.html"))
+        line = next("".join(tr.find(XHTML + "td").itertext()) for tr in section(ptree, "run").iter(XHTML + "tr")
+                    if tr.find(XHTML + "th") is not None and tr.find(XHTML + "th").text == "calling")
+        checks.check(f"calls \u2265 {shortest:,} bp" in line and
+                     (f"runs fewer than {gap:,} bp apart merged" if gap > 1 else "runs not merged") in line and
+                     (not window or f"whole {window:,}-bp windows" in line),
+                     f"{name}: the calling line gives calls \u2265 {shortest:,} bp, the merge gap {gap} and the window "
+                     f"{window}", "the profile JSON (tidemark profiles show)", line)
+
     # 8. The CpG-depletion warning of stderr is on the page, in the box at the top: DNA without
     #    CpG depletion (drawn from the gc-shift profile, CpG o/e about 1).
     tmtest.run(tm, ["simulate", "-p", "gc-shift", "--lengths", "200000", "--seed", "2", "-o", "flat.fa"], cwd=work)
