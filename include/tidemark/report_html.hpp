@@ -51,14 +51,17 @@ struct CallWindow {
     int64_t ordinal = 0;
     int64_t offset = 0;
     int64_t sequence_length = 0;
-    Call call;                       ///< contig coordinates (add offset)
-    int64_t begin = 0, end = 0;      ///< the window, contig coordinates
-    int64_t bin = 1;                 ///< bases per point
-    std::vector<float> posterior;    ///< [point * regions + k], mean over known bases (NaN: none)
-    std::vector<float> unknown;      ///< per point: fraction of unknown bases
-    std::vector<float> gc;           ///< per point: GC of the known bases (NaN: none)
-    std::vector<float> cpg_obs_exp;  ///< per point: CpG observed/expected (NaN: undefined)
-    std::vector<Call> nearby;        ///< calls overlapping the window (the call itself included)
+    Call call;                     ///< contig coordinates (add offset)
+    int64_t begin = 0, end = 0;    ///< the window, contig coordinates
+    int64_t bin = 1;               ///< bases per point
+    std::vector<float> posterior;  ///< [point * regions + k], mean over known bases (NaN: none)
+    std::vector<float> unknown;    ///< per point: fraction of unknown bases
+    /// Per point: GC and CpG observed/expected of the known bases of the step holding it
+    /// (steps of whole points, at least 200 bases and at most about 80 across the window, the
+    /// points shared out evenly); NaN where undefined.
+    std::vector<float> gc;
+    std::vector<float> cpg_obs_exp;
+    std::vector<Call> nearby;  ///< calls overlapping the window (the call itself included)
 };
 
 /// One call as the page's tables list it.
