@@ -220,9 +220,12 @@ void HtmlReport::finish_sequence(const Contig& contig, const std::vector<Call>& 
         sketch_.clear();
         return;
     }
-    if (!begun_ || length_ != length || first_bin_ > 0)
+    if (!begun_ || length_ != length)
         throw InternalError("HtmlReport: the sketch does not match sequence " + contig.name);
     const int64_t bins = (length + resolution_ - 1) / resolution_;
+    // Bins before the first known base (a sequence that starts in a gap) hold nothing.
+    if (first_bin_ > 0) sketch_.insert(sketch_.begin(), static_cast<size_t>(first_bin_) * R, 0.0f);
+    first_bin_ = 0;
     sketch_.resize(static_cast<size_t>(bins) * R, 0.0f);
     const UnknownCount unknown(contig.unknown);
     const auto slot = [&](int region) {

@@ -7,6 +7,7 @@
 #include <catch2/catch.hpp>
 #include <random>
 
+#include "report_html_internal.hpp"
 #include "test_util.hpp"
 #include "thread_pool.hpp"
 #include "tidemark/decode.hpp"
@@ -39,7 +40,7 @@ struct RegionRows : DecodeSink {
     }
 };
 
-Contig random_contig(std::mt19937_64& rng, int64_t n, const std::string& name) {
+std::string random_bases(std::mt19937_64& rng, int64_t n) {
     std::string bases;
     std::uniform_int_distribution<int> pick(0, 99);
     for (int64_t i = 0; i < n; ++i) {
@@ -48,7 +49,11 @@ Contig random_contig(std::mt19937_64& rng, int64_t n, const std::string& name) {
         const bool rich = (i / 1500) % 4 == 1;
         bases += x < 2 ? 'N' : rich ? "CGCGATGC"[x % 8] : "ACGTAATT"[x % 8];
     }
-    return test::contig_from(bases, name);
+    return bases;
+}
+
+Contig random_contig(std::mt19937_64& rng, int64_t n, const std::string& name) {
+    return test::contig_from(random_bases(rng, n), name);
 }
 
 // Mean of P over the known bases of [lo, hi) of `contig_bases`; NaN when none is known.
@@ -246,4 +251,48 @@ TEST_CASE("example windows come from distinct loci; the tables list calls in pos
     REQUIRE(report.longest().size() == 2);
     CHECK(report.longest()[0].call.begin == 10000);
     CHECK(report.longest()[1].name == "short");
+}
+
+TEST_CASE("a sequence that starts in a gap, or is all gap, leaves its unknown bins empty",
+          "[report_html]") {
+    const Model model = compile(load_profile("cpg-island"));
+    std::mt19937_64 rng(3);
+    HtmlReportOptions options;
+    options.sketch_values = 1000;  // bins of 5 bases for 5000 bases
+    options.overview_bins = 100;   // 50 bases
+    HtmlReport report(model, options);
+    const Contig starts_in_gap =
+        test::contig_from(std::string(1000, 'N') + random_bases(rng, 4000), "gap_first");
+    const Contig all_gap = test::contig_from(std::string(700, 'N'), "all_gap");
+    PosteriorDecoder decoder(model, DecoderOptions{256, 1024, 1});
+    TaskPool pool(2);
+    for (const Contig* c : {&starts_in_gap, &all_gap}) {
+        auto fork = report.fork();
+        decoder.run(*c, *fork, &pool);  // segments of 1,024 bases: the first ones all gap
+        report.join(*fork);
+        REQUIRE_NOTHROW(report.finish_sequence(*c, {}));
+    }
+    REQUIRE(report.shown().size() == 2);
+    const SequenceSketch& s = report.shown()[0];
+    REQUIRE(s.name == "gap_first");
+    CHECK(s.bin == 50);
+    for (size_t b = 0; b < 20; ++b) {  // bases 0..999: unknown
+        CHECK(std::isnan(s.posterior[b]));
+        CHECK(s.unknown[b] == 1.0f);
+    }
+    for (size_t b = 20; b < s.posterior.size(); ++b) CHECK(std::isfinite(s.posterior[b]));
+    for (const float p : report.shown()[1].posterior) CHECK(std::isnan(p));
+}
+
+TEST_CASE("long names are shortened in the middle, at UTF-8 character boundaries",
+          "[report_html]") {
+    using report_detail::shortened;
+    const std::string draft = "NODE_605_length_701_cov_12.345678_ID_1209";
+    const std::string cut = shortened(draft, 30);
+    CHECK(cut == "NODE_605_lengt\u2026.345678_ID_1209");  // 14 + ellipsis + 15 characters
+    CHECK(shortened("chr1", 30) == "chr1");
+    // A two-byte character (U+00E9) at the cut is kept whole or dropped, never split.
+    const std::string accented = "\u00e9\u00e9\u00e9\u00e9\u00e9\u00e9\u00e9\u00e9\u00e9\u00e9";
+    const std::string a = shortened(accented, 9);
+    CHECK(a == "\u00e9\u00e9\u2026\u00e9\u00e9");
 }

@@ -49,6 +49,12 @@ def section(tree, ident):
     return next(el for el in tree.iter(XHTML + "section") if el.get("id") == ident)
 
 
+def path_span(d):
+    """The x extent of an SVG path of M/V/H commands (what the report draws)."""
+    xs = [float(v) for v in re.findall(r"[MH](-?[\d.]+)", d)]
+    return min(xs), max(xs)
+
+
 def listed_calls(tree):
     """(sequence, 1-based start, 1-based end) of each row of the page's table of all calls."""
     rows = []
@@ -190,8 +196,8 @@ def body(checks, tm, work):
 
     # 7. A simulated 3-Mbp genome with gaps and 20 or more calls: every call of the BED is in the
     #    page's table, in position order (start + 1: positions on the page are 1-based).
-    tmtest.run(tm, ["simulate", "--lengths", "2000000,1000000", "--seed", "5", "--gaps", "0.01", "--gap-length",
-                    "5000", "-o", "sim3.fa"], cwd=work)
+    tmtest.run(tm, ["simulate", "--lengths", "2000000,1000000", "--seed", "4", "--gaps", "0.05", "--gap-length",
+                    "15000", "-o", "sim3.fa"], cwd=work)
     tmtest.run(tm, ["scan", "sim3.fa", "-q", "-o", "sim3.bed", "--html", "sim3.html"], cwd=work)
     sim_calls = [(c[0], int(c[1]) + 1, int(c[2])) for c in tmtest.read_bed(os.path.join(work, "sim3.bed"))]
     checks.check(len(sim_calls) >= 20, f"the simulated genome has 20 or more calls ({len(sim_calls)})", "sim3.bed")
@@ -200,6 +206,30 @@ def body(checks, tm, work):
                  "sim3.bed (BED start + 1)")
     checks.check(f"All {len(sim_calls)} calls in position order" in text_of(stree),
                  "the table says it lists all calls", "page text")
+
+    # Nothing is drawn inside assembly gaps: along each sequence, no posterior area reaches into
+    # the interior of an N run of the FASTA of at least 10 kb. The figure's 2-kb bins are drawn in
+    # pairs here (each drawn bin at least a pixel: 860 px for 2 Mbp), and a drawn bin that is
+    # more than half unknown is left empty, so only 4 kb at either end of a run may be drawn.
+    along = next(s for s in stree.iter(SVG + "svg") if "along each sequence" in s.get("aria-label", ""))
+    sim_seqs = dict(tmtest.read_fasta(os.path.join(work, "sim3.fa")))
+    longest_sim = max(len(q) for q in sim_seqs.values())
+    inside, gaps = [], 0
+    for g in along.iter(SVG + "g"):
+        name = g.find(SVG + "title").text.split(":")[0]
+        x0 = float(next(r for r in g.iter(SVG + "rect") if r.get("class") == "seq").get("x"))
+        scale = 860 / longest_sim
+        spans = [path_span(p.get("d")) for p in g.iter(SVG + "path")]
+        mask = tmtest.long_unknown_runs(sim_seqs[name], 10000)
+        edges = [i for i in range(1, len(mask)) if mask[i] != mask[i - 1]]
+        runs = list(zip(([0] if mask[0] else []) + [e for e in edges if mask[e]],
+                        [e for e in edges if not mask[e]] + ([len(mask)] if mask[-1] else [])))
+        for b, e in runs:
+            lo, hi = x0 + (b + 4000) * scale, x0 + (e - 4000) * scale
+            inside += [(name, b, e) for a, z in spans if a < hi and z > lo]
+        gaps += len(runs)
+    checks.check(gaps >= 3, f"the simulated genome has {gaps} gaps of at least 10 kb", "sim3.fa")
+    checks.equal(inside, [], "no posterior area is drawn over a gap of the FASTA", "sim3.fa N runs")
 
     # The calling line states the minimums that act, for a per-base and a window profile: from the
     #    profile JSON (calling.merge_gap, calling.min_length, regions[].min_length, window.size).
