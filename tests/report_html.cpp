@@ -296,3 +296,44 @@ TEST_CASE("long names are shortened in the middle, at UTF-8 character boundaries
     const std::string a = shortened(accented, 9);
     CHECK(a == "\u00e9\u00e9\u2026\u00e9\u00e9");
 }
+
+TEST_CASE("the page lists calls up to its limit, says how many more, and names the BED",
+          "[report_html]") {
+    const Profile profile = load_profile("cpg-island");
+    const Model model = compile(profile);
+    std::mt19937_64 rng(9);
+    HtmlReportOptions options;
+    options.listed_calls = 3;
+    HtmlReport report(model, options);
+    const Contig contig = random_contig(rng, 12000, "c<1>");
+    auto fork = report.fork();
+    PosteriorDecoder(model).run(contig, *fork);
+    report.join(*fork);
+    std::vector<Call> calls;
+    for (int64_t b = 1000; b < 11000; b += 2000) calls.push_back(make_call(b, b + 500, 0.9));
+    report.finish_sequence(contig, calls);
+    ContigSummary summary;
+    summary.name = contig.name;
+    summary.length = contig.length;
+    summary.reset_calls(model.region_names.size());
+    for (const Call& c : calls) summary.add_call(c, model.region_names.size());
+    const std::vector<ContigSummary> contigs = {summary};
+    RunInfo info;
+    info.inputs = {"in.fa"};
+    info.decode_mode = "posterior";
+    const CallOptions calling;
+    const std::vector<std::string> warnings = {"a <warning> & more"};
+    const std::string page = format_html_report(
+        {&info, &profile, &model, &calling, &contigs, &report, &warnings, "calls&.bed"});
+    // Calls 1,001..1,500 and so on, 1-based: the first three listed, the last two not.
+    CHECK(page.find("The first 3 of 5 calls in position order") != std::string::npos);
+    CHECK(page.find("<b>2 more calls are not listed here</b>; all 5 are in "
+                    "<code>calls&amp;.bed</code>") != std::string::npos);
+    CHECK(page.find("<td>5,001</td>") != std::string::npos);
+    // The warning box comes first and holds the warning as text.
+    const size_t box = page.find("<section class=\"warn\" id=\"warnings\">");
+    CHECK(box != std::string::npos);
+    CHECK(box < page.find("<section id=\"run\">"));
+    CHECK(page.find("<li>a &lt;warning&gt; &amp; more</li>") != std::string::npos);
+    CHECK(page.find("c<1>") == std::string::npos);
+}
