@@ -114,12 +114,15 @@ struct Page {
 
     void warnings_box() {
         if (!in.warnings || in.warnings->empty()) return;
-        out +=
-            fmt::format("<section class=\"warn\" id=\"warnings\">\n<h2>{}</h2>\n<ul>\n",
-                        in.warnings->size() == 1 ? std::string("Warning")
-                                                 : fmt::format("{} warnings", in.warnings->size()));
+        const size_t all = std::max(in.warning_count, in.warnings->size());
+        out += fmt::format("<section class=\"warn\" id=\"warnings\">\n<h2>{}</h2>\n<ul>\n",
+                           all == 1 ? std::string("Warning") : fmt::format("{} warnings", all));
         for (const auto& w : *in.warnings) out += "<li>" + esc(w) + "</li>\n";
-        out += "</ul>\n</section>\n";
+        out += "</ul>\n";
+        if (all > in.warnings->size())
+            out += fmt::format("<p>The first {} are listed; all {} are on standard error.</p>\n",
+                               in.warnings->size(), all);
+        out += "</section>\n";
     }
 
     void run_section() {
@@ -144,10 +147,10 @@ struct Page {
                                          : " (single most probable state path)"));
         row("calling", calling_line());
         const auto& warnings = in.warnings ? *in.warnings : std::vector<std::string>{};
-        row("warnings", warnings.empty()
-                            ? std::string("none")
-                            : fmt::format("{} (in the box at the top)",
-                                          grouped(static_cast<int64_t>(warnings.size()))));
+        row("warnings", warnings.empty() ? std::string("none")
+                                         : fmt::format("{} (in the box at the top)",
+                                                       grouped(static_cast<int64_t>(std::max(
+                                                           in.warning_count, warnings.size())))));
         row("command", "<code>" + esc(info.command_line) + "</code>");
         row("tool", "tidemark " TIDEMARK_VERSION);
         out +=

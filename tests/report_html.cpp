@@ -324,7 +324,7 @@ TEST_CASE("the page lists calls up to its limit, says how many more, and names t
     const CallOptions calling;
     const std::vector<std::string> warnings = {"a <warning> & more"};
     const std::string page = format_html_report(
-        {&info, &profile, &model, &calling, &contigs, &report, &warnings, "calls&.bed"});
+        {&info, &profile, &model, &calling, &contigs, &report, &warnings, 1, "calls&.bed"});
     // Calls 1,001..1,500 and so on, 1-based: the first three listed, the last two not.
     CHECK(page.find("The first 3 of 5 calls in position order") != std::string::npos);
     CHECK(page.find("<b>2 more calls are not listed here</b>; all 5 are in "

@@ -1,6 +1,7 @@
 // Talk on stderr: one levelled logger passed to whoever needs to report (stdout stays data).
 #pragma once
 
+#include <cstddef>
 #include <cstdio>
 #include <string>
 #include <string_view>
@@ -15,13 +16,17 @@ public:
     explicit Logger(LogLevel level = LogLevel::normal, std::FILE* out = stderr)
         : level_(level), out_(out) {}
     LogLevel level() const { return level_; }
-    /// Warnings are printed at every level and kept, so that a run's documents can list them
-    /// (the HTML report's box). Called from the thread that runs the job, not from workers.
+    /// Warnings are printed at every level and the first kept_warnings kept (all are counted),
+    /// so that a run's documents can list them (the HTML report's box). Called from the thread
+    /// that runs the job, not from workers.
     void warn(std::string_view msg) const {
-        warnings_.emplace_back(msg);
+        if (warnings_.size() < kept_warnings) warnings_.emplace_back(msg);
+        ++warning_count_;
         write(LogLevel::quiet, "tidemark: warning: ", msg);
     }
+    static constexpr size_t kept_warnings = 100;
     const std::vector<std::string>& warnings() const { return warnings_; }
+    size_t warning_count() const { return warning_count_; }
     void info(std::string_view msg) const { write(LogLevel::normal, "tidemark: ", msg); }
     void detail(std::string_view msg) const { write(LogLevel::verbose, "tidemark: ", msg); }
     /// Text shown as is at verbose level (tables).
@@ -38,6 +43,7 @@ private:
     LogLevel level_;
     std::FILE* out_;
     mutable std::vector<std::string> warnings_;
+    mutable size_t warning_count_ = 0;
 };
 
 }  // namespace tidemark

@@ -152,8 +152,10 @@ struct HtmlReportInput {
     const CallOptions* calling = nullptr;
     const std::vector<ContigSummary>* contigs = nullptr;
     const HtmlReport* sketch = nullptr;
-    /// Every warning of the run (Logger::warnings), shown in a box at the top.
+    /// The warnings of the run (Logger::warnings), shown in a box at the top, and how many
+    /// there were in all (more than listed when the logger kept only the first ones).
     const std::vector<std::string>* warnings = nullptr;
+    size_t warning_count = 0;
     std::string bed_path;  ///< where the full list of calls is ("" = standard output)
 };
 

@@ -267,6 +267,20 @@ def body(checks, tm, work):
     checks.check("warnings" not in [el.get("id") for el in tree.iter(XHTML + "section")] if tree is not None else True,
                  "a run without warnings has no warning box", "demo run: no warning on stderr")
 
+    # Many warnings (one per empty record): the box lists the first 100 and says how many there were.
+    with open(os.path.join(work, "empties.fa"), "w") as f:
+        f.write("".join(f">empty{i}\n" for i in range(120)) + ">real\n" + records[0][1][:20000] + "\n")
+    proc = subprocess.run([tm, "scan", "empties.fa", "-o", "/dev/null", "--html", "empties.html"], cwd=work,
+                          capture_output=True, text=True, check=True)
+    stderr_warnings = [line for line in proc.stderr.splitlines() if line.startswith("tidemark: warning: ")]
+    etree_ = parse_strict(os.path.join(work, "empties.html"))
+    box = section(etree_, "warnings")
+    items = ["".join(li.itertext()) for li in box.iter(XHTML + "li")]
+    checks.check(len(stderr_warnings) == 120 and items == [w[len("tidemark: warning: "):] for w in stderr_warnings[:100]]
+                 and "all 120 are on standard error" in text_of(box),
+                 "120 warnings: the box lists the first 100 and says all 120 are on stderr", "stderr of the same run",
+                 f"{len(stderr_warnings)} on stderr, {len(items)} listed")
+
     # 9. Not with --shard: a usage error (exit 2), and no file.
     proc = subprocess.run([tm, "scan", DEMO, "--shard", "1/2", "-o", "/dev/null", "--html", "shard.html"], cwd=work,
                           capture_output=True, text=True)
