@@ -798,13 +798,16 @@ struct Page {
             in.profile->windowed() ? " (the evidence of a window profile is its windows' GC)" : "");
         const auto& confident = in.sketch->most_confident();
         const auto& longest = in.sketch->longest();
-        out += "<div class=\"figs\">\n<div>\n";
-        out += fmt::format("<h3>The {} most confident</h3>\n", confident.size());
-        calls_table(confident, true);
-        out += "</div>\n<div>\n";
-        out += fmt::format("<h3>The {} longest</h3>\n", longest.size());
-        calls_table(longest, true);
-        out += "</div>\n</div>\n";
+        // The two rankings only when they leave calls out (else they repeat the list below).
+        if (static_cast<int64_t>(confident.size()) < all) {
+            out += "<div class=\"figs\">\n<div>\n";
+            out += fmt::format("<h3>The {} most confident</h3>\n", confident.size());
+            calls_table(confident, true);
+            out += "</div>\n<div>\n";
+            out += fmt::format("<h3>The {} longest</h3>\n", longest.size());
+            calls_table(longest, true);
+            out += "</div>\n</div>\n";
+        }
         out += fmt::format(
             "<h3 id=\"all-calls\">{} in position order</h3>\n",
             static_cast<int64_t>(listed.size()) == all

@@ -207,6 +207,16 @@ def body(checks, tm, work):
     checks.check(f"All {len(sim_calls)} calls in position order" in text_of(stree),
                  "the table says it lists all calls", "page text")
 
+    # With more than ten calls, the ten longest are ranked above the list: the BED's ten longest
+    # (ties: any order of equal lengths is accepted).
+    box = next(div for div in section(stree, "list").iter(XHTML + "div")
+               if any((h.text or "").startswith("The 10 longest") for h in div.findall(XHTML + "h3")))
+    table = box.find(XHTML + "table")
+    ranked = [int("".join(tr.findall(XHTML + "td")[4].itertext()).replace(",", ""))
+              for tr in table.iter(XHTML + "tr") if tr.findall(XHTML + "td")]
+    checks.equal(ranked, sorted((e - s + 1 for _, s, e in sim_calls), reverse=True)[:10],
+                 "the ten longest calls are ranked by length", "sim3.bed")
+
     # Nothing is drawn inside assembly gaps: along each sequence, no posterior area reaches into
     # the interior of an N run of the FASTA of at least 10 kb. The figure's 2-kb bins are drawn in
     # pairs here (each drawn bin at least a pixel: 860 px for 2 Mbp), and a drawn bin that is
