@@ -23,6 +23,10 @@ test_packages=(
   bowtie2-examples smalt-examples bowtie-examples cct-examples sibelia-examples ragout-examples
   # the HTML report (scan --html): rendered by a real browser, validated by two HTML parsers
   chromium python3-pil python3-html5lib tidy
+  # the browser-client test (tests/oracle/test_browser_client.py): node runs igv.js and
+  # playwright-core, installed by `npm ci` from tests/browser/package-lock.json (Debian 12:
+  # nodejs 18, npm 9)
+  nodejs npm
   # the install test renders the man page (man -l, groff)
   man-db groff-base
   # benchmarks (scripts/bench.sh, scripts/bench-fit.sh: wall time and peak RSS)
@@ -39,6 +43,8 @@ esac
 
 missing=()
 for p in "${packages[@]}"; do
+  # A nodejs package from outside Debian may carry npm itself (and conflict with Debian's).
+  if [ "$p" = npm ] && command -v npm >/dev/null 2>&1; then continue; fi
   dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q 'install ok installed' || missing+=("$p")
 done
 if [ ${#missing[@]} -eq 0 ]; then

@@ -46,11 +46,11 @@ inline std::string bases_label(double v) {
     return trim(fmt::format("{:.0f}", v));
 }
 
-// A 1-2-5 step giving at most `most` intervals over [0, span].
+// A step of 1, 2 or 5 x 10^k giving at most `most` intervals over [0, span].
 inline double nice_step(double span, int most) {
     if (span <= 0) return 1;
     double step = std::pow(10.0, std::floor(std::log10(span / most)));
-    for (const double m : {1.0, 2.0, 2.5, 5.0, 10.0})
+    for (const double m : {1.0, 2.0, 5.0, 10.0})
         if (span / (step * m) <= most) return step * m;
     return step * 10;
 }
@@ -71,12 +71,18 @@ inline std::string rgb(const Model& model, int region) {
     return "rgb(" + region_color(model, region) + ")";
 }
 
-// A name cut to `most` bytes at a UTF-8 character boundary, with an ellipsis.
+// A name cut to about `most` bytes in the middle (at UTF-8 character boundaries), so that both
+// its start and its end (where drafts keep the contig number and coverage) stay readable.
 inline std::string shortened(const std::string& name, size_t most) {
-    if (name.size() <= most) return name;
-    size_t cut = most - 1;
-    while (cut > 0 && (static_cast<unsigned char>(name[cut]) & 0xC0) == 0x80) --cut;
-    return name.substr(0, cut) + "\u2026";
+    if (name.size() <= most || most < 3) return name;
+    const auto boundary = [&](size_t i) {
+        while (i > 0 && i < name.size() && (static_cast<unsigned char>(name[i]) & 0xC0) == 0x80)
+            --i;
+        return i;
+    };
+    const size_t head = boundary((most - 1) / 2);
+    const size_t tail = boundary(name.size() - (most - 1 - (most - 1) / 2));
+    return name.substr(0, head) + "\u2026" + name.substr(tail);
 }
 
 inline const char* criteria_name(IslandCriteria c) {
@@ -116,6 +122,44 @@ inline std::string step_area(const std::vector<double>& xs, const std::vector<do
     return d + "Z";
 }
 
+// Stacked step areas of several layers over bins [x_i, x_{i+1}), one path per layer and run of
+// drawable bins: a bin is left empty (nothing is drawn inside assembly gaps) when `drawable` is
+// false or a layer's value is not a number.
+inline std::string stacked_areas(const std::vector<double>& xs,
+                                 const std::vector<std::vector<double>>& layers,
+                                 const std::vector<char>& drawable, double y0, double height,
+                                 const std::vector<std::string>& colours,
+                                 const std::string& extra = "") {
+    std::string out;
+    const size_t n = xs.empty() ? 0 : xs.size() - 1;
+    const auto ok = [&](size_t i) {
+        if (!drawable[i]) return false;
+        for (const auto& l : layers)
+            if (!std::isfinite(l[i])) return false;
+        return true;
+    };
+    for (size_t b = 0; b < n;) {
+        if (!ok(b)) {
+            ++b;
+            continue;
+        }
+        size_t e = b;
+        while (e < n && ok(e)) ++e;
+        const std::vector<double> run_x(xs.begin() + static_cast<std::ptrdiff_t>(b),
+                                        xs.begin() + static_cast<std::ptrdiff_t>(e) + 1);
+        std::vector<double> lower(e - b, 0.0);
+        for (size_t k = 0; k < layers.size(); ++k) {
+            std::vector<double> upper(lower);
+            for (size_t i = b; i < e; ++i) upper[i - b] += layers[k][i];
+            out += "<path d=\"" + step_area(run_x, lower, upper, y0, height) + "\" fill=\"" +
+                   colours[k] + "\"" + extra + "/>\n";
+            lower = std::move(upper);
+        }
+        b = e;
+    }
+    return out;
+}
+
 inline constexpr const char* style_sheet = R"css(
 body{font-family:system-ui,-apple-system,"Segoe UI",Roboto,"Helvetica Neue",Arial,sans-serif;color:#1d1d1f;background:#fff;margin:0;line-height:1.45}
 main{max-width:1120px;margin:0 auto;padding:18px 24px 40px}
@@ -150,11 +194,19 @@ svg .grid{stroke:#e6e6e6;stroke-width:1}
 svg .axis{stroke:#888;stroke-width:1}
 svg .thr{stroke:#333;stroke-width:1;stroke-dasharray:4 3}
 svg .band{fill:#fafafa}
+svg .trace{fill:none;stroke:#333;stroke-width:1.2}
 svg .seq{fill:#d9d9d9}
 svg rect.unk{fill:#9a9a9a;fill-opacity:.45}
 details{font-size:13px;margin:6px 0}
 div.wide{overflow-x:auto}
 th{white-space:nowrap}
+.warn{border:2px solid #b3261e;background:#fdf0ee;padding:8px 14px;margin:10px 0 6px;font-size:14px}
+.warn h2{font-size:16px;margin:0 0 4px;border:none;padding:0;color:#b3261e}
+.warn ul{margin:0;padding-left:20px}
+td.pos{white-space:nowrap}
+div.scroll{max-height:520px;overflow-y:auto;border:1px solid #e4e4e4}
+div.scroll table{margin:0}
+div.scroll th{position:sticky;top:0}
 footer{margin-top:30px;color:#777;font-size:12px;border-top:1px solid #ddd;padding-top:6px}
 )css";
 

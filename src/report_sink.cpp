@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <tuple>
 
 #include "tidemark/error.hpp"
@@ -39,6 +40,8 @@ void HtmlReport::begin_contig(const Contig& contig) {
     resolution_ = std::max<int64_t>(1, (length_ * R + budget - 1) / budget);
     first_bin_ = -1;
     sketch_.clear();
+    unknown_ = contig.unknown;
+    next_unknown_ = 0;
     pending_.assign(reported_.size(), 0.0);
     pending_bin_ = -1;
 }
@@ -62,16 +65,30 @@ void HtmlReport::block(const BlockView& view) {
     int64_t t = 0;
     while (t < view.size) {
         const int64_t pos = view.begin + t;
+        // Unknown bases are left out: the posterior inside a gap is the model's prior, not a
+        // statement about the sequence.
+        while (next_unknown_ < unknown_.size() &&
+               unknown_[next_unknown_].begin + unknown_[next_unknown_].length <= pos)
+            ++next_unknown_;
+        int64_t known_end = view.begin + view.size;
+        if (next_unknown_ < unknown_.size()) {
+            const UnknownRun& u = unknown_[next_unknown_];
+            if (u.begin <= pos) {
+                t = std::min(view.size, u.begin + u.length - view.begin);
+                continue;
+            }
+            known_end = std::min(known_end, u.begin);
+        }
         const int64_t bin = pos / resolution_;
         if (bin != pending_bin_) {
             flush_bin();
             pending_bin_ = bin;
         }
-        // Positions of this bin inside the block, summed in position order.
-        const int64_t stop = std::min(view.size, (bin + 1) * resolution_ - view.begin);
+        // Known positions of this bin inside the block, summed in position order.
+        const int64_t stop =
+            std::min({view.size, (bin + 1) * resolution_ - view.begin, known_end - view.begin});
         const size_t n = summed_states_.size();
-        if (reported_.size() ==
-            1) {  // one sum in a register (the common case: one reported region)
+        if (reported_.size() == 1) {  // one sum in a register (the common case)
             double sum = 0;
             for (; t < stop; ++t) {
                 const double* p = view.posterior + t * S;
@@ -102,6 +119,8 @@ void HtmlReport::join(DecodeSink& later) {
         resolution_ = other->resolution_;
         first_bin_ = other->first_bin_;
         sketch_ = std::move(other->sketch_);
+        unknown_ = std::move(other->unknown_);
+        next_unknown_ = 0;
         pending_.assign(reported_.size(), 0.0);
         pending_bin_ = -1;
         return;
@@ -127,13 +146,59 @@ void HtmlReport::join(DecodeSink& later) {
 
 namespace {
 
-// Ranking of calls for the top windows: higher mean posterior, then longer, then earlier.
-bool more_confident(const CallWindow& a, const CallWindow& b) {
-    return std::make_tuple(-a.call.mean_posterior, -(a.call.end - a.call.begin), a.ordinal,
+// Ranking of calls for the example windows and the most-confident table: higher mean
+// posterior, then longer, then earlier.
+auto confidence_key(const Call& c, int64_t ordinal) {
+    return std::make_tuple(-c.mean_posterior, -(c.end - c.begin), ordinal, c.begin, c.region);
+}
+bool more_confident(const ListedCall& a, const ListedCall& b) {
+    return confidence_key(a.call, a.ordinal) < confidence_key(b.call, b.ordinal);
+}
+bool longer(const ListedCall& a, const ListedCall& b) {
+    return std::make_tuple(-(a.call.end - a.call.begin), -a.call.mean_posterior, a.ordinal,
                            a.call.begin, a.call.region) <
-           std::make_tuple(-b.call.mean_posterior, -(b.call.end - b.call.begin), b.ordinal,
+           std::make_tuple(-(b.call.end - b.call.begin), -b.call.mean_posterior, b.ordinal,
                            b.call.begin, b.call.region);
 }
+// Example windows: calls with sequence on both sides first (a call that spans its sequence
+// shows no border), then by confidence.
+auto example_key(const Call& c, int64_t ordinal, int64_t length) {
+    const bool flanked = c.begin > 0 && c.end < length;
+    return std::tuple_cat(std::make_tuple(!flanked), confidence_key(c, ordinal));
+}
+bool better_example(const CallWindow& a, const CallWindow& b) {
+    return example_key(a.call, a.ordinal, a.sequence_length) <
+           example_key(b.call, b.ordinal, b.sequence_length);
+}
+
+// Keeps the `most` first of `kept` under `before`, with `item` offered.
+template <class Before>
+void keep_ranked(std::vector<ListedCall>& kept, size_t most, const ListedCall& item,
+                 Before before) {
+    if (most == 0 || (kept.size() >= most && !before(item, kept.back()))) return;
+    kept.insert(std::upper_bound(kept.begin(), kept.end(), item, before), item);
+    if (kept.size() > most) kept.pop_back();
+}
+
+// Unknown bases in [0, p) of a contig, by binary search over its runs.
+struct UnknownCount {
+    const std::vector<UnknownRun>& runs;
+    std::vector<int64_t> before;  ///< unknown bases in runs [0, i)
+    explicit UnknownCount(const std::vector<UnknownRun>& r) : runs(r), before(r.size() + 1, 0) {
+        for (size_t i = 0; i < runs.size(); ++i) before[i + 1] = before[i] + runs[i].length;
+    }
+    int64_t to(int64_t p) const {
+        const auto i = static_cast<size_t>(
+            std::lower_bound(runs.begin(), runs.end(), p,
+                             [](const UnknownRun& u, int64_t v) { return u.begin < v; }) -
+            runs.begin());
+        int64_t n = before[i];
+        if (i > 0 && runs[i - 1].begin + runs[i - 1].length > p)
+            n -= runs[i - 1].begin + runs[i - 1].length - p;
+        return n;
+    }
+    int64_t in(int64_t a, int64_t b) const { return to(b) - to(a); }
+};
 
 }  // namespace
 
@@ -142,24 +207,42 @@ void HtmlReport::finish_sequence(const Contig& contig, const std::vector<Call>& 
     const int64_t ordinal = seen_++;
     const size_t R = reported_.size();
     const int64_t length = contig.length;
+    for (const Call& c : calls) {
+        ++calls_seen_;
+        const ListedCall item{contig.name, ordinal, contig.offset, c};
+        if (listed_.size() < static_cast<size_t>(std::max(options_.listed_calls, 0)))
+            listed_.push_back(item);
+        const auto ranked = static_cast<size_t>(std::max(options_.ranked_calls, 0));
+        keep_ranked(most_confident_, ranked, item, more_confident);
+        keep_ranked(longest_, ranked, item, longer);
+    }
     if (length == 0 || R == 0) {
         sketch_.clear();
         return;
     }
-    if (!begun_ || length_ != length || first_bin_ > 0)
+    if (!begun_ || length_ != length)
         throw InternalError("HtmlReport: the sketch does not match sequence " + contig.name);
     const int64_t bins = (length + resolution_ - 1) / resolution_;
+    // Bins before the first known base (a sequence that starts in a gap) hold nothing.
+    if (first_bin_ > 0) sketch_.insert(sketch_.begin(), static_cast<size_t>(first_bin_) * R, 0.0f);
+    first_bin_ = 0;
     sketch_.resize(static_cast<size_t>(bins) * R, 0.0f);
+    const UnknownCount unknown(contig.unknown);
     const auto slot = [&](int region) {
         return static_cast<size_t>(std::find(reported_.begin(), reported_.end(), region) -
                                    reported_.begin());
     };
-    // Mean posterior of slot k over sketch bins [lo, hi).
+    // Mean posterior of slot k over the known bases of sketch bins [lo, hi); NaN when none.
     const auto mean = [&](int64_t lo, int64_t hi, size_t k) {
         double sum = 0;
         for (int64_t b = lo; b < hi; ++b) sum += sketch_[static_cast<size_t>(b) * R + k];
-        const int64_t bases = std::min(hi * resolution_, length) - lo * resolution_;
-        return bases > 0 ? static_cast<float>(sum / static_cast<double>(bases)) : 0.0f;
+        const int64_t a = lo * resolution_, e = std::min(hi * resolution_, length);
+        const int64_t known = e - a - unknown.in(a, e);
+        return known > 0 ? static_cast<float>(sum / static_cast<double>(known))
+                         : std::numeric_limits<float>::quiet_NaN();
+    };
+    const auto unknown_share = [&](int64_t a, int64_t e) {
+        return e > a ? static_cast<float>(unknown.in(a, e)) / static_cast<float>(e - a) : 0.0f;
     };
 
     // The along-sequence figure keeps the longest sequences (ties: the earlier one).
@@ -186,56 +269,89 @@ void HtmlReport::finish_sequence(const Contig& contig, const std::vector<Call>& 
         const int64_t n = (length + sk.bin - 1) / sk.bin;
         sk.posterior.resize(static_cast<size_t>(n) * R);
         sk.called.assign(static_cast<size_t>(n) * R, 0);
-        sk.unknown.assign(static_cast<size_t>(n), 0.0f);
-        for (int64_t i = 0; i < n; ++i)
+        sk.unknown.resize(static_cast<size_t>(n));
+        for (int64_t i = 0; i < n; ++i) {
             for (size_t k = 0; k < R; ++k)
                 sk.posterior[static_cast<size_t>(i) * R + k] =
                     mean(i * per, std::min((i + 1) * per, bins), k);
+            sk.unknown[static_cast<size_t>(i)] =
+                unknown_share(i * sk.bin, std::min((i + 1) * sk.bin, length));
+        }
         for (const Call& c : calls)
             for (int64_t i = c.begin / sk.bin; i <= (c.end - 1) / sk.bin; ++i)
                 sk.called[static_cast<size_t>(i) * R + slot(c.region)] = 1;
-        for (const UnknownRun& u : contig.unknown) {
-            for (int64_t i = u.begin / sk.bin; i <= (u.begin + u.length - 1) / sk.bin && i < n;
-                 ++i) {
-                const int64_t lo = std::max(u.begin, i * sk.bin),
-                              hi = std::min(u.begin + u.length, (i + 1) * sk.bin);
-                const int64_t width = std::min((i + 1) * sk.bin, length) - i * sk.bin;
-                sk.unknown[static_cast<size_t>(i)] +=
-                    static_cast<float>(hi - lo) / static_cast<float>(width);
-            }
-        }
         shown_.insert(
             std::upper_bound(shown_.begin(), shown_.end(), sk,
                              [](const auto& a, const auto& b) { return a.ordinal < b.ordinal; }),
             std::move(sk));
     }
 
-    // Windows around the calls that rank among the most confident so far.
+    // Example windows: this sequence's calls in example order, each taken when its window
+    // clashes with no window taken before it on this sequence and it ranks among the
+    // top_calls so far.
     const auto top = static_cast<size_t>(std::max(options_.top_calls, 0));
-    for (const Call& c : calls) {
-        if (top == 0) break;
+    std::vector<const Call*> order;
+    for (const Call& c : calls) order.push_back(&c);
+    std::sort(order.begin(), order.end(), [&](const Call* a, const Call* b) {
+        return example_key(*a, ordinal, length) < example_key(*b, ordinal, length);
+    });
+    std::vector<std::pair<int64_t, int64_t>> taken;  // windows on this sequence
+    for (const Call* cp : order) {
+        if (top == 0 || taken.size() >= top) break;
+        const Call& c = *cp;
         CallWindow w;
         w.name = contig.name;
         w.ordinal = ordinal;
         w.offset = contig.offset;
+        w.sequence_length = length;
         w.call = c;
-        if (windows_.size() >= top && !more_confident(w, windows_.back())) continue;
+        if (windows_.size() >= top && !better_example(w, windows_.back()))
+            break;  // nor is any later call of this sequence
         const int64_t flank = std::max<int64_t>(c.end - c.begin, 1000);
         const int64_t lo = std::max<int64_t>(0, c.begin - flank) / resolution_;
         const int64_t hi =
             std::min(bins, (std::min(length, c.end + flank) + resolution_ - 1) / resolution_);
+        w.begin = lo * resolution_;
+        w.end = std::min(length, hi * resolution_);
+        const bool clash = std::any_of(taken.begin(), taken.end(), [&](const auto& t) {
+            return w.begin < t.second && t.first < w.end;
+        });
+        if (clash) continue;
+        taken.emplace_back(w.begin, w.end);
         const int64_t points = std::max<int64_t>(1, options_.window_points);
         const int64_t per = (hi - lo + points - 1) / points;
         w.bin = per * resolution_;
-        w.begin = lo * resolution_;
-        w.end = std::min(length, hi * resolution_);
-        for (int64_t b = lo; b < hi; b += per)
-            for (size_t k = 0; k < R; ++k) w.posterior.push_back(mean(b, std::min(b + per, hi), k));
+        for (int64_t b = lo; b < hi; b += per) {
+            const int64_t e = std::min(b + per, hi);
+            for (size_t k = 0; k < R; ++k) w.posterior.push_back(mean(b, e, k));
+            w.unknown.push_back(unknown_share(b * resolution_, std::min(e * resolution_, length)));
+        }
+        // The composition over steps of whole points, each of at least 200 bases (the window
+        // length of the Gardiner-Garden & Frommer 1987 island criteria; unless the window is
+        // shorter), at most about 80 across the window: GC and CpG o/e of a dozen bases are
+        // noise. The points are shared out evenly, so no step is a short remainder.
+        const int64_t span = w.end - w.begin;
+        const int64_t step_bases = std::max<int64_t>(200, (span + 79) / 80);
+        const int64_t group = std::max<int64_t>(1, (step_bases + w.bin - 1) / w.bin);
+        const auto n_points = static_cast<int64_t>(w.unknown.size());
+        const int64_t steps = std::max<int64_t>(1, n_points / group);
+        for (int64_t i = 0; i < steps; ++i) {
+            const int64_t p0 = i * n_points / steps, p1 = (i + 1) * n_points / steps;
+            const Composition comp =
+                composition(contig, w.begin + p0 * w.bin, std::min(w.end, w.begin + p1 * w.bin));
+            const float gc = comp.known() ? static_cast<float>(comp.gc_fraction())
+                                          : std::numeric_limits<float>::quiet_NaN();
+            const auto oe = static_cast<float>(comp.cpg_obs_exp());
+            for (int64_t j = p0; j < p1; ++j) {
+                w.gc.push_back(gc);
+                w.cpg_obs_exp.push_back(oe);
+            }
+        }
         for (const Call& other : calls) {
             if (other.begin >= w.end) break;
             if (other.end > w.begin && w.nearby.size() < 200) w.nearby.push_back(other);
         }
-        windows_.insert(std::upper_bound(windows_.begin(), windows_.end(), w, more_confident),
+        windows_.insert(std::upper_bound(windows_.begin(), windows_.end(), w, better_example),
                         std::move(w));
         if (windows_.size() > top) windows_.pop_back();
     }

@@ -449,8 +449,9 @@ void write_run_documents(ScanOutputs& run, const RunInfo& info, const Profile& p
     std::unique_ptr<OutputFile> page;
     if (run.html) {
         page = std::make_unique<OutputFile>(o.html_path);
-        page->write(format_html_report(
-            {&info, &profile, &model, &call_options, &run.kept, run.html.get()}));
+        page->write(
+            format_html_report({&info, &profile, &model, &call_options, &run.kept, run.html.get(),
+                                &log.warnings(), log.warning_count(), o.output}));
     }
     // Commit only after everything has been computed and written.
     if (run.tracks) run.tracks->close();

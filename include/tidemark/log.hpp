@@ -1,10 +1,12 @@
 // Talk on stderr: one levelled logger passed to whoever needs to report (stdout stays data).
 #pragma once
 
+#include <cstddef>
 #include <cstdint>
 #include <cstdio>
 #include <string>
 #include <string_view>
+#include <vector>
 
 namespace tidemark {
 
@@ -15,7 +17,17 @@ public:
     explicit Logger(LogLevel level = LogLevel::normal, std::FILE* out = stderr)
         : level_(level), out_(out) {}
     LogLevel level() const { return level_; }
-    void warn(std::string_view msg) const { write(LogLevel::quiet, "tidemark: warning: ", msg); }
+    /// Warnings are printed at every level and the first kept_warnings kept (all are counted),
+    /// so that a run's documents can list them (the HTML report's box). Called from the thread
+    /// that runs the job, not from workers.
+    void warn(std::string_view msg) const {
+        if (warnings_.size() < kept_warnings) warnings_.emplace_back(msg);
+        ++warning_count_;
+        write(LogLevel::quiet, "tidemark: warning: ", msg);
+    }
+    static constexpr size_t kept_warnings = 100;
+    const std::vector<std::string>& warnings() const { return warnings_; }
+    size_t warning_count() const { return warning_count_; }
     void info(std::string_view msg) const { write(LogLevel::normal, "tidemark: ", msg); }
     void detail(std::string_view msg) const { write(LogLevel::verbose, "tidemark: ", msg); }
     /// Text shown as is at verbose level (tables).
@@ -31,6 +43,8 @@ private:
     }
     LogLevel level_;
     std::FILE* out_;
+    mutable std::vector<std::string> warnings_;
+    mutable size_t warning_count_ = 0;
 };
 
 /// A warning that can come once per record (millions of times): the first `listed` are

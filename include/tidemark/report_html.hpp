@@ -1,6 +1,7 @@
-// The HTML report of a scan (--html): one self-contained page with the run's inputs and profile,
-// genome-wide and per-sequence tables, and inline SVG figures (calls along each sequence, call
-// length and confidence histograms, the posterior around the most confident calls).
+// The HTML report of a scan (--html): one self-contained page with the run's warnings, inputs
+// and profile, genome-wide and per-sequence tables, the calls themselves (in position order, and
+// the most confident and the longest), and inline SVG figures (calls along each sequence, call
+// length and confidence histograms, the posterior with GC and CpG o/e around example calls).
 #pragma once
 
 #include <cstdint>
@@ -16,7 +17,11 @@ namespace tidemark {
 struct HtmlReportOptions {
     int shown_sequences =
         200;            ///< the longest this many sequences get a row in the figure and table
-    int top_calls = 6;  ///< windows around the most confident calls
+    int top_calls = 6;  ///< windows around the most confident calls, from distinct loci
+    /// Calls listed in the page's table of calls (the first this many in position order);
+    /// beyond it the page says how many more there are and points to the BED.
+    int listed_calls = 5000;
+    int ranked_calls = 10;  ///< rows of the tables of the most confident and the longest calls
     /// Posterior values (all reported regions together) kept per sequence while it is decoded:
     /// the posterior is averaged over bins of ceil(length * regions / this) bases. Memory per
     /// sequence in flight: this many floats (4 MiB).
@@ -26,7 +31,8 @@ struct HtmlReportOptions {
 };
 
 /// What the report keeps of one sequence for the along-sequence figure: per bin, the mean
-/// posterior of each reported region, whether a call of that region touches the bin, and the
+/// posterior of each reported region over the bin's known bases (NaN when it has none: nothing
+/// is drawn inside assembly gaps), whether a call of that region touches the bin, and the
 /// fraction of unknown bases.
 struct SequenceSketch {
     std::string name;
@@ -39,26 +45,45 @@ struct SequenceSketch {
     std::vector<float> unknown;    ///< per bin: fraction of unknown bases
 };
 
-/// The posterior around one call, binned.
+/// The posterior around one call, binned, with the composition that explains it.
 struct CallWindow {
     std::string name;  ///< sequence
     int64_t ordinal = 0;
     int64_t offset = 0;
+    int64_t sequence_length = 0;
     Call call;                     ///< contig coordinates (add offset)
     int64_t begin = 0, end = 0;    ///< the window, contig coordinates
     int64_t bin = 1;               ///< bases per point
-    std::vector<float> posterior;  ///< [point * regions + k]
-    std::vector<Call> nearby;      ///< calls overlapping the window (the call itself included)
+    std::vector<float> posterior;  ///< [point * regions + k], mean over known bases (NaN: none)
+    std::vector<float> unknown;    ///< per point: fraction of unknown bases
+    /// Per point: GC and CpG observed/expected of the known bases of the step holding it
+    /// (steps of whole points, at least 200 bases and at most about 80 across the window, the
+    /// points shared out evenly); NaN where undefined.
+    std::vector<float> gc;
+    std::vector<float> cpg_obs_exp;
+    std::vector<Call> nearby;  ///< calls overlapping the window (the call itself included)
+};
+
+/// One call as the page's tables list it.
+struct ListedCall {
+    std::string name;  ///< sequence
+    int64_t ordinal = 0;
+    int64_t offset = 0;
+    Call call;  ///< contig coordinates (add offset)
 };
 
 /// Sink that keeps a bounded sketch of the posteriors for the report. While a sequence is
-/// decoded it keeps the posterior of each reported region averaged over bins (at most
-/// sketch_values floats per sequence); when the sequence's calls are known (finish_sequence)
-/// it keeps a coarser profile for the along-sequence figure (only for the longest
-/// shown_sequences sequences seen so far) and the posterior around its calls that rank among
-/// the top_calls most confident so far (mean posterior, then length, then run order), and
-/// drops the rest. Memory: one sketch per sequence in flight, plus shown_sequences x
-/// overview_bins and top_calls x window_points values.
+/// decoded it keeps the posterior of each reported region summed over bins of its known bases
+/// (at most sketch_values floats per sequence); when the sequence's calls are known
+/// (finish_sequence) it keeps a coarser profile for the along-sequence figure (only for the
+/// longest shown_sequences sequences seen so far), the first listed_calls calls, the
+/// ranked_calls most confident and longest, and the posterior around example calls, and drops
+/// the rest. Example calls: the most confident (mean posterior, then length, then run order),
+/// calls with sequence on both sides before calls that span their sequence, each window at
+/// least a window's width from the windows already taken on its sequence (a greedy pass in
+/// that order; the same picks whatever the order sequences finish in, since windows on
+/// different sequences never clash). Memory: one sketch per sequence in flight, plus
+/// shown_sequences x overview_bins and top_calls x window_points values and the listed calls.
 ///
 /// Forkable like the other sinks: a fork that saw a whole sequence replaces this sink's
 /// sequence in progress on join; a fork that saw a later segment of it is appended (bins that
@@ -81,8 +106,15 @@ public:
     /// Sequences seen and those kept for the figure (the longest, in input order).
     int64_t sequences_seen() const { return seen_; }
     const std::vector<SequenceSketch>& shown() const { return shown_; }
-    /// Windows around the most confident calls, most confident first.
+    /// Windows around the example calls, most confident first.
     const std::vector<CallWindow>& top_windows() const { return windows_; }
+    /// The first listed_calls calls of the run in position order (input order of sequences).
+    const std::vector<ListedCall>& listed_calls() const { return listed_; }
+    int64_t calls_seen() const { return calls_seen_; }
+    /// The ranked_calls most confident calls (as top_windows ranks them) and the longest
+    /// (ties: the more confident, then the earlier).
+    const std::vector<ListedCall>& most_confident() const { return most_confident_; }
+    const std::vector<ListedCall>& longest() const { return longest_; }
     const std::vector<int>& reported_regions() const { return reported_; }
 
 private:
@@ -97,15 +129,19 @@ private:
     // The sequence in progress.
     bool begun_ = false, ended_ = false;
     int64_t length_ = 0;
-    int64_t resolution_ = 1;       ///< bases per sketch bin
-    int64_t first_bin_ = -1;       ///< bin of sketch_[0] (a segment fork starts inside)
-    std::vector<float> sketch_;    ///< [(bin - first_bin_) * regions + k]: posterior sums
-    std::vector<double> pending_;  ///< sums of the bin being filled
+    int64_t resolution_ = 1;           ///< bases per sketch bin
+    int64_t first_bin_ = -1;           ///< bin of sketch_[0] (a segment fork starts inside)
+    std::vector<UnknownRun> unknown_;  ///< of the sequence in progress (known bases are summed)
+    size_t next_unknown_ = 0;          ///< first run not wholly before the last block
+    std::vector<float> sketch_;        ///< [(bin - first_bin_) * regions + k]: posterior sums
+    std::vector<double> pending_;      ///< sums of the bin being filled
     int64_t pending_bin_ = -1;
     // What the report keeps.
     int64_t seen_ = 0;
     std::vector<SequenceSketch> shown_;
     std::vector<CallWindow> windows_;
+    std::vector<ListedCall> listed_, most_confident_, longest_;
+    int64_t calls_seen_ = 0;
 };
 
 /// The run as the report shows it.
@@ -116,6 +152,11 @@ struct HtmlReportInput {
     const CallOptions* calling = nullptr;
     const std::vector<ContigSummary>* contigs = nullptr;
     const HtmlReport* sketch = nullptr;
+    /// The warnings of the run (Logger::warnings), shown in a box at the top, and how many
+    /// there were in all (more than listed when the logger kept only the first ones).
+    const std::vector<std::string>* warnings = nullptr;
+    size_t warning_count = 0;
+    std::string bed_path;  ///< where the full list of calls is ("" = standard output)
 };
 
 /// The report as one HTML5 document: no scripts, no external resources (a Content-Security-

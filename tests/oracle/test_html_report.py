@@ -45,6 +45,27 @@ def text_of(tree):
     return "".join(tree.itertext())
 
 
+def section(tree, ident):
+    return next(el for el in tree.iter(XHTML + "section") if el.get("id") == ident)
+
+
+def path_span(d):
+    """The x extent of an SVG path of M/V/H commands (what the report draws)."""
+    xs = [float(v) for v in re.findall(r"[MH](-?[\d.]+)", d)]
+    return min(xs), max(xs)
+
+
+def listed_calls(tree):
+    """(sequence, 1-based start, 1-based end) of each row of the page's table of all calls."""
+    rows = []
+    for tr in section(tree, "list").find(".//" + XHTML + "div[@class='scroll']").iter(XHTML + "tr"):
+        cells = ["".join(td.itertext()) for td in tr.iter(XHTML + "td")]
+        if cells:
+            title = tr.find(XHTML + "td[2]").get("title")
+            rows.append((title or cells[1], int(cells[2].replace(",", "")), int(cells[3].replace(",", ""))))
+    return rows
+
+
 def body(checks, tm, work):
     records = tmtest.read_fasta(DEMO)
     lengths = {n: len(s) for n, s in records}
@@ -153,7 +174,7 @@ def body(checks, tm, work):
         checks.check(island >= 300, "the cpg_island colour (0,110,120) fills at least 300 pixels", "PIL",
                      f"{island} pixels")
 
-    # 6. A fragmented assembly: 230 sequences, the 200 longest are drawn and listed, in input order.
+    # 6. A fragmented assembly: 230 sequences, the 200 longest are drawn and listed, longest first.
     lengths = [1000 + (i * 97) % 230 * 20 for i in range(230)]  # distinct: 97 is prime to 230
     tmtest.run(tm, ["simulate", "--lengths", ",".join(map(str, lengths)), "--seed", "3", "-o", "frag.fa"], cwd=work)
     tmtest.run(tm, ["scan", "frag.fa", "-q", "-o", "/dev/null", "--html", "frag.html"], cwd=work)
@@ -161,21 +182,122 @@ def body(checks, tm, work):
     along = next(s for s in ftree.iter(SVG + "svg") if "along each sequence" in s.get("aria-label", ""))
     drawn = [g.find(SVG + "title").text.split(":")[0] for g in along.iter(SVG + "g")]
     longest = sorted(range(230), key=lambda i: -lengths[i])[:200]
-    checks.equal(drawn, [f"sim{i + 1}" for i in sorted(longest)], "the 200 longest of 230 sequences are drawn, "
-                 "in input order", "lengths given to simulate")
+    checks.equal(drawn, [f"sim{i + 1}" for i in longest], "the 200 longest of 230 sequences are drawn, "
+                 "longest first", "lengths given to simulate")
     checks.check("The 200 longest of 230 sequences" in text_of(ftree), "the page says how many are shown",
                  "page text")
-    rows = [tr for t in ftree.iter(XHTML + "table") for tr in t.iter(XHTML + "tr")
+    n50 = next(n for n in sorted(lengths, reverse=True)
+               if 2 * sum(x for x in lengths if x >= n) >= sum(lengths))
+    checks.check(f"{n50:,}" in text_of(section(ftree, "genome")), f"the genome table gives the N50, {n50:,} bp",
+                 "N50 computed here from the lengths given to simulate")
+    rows = [tr for tr in section(ftree, "sequences").iter(XHTML + "tr")
             if any(td.text and td.text.startswith("sim") for td in tr.iter(XHTML + "td"))]
     checks.equal(len(rows), 200, "the sequences table lists the same 200", "page DOM")
 
-    # 7. Not with --shard: a usage error (exit 2), and no file.
+    # 7. A simulated 3-Mbp genome with gaps and 20 or more calls: every call of the BED is in the
+    #    page's table, in position order (start + 1: positions on the page are 1-based).
+    tmtest.run(tm, ["simulate", "--lengths", "2000000,1000000", "--seed", "4", "--gaps", "0.05", "--gap-length",
+                    "15000", "-o", "sim3.fa"], cwd=work)
+    tmtest.run(tm, ["scan", "sim3.fa", "-q", "-o", "sim3.bed", "--html", "sim3.html"], cwd=work)
+    sim_calls = [(c[0], int(c[1]) + 1, int(c[2])) for c in tmtest.read_bed(os.path.join(work, "sim3.bed"))]
+    checks.check(len(sim_calls) >= 20, f"the simulated genome has 20 or more calls ({len(sim_calls)})", "sim3.bed")
+    stree = parse_strict(os.path.join(work, "sim3.html"))
+    checks.equal(listed_calls(stree), sim_calls, "every call is listed with its coordinates, in position order",
+                 "sim3.bed (BED start + 1)")
+    checks.check(f"All {len(sim_calls)} calls in position order" in text_of(stree),
+                 "the table says it lists all calls", "page text")
+
+    # With more than ten calls, the ten longest are ranked above the list: the BED's ten longest
+    # (ties: any order of equal lengths is accepted).
+    box = next(div for div in section(stree, "list").iter(XHTML + "div")
+               if any((h.text or "").startswith("The 10 longest") for h in div.findall(XHTML + "h3")))
+    table = box.find(XHTML + "table")
+    ranked = [int("".join(tr.findall(XHTML + "td")[4].itertext()).replace(",", ""))
+              for tr in table.iter(XHTML + "tr") if tr.findall(XHTML + "td")]
+    checks.equal(ranked, sorted((e - s + 1 for _, s, e in sim_calls), reverse=True)[:10],
+                 "the ten longest calls are ranked by length", "sim3.bed")
+
+    # Nothing is drawn inside assembly gaps: along each sequence, no posterior area reaches into
+    # the interior of an N run of the FASTA of at least 10 kb. The figure's 2-kb bins are drawn in
+    # pairs here (each drawn bin at least a pixel: 860 px for 2 Mbp), and a drawn bin that is
+    # more than half unknown is left empty, so only 4 kb at either end of a run may be drawn.
+    along = next(s for s in stree.iter(SVG + "svg") if "along each sequence" in s.get("aria-label", ""))
+    sim_seqs = dict(tmtest.read_fasta(os.path.join(work, "sim3.fa")))
+    longest_sim = max(len(q) for q in sim_seqs.values())
+    inside, gaps = [], 0
+    for g in along.iter(SVG + "g"):
+        name = g.find(SVG + "title").text.split(":")[0]
+        x0 = float(next(r for r in g.iter(SVG + "rect") if r.get("class") == "seq").get("x"))
+        scale = 860 / longest_sim
+        spans = [path_span(p.get("d")) for p in g.iter(SVG + "path")]
+        mask = tmtest.long_unknown_runs(sim_seqs[name], 10000)
+        edges = [i for i in range(1, len(mask)) if mask[i] != mask[i - 1]]
+        runs = list(zip(([0] if mask[0] else []) + [e for e in edges if mask[e]],
+                        [e for e in edges if not mask[e]] + ([len(mask)] if mask[-1] else [])))
+        for b, e in runs:
+            lo, hi = x0 + (b + 4000) * scale, x0 + (e - 4000) * scale
+            inside += [(name, b, e) for a, z in spans if a < hi and z > lo]
+        gaps += len(runs)
+    checks.check(gaps >= 3, f"the simulated genome has {gaps} gaps of at least 10 kb", "sim3.fa")
+    checks.equal(inside, [], "no posterior area is drawn over a gap of the FASTA", "sim3.fa N runs")
+
+    # The calling line states the minimums that act, for a per-base and a window profile: from the
+    #    profile JSON (calling.merge_gap, calling.min_length, regions[].min_length, window.size).
+    for name in ("cpg-island", "isochore", "gc-shift"):
+        prof = json.loads(tmtest.run(tm, ["profiles", "show", name]))
+        window = (prof.get("window") or {}).get("size", 0)
+        shortest = max(prof["calling"]["min_length"],
+                       *[(-(-r.get("min_length", 1) // window) * window if window else r.get("min_length", 1))
+                         for r in prof["regions"] if r["report"]])
+        gap = prof["calling"]["merge_gap"]
+        tmtest.run(tm, ["scan", "sim3.fa", "-q", "-p", name, "-o", "/dev/null", "--html", f"{name}.html"], cwd=work)
+        ptree = parse_strict(os.path.join(work, f"{name}.html"))
+        line = next("".join(tr.find(XHTML + "td").itertext()) for tr in section(ptree, "run").iter(XHTML + "tr")
+                    if tr.find(XHTML + "th") is not None and tr.find(XHTML + "th").text == "calling")
+        checks.check(f"calls \u2265 {shortest:,} bp" in line and
+                     (f"runs fewer than {gap:,} bp apart merged" if gap > 1 else "runs not merged") in line and
+                     (not window or f"whole {window:,}-bp windows" in line),
+                     f"{name}: the calling line gives calls \u2265 {shortest:,} bp, the merge gap {gap} and the window "
+                     f"{window}", "the profile JSON (tidemark profiles show)", line)
+
+    # 8. The CpG-depletion warning of stderr is on the page, in the box at the top: DNA without
+    #    CpG depletion (drawn from the gc-shift profile, CpG o/e about 1).
+    tmtest.run(tm, ["simulate", "-p", "gc-shift", "--lengths", "200000", "--seed", "2", "-o", "flat.fa"], cwd=work)
+    proc = subprocess.run([tm, "scan", "flat.fa", "-o", "/dev/null", "--html", "flat.html"], cwd=work,
+                          capture_output=True, text=True, check=True)
+    warnings = [line[len("tidemark: warning: "):] for line in proc.stderr.splitlines()
+                if line.startswith("tidemark: warning: ")]
+    checks.check(any("CpG o/e" in w for w in warnings), "the run warns of CpG not being depleted", "stderr")
+    wtree = parse_strict(os.path.join(work, "flat.html"))
+    box = section(wtree, "warnings")
+    checks.equal(["".join(li.itertext()) for li in box.iter(XHTML + "li")], warnings,
+                 "the page's warning box holds every warning of stderr", "stderr of the same run")
+    first = next(el for el in wtree.iter(XHTML + "section"))
+    checks.check(first is box, "the warning box is the page's first section", "html5lib DOM")
+    checks.check("warnings" not in [el.get("id") for el in tree.iter(XHTML + "section")] if tree is not None else True,
+                 "a run without warnings has no warning box", "demo run: no warning on stderr")
+
+    # Many warnings (one per empty record): the box lists the first 100 and says how many there were.
+    with open(os.path.join(work, "empties.fa"), "w") as f:
+        f.write("".join(f">empty{i}\n" for i in range(120)) + ">real\n" + records[0][1][:20000] + "\n")
+    proc = subprocess.run([tm, "scan", "empties.fa", "-o", "/dev/null", "--html", "empties.html"], cwd=work,
+                          capture_output=True, text=True, check=True)
+    stderr_warnings = [line for line in proc.stderr.splitlines() if line.startswith("tidemark: warning: ")]
+    etree_ = parse_strict(os.path.join(work, "empties.html"))
+    box = section(etree_, "warnings")
+    items = ["".join(li.itertext()) for li in box.iter(XHTML + "li")]
+    checks.check(len(stderr_warnings) == 120 and items == [w[len("tidemark: warning: "):] for w in stderr_warnings[:100]]
+                 and "all 120 are on standard error" in text_of(box),
+                 "120 warnings: the box lists the first 100 and says all 120 are on stderr", "stderr of the same run",
+                 f"{len(stderr_warnings)} on stderr, {len(items)} listed")
+
+    # 9. Not with --shard: a usage error (exit 2), and no file.
     proc = subprocess.run([tm, "scan", DEMO, "--shard", "1/2", "-o", "/dev/null", "--html", "shard.html"], cwd=work,
                           capture_output=True, text=True)
     checks.check(proc.returncode == 2 and "--html" in proc.stderr and not os.path.exists(os.path.join(work, "shard.html")),
                  "--html with --shard is a usage error naming --html", "README exit codes", proc.stderr.strip())
 
-    # 8. Markup in the inputs comes out as text and runs nothing.
+    # 10. Markup in the inputs comes out as text and runs nothing.
     evil_name = "<script>alert(1)</script>"
     evil_file = os.path.join(work, "a&b'<i>.fa")
     seq = records[0][1][80000:100000]
