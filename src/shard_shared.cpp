@@ -270,7 +270,7 @@ ordered_json split_record_to_json(const SplitRecord& r) {
         ordered_json lanes = ordered_json::array();
         for (const auto& l : s.lanes)
             lanes.push_back({l.seen, l.has_first, group_json(l.first), l.active, group_json(l.open),
-                             l.lead_sum, l.lead_min, l.gap_sum, l.gap_min});
+                             l.lead_sum, l.lead_min, l.gap_sum, l.gap_min, l.lead_gap});
         d["lanes"] = lanes;
         ordered_json calls = ordered_json::array();
         for (const auto& c : s.calls)
@@ -310,6 +310,7 @@ SplitRecord split_record_from_json(const nlohmann::json& j, const std::string& w
                 lane.lead_min = l.at(6).get<double>();
                 lane.gap_sum = l.at(7).get<double>();
                 lane.gap_min = l.at(8).get<double>();
+                lane.lead_gap = l.at(9).get<bool>();
                 s.lanes.push_back(lane);
             }
             for (const auto& c : d.at("calls")) {

@@ -383,18 +383,6 @@ void PosteriorTracks::add_value(Track& t, int64_t begin, int64_t end, double p) 
     t.run_end = end;
 }
 
-void PosteriorTracks::gaps_in(int64_t begin, int64_t end,
-                              std::vector<std::pair<int64_t, int64_t>>& out) const {
-    out.clear();
-    const std::vector<UnknownRun>& runs = contig_->unknown;
-    auto it =
-        std::upper_bound(runs.begin(), runs.end(), begin,
-                         [](int64_t pos, const UnknownRun& r) { return pos < r.begin + r.length; });
-    for (; it != runs.end() && it->begin < end; ++it)
-        if (it->length >= track_gap_min_length)
-            out.emplace_back(std::max(begin, it->begin), std::min(end, it->begin + it->length));
-}
-
 // Closes the open bin at `end`: its mean over the bases outside long gaps, or no data.
 void PosteriorTracks::end_bin(Track& t, int64_t end) {
     if (t.bin_known > 0)
@@ -416,7 +404,7 @@ void PosteriorTracks::block(const BlockView& view) {
                 t->held = false;
             }
     }
-    gaps_in(view.begin, view.begin + view.size, gaps_);
+    unknown_runs_in(*contig_, view.begin, view.begin + view.size, assembly_gap_min_length, gaps_);
     for (auto& tp : tracks_) {
         Track& t = *tp;
         size_t gap = 0;

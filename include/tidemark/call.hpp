@@ -54,6 +54,9 @@ struct Call {
 
 /// Sums state posteriors into region posteriors and calls intervals for every reportable
 /// region. Calls of one contig are available after end_contig, sorted by start, end, region.
+/// Assembly gaps (sequence.hpp: runs of at least assembly_gap_min_length unknown bases) split
+/// calls: their bases belong to no call and no merge reaches across one, so the parts on each
+/// side are calls of their own, each judged alone (minimum length, island criteria).
 ///
 /// Forkable: a fork decodes a later span. A fork that saw a whole contig (end_contig) replaces
 /// this caller's state on join, as if this caller had decoded that contig. A fork that saw a
@@ -90,7 +93,8 @@ public:
         bool active = false;  ///< `open` is being extended
         Group open;
         double lead_sum = 0, lead_min = 1;  ///< before the span's first run (all of it if none)
-        double gap_sum = 0, gap_min = 1;    ///< over [open.end, current position)
+        bool lead_gap = false;  ///< an assembly gap lies before the span's first run (or in it)
+        double gap_sum = 0, gap_min = 1;  ///< over [open.end, current position)
     };
     const std::vector<Lane>& lanes() const { return lanes_; }
     /// Makes this caller a fork that saw one segment of the contig begun with begin_contig.
@@ -103,7 +107,9 @@ public:
     }
 
 private:
-    void close(Lane& lane, int region);           ///< closes the open group
+    void close(Lane& lane, int region);  ///< closes the open group
+    /// The lane meets an assembly gap: the open group ends before it, nothing merges across.
+    void meet_gap(Lane& lane, int region);
     void finish(const Group& group, int region);  ///< a final group: filter, then a call
 
     const Model& model_;
@@ -113,6 +119,7 @@ private:
     std::vector<int> reported_;  ///< region indices that are reportable
     std::vector<Lane> lanes_;
     std::vector<Call> calls_;
+    std::vector<std::pair<int64_t, int64_t>> gaps_;  ///< of the current block
     CompositionSource composition_source_;
 };
 

@@ -97,11 +97,9 @@ private:
 
 enum class TrackFormat { bedgraph, bigwig };
 
-/// Runs of unknown bases (N, other IUPAC codes) at least this long are left out of posterior
-/// tracks: no data, as for an assembly gap, rather than the prior's posterior. 100 is the length
-/// assemblies use for a gap of unknown size (NCBI AGP specification v2.0; from memory), so every
-/// such gap is left out, while short ambiguity runs inside sequence keep their values.
-inline constexpr int64_t track_gap_min_length = 100;
+/// Assembly gaps (sequence.hpp) are left out of posterior tracks: no data, rather than the
+/// prior's posterior; short ambiguity runs inside sequence keep their values.
+inline constexpr int64_t track_gap_min_length = assembly_gap_min_length;
 
 struct TrackOptions {
     std::string prefix;  ///< files are PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw
@@ -147,7 +145,6 @@ private:
     void add_value(Track& track, int64_t begin, int64_t end, double p);
     void end_bin(Track& track, int64_t end);
     /// The parts of [begin, end) inside unknown runs of at least track_gap_min_length bases.
-    void gaps_in(int64_t begin, int64_t end, std::vector<std::pair<int64_t, int64_t>>& out) const;
     void flush_run(Track& track);
     void append_output(Track& mine, Track& theirs, const PosteriorTracks& other, int64_t sequence);
 
