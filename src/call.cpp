@@ -65,6 +65,7 @@ void IntervalCaller::finish(const Group& g, int region) {
     call.region = region;
     call.mean_posterior = g.sum / static_cast<double>(length);
     call.min_posterior = g.min;
+    call.confident_bases = g.confident;
     call.core_begin = g.core_begin < 0 ? g.begin : g.core_begin;
     call.core_end = g.core_begin < 0 ? g.begin : g.core_end;
     call.composition = composition_source_ ? composition_source_(call.begin, call.end)
@@ -144,6 +145,7 @@ void IntervalCaller::join(DecodeSink& later) {
             g.sum += a.gap_sum + b.lead_sum;
             g.sum += first.sum;
             g.min = std::min({g.min, a.gap_min, b.lead_min, first.min});
+            g.confident += first.confident;
             if (g.core_begin < 0) g.core_begin = first.core_begin;
             if (first.core_begin >= 0) g.core_end = first.core_end;
             g.end = first.end;
@@ -212,6 +214,7 @@ void IntervalCaller::block(const BlockView& view) {
                         open.sum = 0;
                         open.min = 1;
                         open.core_begin = open.core_end = -1;
+                        open.confident = 0;
                     }
                     open.sum += p;
                     open.min = std::min(open.min, p);
@@ -219,6 +222,7 @@ void IntervalCaller::block(const BlockView& view) {
                     if (p >= options_.high_posterior) {
                         if (open.core_begin < 0) open.core_begin = pos;
                         open.core_end = pos + 1;
+                        ++open.confident;
                     }
                     lane.gap_sum = 0;
                     lane.gap_min = 1;

@@ -60,9 +60,13 @@ std::string format_bed_header(BedStyle style, const Model& model, const std::str
             "itemRgb=\"On\"\n",
             model.name);
     out += fmt::format("#tidemark {} calls, profile {}\n", TIDEMARK_VERSION, model.name);
-    out += "#command: " + command_line + "\n#chrom\tstart\tend\tname\tscore\tstrand";
-    if (style == BedStyle::browser) out += "\tthickStart\tthickEnd\titemRgb";
-    for (const char* c : bed_extra_columns) out += std::string("\t") + c;
+    out += "#command: " + command_line + "\n#";
+    for (size_t i = 0; i < std::size(bed_columns); ++i) {
+        if (i > 0) out += '\t';
+        out += bed_columns[i].name;
+        if (i + 1 == bed_standard_columns && style == BedStyle::browser)
+            out += "\tthickStart\tthickEnd\titemRgb";
+    }
     out += '\n';
     return out;
 }
@@ -76,7 +80,7 @@ std::string format_bed_line(BedStyle style, const Model& model, const Contig& co
                               region_color(model, call.region));
     return fmt::format("{}\t{}\t{}\t{}\t{}\t.{}\t{:.4f}\t{:.4f}\t{:.4f}\t{}\n", contig.name,
                        off + call.begin, off + call.end, model.region_names[call.region],
-                       call_score(call), browser, call.mean_posterior, call.min_posterior,
+                       call_score(call), browser, call.mean_posterior, call.confident_fraction(),
                        call.composition.gc_fraction(), format_oe(call.composition));
 }
 
@@ -95,10 +99,10 @@ std::string format_gff3_feature(const Model& model, const Contig& contig, const 
     const bool island = region == "cpg_island";
     const double oe = call.composition.cpg_obs_exp();
     std::string attributes = fmt::format(
-        "ID={0}_{1};Name={0};Ontology_term={2};mean_posterior={3:.4f};min_posterior={4:.4f};"
+        "ID={0}_{1};Name={0};Ontology_term={2};mean_posterior={3:.4f};confident_fraction={4:.4f};"
         "gc_fraction={5:.4f}",
         gff3_escape(region, false), serial, island ? "SO:0000307" : "SO:0000001",
-        call.mean_posterior, call.min_posterior, call.composition.gc_fraction());
+        call.mean_posterior, call.confident_fraction(), call.composition.gc_fraction());
     if (!std::isnan(oe)) attributes += fmt::format(";cpg_obs_exp={:.4f}", oe);
     if (call.core_end > call.core_begin)
         attributes += fmt::format(";core_start={};core_end={}", contig.offset + call.core_begin + 1,

@@ -44,12 +44,21 @@ struct CallOptions {
 struct Call {
     int64_t begin = 0;
     int64_t end = 0;
-    int region = 0;             ///< index into Model::region_names
-    double mean_posterior = 0;  ///< mean P(region) over the interval (merged gaps included)
-    double min_posterior = 0;   ///< lowest P(region) inside the interval
-    int64_t core_begin = 0;     ///< first base with P >= high_posterior (= begin when none)
-    int64_t core_end = 0;       ///< one past the last such base (= begin when none)
+    int region = 0;               ///< index into Model::region_names
+    double mean_posterior = 0;    ///< mean P(region) over the interval (merged gaps included)
+    double min_posterior = 0;     ///< lowest P(region) inside the interval
+    int64_t confident_bases = 0;  ///< bases with P(region) >= CallOptions::high_posterior (and
+                                  ///< >= min_posterior)
+    int64_t core_begin = 0;       ///< first base with P >= high_posterior (= begin when none)
+    int64_t core_end = 0;         ///< one past the last such base (= begin when none)
     Composition composition;
+
+    /// Share of the call's bases at or above the core level (high_posterior): how much of the
+    /// call is confidently of its region type (BED column `confident_fraction`).
+    double confident_fraction() const {
+        return end > begin ? static_cast<double>(confident_bases) / static_cast<double>(end - begin)
+                           : 0.0;
+    }
 };
 
 /// Sums state posteriors into region posteriors and calls intervals for every reportable
@@ -85,6 +94,7 @@ public:
         double sum = 0;              ///< posterior sum over [begin, end)
         double min = 1;
         int64_t core_begin = -1, core_end = -1;
+        int64_t confident = 0;  ///< bases with P >= high_posterior
     };
     struct Lane {                // one reportable region's state over the span seen so far
         bool seen = false;       ///< a run has started in this span
