@@ -246,8 +246,10 @@ struct IterationRecord {
     int restart = 0;
     int iteration = 0;  ///< parameter updates before this evaluation
     double log_likelihood = 0;
-    double objective = 0;  ///< log_likelihood + log_prior (what EM with pseudocounts increases)
-    double seconds = 0;
+    double objective = 0;    ///< log_likelihood + log_prior (what EM with pseudocounts increases)
+    double seconds = 0;      ///< wall time of the iteration: the M-step that made its
+                             ///< parameters (none before the first) and its E-step
+    double cpu_seconds = 0;  ///< CPU time of the same (every thread of the process)
 };
 
 struct FitResult {
@@ -261,6 +263,8 @@ struct FitResult {
     int64_t known_bases = 0;
     int64_t positions = 0;
     int64_t contigs = 0;
+    double wall_seconds = 0;  ///< the whole of baum_welch (every restart)
+    double cpu_seconds = 0;
 };
 
 /// Baum-Welch from start. Logs one line per iteration (restart, iteration, log-likelihood,
