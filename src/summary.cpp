@@ -577,6 +577,8 @@ std::string SummaryBuilder::genome_table(const ResourceUsage& usage) const {
         "tidemark: {} contig{}, {} bp ({} unknown), GC {:.4f}, CpG o/e {}, log-likelihood {:.4f}\n",
         contigs_, contigs_ == 1 ? "" : "s", g.length, g.unknown, g.composition.gc_fraction(),
         std::isnan(obs_exp) ? std::string("NA") : fmt::format("{:.4f}", obs_exp), g.log_likelihood);
+    out += fmt::format("tidemark: called% and expected% are shares of the {} known bases\n",
+                       g.composition.known());
     out +=
         fmt::format("tidemark: {:<16} {:>10} {:>9} {:>14} {:>8} {:>8} {:>8} {:>10}\n", "region",
                     "calls", "called%", "expected%", "min_len", "med_len", "max_len", "mean_conf");
