@@ -65,6 +65,7 @@ void IntervalCaller::finish(const Group& g, int region) {
     call.region = region;
     call.mean_posterior = g.sum / static_cast<double>(length);
     call.min_posterior = g.min;
+    call.confident_bases = g.confident;
     call.core_begin = g.core_begin < 0 ? g.begin : g.core_begin;
     call.core_end = g.core_begin < 0 ? g.begin : g.core_end;
     call.composition = composition_source_ ? composition_source_(call.begin, call.end)
@@ -93,6 +94,13 @@ void IntervalCaller::close(Lane& lane, int region) {
     finish(lane.open, region);
 }
 
+void IntervalCaller::meet_gap(Lane& lane, int region) {
+    if (lane.seen)
+        close(lane, region);
+    else
+        lane.lead_gap = true;
+}
+
 void IntervalCaller::join(DecodeSink& later) {
     auto* other = dynamic_cast<IntervalCaller*>(&later);
     if (!other) throw InternalError("IntervalCaller::join: not a fork of an IntervalCaller");
@@ -110,6 +118,10 @@ void IntervalCaller::join(DecodeSink& later) {
         Lane& a = lanes_[k];
         Lane& b = other->lanes_[k];
         if (!b.seen) {  // the later span is all gap
+            if (b.lead_gap) {
+                meet_gap(a, region);
+                continue;
+            }
             if (!a.seen) {
                 a.lead_sum += b.lead_sum;
                 a.lead_min = std::min(a.lead_min, b.lead_min);
@@ -122,16 +134,18 @@ void IntervalCaller::join(DecodeSink& later) {
         if (!a.seen) {
             b.lead_sum += a.lead_sum;
             b.lead_min = std::min(a.lead_min, b.lead_min);
+            b.lead_gap = b.lead_gap || a.lead_gap;
             a = b;
             continue;
         }
         // b's first group: closed and kept, or still open.
         Group first = b.has_first ? b.first : b.open;
-        if (a.active && first.begin - a.open.end < gap_limit) {
+        if (a.active && !b.lead_gap && first.begin - a.open.end < gap_limit) {
             Group& g = a.open;
             g.sum += a.gap_sum + b.lead_sum;
             g.sum += first.sum;
             g.min = std::min({g.min, a.gap_min, b.lead_min, first.min});
+            g.confident += first.confident;
             if (g.core_begin < 0) g.core_begin = first.core_begin;
             if (first.core_begin >= 0) g.core_end = first.core_end;
             g.end = first.end;
@@ -161,29 +175,30 @@ void IntervalCaller::block(const BlockView& view) {
     const int S = view.states;
     const double threshold = options_.min_posterior;
     const int64_t gap_limit = std::max<int64_t>(options_.merge_gap, 1);
+    unknown_runs_in(*contig_, view.begin, view.begin + view.size, assembly_gap_min_length, gaps_);
     for (size_t k = 0; k < reported_.size(); ++k) {
         const int region = reported_[k];
         Lane& lane = lanes_[k];
         Group& open = lane.open;
         // Instantiated twice: the usual one-state region reads its column directly; otherwise
         // the region's states are summed in index order.
-        const auto scan = [&](auto posterior_at) {
-            int64_t t = 0;
+        // Over [t, to) of the view, which holds no assembly gap.
+        const auto scan = [&](auto posterior_at, int64_t t, int64_t to) {
             if (!lane.seen) {  // before the span's first run: only the lead's sum and minimum
-                for (; t < view.size; ++t) {
+                for (; t < to; ++t) {
                     const double p = posterior_at(t);
                     if (p >= threshold) break;
                     lane.lead_sum += p;
                     lane.lead_min = std::min(lane.lead_min, p);
                 }
-                if (t == view.size) return;
+                if (t == to) return;
                 lane.seen = true;
             }
-            for (; t < view.size; ++t) {
+            for (; t < to; ++t) {
                 if (!lane.active) {
                     // Nothing open: only a base at or above the threshold changes anything.
-                    while (t < view.size && posterior_at(t) < threshold) ++t;
-                    if (t == view.size) break;
+                    while (t < to && posterior_at(t) < threshold) ++t;
+                    if (t == to) break;
                 }
                 const double p = posterior_at(t);
                 const int64_t pos = view.begin + t;
@@ -199,6 +214,7 @@ void IntervalCaller::block(const BlockView& view) {
                         open.sum = 0;
                         open.min = 1;
                         open.core_begin = open.core_end = -1;
+                        open.confident = 0;
                     }
                     open.sum += p;
                     open.min = std::min(open.min, p);
@@ -206,6 +222,7 @@ void IntervalCaller::block(const BlockView& view) {
                     if (p >= options_.high_posterior) {
                         if (open.core_begin < 0) open.core_begin = pos;
                         open.core_end = pos + 1;
+                        ++open.confident;
                     }
                     lane.gap_sum = 0;
                     lane.gap_min = 1;
@@ -224,17 +241,28 @@ void IntervalCaller::block(const BlockView& view) {
                 ++count;
             }
         const double* post = view.posterior;
-        if (count == 1) {
-            scan([post, S, first](int64_t t) { return post[t * S + first]; });
-        } else {
-            const std::vector<int>& of_state = model_.region_of_state;
-            scan([post, S, region, &of_state](int64_t t) {
-                const double* row = post + t * S;
-                double p = 0;
-                for (int s = 0; s < S; ++s)
-                    if (of_state[s] == region) p += row[s];
-                return p;
-            });
+        const std::vector<int>& of_state = model_.region_of_state;
+        const auto one_state = [post, S, first](int64_t t) { return post[t * S + first]; };
+        const auto summed = [post, S, region, &of_state](int64_t t) {
+            const double* row = post + t * S;
+            double p = 0;
+            for (int s = 0; s < S; ++s)
+                if (of_state[s] == region) p += row[s];
+            return p;
+        };
+        // The pieces between assembly gaps are scanned; a gap ends the open group.
+        int64_t from = 0;
+        for (size_t g = 0; g <= gaps_.size(); ++g) {
+            const int64_t to = g < gaps_.size() ? gaps_[g].first - view.begin : view.size;
+            if (to > from) {
+                if (count == 1)
+                    scan(one_state, from, to);
+                else
+                    scan(summed, from, to);
+            }
+            if (g == gaps_.size()) break;
+            meet_gap(lane, region);
+            from = gaps_[g].second - view.begin;
         }
     }
 }

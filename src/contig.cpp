@@ -116,6 +116,15 @@ void Contig::unpack(int64_t begin, int64_t n, uint8_t* out) const {
     }
 }
 
+void unknown_runs_in(const Contig& contig, int64_t begin, int64_t end, int64_t min_length,
+                     std::vector<std::pair<int64_t, int64_t>>& out) {
+    out.clear();
+    for (auto it = first_run_after(contig.unknown, begin);
+         it != contig.unknown.end() && it->begin < end; ++it)
+        if (it->length >= min_length)
+            out.emplace_back(std::max(begin, it->begin), std::min(end, it->begin + it->length));
+}
+
 int64_t Contig::unknown_count() const {
     int64_t total = 0;
     for (const auto& r : unknown) total += r.length;

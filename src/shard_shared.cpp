@@ -19,7 +19,7 @@ namespace {
 constexpr const char* seams_format = "tidemark-seams/1";
 
 ordered_json group_json(const IntervalCaller::Group& g) {
-    return {g.begin, g.end, g.sum, g.min, g.core_begin, g.core_end};
+    return {g.begin, g.end, g.sum, g.min, g.core_begin, g.core_end, g.confident};
 }
 
 IntervalCaller::Group group_from(const nlohmann::json& j) {
@@ -30,6 +30,7 @@ IntervalCaller::Group group_from(const nlohmann::json& j) {
     g.min = j.at(3).get<double>();
     g.core_begin = j.at(4).get<int64_t>();
     g.core_end = j.at(5).get<int64_t>();
+    g.confident = j.at(6).get<int64_t>();
     return g;
 }
 
@@ -270,12 +271,13 @@ ordered_json split_record_to_json(const SplitRecord& r) {
         ordered_json lanes = ordered_json::array();
         for (const auto& l : s.lanes)
             lanes.push_back({l.seen, l.has_first, group_json(l.first), l.active, group_json(l.open),
-                             l.lead_sum, l.lead_min, l.gap_sum, l.gap_min});
+                             l.lead_sum, l.lead_min, l.gap_sum, l.gap_min, l.lead_gap});
         d["lanes"] = lanes;
         ordered_json calls = ordered_json::array();
         for (const auto& c : s.calls)
             calls.push_back({c.begin, c.end, c.region, c.mean_posterior, c.min_posterior,
-                             c.core_begin, c.core_end, composition_json(c.composition)});
+                             c.core_begin, c.core_end, composition_json(c.composition),
+                             c.confident_bases});
         d["calls"] = calls;
         d["expected"] = s.expected;
         ordered_json prefixes = ordered_json::array();
@@ -310,6 +312,7 @@ SplitRecord split_record_from_json(const nlohmann::json& j, const std::string& w
                 lane.lead_min = l.at(6).get<double>();
                 lane.gap_sum = l.at(7).get<double>();
                 lane.gap_min = l.at(8).get<double>();
+                lane.lead_gap = l.at(9).get<bool>();
                 s.lanes.push_back(lane);
             }
             for (const auto& c : d.at("calls")) {
@@ -322,6 +325,7 @@ SplitRecord split_record_from_json(const nlohmann::json& j, const std::string& w
                 call.core_begin = c.at(5).get<int64_t>();
                 call.core_end = c.at(6).get<int64_t>();
                 call.composition = composition_from(c.at(7));
+                call.confident_bases = c.at(8).get<int64_t>();
                 s.calls.push_back(call);
             }
             s.expected = d.at("expected").get<std::vector<double>>();

@@ -169,6 +169,13 @@ ordered_json call_histograms(const ContigSummary& g, size_t r) {
             {"confidence_histogram", histogram(confidence_edges(), g.call_confidences[r])}};
 }
 
+// Bases as a share of the contig's known bases (0 when none is known): calls and expected bases
+// count known bases only, so unknown stretches do not dilute the shares.
+double known_share(double bases, const ContigSummary& c) {
+    const int64_t known = c.composition.known();
+    return known > 0 ? bases / static_cast<double>(known) : 0.0;
+}
+
 ordered_json contig_json(const Model& model, const ContigSummary& c, bool report, bool masked) {
     ordered_json o;
     o["name"] = c.name;
@@ -186,7 +193,7 @@ ordered_json contig_json(const Model& model, const ContigSummary& c, bool report
         const double expected = r < c.expected_bases.size() ? c.expected_bases[r] : 0.0;
         ordered_json x;
         x["expected_bases"] = expected;
-        x["expected_fraction"] = c.length > 0 ? expected / static_cast<double>(c.length) : 0.0;
+        x["expected_fraction"] = known_share(expected, c);
         x["reported"] = static_cast<bool>(model.region_report[r]);
         if (model.region_report[r]) {
             const int64_t calls = r < c.calls.size() ? c.calls[r] : 0;
@@ -256,14 +263,15 @@ void ContigSummary::add_call(const Call& call, size_t regions) {
         call_confidences.resize(regions);
     }
     const auto r = static_cast<size_t>(call.region);
-    called_bases[r] += call.end - call.begin;
+    called_bases[r] += call.composition.known();
     ++calls[r];
     call_lengths[r].push_back(call.end - call.begin);
     confidence_sum[r] += call.mean_posterior;
     call_confidences[r].push_back(call.mean_posterior);
 }
 
-void RegionTotals::begin_contig(const Contig&) {
+void RegionTotals::begin_contig(const Contig& contig) {
+    contig_ = &contig;
     expected_.assign(model_.region_names.size(), 0.0);
     begun_ = true;
     ended_ = false;
@@ -284,21 +292,20 @@ void RegionTotals::join(DecodeSink& later) {
 
 namespace {
 
-// Per-state column sums of a block, each in position order. Small state counts keep the sums in
-// local variables: a heap vector could alias the posteriors, and the compiler would store and
-// reload every sum at every position.
+// Per-state column sums of rows [from, to) of a block, each in position order, added to `out`.
+// Small state counts keep the sums in local variables: a heap vector could alias the posteriors,
+// and the compiler would store and reload every sum at every position.
 template <int Fixed>
-void column_sums(const BlockView& view, double* out) {
+void column_sums(const BlockView& view, int64_t from, int64_t to, double* out) {
     const int S = Fixed > 0 ? Fixed : view.states;
     if constexpr (Fixed > 0) {
         std::array<double, Fixed> sum{};
-        const double* p = view.posterior;
-        for (int64_t t = 0; t < view.size; ++t, p += Fixed)
+        const double* p = view.posterior + from * Fixed;
+        for (int64_t t = from; t < to; ++t, p += Fixed)
             for (int s = 0; s < Fixed; ++s) sum[s] += p[s];
-        for (int s = 0; s < Fixed; ++s) out[s] = sum[s];
+        for (int s = 0; s < Fixed; ++s) out[s] += sum[s];
     } else {
-        for (int s = 0; s < S; ++s) out[s] = 0.0;
-        for (int64_t t = 0; t < view.size; ++t)
+        for (int64_t t = from; t < to; ++t)
             for (int s = 0; s < S; ++s) out[s] += view.posterior[t * S + s];
     }
 }
@@ -307,31 +314,34 @@ void column_sums(const BlockView& view, double* out) {
 
 void RegionTotals::block(const BlockView& view) {
     const int S = view.states;
-    // Per-state column sums first, then regions: fewer indirections in the loop.
-    by_state_.resize(S);
-    switch (S) {
-        case 1:
-            column_sums<1>(view, by_state_.data());
-            break;
-        case 2:
-            column_sums<2>(view, by_state_.data());
-            break;
-        case 3:
-            column_sums<3>(view, by_state_.data());
-            break;
-        case 4:
-            column_sums<4>(view, by_state_.data());
-            break;
-        case 5:
-            column_sums<5>(view, by_state_.data());
-            break;
-        case 6:
-            column_sums<6>(view, by_state_.data());
-            break;
-        default:
-            column_sums<0>(view, by_state_.data());
-            break;
+    // Per-state column sums first, then regions: fewer indirections in the loop. Unknown bases
+    // are left out: expected bases are a share of the known ones.
+    by_state_.assign(S, 0.0);
+    const auto sums = [&](int64_t from, int64_t to) {
+        switch (S) {
+            case 1:
+                return column_sums<1>(view, from, to, by_state_.data());
+            case 2:
+                return column_sums<2>(view, from, to, by_state_.data());
+            case 3:
+                return column_sums<3>(view, from, to, by_state_.data());
+            case 4:
+                return column_sums<4>(view, from, to, by_state_.data());
+            case 5:
+                return column_sums<5>(view, from, to, by_state_.data());
+            case 6:
+                return column_sums<6>(view, from, to, by_state_.data());
+            default:
+                return column_sums<0>(view, from, to, by_state_.data());
+        }
+    };
+    unknown_runs_in(*contig_, view.begin, view.begin + view.size, 1, unknown_);
+    int64_t from = 0;
+    for (const auto& [begin, end] : unknown_) {
+        if (begin - view.begin > from) sums(from, begin - view.begin);
+        from = end - view.begin;
     }
+    if (view.size > from) sums(from, view.size);
     for (int s = 0; s < S; ++s) expected_[model_.region_of_state[s]] += by_state_[s];
 }
 
@@ -398,9 +408,8 @@ std::string table_row(const Model& model, const ContigSummary& c) {
                                   c.unknown, c.composition.gc_fraction(), c.log_likelihood);
     for (size_t r = 0; r < model.region_names.size(); ++r)
         if (model.region_report[r]) {
-            const double frac = c.length > 0 && r < c.expected_bases.size()
-                                    ? 100.0 * c.expected_bases[r] / static_cast<double>(c.length)
-                                    : 0.0;
+            const double frac =
+                r < c.expected_bases.size() ? 100.0 * known_share(c.expected_bases[r], c) : 0.0;
             out += fmt::format(" {:>14.4f} {:>7}", frac, r < c.calls.size() ? c.calls[r] : 0);
         }
     return out + '\n';
@@ -563,18 +572,19 @@ std::string SummaryBuilder::genome_table(const ResourceUsage& usage) const {
         "tidemark: {} contig{}, {} bp ({} unknown), GC {:.4f}, CpG o/e {}, log-likelihood {:.4f}\n",
         contigs_, contigs_ == 1 ? "" : "s", g.length, g.unknown, g.composition.gc_fraction(),
         std::isnan(obs_exp) ? std::string("NA") : fmt::format("{:.4f}", obs_exp), g.log_likelihood);
+    out += fmt::format("tidemark: called% and expected% are shares of the {} known bases\n",
+                       g.composition.known());
     out +=
         fmt::format("tidemark: {:<16} {:>10} {:>9} {:>14} {:>8} {:>8} {:>8} {:>10}\n", "region",
                     "calls", "called%", "expected%", "min_len", "med_len", "max_len", "mean_conf");
     for (size_t r = 0; r < model_.region_names.size(); ++r) {
         if (!model_.region_report[r]) continue;
         const LengthStats ls = length_stats(g.call_lengths[r]);
-        const double len = g.length > 0 ? static_cast<double>(g.length) : 1.0;
         out += fmt::format(
             "tidemark: {:<16} {:>10} {:>9.4f} {:>14.4f} {:>8} {:>8.1f} {:>8} {:>10.4f}\n",
             model_.region_names[r], g.calls[r],
-            100.0 * static_cast<double>(g.called_bases[r]) / len, 100.0 * g.expected_bases[r] / len,
-            ls.min, ls.median, ls.max,
+            100.0 * known_share(static_cast<double>(g.called_bases[r]), g),
+            100.0 * known_share(g.expected_bases[r], g), ls.min, ls.median, ls.max,
             g.calls[r] > 0 ? g.confidence_sum[r] / static_cast<double>(g.calls[r]) : 0.0);
     }
     out += fmt::format(

@@ -60,9 +60,13 @@ std::string format_bed_header(BedStyle style, const Model& model, const std::str
             "itemRgb=\"On\"\n",
             model.name);
     out += fmt::format("#tidemark {} calls, profile {}\n", TIDEMARK_VERSION, model.name);
-    out += "#command: " + command_line + "\n#chrom\tstart\tend\tname\tscore\tstrand";
-    if (style == BedStyle::browser) out += "\tthickStart\tthickEnd\titemRgb";
-    for (const char* c : bed_extra_columns) out += std::string("\t") + c;
+    out += "#command: " + command_line + "\n#";
+    for (size_t i = 0; i < std::size(bed_columns); ++i) {
+        if (i > 0) out += '\t';
+        out += bed_columns[i].name;
+        if (i + 1 == bed_standard_columns && style == BedStyle::browser)
+            out += "\tthickStart\tthickEnd\titemRgb";
+    }
     out += '\n';
     return out;
 }
@@ -76,7 +80,7 @@ std::string format_bed_line(BedStyle style, const Model& model, const Contig& co
                               region_color(model, call.region));
     return fmt::format("{}\t{}\t{}\t{}\t{}\t.{}\t{:.4f}\t{:.4f}\t{:.4f}\t{}\n", contig.name,
                        off + call.begin, off + call.end, model.region_names[call.region],
-                       call_score(call), browser, call.mean_posterior, call.min_posterior,
+                       call_score(call), browser, call.mean_posterior, call.confident_fraction(),
                        call.composition.gc_fraction(), format_oe(call.composition));
 }
 
@@ -97,10 +101,10 @@ std::string format_gff3_feature(const Model& model, const Contig& contig, const 
     const bool island = region == "cpg_island";
     const double oe = call.composition.cpg_obs_exp();
     std::string attributes = fmt::format(
-        "ID={0}_{1};Name={0};Ontology_term={2};mean_posterior={3:.4f};min_posterior={4:.4f};"
+        "ID={0}_{1};Name={0};Ontology_term={2};mean_posterior={3:.4f};confident_fraction={4:.4f};"
         "gc_fraction={5:.4f}",
         gff3_escape(region, false), serial, island ? "SO:0000307" : "SO:0000001",
-        call.mean_posterior, call.min_posterior, call.composition.gc_fraction());
+        call.mean_posterior, call.confident_fraction(), call.composition.gc_fraction());
     if (!std::isnan(oe)) attributes += fmt::format(";cpg_obs_exp={:.4f}", oe);
     if (call.core_end > call.core_begin)
         attributes += fmt::format(";core_start={};core_end={}", contig.offset + call.core_begin + 1,
@@ -385,18 +389,6 @@ void PosteriorTracks::add_value(Track& t, int64_t begin, int64_t end, double p) 
     t.run_end = end;
 }
 
-void PosteriorTracks::gaps_in(int64_t begin, int64_t end,
-                              std::vector<std::pair<int64_t, int64_t>>& out) const {
-    out.clear();
-    const std::vector<UnknownRun>& runs = contig_->unknown;
-    auto it =
-        std::upper_bound(runs.begin(), runs.end(), begin,
-                         [](int64_t pos, const UnknownRun& r) { return pos < r.begin + r.length; });
-    for (; it != runs.end() && it->begin < end; ++it)
-        if (it->length >= track_gap_min_length)
-            out.emplace_back(std::max(begin, it->begin), std::min(end, it->begin + it->length));
-}
-
 // Closes the open bin at `end`: its mean over the bases outside long gaps, or no data.
 void PosteriorTracks::end_bin(Track& t, int64_t end) {
     if (t.bin_known > 0)
@@ -418,7 +410,7 @@ void PosteriorTracks::block(const BlockView& view) {
                 t->held = false;
             }
     }
-    gaps_in(view.begin, view.begin + view.size, gaps_);
+    unknown_runs_in(*contig_, view.begin, view.begin + view.size, assembly_gap_min_length, gaps_);
     for (auto& tp : tracks_) {
         Track& t = *tp;
         size_t gap = 0;

@@ -2,12 +2,12 @@
 // stderr, and the guard that the EM objective never decreases.
 #include <fmt/format.h>
 
-#include <chrono>
 #include <cmath>
 #include <limits>
 
 #include "rng.hpp"
 #include "tidemark/error.hpp"
+#include "tidemark/progress.hpp"
 #include "tidemark/train.hpp"
 
 namespace tidemark {
@@ -43,10 +43,6 @@ struct Run {
     TrainingCounts last;
 };
 
-double seconds_since(std::chrono::steady_clock::time_point t0) {
-    return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-}
-
 Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions& o,
        const FreezeMask& freeze, int restart, std::vector<IterationRecord>& history,
        const Logger& log) {
@@ -55,15 +51,16 @@ Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions
         o.restarts > 1 ? fmt::format("restart {}/{}, ", restart + 1, o.restarts) : "";
     Run run;
     double prev_ll = 0, prev_obj = 0;
+    // An iteration is the M-step that made p (none before the first) and the E-step on p.
+    Stopwatch iteration;
     for (int it = 0;; ++it) {
-        const auto t0 = std::chrono::steady_clock::now();
         TrainingCounts c = expected_counts(p, data, o.block_size, o.threads);
         if (c.known == 0)
             throw InputError("the training sequences contain no known base (A, C, G or T)");
         const double ll = c.log_likelihood;
         const double obj = ll + log_prior(structure, p, freeze, o.pseudocount);
-        const double secs = seconds_since(t0);
-        history.push_back({restart, it, ll, obj, secs});
+        const ResourceUsage spent = iteration.now();
+        history.push_back({restart, it, ll, obj, spent.wall_seconds, spent.cpu_seconds});
         double rel = std::numeric_limits<double>::quiet_NaN();
         if (it > 0) {
             // EM (MAP-EM with pseudocounts) cannot decrease its objective; a decrease beyond
@@ -76,9 +73,10 @@ Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions
                     prev_obj, obj, it, prev_ll, ll));
             rel = (ll - prev_ll) / std::max(std::abs(prev_ll), std::numeric_limits<double>::min());
         }
-        log.info(fmt::format("fit: {}iteration {}: log-likelihood {:.6f}, change {}, {:.2f} s", who,
-                             it, ll, it > 0 ? fmt::format("{:+.3e}", rel) : std::string("-"),
-                             secs));
+        log.info(fmt::format(
+            "fit: {}iteration {}: log-likelihood {:.6f}, change {}, {:.2f} s wall, {:.2f} s CPU",
+            who, it, ll, it > 0 ? fmt::format("{:+.3e}", rel) : std::string("-"),
+            spent.wall_seconds, spent.cpu_seconds));
         run.profile = p;
         run.log_likelihood = ll;
         run.iterations = it;
@@ -88,6 +86,7 @@ Run em(const Profile& structure, Profile p, TrainingData& data, const FitOptions
             break;
         }
         if (it >= o.max_iter) break;
+        iteration = Stopwatch();
         p = maximise(structure, p, run.last, freeze, mo);
         prev_ll = ll;
         prev_obj = obj;
@@ -146,6 +145,7 @@ FitResult baum_welch(const Profile& start, TrainingData& data, const FitOptions&
     if (!(o.tol >= 0)) throw UsageError("--tol must be >= 0");
     if (!(o.pseudocount >= 0) || !std::isfinite(o.pseudocount))
         throw UsageError("--pseudocount must be >= 0");
+    const Stopwatch whole;
     const FreezeMask freeze = resolve_freeze(o.freeze, start);
     FitResult best;
     bool have = false;
@@ -173,6 +173,9 @@ FitResult baum_welch(const Profile& start, TrainingData& data, const FitOptions&
                              best.best_restart + 1, o.restarts, best.log_likelihood));
     best.restart_log_likelihoods = std::move(lls);
     best.history = std::move(history);
+    const ResourceUsage spent = whole.now();
+    best.wall_seconds = spent.wall_seconds;
+    best.cpu_seconds = spent.cpu_seconds;
     return best;
 }
 

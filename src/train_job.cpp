@@ -241,9 +241,10 @@ void log_fit_outcome(const FitJobOptions& o, const std::string& method, const Fi
             "--max-iter",
             result.iterations, change, o.fit.tol));
     }
-    log.info(fmt::format("fit: wrote {}: {} iteration{}, {}, log-likelihood {:.6f}", where,
-                         result.iterations, result.iterations == 1 ? "" : "s", state,
-                         result.log_likelihood));
+    log.info(fmt::format(
+        "fit: wrote {}: {} iteration{}, {}, log-likelihood {:.6f}; {:.2f} s wall, {:.2f} s CPU",
+        where, result.iterations, result.iterations == 1 ? "" : "s", state, result.log_likelihood,
+        result.wall_seconds, result.cpu_seconds));
 }
 
 }  // namespace
@@ -399,14 +400,23 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
             prov["restart_log_likelihoods"] = result.restart_log_likelihoods;
             prov["best_restart"] = result.best_restart + 1;
         }
-        // Seconds are left out on purpose: the same run must give the same file.
+        // Seconds stay out of the history: the same run must give the same file but for the
+        // times, which are kept together under "resources" (as in the run report).
         ordered_json hist = ordered_json::array();
+        ordered_json iteration_wall = ordered_json::array(), iteration_cpu = ordered_json::array();
         for (const auto& h : result.history)
-            if (h.restart == result.best_restart)
+            if (h.restart == result.best_restart) {
                 hist.push_back({{"iteration", h.iteration},
                                 {"log_likelihood", h.log_likelihood},
                                 {"objective", h.objective}});
+                iteration_wall.push_back(h.seconds);
+                iteration_cpu.push_back(h.cpu_seconds);
+            }
         prov["history"] = hist;
+        prov["resources"] = {{"wall_seconds", result.wall_seconds},
+                             {"cpu_seconds", result.cpu_seconds},
+                             {"iteration_wall_seconds", iteration_wall},
+                             {"iteration_cpu_seconds", iteration_cpu}};
     }
     if (!selection.candidates.empty()) {
         ordered_json table = ordered_json::array();

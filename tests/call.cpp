@@ -68,7 +68,15 @@ TEST_CASE("runs closer than the merge gap are merged, gap bases included", "[cal
     CHECK((calls[0].begin == 0 && calls[0].end == 5));
     CHECK(calls[0].mean_posterior == Approx((0.9 + 0.9 + 0.2 + 0.3 + 0.8) / 5));
     CHECK(calls[0].min_posterior == Approx(0.2));
+    // Hand computation: no base reaches the core level 0.95.
+    CHECK(calls[0].confident_bases == 0);
     CHECK((calls[1].begin == 8 && calls[1].end == 9));
+    opt.high_posterior = 0.85;  // 2 of the 5 bases (0.9, 0.9) reach it; the call at 8 (0.7) none
+    const auto lower = call(p, opt, 2);
+    REQUIRE(lower.size() == 2);
+    CHECK(lower[0].confident_bases == 2);
+    CHECK(lower[0].confident_fraction() == Approx(0.4));
+    CHECK(lower[1].confident_fraction() == 0.0);
     opt.merge_gap = 4;  // now the gap of 3 merges too
     const auto one = call(p, opt, 4);
     REQUIRE(one.size() == 1);
@@ -150,16 +158,54 @@ TEST_CASE("BED line layout", "[call]") {
     k.end = 6;
     k.mean_posterior = 0.8765;
     k.min_posterior = 0.51;
+    k.confident_bases = 3;                 // 3 of 4 bases: 0.75
     k.composition = composition(c, 2, 6);  // G T A C: GC 0.5, no CpG -> o/e 0
     const Model m = two_region_model();
     CHECK(format_bed_line(BedStyle::plain, m, c, k) ==
-          "chr7\t1002\t1006\tisle\t877\t.\t0.8765\t0.5100\t0.5000\t0.0000\n");
+          "chr7\t1002\t1006\tisle\t877\t.\t0.8765\t0.7500\t0.5000\t0.0000\n");
     k.composition = composition(test::contig_from("AATT"), 0, 4);
     const std::string line = format_bed_line(BedStyle::plain, m, c, k);
     CHECK(line.substr(line.size() - 10) == "0.0000\tNA\n");
     const std::string header = format_bed_header(BedStyle::plain, m, "tidemark scan x.fa");
-    CHECK(header.find("#chrom\tstart\tend\tname\tscore\tstrand\tmean_posterior\tmin_posterior\tgc_"
-                      "fraction\tcpg_obs_exp\n") != std::string::npos);
+    CHECK(header.find(
+              "#chrom\tstart\tend\tname\tscore\tstrand\tmean_posterior\tconfident_fraction\tgc_"
+              "fraction\tcpg_obs_exp\n") != std::string::npos);
+    // README "Calls (BED6+4)": the browser style puts its three columns after the sixth.
+    CHECK(format_bed_header(BedStyle::browser, m, "x")
+              .find("#chrom\tstart\tend\tname\tscore\tstrand\tthickStart\tthickEnd\titemRgb\tmean_"
+                    "posterior\tconfident_fraction\t") != std::string::npos);
+}
+
+TEST_CASE("assembly gaps split calls; shorter unknown runs do not", "[call]") {
+    // README "Calls": a run of >= 100 unknown bases ends a call as a contig end does, whatever
+    // the merge gap and the block size; a run of 99 stays inside the call.
+    const std::string left(50, 'A'), right(60, 'A');
+    for (const size_t block : {size_t{7}, size_t{64}, size_t{1000}}) {
+        CallOptions opt;
+        opt.merge_gap = 500;
+        const std::string gapped = left + std::string(100, 'N') + right;
+        const auto split = call(std::vector<double>(gapped.size(), 0.9), opt, block, gapped);
+        REQUIRE(split.size() == 2);
+        CHECK((split[0].begin == 0 && split[0].end == 50));
+        CHECK((split[1].begin == 150 && split[1].end == 210));
+        const std::string short_run = left + std::string(99, 'N') + right;
+        const auto whole = call(std::vector<double>(short_run.size(), 0.9), opt, block, short_run);
+        REQUIRE(whole.size() == 1);
+        CHECK((whole[0].begin == 0 && whole[0].end == 209));
+        // Each part is judged alone: with a minimum of 55 bases the left part (50) is dropped.
+        opt.min_length = 55;
+        const auto kept = call(std::vector<double>(gapped.size(), 0.9), opt, block, gapped);
+        REQUIRE(kept.size() == 1);
+        CHECK((kept[0].begin == 150 && kept[0].end == 210));
+        // A run below the threshold before the gap and one above after it: no merge across.
+        std::vector<double> p(gapped.size(), 0.9);
+        for (size_t i = 40; i < 150; ++i) p[i] = 0.1;
+        opt.min_length = 1;
+        const auto apart = call(p, opt, block, gapped);
+        REQUIRE(apart.size() == 2);
+        CHECK((apart[0].begin == 0 && apart[0].end == 40));
+        CHECK((apart[1].begin == 150 && apart[1].end == 210));
+    }
 }
 
 TEST_CASE("a call's core spans its bases at or above the high-confidence level", "[call]") {

@@ -209,6 +209,7 @@ TEST_CASE("merge restores a record split into segments exactly as one process jo
         // Bit for bit: sums are added in the order of the one-process join.
         REQUIRE(got.mean_posterior == one.mean_posterior);
         REQUIRE(got.min_posterior == one.min_posterior);
+        REQUIRE(got.confident_bases == one.confident_bases);
         // Places as in a sequential pass; means within rounding of it (another summation order).
         REQUIRE(got.begin == seq.begin);
         REQUIRE(got.end == seq.end);

@@ -335,6 +335,7 @@ void require_same_calls(const std::vector<Call>& got, const std::vector<Call>& w
         CHECK(got[i].end == want[i].end);
         CHECK(got[i].region == want[i].region);
         CHECK(got[i].min_posterior == want[i].min_posterior);  // a minimum does not depend on order
+        CHECK(got[i].confident_bases == want[i].confident_bases);  // a count neither
         CHECK(got[i].core_begin == want[i].core_begin);
         CHECK(got[i].core_end == want[i].core_end);
         CHECK(got[i].mean_posterior == Approx(want[i].mean_posterior).epsilon(1e-12));

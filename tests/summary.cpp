@@ -106,3 +106,36 @@ TEST_CASE("streamed summaries and reports are nlohmann's own layout, totals are 
         }
     }
 }
+
+TEST_CASE("expected bases sum the posteriors over known bases only", "[summary]") {
+    // README "Summary": unknown bases count for no region. Hand computation over
+    // A A N N A C with P(cpg_island) 0.1 .. 0.6: known bases 0, 1, 4, 5 give 0.1+0.2+0.5+0.6.
+    const Model model = compile(load_profile("cpg-island-2state"));
+    Contig c;
+    c.name = "c";
+    for (const char* b = "AANNAC"; *b; ++b)
+        c.push(*b == 'N' ? base_unknown : *b == 'A' ? base_a : base_c);
+    const int island = static_cast<int>(
+        std::find(model.region_names.begin(), model.region_names.end(), "cpg_island") -
+        model.region_names.begin());
+    REQUIRE(model.states == 2);  // one state per region
+    std::vector<double> post;
+    for (int i = 0; i < 6; ++i) {
+        const double p = 0.1 * (i + 1);
+        for (int s = 0; s < model.states; ++s)
+            post.push_back(model.region_of_state[s] == island ? p : 1 - p);
+    }
+    RegionTotals totals(model);
+    totals.begin_contig(c);
+    for (int64_t from : {0, 3}) {  // two blocks, the unknown run across their seam
+        BlockView v;
+        v.begin = from;
+        v.size = 3;
+        v.states = model.states;
+        v.posterior = post.data() + from * model.states;
+        totals.block(v);
+    }
+    totals.end_contig(c, DecodeResult{});
+    CHECK(totals.expected_bases()[island] == Approx(1.4));
+    CHECK(totals.expected_bases()[1 - island] == Approx(4 - 1.4));
+}

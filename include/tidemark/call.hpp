@@ -44,16 +44,28 @@ struct CallOptions {
 struct Call {
     int64_t begin = 0;
     int64_t end = 0;
-    int region = 0;             ///< index into Model::region_names
-    double mean_posterior = 0;  ///< mean P(region) over the interval (merged gaps included)
-    double min_posterior = 0;   ///< lowest P(region) inside the interval
-    int64_t core_begin = 0;     ///< first base with P >= high_posterior (= begin when none)
-    int64_t core_end = 0;       ///< one past the last such base (= begin when none)
+    int region = 0;               ///< index into Model::region_names
+    double mean_posterior = 0;    ///< mean P(region) over the interval (merged gaps included)
+    double min_posterior = 0;     ///< lowest P(region) inside the interval
+    int64_t confident_bases = 0;  ///< bases with P(region) >= CallOptions::high_posterior (and
+                                  ///< >= min_posterior)
+    int64_t core_begin = 0;       ///< first base with P >= high_posterior (= begin when none)
+    int64_t core_end = 0;         ///< one past the last such base (= begin when none)
     Composition composition;
+
+    /// Share of the call's bases at or above the core level (high_posterior): how much of the
+    /// call is confidently of its region type (BED column `confident_fraction`).
+    double confident_fraction() const {
+        return end > begin ? static_cast<double>(confident_bases) / static_cast<double>(end - begin)
+                           : 0.0;
+    }
 };
 
 /// Sums state posteriors into region posteriors and calls intervals for every reportable
 /// region. Calls of one contig are available after end_contig, sorted by start, end, region.
+/// Assembly gaps (sequence.hpp: runs of at least assembly_gap_min_length unknown bases) split
+/// calls: their bases belong to no call and no merge reaches across one, so the parts on each
+/// side are calls of their own, each judged alone (minimum length, island criteria).
 ///
 /// Forkable: a fork decodes a later span. A fork that saw a whole contig (end_contig) replaces
 /// this caller's state on join, as if this caller had decoded that contig. A fork that saw a
@@ -82,6 +94,7 @@ public:
         double sum = 0;              ///< posterior sum over [begin, end)
         double min = 1;
         int64_t core_begin = -1, core_end = -1;
+        int64_t confident = 0;  ///< bases with P >= high_posterior
     };
     struct Lane {                // one reportable region's state over the span seen so far
         bool seen = false;       ///< a run has started in this span
@@ -90,7 +103,8 @@ public:
         bool active = false;  ///< `open` is being extended
         Group open;
         double lead_sum = 0, lead_min = 1;  ///< before the span's first run (all of it if none)
-        double gap_sum = 0, gap_min = 1;    ///< over [open.end, current position)
+        bool lead_gap = false;  ///< an assembly gap lies before the span's first run (or in it)
+        double gap_sum = 0, gap_min = 1;  ///< over [open.end, current position)
     };
     const std::vector<Lane>& lanes() const { return lanes_; }
     /// Makes this caller a fork that saw one segment of the contig begun with begin_contig.
@@ -103,7 +117,9 @@ public:
     }
 
 private:
-    void close(Lane& lane, int region);           ///< closes the open group
+    void close(Lane& lane, int region);  ///< closes the open group
+    /// The lane meets an assembly gap: the open group ends before it, nothing merges across.
+    void meet_gap(Lane& lane, int region);
     void finish(const Group& group, int region);  ///< a final group: filter, then a call
 
     const Model& model_;
@@ -113,6 +129,7 @@ private:
     std::vector<int> reported_;  ///< region indices that are reportable
     std::vector<Lane> lanes_;
     std::vector<Call> calls_;
+    std::vector<std::pair<int64_t, int64_t>> gaps_;  ///< of the current block
     CompositionSource composition_source_;
 };
 

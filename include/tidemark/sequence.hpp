@@ -7,6 +7,7 @@
 #include <functional>
 #include <memory>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "tidemark/intervals.hpp"
@@ -30,6 +31,12 @@ struct UnknownRun {
 };
 
 struct Composition;
+
+/// Runs of unknown bases at least this long are assembly gaps: calls never span one, posterior
+/// tracks leave them out, and a domain on each side of one is its own call. 100 is the length
+/// assemblies use for a gap of unknown size (NCBI AGP specification v2.0; from memory), so every
+/// such gap counts, while short ambiguity runs inside sequence do not.
+inline constexpr int64_t assembly_gap_min_length = 100;
 
 /// One FASTA record, or one region of it, held at 2 bits per base plus a list of unknown runs.
 ///
@@ -109,6 +116,12 @@ struct Composition {
 
 /// Composition of bases [begin, end) of a contig.
 Composition composition(const Contig& contig, int64_t begin, int64_t end);
+
+/// The parts that lie in [begin, end) of the contig's unknown runs of at least `min_length` bases
+/// (judged by the whole run), in order, into `out` (pass assembly_gap_min_length for the
+/// assembly gaps).
+void unknown_runs_in(const Contig& contig, int64_t begin, int64_t end, int64_t min_length,
+                     std::vector<std::pair<int64_t, int64_t>>& out);
 
 /// A region to decode: 0-based half-open on the named sequence.
 struct Region {

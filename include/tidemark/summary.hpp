@@ -27,8 +27,9 @@ struct ContigSummary {
     int64_t soft_masked = 0;
     Composition composition;
     double log_likelihood = 0;
-    std::vector<double> expected_bases;  ///< per region: sum of posteriors (Viterbi: path bases)
-    std::vector<int64_t> called_bases;   ///< per region: bases inside calls
+    std::vector<double> expected_bases;  ///< per region: sum of posteriors over known bases
+                                         ///< (Viterbi: known path bases)
+    std::vector<int64_t> called_bases;   ///< per region: known bases inside calls
     std::vector<int64_t> calls;          ///< per region: number of calls
     std::vector<std::vector<int64_t>> call_lengths;  ///< per region: length of every call
     std::vector<double> confidence_sum;  ///< per region: sum of the calls' mean posteriors
@@ -45,7 +46,8 @@ struct ContigSummary {
 class RegionTotals final : public DecodeSink {
 public:
     explicit RegionTotals(const Model& model) : model_(model) {}
-    void begin_contig(const Contig&) override;
+    void begin_contig(const Contig& contig) override;
+    /// Adds the block's posteriors at known bases (unknown ones are left out).
     void block(const BlockView& view) override;
     void end_contig(const Contig&, const DecodeResult&) override { ended_ = true; }
     /// A fork that saw a whole contig replaces these totals on join (they are per contig); a
@@ -67,6 +69,8 @@ private:
     bool begun_ = false, ended_ = false;
     std::vector<double> expected_;
     std::vector<double> by_state_;  ///< scratch: one block's per-state sums
+    const Contig* contig_ = nullptr;
+    std::vector<std::pair<int64_t, int64_t>> unknown_;  ///< scratch: one block's unknown runs
 };
 
 /// The effective options of a scan, as its report records them ("options"; shard summaries

@@ -12,9 +12,32 @@
 
 namespace tidemark {
 
-/// The extra BED columns tidemark writes after the standard ones, in order.
-inline constexpr const char* bed_extra_columns[] = {"mean_posterior", "min_posterior",
-                                                    "gc_fraction", "cpg_obs_exp"};
+/// One column of the calls BED: its header name and what it holds (the man page lists them).
+struct BedColumn {
+    const char* name;
+    const char* meaning;
+};
+
+/// The columns of the calls BED (BED6+4, --bed-style plain), in order; the last four are
+/// tidemark's. The browser style puts thickStart, thickEnd and itemRgb after the sixth.
+inline constexpr BedColumn bed_columns[] = {
+    {"chrom", "record name"},
+    {"start", "first base of the call, 0-based"},
+    {"end", "one past the last base"},
+    {"name", "region type (e.g. cpg_island)"},
+    {"score", "round(1000 x mean_posterior), 0-1000"},
+    {"strand", "always '.' (composition regions have no strand)"},
+    {"mean_posterior",
+     "mean of P(region | whole sequence) over the call's bases, merged gaps included"},
+    {"confident_fraction",
+     "share of the call's bases with P(region) >= --core-posterior (0.95): how much of the call "
+     "is confidently of its type, as against its uncertain edges and merged stretches"},
+    {"gc_fraction", "(C+G)/(A+C+G+T) over the known bases of the call"},
+    {"cpg_obs_exp",
+     "observed/expected CpG = N(CpG) x L / (N(C) x N(G)), L = known bases (Gardiner-Garden & "
+     "Frommer 1987); NA when N(C) x N(G) = 0"},
+};
+inline constexpr size_t bed_standard_columns = 6;  ///< bed_columns before tidemark's own
 
 enum class BedStyle {
     plain,    ///< BED6+4: chrom start end name score strand + extra columns
@@ -104,11 +127,9 @@ private:
 
 enum class TrackFormat { bedgraph, bigwig };
 
-/// Runs of unknown bases (N, other IUPAC codes) at least this long are left out of posterior
-/// tracks: no data, as for an assembly gap, rather than the prior's posterior. 100 is the length
-/// assemblies use for a gap of unknown size (NCBI AGP specification v2.0; from memory), so every
-/// such gap is left out, while short ambiguity runs inside sequence keep their values.
-inline constexpr int64_t track_gap_min_length = 100;
+/// Assembly gaps (sequence.hpp) are left out of posterior tracks: no data, rather than the
+/// prior's posterior; short ambiguity runs inside sequence keep their values.
+inline constexpr int64_t track_gap_min_length = assembly_gap_min_length;
 
 struct TrackOptions {
     std::string prefix;  ///< files are PREFIX.REGION.bedgraph[.gz] or PREFIX.REGION.bw
@@ -154,7 +175,6 @@ private:
     void add_value(Track& track, int64_t begin, int64_t end, double p);
     void end_bin(Track& track, int64_t end);
     /// The parts of [begin, end) inside unknown runs of at least track_gap_min_length bases.
-    void gaps_in(int64_t begin, int64_t end, std::vector<std::pair<int64_t, int64_t>>& out) const;
     void flush_run(Track& track);
     void append_output(Track& mine, Track& theirs, const PosteriorTracks& other, int64_t sequence);
 

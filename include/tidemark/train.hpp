@@ -246,8 +246,10 @@ struct IterationRecord {
     int restart = 0;
     int iteration = 0;  ///< parameter updates before this evaluation
     double log_likelihood = 0;
-    double objective = 0;  ///< log_likelihood + log_prior (what EM with pseudocounts increases)
-    double seconds = 0;
+    double objective = 0;    ///< log_likelihood + log_prior (what EM with pseudocounts increases)
+    double seconds = 0;      ///< wall time of the iteration: the M-step that made its
+                             ///< parameters (none before the first) and its E-step
+    double cpu_seconds = 0;  ///< CPU time of the same (every thread of the process)
 };
 
 struct FitResult {
@@ -264,6 +266,8 @@ struct FitResult {
     int64_t windows = 0;  ///< window profiles: windows with evidence (window_has_evidence)
     /// Classes drop_unsupported_classes removed, each with its reason and figures.
     std::vector<std::string> dropped;
+    double wall_seconds = 0;  ///< the whole of baum_welch (every restart)
+    double cpu_seconds = 0;
 };
 
 /// Baum-Welch from start. Logs one line per iteration (restart, iteration, log-likelihood,

@@ -166,7 +166,8 @@ double emit(const Model& m, int s, const std::vector<uint8_t>& seq, int64_t t) {
 
 struct Call {
     int64_t begin, end;
-    double sum, min;
+    double sum;
+    int64_t confident;  // bases with P >= 0.95 (tidemark's default --core-posterior)
 };
 
 std::string bed_line(const std::string& chrom, const Record& r, const Call& c,
@@ -188,7 +189,7 @@ std::string bed_line(const std::string& chrom, const Record& r, const Call& c,
     std::snprintf(line, sizeof line, "%s\t%lld\t%lld\t%s\t%ld\t.\t%.4f\t%.4f\t%.4f\t%s\n",
                   chrom.c_str(), static_cast<long long>(c.begin), static_cast<long long>(c.end),
                   region.c_str(), std::lround(std::fmin(std::fmax(mean, 0.0), 1.0) * 1000.0), mean,
-                  c.min, gc, oe);
+                  static_cast<double>(c.confident) / static_cast<double>(c.end - c.begin), gc, oe);
     return line;
 }
 
@@ -275,6 +276,17 @@ int main(int argc, char** argv) {
             std::fprintf(stderr, "baseline: %s\t%lld bp\tlog-likelihood %.17g\n", r.name.c_str(),
                          static_cast<long long>(N), loglik);
 
+            // Bases in runs of >= 100 unknown bases (assembly gaps, README "Calls") belong to no
+            // call, and no merge reaches across one.
+            std::vector<char> in_gap(static_cast<size_t>(N), 0);
+            for (int64_t t = 0; t < N;) {
+                int64_t u = t;
+                while (u < N && r.seq[u] == 4) ++u;
+                if (u - t >= 100) std::fill(in_gap.begin() + t, in_gap.begin() + u, 1);
+                t = u > t ? u : t + 1;
+            }
+            std::vector<int64_t> gaps_before(static_cast<size_t>(N) + 1, 0);
+            for (int64_t t = 0; t < N; ++t) gaps_before[t + 1] = gaps_before[t] + in_gap[t];
             // Calls per reportable region, in forward order.
             for (size_t reg = 0; reg < m.region_names.size(); ++reg) {
                 if (!m.report[reg]) continue;
@@ -286,11 +298,11 @@ int main(int argc, char** argv) {
                 };
                 std::vector<Call> runs;
                 for (int64_t t = 0; t < N; ++t) {
-                    if (p(t) >= m.min_posterior) {
+                    if (!in_gap[t] && p(t) >= m.min_posterior) {
                         if (!runs.empty() && runs.back().end == t) {
                             runs.back().end = t + 1;
                         } else {
-                            runs.push_back({t, t + 1, 0, 1});
+                            runs.push_back({t, t + 1, 0, 0});
                         }
                     }
                 }
@@ -300,7 +312,8 @@ int main(int argc, char** argv) {
                                      m.region_names[reg].c_str(), static_cast<long long>(t), p(t));
                 std::vector<Call> merged;
                 for (const Call& run : runs) {
-                    if (!merged.empty() && run.begin - merged.back().end < m.merge_gap)
+                    if (!merged.empty() && run.begin - merged.back().end < m.merge_gap &&
+                        gaps_before[run.begin] == gaps_before[merged.back().end])
                         merged.back().end = run.end;
                     else
                         merged.push_back(run);
@@ -308,10 +321,10 @@ int main(int argc, char** argv) {
                 for (Call& c : merged) {
                     if (c.end - c.begin < m.min_length) continue;
                     c.sum = 0;
-                    c.min = 1;
+                    c.confident = 0;
                     for (int64_t t = c.begin; t < c.end; ++t) {
                         c.sum += p(t);
-                        c.min = std::fmin(c.min, p(t));
+                        c.confident += p(t) >= 0.95;
                     }
                     const std::string line = bed_line(r.name, r, c, m.region_names[reg]);
                     if (std::fputs(line.c_str(), out) < 0) throw std::runtime_error("write failed");

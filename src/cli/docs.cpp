@@ -10,6 +10,7 @@
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/profile.hpp"
+#include "tidemark/track.hpp"
 
 namespace tidemark::cli {
 namespace {
@@ -210,10 +211,63 @@ std::string man_page(const CLI::App& app) {
     };
     for (const auto& [code, meaning] : codes)
         out += fmt::format(".TP\n\\fB{}\\fR\n{}\n", code, roff(meaning));
+    out += ".SH OUTPUT COLUMNS\n";
+    out += ".PP\nAll coordinates are 0-based and half-open, as in BED; the GFF3 file is 1-based.\n";
+    out += ".PP\nCalls (\\fB\\-o\\fR, BED6+4), tab-separated:\n";
+    int number = 0;
+    for (const BedColumn& c : bed_columns)
+        out += fmt::format(".TP\n{} \\fB{}\\fR\n{}\n", ++number, roff(c.name), roff(c.meaning));
+    out += roff_paragraphs(
+        "With --bed-style browser the file is BED9+4: a track line, columns 1-6, thickStart and "
+        "thickEnd (the call's core: its first to last base with P(region) >= --core-posterior), "
+        "itemRgb, then columns 7-10 above. GFF3 (--gff3) carries the same values as attributes "
+        "(mean_posterior, confident_fraction, gc_fraction, cpg_obs_exp, core_start, core_end).\n\n"
+        "Posterior tracks (--posteriors PREFIX): PREFIX.REGION.bedgraph (chrom, start, end, "
+        "P(region) rounded to --posterior-digits, equal neighbours merged) or PREFIX.REGION.bw "
+        "with --track-format bigwig; runs of at least 100 unknown bases have no data.\n\n"
+        "Summary (--summary, JSON tidemark-summary/1): per contig and for the genome the length, "
+        "unknown bases, GC fraction, CpG o/e, log-likelihood and per region type expected_bases "
+        "(sum of posteriors over known bases), expected_fraction (its share of the known bases), "
+        "calls and called_bases (known bases inside calls). The table printed at the end of a run "
+        "gives called% and expected% as shares of the known bases.");
+    out += ".SH EXAMPLES\n";
+    const std::pair<const char*, const char*> examples[] = {
+        {"CpG islands of an assembly (default profile cpg-island) as BED:",
+         "tidemark scan genome.fa.gz -o islands.bed"},
+        {"Posterior tracks, a JSON summary and an HTML report beside the calls:",
+         "tidemark scan genome.fa -o calls.bed --posteriors tracks/genome --summary run.json "
+         "--html report.html"},
+        {"Only some regions of a bgzip or plain FASTA (1-based, inclusive):",
+         "tidemark scan genome.fa.gz -r chr7:27,100,000-27,300,000 -r chrX -o calls.bed"},
+        {"Calls for a genome browser: bgzip-compressed and tabix-indexed, with a bigWig track:",
+         "tidemark scan genome.fa --bed-style browser --bgzip -o calls.bed.gz --posteriors post "
+         "--track-format bigwig"},
+        {"GC-rich and AT-rich domains (isochore families, decoded in 20-kb windows):",
+         "tidemark scan -p isochore genome.fa -o domains.bed"},
+        {"Learn a profile from the genome itself, then scan with it:",
+         "tidemark fit genome.fa -p gc-shift -o genome.gc-shift.json\n"
+         "tidemark scan genome.fa -p genome.gc-shift.json -o islands.bed"},
+        {"Score a profile on a synthetic genome with known truth:",
+         "tidemark simulate --contigs 3 --length 1000000 --seed 1 -o sim.fa --truth truth.bed\n"
+         "tidemark scan sim.fa -o calls.bed\n"
+         "tidemark compare calls.bed truth.bed"},
+        {"Two machines, then one merge (each shard in its own folder, same output names):",
+         "mkdir 1 2\n"
+         "(cd 1 && tidemark scan ../genome.fa --shard 1/2 --whole-contigs -o calls.bed "
+         "--summary s.json)\n"
+         "(cd 2 && tidemark scan ../genome.fa --shard 2/2 --whole-contigs -o calls.bed "
+         "--summary s.json)\n"
+         "tidemark merge --shard-summaries 1/s.json 2/s.json --shard-beds 1/calls.bed "
+         "2/calls.bed -o calls.bed --summary s.json"},
+    };
+    for (const auto& [task, commands] : examples)
+        out += ".PP\n" + roff(task) + "\n.PP\n.RS 4\n.nf\n" + roff(commands) + "\n.fi\n.RE\n";
     out +=
         ".SH FILES\n.TP\n\\fIshare/bash\\-completion/completions/tidemark\\fR\nbash completion.\n"
-        ".TP\n\\fIshare/tidemark/scripts/plot\\-*.py\\fR\nplotting scripts "
-        "(python3\\-matplotlib).\n";
+        ".TP\n\\fIshare/tidemark/profiles/*.json\\fR\nthe built-in profiles, as starting points "
+        "for profiles of your own.\n"
+        ".TP\n\\fIshare/tidemark/scripts/plot\\-region.py\\fR\none region at base resolution: "
+        "GC, CpG o/e, posteriors and calls (python3\\-matplotlib).\n";
     return out;
 }
 

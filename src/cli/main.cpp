@@ -54,6 +54,10 @@ int main(int argc, char** argv) {
                      cli::explain_usage_error(app, e, argc, argv).c_str(),
                      cli::help_hint(app).c_str());
         return static_cast<int>(ExitCode::usage);
+    } catch (const UsageError& e) {  // a mistake found after parsing: worded as the ones above
+        std::fflush(stdout);
+        std::fprintf(stderr, "tidemark: usage error: %s\n", e.what());
+        return static_cast<int>(ExitCode::usage);
     } catch (const Error& e) {
         std::fflush(stdout);
         std::fprintf(stderr, "tidemark: error: %s\n", e.what());

@@ -6,6 +6,7 @@ with man-db (`man -l`) and groff, and it and the completion name every subcomman
 Usage: test_install.py CMAKE BUILD_DIR SOURCE_DIR
 """
 
+import glob
 import os
 import re
 import subprocess
@@ -93,8 +94,39 @@ def body(checks, cmake, build, source):
         lint = run(["groff", "-man", "-Tutf8", "-ww", "-z", man_page])
         checks.check(lint.returncode == 0 and not lint.stderr.strip(), "groff formats the page without warnings",
                      "groff -man -ww", lint.stderr[-500:])
-        for section in ("NAME", "SYNOPSIS", "DESCRIPTION", "OPTIONS", "SUBCOMMANDS", "EXIT STATUS"):
+        for section in ("NAME", "SYNOPSIS", "DESCRIPTION", "OPTIONS", "SUBCOMMANDS", "EXIT STATUS", "OUTPUT COLUMNS",
+                        "EXAMPLES", "FILES"):
             checks.check(re.search(rf"^{section}$", man_text, re.M), f"man page has section {section}", "man-pages(7)")
+
+        def section_text(name):
+            return re.split(r"^\S", man_text.split(f"\n{name}\n", 1)[-1], maxsplit=1, flags=re.M)[0]
+
+        # OUTPUT COLUMNS: every column of the BED header the installed binary writes, numbered in order.
+        with tempfile.TemporaryDirectory(prefix="tidemark-install-run-") as run_dir:
+            fa = os.path.join(run_dir, "x.fa")
+            with open(fa, "w") as f:
+                f.write(">x\n" + "ACGT" * 100 + "\n")
+            header = [l for l in run([binary, "scan", "-q", fa]).stdout.splitlines() if l.startswith("#chrom")]
+        columns = header[0][1:].split("\t") if header else []
+        outputs = section_text("OUTPUT COLUMNS")
+        checks.check(len(columns) == 10 and all(re.search(rf"^\s*{i} {re.escape(c)}\b", outputs, re.M)
+                                                for i, c in enumerate(columns, 1)),
+                     "OUTPUT COLUMNS lists every BED column, numbered as the file's header orders them",
+                     "the #chrom header line of the installed binary's BED", ", ".join(columns))
+        # EXAMPLES: every example command line names a subcommand the binary has.
+        examples = [l.strip() for l in section_text("EXAMPLES").splitlines() if "tidemark " in l]
+        commands = [re.search(r"tidemark (\w+)", l).group(1) for l in examples]
+        checks.check(len(examples) >= 5 and set(commands) <= {"scan", "fit", "simulate", "compare", "merge", "profiles"}
+                     and {"scan", "fit", "merge"} <= set(commands),
+                     "EXAMPLES shows the main jobs (scan, fit, merge) with real subcommands",
+                     "README, Usage", ", ".join(commands))
+        # FILES: every path listed is installed (the retired plotting script is not listed).
+        listed_files = re.findall(r"^\s{7}(share/\S+)$", section_text("FILES"), re.M)
+        missing = [f for f in listed_files if not glob.glob(os.path.join(prefix, f))]
+        checks.check(listed_files and not missing, "every path in FILES is installed", "CMake install",
+                     f"listed {listed_files}, missing {missing}")
+        checks.check("plot-overview" not in man_text, "the retired plot-overview.py is not in the man page",
+                     "README: the script is gone")
 
         # Every subcommand, positional and option of --help, at every level, in the page and the completion.
         pending, seen = [[]], 0

@@ -248,7 +248,7 @@ def body(checks, binary, work):
             ("a segment that does not continue the one before",
              lambda d: d["shard"]["shared"][0]["done"][0].__setitem__("begin", 5), "does not continue"),
             ("a call of a region the profile has not",
-             lambda d: d["shard"]["shared"][0]["done"][0]["calls"].append([10, 20, 7, 0.9, 0.8, 10, 20, [3, 3, 2, 2, 0, 1]]),
+             lambda d: d["shard"]["shared"][0]["done"][0]["calls"].append([10, 20, 7, 0.9, 0.8, 10, 20, [3, 3, 2, 2, 0, 1], 10]),
              "unreported region")):
         doc = tmtest.read_json(os.path.join(cpg, "s2", "summary.json"))
         edit(doc)

@@ -1,5 +1,7 @@
-"""Unknown stretches in posterior tracks: runs of at least 100 unknown bases (N) are left out of
-bedGraph and bigWig tracks (no data), shorter runs keep their values. The gaps are found by Python
+"""Unknown stretches in posterior tracks and calls: runs of at least 100 unknown bases (N) are
+left out of bedGraph and bigWig tracks (no data), shorter runs keep their values; calls never
+overlap such a run (a region on each side of one is its own call), while shorter runs stay inside
+calls. The gaps are found by Python
 in the FASTA; pyBigWig (Debian python3-pybigwig) reads the bigWig back; numpy recomputes bin means
 over the bases outside gaps. Gaps are planted at and across the segment boundaries where a sharded
 run splits a record between shards, and the merged shard outputs must equal a single run byte for
@@ -20,9 +22,9 @@ PYTHON = "N runs counted by Python in the FASTA"
 SINGLE = "single run of the same command (merged shards must equal it byte for byte)"
 
 
-def planted_records(rng):
+def planted_records(rng, p=(0.3, 0.2, 0.2, 0.3)):
     n = 5 * SEGMENT + 1234
-    seq = rng.choice(list("ACGT"), size=n, p=[0.3, 0.2, 0.2, 0.3])
+    seq = rng.choice(list("ACGT"), size=n, p=list(p))
     b = SEGMENT
     # Segment boundaries are multiples of b; a sharded run splits chrA at some of them, and each
     # shard sees only its pieces' bases plus some context, so runs that touch or cross the
@@ -63,8 +65,9 @@ def gap_mask(seq):
     return mask
 
 
-def sharded(checks, tm, work, fa, name, n, scan_args, outputs):
-    """Step 1 (seams), step 2 and merge of n shards; returns the merged folder."""
+def sharded(checks, tm, work, fa, name, n, scan_args, outputs, bed=None):
+    """Step 1 (seams), step 2 and merge of n shards (and of their BED `bed` when given); returns
+    the merged folder."""
     base = os.path.join(work, name)
     for i in range(1, n + 1):
         tmtest.run_in(tm, os.path.join(base, "seams"),
@@ -75,6 +78,8 @@ def sharded(checks, tm, work, fa, name, n, scan_args, outputs):
     merged = ["merge", "-q", "--shard-summaries"] + [f"../s{i}/summary.json" for i in range(1, n + 1)]
     merged += ["--shard-posteriors"] + [f"../s{i}/post" for i in range(1, n + 1)]
     merged += ["--summary", "summary.json", "--posteriors", "post"]
+    if bed:
+        merged += ["--shard-beds"] + [f"../s{i}/{bed}" for i in range(1, n + 1)] + ["-o", bed]
     tmtest.run_in(tm, os.path.join(base, "merged"), merged)
     shared = sum(len(tmtest.read_json(os.path.join(base, f"s{i}", "summary.json"))["shard"]["shared"])
                  for i in range(1, n + 1))
@@ -152,6 +157,38 @@ def body(checks, tm, work):
         checks.check(tmtest.read_bytes(os.path.join(work, name, "single", f)) ==
                      tmtest.read_bytes(os.path.join(merged, f)), f"{name}: merged {f} equals the single run's", SINGLE)
 
+    # 6. Calls: an island-like chrA (C and G 0.35 each, CpG not depleted) is called nearly whole
+    # by the CpG-island profile, so calls meet every planted gap. No call overlaps a long run,
+    # short runs stay inside calls, and threads and shards call exactly what one run calls.
+    calls_fa = os.path.join(work, "island.fa")
+    island = planted_records(np.random.default_rng(16), p=(0.15, 0.35, 0.35, 0.15))
+    tmtest.write_fasta(calls_fa, island)
+    island_masks = {name: gap_mask(seq) for name, seq in island}
+    scan_args = ["--block", "1024"]
+    outputs = ["--summary", "summary.json", "--posteriors", "post", "-q", "-o", "calls.bed"]
+    single = os.path.join(work, "calls", "single")
+    tmtest.run_in(tm, single, ["scan", calls_fa, "-t", "1"] + scan_args + outputs)
+    calls = [(r[0], int(r[1]), int(r[2])) for r in tmtest.read_bed(os.path.join(single, "calls.bed"))]
+    chr_a = [(b, e) for name, b, e in calls if name == "chrA"]
+    checks.check(len(chr_a) >= 6, "island-like chrA is called between its gaps", PYTHON, f"{len(chr_a)} calls")
+    over = [(name, b, e) for name, b, e in calls if island_masks[name][b:e].any()]
+    checks.equal(over, [], "no call overlaps a run of >= 100 N", PYTHON)
+    for lo, hi in [(SEGMENT + 300, SEGMENT + 399), (2 * SEGMENT - 50, 2 * SEGMENT + 20)]:
+        checks.check(any(b <= lo and hi <= e for b, e in chr_a), f"a run of {hi - lo} N stays inside a call",
+                     PYTHON)
+    for lo, hi in [(SEGMENT - 36, SEGMENT + 114), (3 * SEGMENT, 3 * SEGMENT + 100)]:
+        checks.check(any(e == lo for _, e in chr_a) and any(b == hi for b, _ in chr_a),
+                     f"the gap {lo}-{hi} ends one call and starts the next", PYTHON)
+    two = os.path.join(work, "calls", "t2")
+    tmtest.run_in(tm, two, ["scan", calls_fa, "-t", "2"] + scan_args + outputs)
+    for f in ["calls.bed", "summary.json"]:
+        checks.check(tmtest.read_bytes(os.path.join(single, f)) == tmtest.read_bytes(os.path.join(two, f)),
+                     f"calls across gaps: --threads 2 writes the same {f}", SINGLE)
+    merged = sharded(checks, tm, work, calls_fa, "calls-shards", 3, scan_args, outputs, bed="calls.bed")
+    for f in ["calls.bed", "summary.json"]:
+        checks.check(tmtest.read_bytes(os.path.join(single, f)) == tmtest.read_bytes(os.path.join(merged, f)),
+                     f"calls across gaps: merged {f} equals the single run's", SINGLE)
+
 
 if __name__ == "__main__":
-    tmtest.main("posterior tracks leave out long unknown runs", body)
+    tmtest.main("posterior tracks and calls leave out long unknown runs", body)
