@@ -175,7 +175,8 @@ struct Page {
     }
 
     void genome_section(const ContigSummary& g) {
-        const double len = g.length > 0 ? static_cast<double>(g.length) : 1.0;
+        // Shares of known bases, as in the summary: gaps hold no calls and no expectation.
+        const double len = g.length > g.unknown ? static_cast<double>(g.length - g.unknown) : 1.0;
         out +=
             "<section "
             "id=\"genome\">\n<h2>Genome-wide</h2>\n<table>\n<tr><th>sequences</th><th>length "
@@ -216,10 +217,10 @@ struct Page {
                 any ? num(g.confidence_sum[ri] / static_cast<double>(g.calls[ri]), 4) : "\u2013");
         }
         out +=
-            "</table>\n<p class=\"note\">expected % = sum of the posterior over all bases, as a "
-            "share of the "
-            "length; called % = bases inside calls. Confidence of a call = its mean "
-            "posterior.</p>\n</section>\n";
+            "</table>\n<p class=\"note\">expected % = sum of the posterior over the known "
+            "bases, as a share of the known bases; called % = known bases inside calls, as a "
+            "share of the known bases (gaps of unknown bases hold no calls). Confidence of a "
+            "call = its mean posterior.</p>\n</section>\n";
     }
 
     // The shown sequences longest first (ties: input order): on a draft the figure and the
@@ -846,7 +847,8 @@ struct Page {
                 esc(model.region_names[static_cast<size_t>(r)]));
         out += "</tr>\n";
         const auto row = [&](const ContigSummary& c, const std::string& index, bool total) {
-            const double len = c.length > 0 ? static_cast<double>(c.length) : 1.0;
+            const double len =
+                c.length > c.unknown ? static_cast<double>(c.length - c.unknown) : 1.0;
             std::string name = esc(c.name);
             if (c.offset)
                 name += fmt::format(" <span class=\"dim\">{}\u2013{}</span>", grouped(c.offset + 1),
