@@ -24,10 +24,12 @@ Threads: tidemark with --threads 1 and --threads 2 (alternating, N runs each, fa
 Input shapes: tidemark scan -p cpg-island on a fragmented draft (300,000 contigs of 700 bp), on
 105 contigs of 2 Mbp (both simulated with -p cpg-island --seed 5, 210 Mbp each) and on human
 chrX as .fa.gz and as plain text, with 1 and 2 threads; the draft also with --summary and
-bedGraph tracks (peak RSS) and with bigWig tracks. Targets: draft Mbp/s >= 0.8x that of the
+bedGraph tracks (peak RSS) and with bigWig tracks; 3,000,000 records of 100-300 bp (cut from
+one simulated sequence, --seed 23; scripts/bench/many-records.py) once with --summary and
+bedGraph tracks (time, peak RSS, summary size). Targets: draft Mbp/s >= 0.8x that of the
 2-Mbp contigs (1 thread); 2 threads >= 1.8x over 1 on the draft, the 2-Mbp contigs and chrX
 .fa.gz; chrX .fa.gz within 1.15x of plain text (2 threads); draft RSS <= 64 MiB + 100 B per
-contig; bigWig within 2x of bedGraph. --shapes-only runs only this part. --compare OLD_TIDEMARK
+contig (also for the 3 M records); bigWig within 2x of bedGraph. --shapes-only runs only this part. --compare OLD_TIDEMARK
 also times another build (e.g. of an earlier commit) with 1 thread on each shape, alternating
 with this one, and reports this build's speed over it.
 EOF
@@ -297,6 +299,21 @@ if [ $THREADS_ONLY -eq 0 ]; then
     bw=$BEST
     target "$bg_rss <= 64 * 1048576 + 100 * 300000" "draft peak RSS with --summary and bedGraph $(awk "BEGIN{printf \"%.1f\", $bg_rss / 1048576}") MiB (<= 64 MiB + 100 B x 300,000 contigs = 92.6 MiB)"
     target "$bw / $bg <= 2" "draft with bigWig tracks $(awk "BEGIN{printf \"%.2f\", $bw / $bg}")x the time with bedGraph and --summary ($bw s vs $bg s; <= 2x)"
+    # Millions of short records (short-read assemblies): 3 M records of 100-300 bp, once, with
+    # --summary and bedGraph tracks; memory grows only by the duplicate-name check per record.
+    MANY=$DATA/many-3M-100to300.fa
+    if [ ! -s "$MANY" ]; then
+        many_bases=$(python3 "$ROOT/scripts/bench/many-records.py" 3000000 100 300 23 --lengths)
+        "$TM" simulate -q -p cpg-island --seed 23 --lengths "$many_bases" --line-width 0 -o "$DATA/many.src.fa"
+        python3 "$ROOT/scripts/bench/many-records.py" 3000000 100 300 23 "$DATA/many.src.fa" "$MANY"
+        rm -f "$DATA/many.src.fa"
+    fi
+    log "timing 3 M records of 100-300 bp with --summary and bedGraph (1 thread, once)"
+    best_of many 1 "$TM" scan -q -t 1 -p cpg-island "$MANY" -o "$DATA/many.bed" \
+        --summary "$DATA/many.json" --posteriors "$DATA/many.bg"
+    many_bases=$(python3 "$ROOT/scripts/bench/many-records.py" 3000000 100 300 23 --lengths)
+    SNOTES+=("- 3,000,000 records of 100-300 bp ($(awk "BEGIN{printf \"%.0f\", $many_bases / 1e6}") Mbp) with --summary and bedGraph, 1 thread: $BEST s, peak RSS $(awk "BEGIN{printf \"%.1f\", $PEAK / 1048576}") MiB ($(awk "BEGIN{printf \"%.1f\", $PEAK / 3e6}") B a record), summary $(stat -c %s "$DATA/many.json") B")
+    target "$PEAK <= 64 * 1048576 + 100 * 3000000" "3 M records peak RSS $(awk "BEGIN{printf \"%.1f\", $PEAK / 1048576}") MiB (<= 64 MiB + 100 B x 3,000,000 records = 350.1 MiB)"
     if [ -r "$CHRX" ]; then
         PLAIN=$DATA/hs37chrXtrunc.fa
         [ -s "$PLAIN" ] || gzip -dc "$CHRX" >"$PLAIN"

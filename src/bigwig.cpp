@@ -101,9 +101,16 @@ BigWigWriter::~BigWigWriter() {
     if (impl_->spool) std::fclose(impl_->spool);
 }
 
+void check_bigwig_length(const std::string& name, int64_t length) {
+    if (length > bigwig_max_length)
+        throw InputError("record '" + name + "' has " + std::to_string(length) +
+                         " bp, more than the " + std::to_string(bigwig_max_length) +
+                         " bp a bigWig's 32-bit coordinates can hold; write bedGraph tracks "
+                         "instead (--track-format bedgraph, with --bgzip for an indexed file)");
+}
+
 int BigWigWriter::add_sequence(const std::string& name, int64_t length) {
-    if (length > 0xFFFFFFFFll)
-        throw InputError(name + ": longer than bigWig's 32-bit coordinates allow");
+    check_bigwig_length(name, length);
     const auto found = impl_->index.find(name);
     if (found != impl_->index.end()) {
         const auto i = static_cast<size_t>(found->second);

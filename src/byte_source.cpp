@@ -1,16 +1,16 @@
-// Byte sources: htslib for plain text and bgzip, ISA-L for gzip, Boost.Iostreams for xz, bzip2
-// and zstd; optionally decompressed ahead of the reader on a thread of its own.
+// Byte sources: htslib for plain text and bgzip, ISA-L for gzip, Boost.Iostreams for xz and
+// bzip2, libzstd for zstd; optionally decompressed ahead of the reader on a thread of its own.
 #include "byte_source.hpp"
 
 #include <htslib/bgzf.h>
 #include <htslib/hfile.h>
 #include <isa-l/igzip_lib.h>
 #include <sys/stat.h>
+#include <zstd.h>
 
 #include <atomic>
 #include <boost/iostreams/filter/bzip2.hpp>
 #include <boost/iostreams/filter/lzma.hpp>
-#include <boost/iostreams/filter/zstd.hpp>
 #include <boost/iostreams/filtering_stream.hpp>
 #include <cerrno>
 #include <condition_variable>
@@ -92,7 +92,7 @@ private:
 
 class BoostSource final : public ByteSource {
 public:
-    enum class Kind { xz, bzip2, zstd };
+    enum class Kind { xz, bzip2 };
     BoostSource(hFILE* hf, Kind kind, std::string path) : hf_(hf), path_(std::move(path)) {
         switch (kind) {
             case Kind::xz:
@@ -100,9 +100,6 @@ public:
                 break;
             case Kind::bzip2:
                 in_.push(boost::iostreams::bzip2_decompressor());
-                break;
-            case Kind::zstd:
-                in_.push(boost::iostreams::zstd_decompressor());
                 break;
         }
         in_.push(HfileDevice(hf_));
@@ -126,6 +123,58 @@ private:
     hFILE* hf_;
     std::string path_;
     boost::iostreams::filtering_istream in_;
+};
+
+// zstd through libzstd itself: Boost.Iostreams' zstd filter ends a stream cut inside a frame as
+// if it were complete, so a truncated file read as a shorter one.
+class ZstdSource final : public ByteSource {
+public:
+    ZstdSource(hFILE* hf, std::string path)
+        : hf_(hf),
+          path_(std::move(path)),
+          stream_(ZSTD_createDStream()),
+          in_(ZSTD_DStreamInSize()) {
+        if (!stream_) {
+            hclose_abruptly(hf_);
+            throw InputError(display_name(path_) + ": cannot start the zstd decoder");
+        }
+    }
+    ~ZstdSource() override {
+        ZSTD_freeDStream(stream_);
+        hclose_abruptly(hf_);
+    }
+    size_t read(char* buf, size_t n) override {
+        ZSTD_outBuffer out{buf, n, 0};
+        while (out.pos == 0) {
+            if (input_.pos == input_.size) {
+                const ssize_t got = hread(hf_, in_.data(), in_.size());
+                if (got < 0) throw InputError(display_name(path_) + ": read failed");
+                if (got == 0) {
+                    // 0 from the last call: every frame is complete.
+                    if (frame_open_)
+                        throw InputError(display_name(path_) +
+                                         ": zstd data ends inside a frame: the file is truncated "
+                                         "(an interrupted copy or download?)");
+                    return 0;
+                }
+                input_ = ZSTD_inBuffer{in_.data(), static_cast<size_t>(got), 0};
+            }
+            const size_t hint = ZSTD_decompressStream(stream_, &out, &input_);
+            if (ZSTD_isError(hint))
+                throw InputError(display_name(path_) + ": corrupt zstd data (" +
+                                 ZSTD_getErrorName(hint) + ")");
+            frame_open_ = hint != 0;
+        }
+        return out.pos;
+    }
+
+private:
+    hFILE* hf_;
+    std::string path_;
+    ZSTD_DStream* stream_;
+    std::vector<char> in_;
+    ZSTD_inBuffer input_{nullptr, 0, 0};
+    bool frame_open_ = false;
 };
 
 #if defined(__x86_64__)
@@ -324,8 +373,7 @@ std::unique_ptr<ByteSource> open_unwrapped(const std::string& path, bool& compre
         return std::make_unique<BoostSource>(hf, BoostSource::Kind::xz, path);
     if (got >= 3 && magic[0] == 'B' && magic[1] == 'Z' && magic[2] == 'h')
         return std::make_unique<BoostSource>(hf, BoostSource::Kind::bzip2, path);
-    if (got >= 4 && std::memcmp(magic, zstd, 4) == 0)
-        return std::make_unique<BoostSource>(hf, BoostSource::Kind::zstd, path);
+    if (got >= 4 && std::memcmp(magic, zstd, 4) == 0) return std::make_unique<ZstdSource>(hf, path);
     compressed = got >= 2 && magic[0] == 0x1f && magic[1] == 0x8b;
     // bgzip: gzip with the extra field "BC" (SAM/BAM format specification, section 4.1); htslib
     // reads it (and seeks in it with its .gzi index).

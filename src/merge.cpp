@@ -77,7 +77,9 @@ void run_merge(const MergeOptions& o, const Logger& log) {
     }
     const Model model = region_model(plan[0].doc);
     warn_on_commands(plan, log);
-    for (const DepletionWarning& w : depletion_warnings(model, contigs)) log.warn(w.message);
+    RepeatedWarning undepleted(log, "records whose CpG is not depleted");
+    for (const DepletionWarning& w : depletion_warnings(model, contigs)) undepleted.warn(w.message);
+    undepleted.finish();
 
     std::unique_ptr<OutputFile> summary, report;
     if (!o.summary_path.empty()) {

@@ -3,6 +3,7 @@
 #include <fmt/format.h>
 #include <sys/stat.h>
 
+#include <algorithm>
 #include <map>
 #include <set>
 
@@ -192,10 +193,10 @@ std::unique_ptr<OutputFile> merge_text(const std::vector<ShardDoc>& docs, const 
     return out_file;
 }
 
-// GFF3: after the version line, each record is a ##sequence-region line (one per record, as
-// scan writes it) followed by its features. Blocks go back into input order and the feature
-// IDs (REGION_SERIAL, numbered through the run) are renumbered in that order. Split records
-// are formatted here.
+// GFF3: after the version line, each record is a ##sequence-region line (one per record of at
+// least one base, as scan writes it) followed by its features; an empty record has neither. Blocks
+// go back into input order and the feature IDs (REGION_SERIAL, numbered through the run) are
+// renumbered in that order. Split records are formatted here.
 std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs, const MergedRun& run,
                                        const std::vector<std::string>& files,
                                        const std::string& target) {
@@ -216,12 +217,20 @@ std::unique_ptr<OutputFile> merge_gff3(const std::vector<ShardDoc>& docs, const 
             header = h;
         else if (h != header)
             throw InputError(fmt::format("{} and {}: the GFF3 headers differ", files[0], files[k]));
-        if (blocks[k].size() != docs[k].contigs.size())
+        const auto& contigs = docs[k].contigs;
+        const auto with_bases = std::count_if(contigs.begin(), contigs.end(),
+                                              [](const auto& c) { return c.length > 0; });
+        if (blocks[k].size() != static_cast<size_t>(with_bases))
             throw InputError(fmt::format(
-                "{}: {} sequence-region blocks but shard {}/{} ({}) has {} records; give the "
-                "files in the same shard order as the summaries",
+                "{}: {} sequence-region blocks but shard {}/{} ({}) has {} records with bases; "
+                "give the files in the same shard order as the summaries",
                 files[k], blocks[k].size(), docs[k].index, docs[k].count, docs[k].path,
-                docs[k].contigs.size()));
+                with_bases));
+        std::vector<std::string> by_record;  // an empty block for each empty record
+        size_t next = 0;
+        for (const auto& c : contigs)
+            by_record.push_back(c.length > 0 ? std::move(blocks[k][next++]) : "");
+        blocks[k] = std::move(by_record);
     }
     auto out = std::make_unique<OutputFile>(target);
     std::string text = header;

@@ -27,6 +27,14 @@ public:
             if (stored(slots_[i]) == name) return false;
         }
     }
+    /// True when the name was added.
+    bool contains(std::string_view name) const {
+        if (slots_.empty()) return false;
+        for (size_t i = hash(name) & (slots_.size() - 1);; i = (i + 1) & (slots_.size() - 1)) {
+            if (slots_[i] == 0) return false;
+            if (stored(slots_[i]) == name) return true;
+        }
+    }
     size_t size() const { return count_; }
 
 private:

@@ -11,6 +11,7 @@
 #include <atomic>
 #include <cerrno>
 #include <csignal>
+#include <cstdio>
 #include <cstdlib>
 #include <cstring>
 
@@ -206,19 +207,44 @@ void OutputFile::commit() {
         committed_ = true;
         return;
     }
+    // The index is built from the temporary file, so that the data and its index are renamed
+    // into place together or not at all.
+    std::unique_ptr<StagedPath> index;
+    std::string stale;  // the other kind of index, which tabix might otherwise read
+    if (format_.tabix) {
+        index = build_index();
+        stale = path_ + (index->target().size() >= 4 &&
+                                 index->target().compare(index->target().size() - 4, 4, ".csi") == 0
+                             ? ".tbi"
+                             : ".csi");
+    }
     staged_->commit();
     committed_ = true;
-    if (format_.tabix) build_index();
+    if (index) {
+        index->commit();
+        std::remove(stale.c_str());
+    }
 }
 
-void OutputFile::build_index() {
-    StagedPath index(path_ + ".tbi");
+// TBI where every position fits its 2^29 limit, since it is the index every tabix reader knows;
+// CSI past it. htslib 1.16 gives a CSI index of a BED-like file (tbx_index_build3) as many
+// levels as fit 2^33 bases with 2^15-base bins (tabix -C -m 15), 2^32 with the default 2^14.
+std::unique_ptr<StagedPath> OutputFile::build_index() const {
     tbx_conf_t conf = tbx_conf_bed;
     conf.line_skip = format_.skip_lines;
-    if (tbx_index_build3(path_.c_str(), index.temp().c_str(), 0, 1, &conf) != 0)
-        throw IoError(path_ + ": cannot write the tabix index " + index.target() +
-                      " (are the lines sorted by position within each sequence?)");
-    index.commit();
+    auto tbi = std::make_unique<StagedPath>(path_ + ".tbi");
+    if (tbx_index_build3(staged_->temp().c_str(), tbi->temp().c_str(), 0, 1, &conf) == 0)
+        return tbi;
+    tbi.reset();
+    constexpr int csi_min_shift = 15;
+    auto csi = std::make_unique<StagedPath>(path_ + ".csi");
+    if (tbx_index_build3(staged_->temp().c_str(), csi->temp().c_str(), csi_min_shift, 1, &conf) ==
+        0)
+        return csi;
+    throw IoError(path_ + ": cannot write its tabix index (" + path_ +
+                  ".tbi or .csi): lines out of position order within a sequence, or a position "
+                  "past 2^33 (8,589,934,592), the most a CSI index reaches here. Nothing was "
+                  "written");
 }
 
 }  // namespace tidemark

@@ -12,8 +12,10 @@
 #include <map>
 #include <memory>
 #include <mutex>
+#include <unordered_map>
 
 #include "base_table.hpp"
+#include "fai_index.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/log.hpp"
 #include "tidemark/output.hpp"
@@ -48,18 +50,20 @@ int indexable(const std::string& path) {
 }
 
 // Builds PATH.fai (and PATH.gzi for bgzip) under temporary names and renames them into place.
-bool build_index(const std::string& path) {
-    try {
-        StagedPath fai(path + ".fai");
-        StagedPath gzi(path + ".gzi");
-        if (fai_build3(path.c_str(), fai.temp().c_str(), gzi.temp().c_str()) != 0) return false;
-        struct stat st {};
-        if (stat(gzi.temp().c_str(), &st) == 0 && st.st_size > 0) gzi.commit();
-        fai.commit();
-        return true;
-    } catch (const IoError&) {
-        return false;  // a read-only folder: fall back to reading the records
-    }
+// Returns "" or why the file cannot be indexed; throws IoError when the folder cannot take them.
+std::string build_index_beside(const std::string& path) {
+    StagedPath fai(path + ".fai");
+    StagedPath gzi(path + ".gzi");
+    const std::string why = detail::build_fai(path, fai.temp(), gzi.temp());
+    if (!why.empty()) return why;
+    struct stat st {};
+    if (stat(gzi.temp().c_str(), &st) == 0 && st.st_size > 0) gzi.commit();
+    fai.commit();
+    return "";
+}
+
+bool index_is_current(const std::string& path, int kind) {
+    return newer_or_same(path + ".fai", path) && (kind == 0 || newer_or_same(path + ".gzi", path));
 }
 
 // The index of a FASTA whose folder cannot be written (and whose own .fai is missing or older
@@ -73,6 +77,7 @@ struct TemporaryIndex {
     }
 };
 
+// Null when no temporary folder can be made; throws InputError when the file cannot be indexed.
 const TemporaryIndex* temporary_index(const std::string& path) {
     static std::mutex mutex;
     static std::map<std::string, std::unique_ptr<TemporaryIndex>> built;
@@ -86,7 +91,9 @@ const TemporaryIndex* temporary_index(const std::string& path) {
     index->folder = folder;
     index->fai = folder + "/index.fai";
     index->gzi = folder + "/index.gzi";
-    if (fai_build3(path.c_str(), index->fai.c_str(), index->gzi.c_str()) != 0) return nullptr;
+    const std::string why = detail::build_fai(path, index->fai, index->gzi);
+    if (!why.empty())
+        throw InputError(fmt::format("{}: cannot be indexed for reading by region: {}", path, why));
     Logger().warn(fmt::format(
         "{}: cannot write its index beside it ({}.fai; a read-only folder?), so it is "
         "indexed in a temporary folder for this run only; index it once where it can be "
@@ -96,7 +103,19 @@ const TemporaryIndex* temporary_index(const std::string& path) {
     return slot.get();
 }
 
-FaiPtr load_index(const std::string& path) {
+// An open faidx index with the record lengths read from its .fai: htslib 1.16's faidx_seq_len
+// returns an int, which wraps past 2^31 bases (its fetches are 64-bit).
+struct FastaIndex {
+    FaiPtr fai;
+    std::vector<std::string> names;                                       ///< in index order
+    std::unordered_map<std::string, std::pair<size_t, int64_t>> records;  ///< rank, length
+
+    bool has(const std::string& name) const { return records.count(name) != 0; }
+    int64_t length(const std::string& name) const { return records.at(name).second; }
+    size_t rank(const std::string& name) const { return records.at(name).first; }
+};
+
+FastaIndex load_index(const std::string& path) {
     if (path == "-")
         throw InputError("--region needs a file: standard input cannot be read by region");
     struct stat st {};
@@ -114,24 +133,48 @@ FaiPtr load_index(const std::string& path) {
                          path +
                          " | bgzip > NEW.fa.gz' (bgzip is in Debian's tabix "
                          "package) or drop --region to stream the whole file");
-    // Built here under temporary names first, so that concurrent runs (shards) never read a
-    // half-written index; FAI_CREATE remains for a read-only folder, where nothing is written.
-    faidx_t* fai = nullptr;
-    if (ensure_fasta_index(path)) {
-        fai = fai_load3(path.c_str(), nullptr, nullptr, 0);
-    } else if (indexable(path) >= 0) {  // FASTA, but its folder cannot take the index
-        if (const TemporaryIndex* t = temporary_index(path)) {
-            struct stat gz {};
-            const bool has_gzi = stat(t->gzi.c_str(), &gz) == 0 && gz.st_size > 0;
-            fai = fai_load3(path.c_str(), t->fai.c_str(), has_gzi ? t->gzi.c_str() : nullptr, 0);
+    const int kind = indexable(path);
+    if (kind < 0)
+        throw InputError(path +
+                         ": cannot be read by region: it is neither FASTA text (starting with "
+                         "'>') nor bgzip-compressed FASTA; drop --region to stream it");
+    // Built under temporary names first, so that concurrent runs (shards) never read a
+    // half-written index; a read-only folder gets an index in a temporary folder instead.
+    std::string fai_path = path + ".fai", gzi_path = path + ".gzi";
+    if (!index_is_current(path, kind)) {
+        std::string why;
+        bool beside = false;
+        try {
+            why = build_index_beside(path);
+            beside = why.empty();
+        } catch (const IoError&) {
+        }
+        if (!why.empty())
+            throw InputError(
+                fmt::format("{}: cannot be indexed for reading by region: {}", path, why));
+        if (!beside) {
+            const TemporaryIndex* t = temporary_index(path);
+            if (!t)
+                throw InputError(path +
+                                 ": cannot write its faidx index (.fai) beside it or in a "
+                                 "temporary folder");
+            fai_path = t->fai;
+            gzi_path = t->gzi;
         }
     }
-    if (!fai)
-        throw InputError(path +
-                         ": cannot load or build the faidx index (.fai); is the file FASTA "
-                         "with equal line lengths within each record, and is its folder "
-                         "writable?");
-    return FaiPtr(fai);
+    struct stat gz {};
+    const bool has_gzi = stat(gzi_path.c_str(), &gz) == 0 && gz.st_size > 0;
+    FastaIndex index;
+    index.fai.reset(
+        fai_load3(path.c_str(), fai_path.c_str(), has_gzi ? gzi_path.c_str() : nullptr, 0));
+    if (!index.fai)
+        throw InputError(
+            fmt::format("{}: cannot load its faidx index {}; delete it and rerun", path, fai_path));
+    for (detail::FaiEntry& e : detail::read_fai(fai_path)) {
+        index.records.emplace(e.name, std::make_pair(index.names.size(), e.length));
+        index.names.push_back(std::move(e.name));
+    }
+    return index;
 }
 
 int64_t parse_position(const std::string& text, const std::string& region) {
@@ -147,36 +190,42 @@ int64_t parse_position(const std::string& text, const std::string& region) {
     return std::strtoll(digits.c_str(), nullptr, 10);
 }
 
-// "no sequence named 'X' in FILE; closest names: a, b, c (of N)".
-std::string no_such_sequence(const faidx_t* fai, const std::string& path, const std::string& name) {
-    std::vector<std::string> names;
-    for (int i = 0; i < faidx_nseq(fai); ++i) names.emplace_back(faidx_iseq(fai, i));
-    const std::vector<std::string> closest = closest_names(name, names, 3, false);
+// "no sequence named 'X' in FILE; closest names: a, b, c (of N)", or, for a record that faidx
+// leaves out of its index because it has no bases, says so.
+std::string no_such_sequence(const FastaIndex& index, const std::string& path,
+                             const std::string& name) {
+    if (detail::has_record_named(path, name))
+        return fmt::format(
+            "record '{}' of {} is empty (0 bases), so there is nothing in it to decode; leave it "
+            "out of the regions",
+            name, path);
+    const std::vector<std::string> closest = closest_names(name, index.names, 3, false);
     std::string list;
     for (const auto& n : closest) list += (list.empty() ? "" : ", ") + n;
     return fmt::format("no sequence named '{}' in {}{}", name, path,
-                       closest.empty() ? std::string(" (it has no sequences)")
-                                       : fmt::format("; closest names: {} (of {} sequence{})", list,
-                                                     names.size(), names.size() == 1 ? "" : "s"));
+                       closest.empty()
+                           ? std::string(" (it has no sequences)")
+                           : fmt::format("; closest names: {} (of {} sequence{})", list,
+                                         index.names.size(), index.names.size() == 1 ? "" : "s"));
 }
 
-Region parse_region(const faidx_t* fai, const std::string& path, const std::string& text) {
+Region parse_region(const FastaIndex& index, const std::string& path, const std::string& text) {
     if (text.empty()) throw InputError("empty region string");
     Region r;
-    if (faidx_has_seq(fai, text.c_str())) {
+    if (index.has(text)) {
         r.contig = text;
         r.begin = 0;
-        r.end = faidx_seq_len(fai, text.c_str());
+        r.end = index.length(text);
         return r;
     }
     const size_t colon = text.rfind(':');
     if (colon == std::string::npos)
-        throw InputError(fmt::format("region '{}': {}", text, no_such_sequence(fai, path, text)));
+        throw InputError(fmt::format("region '{}': {}", text, no_such_sequence(index, path, text)));
     r.contig = text.substr(0, colon);
-    if (!faidx_has_seq(fai, r.contig.c_str()))
+    if (!index.has(r.contig))
         throw InputError(
-            fmt::format("region '{}': {}", text, no_such_sequence(fai, path, r.contig)));
-    const int64_t length = faidx_seq_len(fai, r.contig.c_str());
+            fmt::format("region '{}': {}", text, no_such_sequence(index, path, r.contig)));
+    const int64_t length = index.length(r.contig);
     const std::string range = text.substr(colon + 1);
     const size_t dash = range.find('-');
     const int64_t first = parse_position(range.substr(0, dash), text);
@@ -244,7 +293,7 @@ void append_fetched(faidx_t* fai, const std::string& path, const std::string& na
 class FaidxSource final : public SequenceSource {
 public:
     FaidxSource(std::string path, std::vector<Region> regions)
-        : path_(std::move(path)), fai_(load_index(path_)), regions_(std::move(regions)) {}
+        : path_(std::move(path)), index_(load_index(path_)), regions_(std::move(regions)) {}
 
     const std::string& path() const override { return path_; }
 
@@ -254,15 +303,15 @@ public:
         contig.clear();
         contig.name = r.contig;
         contig.offset = r.begin;
-        contig.sequence_length = faidx_seq_len(fai_.get(), r.contig.c_str());
-        append_fetched(fai_.get(), path_, r.contig, r.begin, r.end, true, soft_masked_, contig,
-                       codes_);
+        contig.sequence_length = index_.length(r.contig);
+        append_fetched(index_.fai.get(), path_, r.contig, r.begin, r.end, true, soft_masked_,
+                       contig, codes_);
         return true;
     }
 
 private:
     std::string path_;
-    FaiPtr fai_;
+    FastaIndex index_;
     std::vector<Region> regions_;
     std::vector<uint8_t> codes_;  ///< one fetched piece as base codes
     size_t next_ = 0;
@@ -273,22 +322,25 @@ private:
 bool ensure_fasta_index(const std::string& path) {
     const int kind = indexable(path);
     if (kind < 0) return false;
-    if (newer_or_same(path + ".fai", path) && (kind == 0 || newer_or_same(path + ".gzi", path)))
-        return true;
-    return build_index(path);
+    if (index_is_current(path, kind)) return true;
+    try {
+        return build_index_beside(path).empty();
+    } catch (const IoError&) {
+        return false;  // a read-only folder: fall back to reading the records
+    }
 }
 
 std::vector<Region> resolve_regions(const std::string& path,
                                     const std::vector<std::string>& region_strings,
                                     const std::vector<Interval>& bed_regions) {
-    FaiPtr fai = load_index(path);
+    const FastaIndex index = load_index(path);
     std::vector<Region> regions;
-    for (const auto& s : region_strings) regions.push_back(parse_region(fai.get(), path, s));
+    for (const auto& s : region_strings) regions.push_back(parse_region(index, path, s));
     for (const auto& iv : bed_regions) {
-        if (!faidx_has_seq(fai.get(), iv.chrom.c_str()))
+        if (!index.has(iv.chrom))
             throw InputError(
-                fmt::format("regions BED: {}", no_such_sequence(fai.get(), path, iv.chrom)));
-        const int64_t length = faidx_seq_len(fai.get(), iv.chrom.c_str());
+                fmt::format("regions BED: {}", no_such_sequence(index, path, iv.chrom)));
+        const int64_t length = index.length(iv.chrom);
         if (iv.end > length)
             throw InputError(fmt::format(
                 "regions BED: interval '{} {} {}' (0-based, half-open) ends past the end of "
@@ -296,15 +348,11 @@ std::vector<Region> resolve_regions(const std::string& path,
                 iv.chrom, iv.begin, iv.end, iv.chrom, length));
         if (iv.end > iv.begin) regions.push_back({iv.chrom, iv.begin, iv.end});
     }
-    std::vector<int> rank(regions.size());
-    for (size_t i = 0; i < regions.size(); ++i) {
-        for (int t = 0; t < faidx_nseq(fai.get()); ++t)
-            if (regions[i].contig == faidx_iseq(fai.get(), t)) rank[i] = t;
-    }
     std::vector<size_t> order(regions.size());
     for (size_t i = 0; i < order.size(); ++i) order[i] = i;
     std::stable_sort(order.begin(), order.end(), [&](size_t a, size_t b) {
-        if (rank[a] != rank[b]) return rank[a] < rank[b];
+        const size_t ra = index.rank(regions[a].contig), rb = index.rank(regions[b].contig);
+        if (ra != rb) return ra < rb;
         return regions[a].begin < regions[b].begin;
     });
     std::vector<Region> sorted;

@@ -7,9 +7,9 @@
 #include <limits>
 #include <memory>
 #include <nlohmann/json.hpp>
-#include <unordered_map>
 
 #include "byte_source.hpp"
+#include "name_set.hpp"
 #include "pipeline.hpp"
 #include "thread_pool.hpp"
 #include "tidemark/error.hpp"
@@ -160,15 +160,26 @@ std::string join_words(const std::vector<std::string>& words) {
 
 // Record names key every output (BED, tracks, summary), so they must be unique across all inputs,
 // as the reader checks within one file.
-void check_unique_name(std::unordered_map<std::string, std::string>& first_input,
-                       const std::string& input, const std::string& name) {
-    const auto [at, inserted] = first_input.emplace(name, input);
-    if (!inserted && at->second != input)
-        throw InputError(
-            fmt::format("{}: record '{}' has the same name as a record of {}; record names must be "
-                        "unique across all inputs (outputs name records by name)",
-                        display(input), name, display(at->second)));
-}
+// Names across inputs, one compact set per input (the reader already refuses a name repeated
+// within one): about 16-32 B a record plus the name, where a map of name -> input took over
+// 100; a record is looked up in each earlier input's set.
+class NamesByInput {
+public:
+    void check(const std::string& input, const std::string& name) {
+        if (inputs_.empty() || inputs_.back().first != input)
+            inputs_.emplace_back(input, detail::NameSet());
+        for (size_t i = 0; i + 1 < inputs_.size(); ++i)
+            if (inputs_[i].second.contains(name))
+                throw InputError(fmt::format(
+                    "{}: record '{}' has the same name as a record of {}; record names must be "
+                    "unique across all inputs (outputs name records by name)",
+                    display(input), name, display(inputs_[i].first)));
+        inputs_.back().second.insert(name);
+    }
+
+private:
+    std::vector<std::pair<std::string, detail::NameSet>> inputs_;
+};
 
 // Step 1 for shared records: the seams of this shard's segments, and nothing else.
 void emit_seams(const ScanOptions& o, ShardFilter& shard, const std::string& identity,
@@ -247,6 +258,7 @@ struct ScanOutputs {
         : o(options),
           model(region_model),
           log(logger),
+          empty_records(logger, "empty records"),
           bed(o.output, bed_format(o)),
           caller(model, calling),
           totals(model),
@@ -290,6 +302,7 @@ struct ScanOutputs {
     const ScanOptions& o;
     const Model& model;
     const Logger& log;
+    RepeatedWarning empty_records;
     OutputFile bed;
     std::unique_ptr<OutputFile> gff3, sizes;
     std::unique_ptr<PosteriorTracks> tracks;
@@ -357,8 +370,8 @@ void ScanOutputs::finish(ScanJob& job) {
     }
     if (contig.length == 0) {
         progress.finish();
-        log.warn(fmt::format("{}: record '{}' is empty; no calls for it", display(*job.input),
-                             contig.name));
+        empty_records.warn(fmt::format("{}: record '{}' is empty; no calls for it",
+                                       display(*job.input), contig.name));
     }
     ContigSummary& s = record;
     s.name = contig.name;
@@ -534,7 +547,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     detail::DecodePipeline pipeline(
         threads, [&](int64_t length) { return decoders[0].decodes_alone(length, threads); });
 
-    std::unordered_map<std::string, std::string> names;  // record name -> the input it came from
+    NamesByInput names;
     for (const auto& input : o.inputs) {
         std::unique_ptr<SequenceSource> source = shard.open(input, regions);
         // A chromosome's first segments start decoding while the rest of it is read (a shard
@@ -553,14 +566,15 @@ void run_scan(const ScanOptions& o, const Logger& log) {
             bool more = false;
             try {
                 more = source->next(job->contig);
+                if (more && !o.tracks.prefix.empty() && o.tracks.format == TrackFormat::bigwig)
+                    check_bigwig_length(job->contig.name, job->contig.full_length());
             } catch (...) {
                 pipeline.drain();  // an earlier record's error comes first, as with one thread
                 throw;
             }
             if (!more) break;
             ++records;
-            if (regions.empty() && o.inputs.size() > 1)
-                check_unique_name(names, input, job->contig.name);
+            if (regions.empty() && o.inputs.size() > 1) names.check(input, job->contig.name);
             if (!shard.take(job->contig)) continue;  // another shard's record
             job->input_index = shard.record_index();
             if (shard.split()) {  // this shard's segments of a shared record
@@ -582,6 +596,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     }
     pipeline.drain();
     run.progress.finish();
+    run.empty_records.finish();
     shard.finish();
     // Nothing decoded is a wrong input, not a result (a shard may hold no record of a small input).
     if (run.summary.contigs() == 0 && run.shared.empty() && !o.shard.active())
@@ -599,8 +614,12 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     if (o.shard.active())
         info.shard = std::make_shared<const nlohmann::ordered_json>(
             shard_section(shard, *info.options, info.profile_checksum, run.kept, run.shared));
-    if (!o.shard.active())  // a shard sees part of the input: merge judges the whole
-        for (const DepletionWarning& w : run.summary.depletion_warnings()) log.warn(w.message);
+    if (!o.shard.active()) {  // a shard sees part of the input: merge judges the whole
+        RepeatedWarning undepleted(log, "records whose CpG is not depleted");
+        for (const DepletionWarning& w : run.summary.depletion_warnings())
+            undepleted.warn(w.message);
+        undepleted.finish();
+    }
     write_run_documents(run, info, profile, call_options, clock);
 }
 

@@ -8,11 +8,10 @@
 #include <sys/stat.h>
 
 #include <algorithm>
-#include <fstream>
 #include <numeric>
-#include <sstream>
 #include <unordered_map>
 
+#include "fai_index.hpp"
 #include "shard_internal.hpp"
 #include "summary_internal.hpp"
 #include "tidemark/error.hpp"
@@ -23,6 +22,9 @@
 namespace tidemark {
 namespace {
 
+using detail::FaiEntry;
+using detail::read_fai;
+
 constexpr int max_shards = 100000;
 
 bool parse_int(const std::string& s, int& out) {
@@ -31,50 +33,6 @@ bool parse_int(const std::string& s, int& out) {
         return false;
     out = std::stoi(s);
     return true;
-}
-
-// One line of a faidx index: NAME, LENGTH, OFFSET, LINEBASES, LINEWIDTH (tab-separated).
-struct FaiEntry {
-    std::string name;
-    int64_t length = 0;
-    bool has_layout = false;  ///< OFFSET, LINEBASES and LINEWIDTH read, LINEBASES > 0
-    int64_t offset = 0, line_bases = 0, line_bytes = 0;
-};
-
-// The index's lines. Throws InputError naming the line when NAME or LENGTH is missing or bad
-// (the index must be rebuilt); a line without a usable layout has has_layout false.
-std::vector<FaiEntry> read_fai(const std::string& fai_path) {
-    std::ifstream in(fai_path);
-    if (!in) throw InputError(fai_path + ": cannot open the index");
-    std::vector<FaiEntry> entries;
-    std::string line;
-    int64_t number = 0;
-    while (std::getline(in, line)) {
-        ++number;
-        const auto tab = line.find('\t');
-        const auto tab2 = tab == std::string::npos ? tab : line.find('\t', tab + 1);
-        if (tab == std::string::npos || tab == 0)
-            throw InputError(
-                fmt::format("{}: line {}: not a faidx index line (NAME<TAB>LENGTH...); delete "
-                            "the index and rerun",
-                            fai_path, number));
-        FaiEntry e;
-        e.name = line.substr(0, tab);
-        try {
-            e.length = std::stoll(line.substr(
-                tab + 1, tab2 == std::string::npos ? std::string::npos : tab2 - tab - 1));
-        } catch (const std::exception&) {
-            throw InputError(fmt::format(
-                "{}: line {}: bad sequence length; delete the index and rerun", fai_path, number));
-        }
-        if (tab2 != std::string::npos) {
-            std::istringstream layout(line.substr(tab2 + 1));
-            e.has_layout = static_cast<bool>(layout >> e.offset >> e.line_bases >> e.line_bytes) &&
-                           e.line_bases > 0;
-        }
-        entries.push_back(std::move(e));
-    }
-    return entries;
 }
 
 // True when the index lists every record of PATH, so that a shard may read only its own records

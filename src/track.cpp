@@ -85,6 +85,8 @@ std::string format_gff3_header() {
 }
 
 std::string format_gff3_sequence_region(const Contig& contig) {
+    // GFF3 needs start <= end in ##sequence-region, which an empty record (1 0) breaks.
+    if (contig.full_length() == 0) return "";
     return fmt::format("##sequence-region {} 1 {}\n", gff3_escape(contig.name, true),
                        contig.full_length());
 }

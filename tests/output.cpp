@@ -66,6 +66,26 @@ TEST_CASE("an output abandoned by an exception leaves the old file and no tempor
     CHECK_FALSE(exists(fresh));
 }
 
+TEST_CASE("a tabix index that cannot be built leaves the earlier data and index as they were",
+          "[output]") {
+    // htslib's tabix indexer refuses lines out of position order (hts_idx_push: "unsorted
+    // positions"), which stands in here for any failure of the index.
+    test::TempFile old("earlier data\n", ".bed.gz");
+    const std::string earlier_index = old.path() + ".tbi";
+    std::ofstream(earlier_index) << "earlier index\n";
+    OutputFormat format;
+    format.bgzip = true;
+    format.tabix = true;
+    {
+        OutputFile out(old.path(), format);
+        out.write("chr1\t100\t200\nchr1\t10\t20\n");
+        CHECK_THROWS_AS(out.commit(), IoError);
+    }
+    CHECK(slurp(old.path()) == "earlier data\n");
+    CHECK(slurp(earlier_index) == "earlier index\n");
+    CHECK(files_in(old.dir()) == 2);  // no temporary data or index left behind
+}
+
 TEST_CASE("write errors are reported", "[output]") {
     // A full disk on standard output is exercised end to end in tests/cli (/dev/full).
     CHECK_THROWS_AS(OutputFile("/nonexistent-folder/x.bed"), IoError);

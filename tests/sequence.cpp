@@ -1,10 +1,14 @@
 // FASTA reader, compression handling, faidx regions and composition, on hand-made inputs.
 #include "tidemark/sequence.hpp"
 
+#include <htslib/faidx.h>
+
 #include <catch2/catch.hpp>
 #include <cstdlib>
 #include <fstream>
+#include <sstream>
 
+#include "fai_index.hpp"
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
 
@@ -147,6 +151,56 @@ TEST_CASE("compressed FASTA: gzip, bgzip, xz, bzip2, zstd and truncation", "[seq
     }
 }
 
+TEST_CASE("the faidx index is htslib's, also where htslib 1.16 cannot build one", "[sequence]") {
+    const auto slurp = [](const std::string& path) {
+        std::ifstream in(path);
+        std::stringstream s;
+        s << in.rdbuf();
+        return s.str();
+    };
+    // Oracle: htslib's own builder (fai_build3), on the files it indexes.
+    const auto htslib_index = [&](const std::string& text, const std::string& suffix) {
+        TempFile f(text, ".fa");
+        std::string path = f.path();
+        if (suffix == ".gz") {
+            REQUIRE(std::system(("bgzip -f " + f.path()).c_str()) == 0);
+            path += ".gz";
+        }
+        REQUIRE(fai_build3(path.c_str(), (path + ".h.fai").c_str(), (path + ".h.gzi").c_str()) ==
+                0);
+        return slurp(path + ".h.fai");
+    };
+    const auto our_index = [&](const std::string& text, const std::string& suffix) {
+        TempFile f(text, ".fa");
+        std::string path = f.path();
+        if (suffix == ".gz") {
+            REQUIRE(std::system(("bgzip -f " + f.path()).c_str()) == 0);
+            path += ".gz";
+        }
+        REQUIRE(detail::build_fai(path, path + ".t.fai", path + ".t.gzi").empty());
+        return slurp(path + ".t.fai");
+    };
+    const std::string lf = ">a x\nACGTA\nCGTAC\nGT\n>e\n>b\nNNNN\nAC\n\n>c\nACGTACGTACGT\n";
+    std::string crlf;
+    for (char c : lf) crlf += c == '\n' ? std::string("\r\n") : std::string(1, c);
+    for (const std::string suffix : {"", ".gz"}) {
+        INFO("suffix '" << suffix << "'");
+        CHECK(our_index(lf, suffix) == htslib_index(lf, suffix));
+        CHECK(our_index(crlf, suffix) == htslib_index(crlf, suffix));
+        // An empty last record: htslib 1.16 fails; its index is that of the file without it.
+        CHECK(our_index(lf + ">last\n", suffix) == htslib_index(lf, suffix));
+    }
+    // CR-only line ends: htslib 1.16 fails; the layout is the LF file's, offsets and widths
+    // the same since a lone CR is one byte like LF.
+    std::string cr = lf;
+    for (char& c : cr)
+        if (c == '\n') c = '\r';
+    CHECK(our_index(cr, "") == htslib_index(lf, ""));
+    TempFile ragged(">a\nACGT\nAC\nACGT\n", ".fa");
+    CHECK(detail::build_fai(ragged.path(), ragged.path() + ".fai", "")
+              .find("line 4: record 'a' has lines of different lengths") != std::string::npos);
+}
+
 TEST_CASE("regions through faidx", "[sequence]") {
     TempFile f(">chr1 desc\nACGTACGTAC\nGTACG\n>chr2\nNNNNAAAA\n", ".fa");
     SECTION("strings resolve 1-based inclusive; whole contigs; index order") {
@@ -192,6 +246,16 @@ TEST_CASE("regions through faidx", "[sequence]") {
         CHECK(error_of([&] {
                   resolve_regions(f.path(), {"chr1:1-5", "chr1:5-8"}, {});
               }).find("overlap") != std::string::npos);
+    }
+    SECTION("an empty record is named as such, also the last one") {
+        TempFile e(">a\nACGT\n>e\n>b\nAC\n>z\n", ".fa");
+        CHECK(error_of([&] {
+                  resolve_regions(e.path(), {"e"}, {});
+              }).find("record 'e' of " + e.path() + " is empty (0 bases)") != std::string::npos);
+        CHECK(error_of([&] {
+                  resolve_regions(e.path(), {"z:1-5"}, {});
+              }).find("record 'z' of " + e.path() + " is empty") != std::string::npos);
+        CHECK(resolve_regions(e.path(), {"b"}, {}).at(0).end == 2);
     }
     SECTION("plain gzip cannot be read by region; bgzip can") {
         const std::string gz = f.dir() + "/p.fa.gz";

@@ -1,7 +1,9 @@
 // Talk on stderr: one levelled logger passed to whoever needs to report (stdout stays data).
 #pragma once
 
+#include <cstdint>
 #include <cstdio>
+#include <string>
 #include <string_view>
 
 namespace tidemark {
@@ -29,6 +31,33 @@ private:
     }
     LogLevel level_;
     std::FILE* out_;
+};
+
+/// A warning that can come once per record (millions of times): the first `listed` are
+/// written, the rest only counted, and finish() writes one line with the count. Warnings are
+/// shown at every level, -q included, so folding is what keeps -q short.
+class RepeatedWarning {
+public:
+    /// `what`: the plural noun phrase the count line uses ("empty records").
+    RepeatedWarning(const Logger& log, std::string what, int64_t listed = 5)
+        : log_(log), what_(std::move(what)), listed_(listed) {}
+    void warn(std::string_view msg) {
+        if (count_++ < listed_) log_.warn(msg);
+    }
+    /// The count line, when some were not listed (once).
+    void finish() {
+        if (count_ > listed_)
+            log_.warn(std::to_string(count_ - listed_) + " more " + what_ + " (" +
+                      std::to_string(count_) + " in all; only the first " +
+                      std::to_string(listed_) + " are listed)");
+        count_ = 0;
+    }
+
+private:
+    const Logger& log_;
+    std::string what_;
+    int64_t listed_;
+    int64_t count_ = 0;
 };
 
 }  // namespace tidemark

@@ -14,7 +14,9 @@ namespace tidemark {
 /// How an output is encoded.
 struct OutputFormat {
     bool bgzip = false;  ///< BGZF-compress (htslib), readable by gzip and indexable by tabix
-    bool tabix = false;  ///< also write PATH.tbi (BED coordinates); needs bgzip, a regular file
+    /// also write a tabix index (BED coordinates): PATH.tbi, or PATH.csi when a position is past
+    /// the .tbi limit of 2^29; needs bgzip, a regular file
+    bool tabix = false;
     int skip_lines = 0;  ///< leading lines the index must skip (a browser `track` line)
 };
 
@@ -43,10 +45,11 @@ private:
 };
 
 /// An output file ("-" = stdout). Data goes to a temporary file in the target's folder;
-/// commit() flushes, closes and renames it over the target. If commit() is never reached
-/// (an exception, or SIGINT/SIGTERM with install_output_signal_handlers()), the temporary
-/// file is removed and an existing target is left untouched. A target that is a device or a
-/// FIFO (e.g. /dev/stdout) is written in place.
+/// commit() flushes, closes and renames it over the target (with its tabix index, built before
+/// either is renamed, so that a failed index leaves the earlier files as they were). If commit() is
+/// never reached (an exception, or SIGINT/SIGTERM with install_output_signal_handlers()), the
+/// temporary file is removed and an existing target is left untouched. A target that is a device or
+/// a FIFO (e.g. /dev/stdout) is written in place.
 class OutputFile {
 public:
     explicit OutputFile(std::string path, OutputFormat format = {});
@@ -62,7 +65,7 @@ public:
     bool is_stdout() const { return stdout_; }
 
 private:
-    void build_index();
+    std::unique_ptr<StagedPath> build_index() const;
 
     std::string path_;
     std::unique_ptr<StagedPath> staged_;

@@ -41,6 +41,13 @@ std::string format_gff3_sequence_region(const Contig& contig);
 std::string format_gff3_feature(const Model& model, const Contig& contig, const Call& call,
                                 int64_t serial);
 
+/// The longest sequence a bigWig can hold: its coordinates are 32-bit.
+constexpr int64_t bigwig_max_length = 0xFFFFFFFF;
+
+/// Throws InputError naming the record when it is longer than bigwig_max_length; called as soon
+/// as a record's length is known, before it is decoded, when bigWig tracks are asked for.
+void check_bigwig_length(const std::string& name, int64_t length);
+
 /// Collects bedGraph-like intervals and writes a bigWig file with libBigWig at close(); the
 /// sequence list (needed by the bigWig header) grows as sequences are added.
 class BigWigWriter {

@@ -50,8 +50,9 @@ void add_merge(CLI::App& app, Context& ctx) {
         ->group(output);
     cmd->add_option("--chrom-sizes", opts->chrom_sizes_path, "merged chrom sizes (name<TAB>length)")
         ->group(output);
-    cmd->add_flag("--bgzip", opts->bgzip,
-                  "bgzip the merged BED and bedGraph files and write tabix indexes")
+    cmd->add_flag(
+           "--bgzip", opts->bgzip,
+           "bgzip the merged BED and bedGraph files and write tabix indexes (.tbi; .csi past 2^29)")
         ->group(output);
     cmd->add_flag("-q,--quiet", *quiet, "only errors and warnings on stderr");
 

@@ -113,8 +113,9 @@ void add_scan(CLI::App& app, Context& ctx) {
         ->check(CLI::IsMember({"plain", "browser"}))
         ->capture_default_str()
         ->group(output);
-    cmd->add_flag("--bgzip", opts->bgzip,
-                  "bgzip-compress BED and bedGraph outputs and write tabix indexes (.tbi)")
+    cmd->add_flag(
+           "--bgzip", opts->bgzip,
+           "bgzip-compress BED and bedGraph outputs and write tabix indexes (.tbi; .csi past 2^29)")
         ->group(output);
     cmd->add_option("--gff3", opts->gff3_path, "also write the calls as GFF3")->group(output);
     cmd->add_option("--chrom-sizes", opts->chrom_sizes_path,
