@@ -211,6 +211,7 @@ PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options, bool 
             format.bgzip = options_.bgzip;
             format.tabix = options_.bgzip;
             format.skip_lines = options_.track_line ? 1 : 0;
+            format.threads = options_.threads;
             t->file = std::make_unique<OutputFile>(t->path, format);
             if (options_.track_line)
                 t->buffer = fmt::format(
