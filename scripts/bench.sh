@@ -8,7 +8,7 @@ set -euo pipefail
 usage() {
     cat <<'EOF'
 usage: scripts/bench.sh [--quick] [--repeats N] [--build-dir DIR] [--no-real] [--threads-only]
-                        [--shapes-only] [--compare OLD_TIDEMARK]
+                        [--shapes-only] [--outputs-only] [--compare OLD_TIDEMARK]
 
 Builds tidemark (Release) and the benchmark helpers in DIR (default: build-bench at the top of
 the repository), checks on a small input that tidemark and the baseline agree (posteriors to
@@ -32,6 +32,12 @@ bedGraph tracks (time, peak RSS, summary size). Targets: draft Mbp/s >= 0.8x tha
 contig (also for the 3 M records); bigWig within 2x of bedGraph. --shapes-only runs only this part. --compare OLD_TIDEMARK
 also times another build (e.g. of an earlier commit) with 1 thread on each shape, alternating
 with this one, and reports this build's speed over it.
+
+Outputs: tidemark scan -p cpg-island -t 2 on human chrX .fa.gz writing BED only, then each
+output of a browser-ready run (--bgzip BED, bedGraph with and without --bgzip, bigWig, summary
+and report, HTML, GFF3, and all of them with chrom sizes), all rows alternating in each of N
+rounds, fastest kept, each as a ratio to BED only. Targets: all <= 1.3x, bigWig <= 1.15x, bgzip
+bedGraph <= 1.2x. --outputs-only runs only this part.
 EOF
 }
 
@@ -42,6 +48,7 @@ REPEATS=""
 REAL=1
 THREADS_ONLY=0
 SHAPES_ONLY=0
+OUTPUTS_ONLY=0
 COMPARE=""
 while [ $# -gt 0 ]; do
     case "$1" in
@@ -51,6 +58,7 @@ while [ $# -gt 0 ]; do
         --no-real) REAL=0 ;;
         --threads-only) THREADS_ONLY=1 ;;
         --shapes-only) SHAPES_ONLY=1 ;;
+        --outputs-only) OUTPUTS_ONLY=1 ;;
         --compare) COMPARE=${2:?--compare needs a tidemark binary}; shift ;;
         -h|--help) usage; exit 0 ;;
         *) echo "bench: unknown argument '$1'" >&2; usage >&2; exit 2 ;;
@@ -96,7 +104,7 @@ check() {  # name fasta
         --fasta "$fasta" --tolerance 1e-9 | tee -a "$DATA/agreement.txt" >&2
 }
 : >"$DATA/agreement.txt"
-if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ]; then
+if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ] && [ $OUTPUTS_ONLY -eq 0 ]; then
 # Three 100 kbp contigs with islands every ~20 kb and runs of N every ~40 kb, so that unknown
 # bases, contig starts and contexts broken by N are all exercised.
 "$GEN" --length 100000 --contigs 3 --seed 11 --island-spacing 20000 --gap-spacing 40000 \
@@ -175,7 +183,7 @@ bench_input() {  # label fasta bases(or empty: from the baseline's report)
     [ "$same" = yes ] || { log "calls differ between tidemark and the baseline on $label"; FAILED=1; }
 }
 
-[ $THREADS_ONLY -eq 1 ] || [ $SHAPES_ONLY -eq 1 ] && SIZES_MBP=() && REAL=0
+if [ $THREADS_ONLY -eq 1 ] || [ $SHAPES_ONLY -eq 1 ] || [ $OUTPUTS_ONLY -eq 1 ]; then SIZES_MBP=(); SKIP_REAL=1; else SKIP_REAL=0; fi
 for mbp in "${SIZES_MBP[@]}"; do
     fasta=$DATA/synthetic-${mbp}M.fa
     if [ ! -s "$fasta" ]; then
@@ -184,7 +192,7 @@ for mbp in "${SIZES_MBP[@]}"; do
     fi
     bench_input "synthetic ${mbp} Mbp" "$fasta" $((mbp * 1000000))
 done
-if [ $REAL -eq 1 ]; then
+if [ $REAL -eq 1 ] && [ $SKIP_REAL -eq 0 ]; then
     if [ -r "$CHRX" ]; then
         bench_input "human chrX (GRCh37, gz)" "$CHRX"
     else
@@ -226,7 +234,7 @@ bench_threads() {  # label fasta bases
     awk -v label="$label" -v t1="$best1" -v t2="$best2" -v want="$4" 'BEGIN {
         if (t1 / t2 < want) { printf "bench: TARGET MISSED on %s: 2-thread speed-up %.2fx < %.1fx\n", label, t1 / t2, want; exit 1 } }' >&2 || FAILED=1
 }
-if [ $SHAPES_ONLY -eq 0 ]; then
+if [ $SHAPES_ONLY -eq 0 ] && [ $OUTPUTS_ONLY -eq 0 ]; then
     MANY=$DATA/synthetic-100x1M.fa
     if [ ! -s "$MANY" ]; then
         log "generating $MANY"
@@ -279,7 +287,7 @@ shape() {
 target() {
     if awk "BEGIN{exit !($1)}"; then SNOTES+=("- met: $2"); else SNOTES+=("- **MISSED**: $2"); log "TARGET MISSED: $2"; FAILED=1; fi
 }
-if [ $THREADS_ONLY -eq 0 ]; then
+if [ $THREADS_ONLY -eq 0 ] && [ $OUTPUTS_ONLY -eq 0 ]; then
     DRAFT=$DATA/draft-300000x700.fa MID=$DATA/mid-105x2M.fa
     [ -s "$DRAFT" ] || "$TM" simulate -q -p cpg-island --seed 5 --contigs 300000 --length 700 -o "$DRAFT"
     [ -s "$MID" ] || "$TM" simulate -q -p cpg-island --seed 5 --contigs 105 --length 2000000 -o "$MID"
@@ -329,6 +337,49 @@ if [ $THREADS_ONLY -eq 0 ]; then
     fi
 fi
 
+# --- outputs: what a browser-ready run costs over BED alone (chrX, 2 threads) ---------------
+declare -a OROWS=() ONOTES=()
+if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ] && [ -r "$CHRX" ]; then
+    O=$DATA/out
+    OUTPUT_NAMES=("BED only" "--bgzip BED" "--posteriors bedGraph" "--posteriors bedGraph, --bgzip"
+        "--posteriors --track-format bigwig" "--summary --report" "--html" "--gff3"
+        "all (bgzip BED, bigWig, summary, report, HTML, GFF3, chrom sizes)")
+    output_args() {  # row number -> the options of that row
+        case $1 in
+            0) echo "-o $O.bed" ;;
+            1) echo "-o $O.bed.gz --bgzip" ;;
+            2) echo "-o $O.bed --posteriors $O.bg" ;;
+            3) echo "-o $O.bed.gz --posteriors $O.bgz --bgzip" ;;
+            4) echo "-o $O.bed --posteriors $O.bw --track-format bigwig" ;;
+            5) echo "-o $O.bed --summary $O.json --report $O.report.json" ;;
+            6) echo "-o $O.bed --html $O.html" ;;
+            7) echo "-o $O.bed --gff3 $O.gff3" ;;
+            8) echo "-o $O.all.bed.gz --bgzip --posteriors $O.all --track-format bigwig --summary $O.json --report $O.report.json --html $O.html --gff3 $O.gff3 --chrom-sizes $O.sizes" ;;
+        esac
+    }
+    declare -a OBEST=()
+    log "timing chrX with each output, 2 threads ($REPEATS rounds, rows alternating)"
+    for ((r = 1; r <= REPEATS; r++)); do
+        for i in "${!OUTPUT_NAMES[@]}"; do
+            # shellcheck disable=SC2046  # the options are words without spaces
+            best_of outputs 1 "$TM" scan -q -t 2 -p cpg-island "$CHRX" $(output_args "$i")
+            if [ -z "${OBEST[$i]:-}" ] || awk "BEGIN{exit !($BEST < ${OBEST[$i]})}"; then OBEST[$i]=$BEST; fi
+        done
+    done
+    for i in "${!OUTPUT_NAMES[@]}"; do
+        OROWS+=("$(awk -v label="${OUTPUT_NAMES[$i]}" -v t="${OBEST[$i]}" -v t0="${OBEST[0]}" 'BEGIN {
+            printf "| %s | %.2f | **%.2fx** |", label, t, t / t0 }')")
+    done
+    ratio() { awk -v t="${OBEST[$1]}" -v t0="${OBEST[0]}" 'BEGIN{printf "%.2f", t / t0}'; }
+    ONOTES=()
+    otarget() {  # OK_EXPRESSION TEXT
+        if awk "BEGIN{exit !($1)}"; then ONOTES+=("- met: $2"); else ONOTES+=("- **MISSED**: $2"); log "TARGET MISSED: $2"; FAILED=1; fi
+    }
+    otarget "$(ratio 8) <= 1.3" "all outputs $(ratio 8)x BED only (<= 1.3x)"
+    otarget "$(ratio 4) <= 1.15" "bigWig $(ratio 4)x BED only (<= 1.15x)"
+    otarget "$(ratio 3) <= 1.2" "bgzip bedGraph $(ratio 3)x BED only (<= 1.2x)"
+fi
+
 # --- report ------------------------------------------------------------------------------
 declare -a ROWS=()
 for raw in "${RAW[@]}"; do
@@ -349,7 +400,7 @@ flat=""
         END { printf "%.1f to %.1f ns/base end to end (max/min %.2f); %.1f to %.1f ns/base (max/min %.2f) net of the %.1f ms start-up",
               lo, hi, hi / lo, nlo, nhi, nhi / nlo, t0 * 1e3 }')
 {
-if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ]; then
+if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ] && [ $OUTPUTS_ONLY -eq 0 ]; then
     echo "### tidemark scan -p cpg-island-2state vs. simple baseline (one thread)"
     echo
     echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//'),"\
@@ -371,7 +422,7 @@ if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ]; then
     echo
     echo
 fi
-if [ $SHAPES_ONLY -eq 0 ]; then
+if [ $SHAPES_ONLY -eq 0 ] && [ $OUTPUTS_ONLY -eq 0 ]; then
     echo "### tidemark scan -p cpg-island-2state with 1 and 2 threads"
     echo
     echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(nproc) cores shared with other work. Fastest of $REPEATS runs each,"\
@@ -382,7 +433,7 @@ if [ $SHAPES_ONLY -eq 0 ]; then
     printf '%s\n' "${TROWS[@]}"
     echo
 fi
-if [ $THREADS_ONLY -eq 0 ]; then
+if [ $THREADS_ONLY -eq 0 ] && [ $OUTPUTS_ONLY -eq 0 ]; then
     echo "### tidemark scan -p cpg-island on input shapes"
     echo
     echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(nproc) cores; fastest of $REPEATS runs, 1 and 2 threads alternating,"\
@@ -396,7 +447,20 @@ if [ $THREADS_ONLY -eq 0 ]; then
     printf '%s\n' "${SNOTES[@]}"
     echo
 fi
-    echo "Command: scripts/bench.sh$([ $QUICK -eq 1 ] && echo ' --quick') --repeats $REPEATS$([ $REAL -eq 1 ] || echo ' --no-real')$([ $THREADS_ONLY -eq 1 ] && echo ' --threads-only')$([ $SHAPES_ONLY -eq 1 ] && echo ' --shapes-only')$([ -n "$COMPARE" ] && echo " --compare $COMPARE")"
+if [ ${#OROWS[@]} -gt 0 ]; then
+    echo "### tidemark scan -p cpg-island -t 2 on human chrX 1-70 Mb (.fa.gz) with each output"
+    echo
+    echo "$(date -u '+%Y-%m-%d %H:%M UTC'); $(nproc) cores shared with other work. Fastest of $REPEATS rounds,"\
+         "all rows alternating within a round; '× BED' = the row's time over BED only."
+    echo
+    echo "| outputs | seconds | × BED |"
+    echo "|---|---:|---:|"
+    printf '%s\n' "${OROWS[@]}"
+    echo
+    printf '%s\n' "${ONOTES[@]}"
+    echo
+fi
+    echo "Command: scripts/bench.sh$([ $QUICK -eq 1 ] && echo ' --quick') --repeats $REPEATS$([ $REAL -eq 1 ] || echo ' --no-real')$([ $THREADS_ONLY -eq 1 ] && echo ' --threads-only')$([ $SHAPES_ONLY -eq 1 ] && echo ' --shapes-only')$([ $OUTPUTS_ONLY -eq 1 ] && echo ' --outputs-only')$([ -n "$COMPARE" ] && echo " --compare $COMPARE")"
 } | tee "$RESULTS"
 log "table written to $RESULTS"
 [ $FAILED -eq 0 ] || { log "some targets were missed (see above)"; exit 1; }

@@ -8,7 +8,7 @@ set -euo pipefail
 tool_packages=(
   build-essential cmake pkg-config
   libhts-dev zlib1g-dev libeigen3-dev libboost-iostreams-dev libcli11-dev
-  nlohmann-json3-dev libfmt-dev libbigwig-dev libcurl4-gnutls-dev libisal-dev libzstd-dev
+  nlohmann-json3-dev libfmt-dev libbigwig-dev libcurl4-gnutls-dev libisal-dev libzstd-dev libdeflate-dev
 )
 # Tests, sanitizer and fuzzing builds, benchmarks and the scale-out workflow.
 test_packages=(

@@ -254,12 +254,12 @@ class ScanJob;
 // What a scan writes, and the run-wide sinks every record's forks join into.
 struct ScanOutputs {
     ScanOutputs(const ScanOptions& options, const Model& region_model, const CallOptions& calling,
-                int64_t total_bases, const Logger& logger)
+                int64_t total_bases, int threads, const Logger& logger)
         : o(options),
           model(region_model),
           log(logger),
           empty_records(logger, "empty records"),
-          bed(o.output, bed_format(o)),
+          bed(o.output, bed_format(o, threads)),
           caller(model, calling),
           totals(model),
           progress(o.progress, total_bases),
@@ -276,6 +276,7 @@ struct ScanOutputs {
         if (!o.tracks.prefix.empty()) {
             TrackOptions t = o.tracks;
             t.bgzip = o.bgzip && t.format == TrackFormat::bedgraph;
+            t.threads = threads;
             tracks = std::make_unique<PosteriorTracks>(model, t);
         }
         if (!o.html_path.empty()) html = std::make_unique<HtmlReport>(model);
@@ -284,8 +285,9 @@ struct ScanOutputs {
     /// Joins a decoded record's forks (in input order) and writes its outputs.
     void finish(ScanJob& job);
 
-    static OutputFormat bed_format(const ScanOptions& o) {
+    static OutputFormat bed_format(const ScanOptions& o, int threads) {
         OutputFormat f;
+        f.threads = threads;
         f.bgzip = o.bgzip;
         f.tabix = o.bgzip;
         f.skip_lines = o.bed_style == BedStyle::browser ? 1 : 0;
@@ -542,7 +544,7 @@ void run_scan(const ScanOptions& o, const Logger& log) {
     const SeamsTable seams =
         o.seams.empty() ? SeamsTable() : SeamsTable(o.seams, identity, o.shard);
 
-    ScanOutputs run(o, model, call_options, total_bases, log);
+    ScanOutputs run(o, model, call_options, total_bases, threads, log);
     // Records are decoded in a pool (small ones batched, long ones over the whole pool) and
     // finished in input order (pipeline.hpp).
     detail::DecodePipeline pipeline(

@@ -40,6 +40,44 @@ std::string gff3_escape(const std::string& text, bool seqid) {
     return out;
 }
 
+// One bedGraph line for a run of value q / 10^digits (q in 0..10^digits). The integer is written
+// as its digits with the point placed `digits` from the right: the text `{:.{digits}f}` gives for
+// the double q / 10^digits (that double is the one nearest a decimal of at most 13 significant
+// digits, so printing it correctly rounded to `digits` decimals gives q back), without a
+// floating-point conversion or a format string.
+void append_bedgraph_line(std::string& out, std::string_view name, int64_t begin, int64_t end,
+                          int64_t q, int digits) {
+    const auto append_integer = [&](int64_t v) {
+        const fmt::format_int text(v);  // digits in a buffer of its own: no locale, no allocation
+        out.append(text.data(), text.size());
+    };
+    int64_t unit = 1;
+    for (int d = 0; d < digits; ++d) unit *= 10;
+    out.append(name);
+    out += '\t';
+    append_integer(begin);
+    out += '\t';
+    append_integer(end);
+    out += '\t';
+    append_integer(q / unit);
+    if (digits > 0) {
+        out += '.';
+        const size_t at = out.size();
+        out.append(static_cast<size_t>(digits), '0');
+        for (int64_t fraction = q % unit, d = digits - 1; fraction > 0; fraction /= 10, --d)
+            out[at + static_cast<size_t>(d)] = static_cast<char>('0' + fraction % 10);
+    }
+    out += '\n';
+}
+
+// std::llround of x for 0 <= x < 2^52 without the library call (x minus its integer part is
+// exact there; halves go up, as llround's do): the per-base rounding of every track value.
+int64_t round_half_up(double x) {
+    if (!(x >= 0 && x < 4503599627370496.0)) return std::llround(x);
+    const auto whole = static_cast<int64_t>(x);
+    return x - static_cast<double>(whole) >= 0.5 ? whole + 1 : whole;
+}
+
 }  // namespace
 
 std::string region_color(const Model& model, int region) {
@@ -215,6 +253,7 @@ PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options, bool 
             format.bgzip = options_.bgzip;
             format.tabix = options_.bgzip;
             format.skip_lines = options_.track_line ? 1 : 0;
+            format.threads = options_.threads;
             t->file = std::make_unique<OutputFile>(t->path, format);
             if (options_.track_line)
                 t->buffer = fmt::format(
@@ -364,8 +403,7 @@ void PosteriorTracks::flush_run(Track& t) {
         const SpooledInterval r{sequence_, begin, end, value};
         t.buffer.append(reinterpret_cast<const char*>(&r), sizeof r);
     } else {
-        fmt::format_to(std::back_inserter(t.buffer), "{}\t{}\t{}\t{:.{}f}\n", contig_->name, begin,
-                       end, value, options_.digits);
+        append_bedgraph_line(t.buffer, contig_->name, begin, end, t.run_value, options_.digits);
     }
     if (t.buffer.size() > (1 << 20)) {
         if (t.spool)
@@ -378,7 +416,7 @@ void PosteriorTracks::flush_run(Track& t) {
 }
 
 void PosteriorTracks::add_value(Track& t, int64_t begin, int64_t end, double p) {
-    const int64_t q = std::llround(std::clamp(p, 0.0, 1.0) * scale_);
+    const int64_t q = round_half_up(std::clamp(p, 0.0, 1.0) * scale_);
     if (q == t.run_value) {
         t.run_end = end;
         return;

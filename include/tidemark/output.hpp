@@ -18,6 +18,9 @@ struct OutputFormat {
     /// the .tbi limit of 2^29; needs bgzip, a regular file
     bool tabix = false;
     int skip_lines = 0;  ///< leading lines the index must skip (a browser `track` line)
+    /// bgzip: threads that compress BGZF blocks (and read them back for the index); the bytes
+    /// written are the same for any count, since blocks are cut and compressed alike
+    int threads = 1;
 };
 
 /// A temporary path beside a target file, registered for removal on SIGINT/SIGTERM/SIGHUP.

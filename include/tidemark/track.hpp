@@ -138,6 +138,7 @@ struct TrackOptions {
     TrackFormat format = TrackFormat::bedgraph;
     bool bgzip = false;       ///< bedGraph only: BGZF-compress and tabix-index
     bool track_line = false;  ///< bedGraph only: start with a browser `track` line
+    int threads = 1;          ///< bgzip: threads compressing each file (OutputFormat::threads)
 };
 
 /// Writes one posterior track per reportable region: P(region) per base (or bin mean), rounded
