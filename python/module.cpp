@@ -4,9 +4,11 @@
 #include <pybind11/numpy.h>
 #include <pybind11/pybind11.h>
 #include <pybind11/stl.h>
+#include <sys/mman.h>
 
 #include <algorithm>
 #include <cmath>
+#include <cstdlib>
 #include <memory>
 #include <optional>
 #include <string>
@@ -104,11 +106,38 @@ struct DecodeSettings {
     DecodeMode mode = DecodeMode::posterior;
     std::vector<std::string> columns;  ///< region types of the posterior array ([] = reported)
     bool float32 = false;
+    bool posteriors = true;  ///< false: no posterior array (calls, log-likelihood, path only)
     int threads = 0;
     SoftMasked soft_masked = SoftMasked::base;
     ScanOptions calling;  ///< only the calling fields are read (calling_options)
     int64_t block_size = 0;
 };
+
+/// The arrays handed to numpy: left uninitialised (the sink writes every cell) and, from 2 MiB on,
+/// in transparent huge pages where the kernel offers them on request (madvise mode, Debian's
+/// default): a chromosome's array is hundreds of MiB, whose 4-KiB page faults cost about half as
+/// much time again as decoding it.
+struct Freed {
+    void operator()(void* p) const { std::free(p); }
+};
+template <class T>
+using Buffer = std::unique_ptr<T[], Freed>;
+
+template <class T>
+Buffer<T> allocate(size_t n) {
+    constexpr size_t huge = size_t{2} << 20;
+    const size_t bytes = std::max<size_t>(n * sizeof(T), 1);
+    if (bytes < huge) {
+        void* p = std::malloc(bytes);
+        if (!p) throw std::bad_alloc();
+        return Buffer<T>(static_cast<T*>(p));
+    }
+    const size_t rounded = (bytes + huge - 1) / huge * huge;
+    void* p = std::aligned_alloc(huge, rounded);
+    if (!p) throw std::bad_alloc();
+    madvise(p, rounded, MADV_HUGEPAGE);  // advice only: without huge pages it is a no-op
+    return Buffer<T>(static_cast<T*>(p));
+}
 
 /// Sums the state posteriors of each block into per-region columns of a caller-owned array
 /// (rows = bases) and, for Viterbi, records the path's region per base. Forks write into the same
@@ -126,25 +155,31 @@ public:
         }
     }
     void block(const BlockView& v) override {
-        const int S = v.states;
+        const int64_t S = v.states;
         const size_t C = states_of_column_.size();
-        for (int64_t t = 0; t < v.size; ++t) {
-            const double* post = v.posterior + t * S;
-            T* row = out_ + static_cast<size_t>(v.begin + t) * C;
-            // State by state in index order, as the bedGraph tracks sum (track.cpp), so that
-            // the values are those the command line prints.
-            for (size_t c = 0; c < C; ++c) {
-                double p = 0;
-                for (int s : states_of_column_[c]) p += post[s];
-                row[c] = static_cast<T>(p);
+        for (size_t c = 0; c < C; ++c) {
+            const std::vector<int>& states = states_of_column_[c];
+            T* out = out_ + static_cast<size_t>(v.begin) * C + c;
+            // State by state in index order from 0, as the bedGraph tracks sum (track.cpp), so
+            // that the values are those the command line prints (0 + p is p).
+            if (states.size() == 1) {
+                const double* post = v.posterior + states[0];
+                for (int64_t t = 0; t < v.size; ++t) out[t * C] = static_cast<T>(post[t * S]);
+                continue;
             }
-            if (path_)
-                for (int s = 0; s < S; ++s)
-                    if (post[s] == 1.0) {
+            for (int64_t t = 0; t < v.size; ++t) {
+                double p = 0;
+                for (int s : states) p += v.posterior[t * S + s];
+                out[t * C] = static_cast<T>(p);
+            }
+        }
+        if (path_)
+            for (int64_t t = 0; t < v.size; ++t)
+                for (int64_t s = 0; s < S; ++s)
+                    if (v.posterior[t * S + s] == 1.0) {
                         path_[v.begin + t] = static_cast<int16_t>(model_.region_of_state[s]);
                         break;
                     }
-        }
     }
     std::unique_ptr<DecodeSink> fork() const override { return std::make_unique<ArraySink>(*this); }
 
@@ -199,31 +234,33 @@ public:
         int64_t offset = 0, length = 0, full_length = 0, soft_masked = 0, unknown = 0;
         double log_likelihood = 0;
         std::vector<Call> calls;
-        // Left uninitialised (every cell is written by the sink): a chromosome's array is
-        // hundreds of MiB that zeroing would touch once more.
-        std::unique_ptr<double[]> posterior64;
-        std::unique_ptr<float[]> posterior32;
-        std::unique_ptr<int16_t[]> path;
+        Buffer<double> posterior64;
+        Buffer<float> posterior32;
+        Buffer<int16_t> path;
     };
 
     /// Decodes one contig; call without the GIL.
     Result run(const Contig& contig) {
         Result r;
-        const size_t cells = static_cast<size_t>(contig.length) * columns_.size();
+        const std::vector<int> no_columns;
+        const std::vector<int>& columns = settings_.posteriors ? columns_ : no_columns;
+        const size_t cells = static_cast<size_t>(contig.length) * columns.size();
         std::unique_ptr<DecodeSink> array;
         if (settings_.mode == DecodeMode::viterbi)
-            r.path.reset(new int16_t[static_cast<size_t>(contig.length)]);
+            r.path = allocate<int16_t>(static_cast<size_t>(contig.length));
         int16_t* path = r.path.get();
-        if (settings_.float32) {
-            r.posterior32.reset(new float[cells]);
-            array = std::make_unique<ArraySink<float>>(model_, columns_, r.posterior32.get(), path);
+        if (!settings_.posteriors && !path) {
+            // calls only
+        } else if (settings_.float32) {
+            r.posterior32 = allocate<float>(cells);
+            array = std::make_unique<ArraySink<float>>(model_, columns, r.posterior32.get(), path);
         } else {
-            r.posterior64.reset(new double[cells]);
-            array =
-                std::make_unique<ArraySink<double>>(model_, columns_, r.posterior64.get(), path);
+            r.posterior64 = allocate<double>(cells);
+            array = std::make_unique<ArraySink<double>>(model_, columns, r.posterior64.get(), path);
         }
         IntervalCaller caller(model_, call_options_);
-        SinkFanout sinks({array.get(), &caller});
+        SinkFanout sinks(array ? std::vector<DecodeSink*>{array.get(), &caller}
+                               : std::vector<DecodeSink*>{&caller});
         DecodeResult result;
         if (decoding_model_.window > 0) {
             WindowExpander bases(decoding_model_, sinks);
@@ -262,9 +299,9 @@ private:
 
 /// numpy array over a buffer it takes ownership of (freed with the array).
 template <class T>
-py::array adopt(std::unique_ptr<T[]> data, std::vector<py::ssize_t> shape) {
+py::array adopt(Buffer<T> data, std::vector<py::ssize_t> shape) {
     T* raw = data.release();
-    py::capsule owner(raw, [](void* p) { delete[] static_cast<T*>(p); });
+    py::capsule owner(raw, [](void* p) { std::free(p); });
     return py::array_t<T>(shape, raw, owner);
 }
 
@@ -293,8 +330,12 @@ Decoded to_python(Engine::Result r, const std::shared_ptr<Engine>& engine) {
     d.columns = engine->column_names();
     const std::vector<py::ssize_t> shape{static_cast<py::ssize_t>(r.length),
                                          static_cast<py::ssize_t>(d.columns.size())};
-    d.posteriors = r.posterior32 ? adopt(std::move(r.posterior32), shape)
-                                 : adopt(std::move(r.posterior64), shape);
+    if (!engine->settings().posteriors)
+        d.posteriors = py::none();
+    else if (r.posterior32)
+        d.posteriors = adopt(std::move(r.posterior32), shape);
+    else
+        d.posteriors = adopt(std::move(r.posterior64), shape);
     d.path = r.path ? py::object(adopt(std::move(r.path), {static_cast<py::ssize_t>(r.length)}))
                     : py::none();
     d.calls = std::move(r.calls);
@@ -310,7 +351,7 @@ DecodeMode parse_mode(const std::string& method) {
 
 DecodeSettings make_settings(const py::object& profile, const std::string& method,
                              const std::vector<std::string>& region_types, const std::string& dtype,
-                             int threads, const std::string& soft_masked,
+                             bool posteriors, int threads, const std::string& soft_masked,
                              std::optional<double> min_posterior, std::optional<int64_t> merge_gap,
                              std::optional<int64_t> min_length, double high_posterior,
                              const std::string& criteria, int64_t block_size) {
@@ -321,6 +362,7 @@ DecodeSettings make_settings(const py::object& profile, const std::string& metho
     if (dtype != "float64" && dtype != "float32")
         throw UsageError("dtype must be 'float64' or 'float32', not '" + dtype + "'");
     s.float32 = dtype == "float32";
+    s.posteriors = posteriors;
     s.threads = threads;
     s.soft_masked = parse_soft_masked(soft_masked);
     s.calling.min_posterior = min_posterior;
@@ -651,20 +693,20 @@ PYBIND11_MODULE(_tidemark, m) {
         .def("__iter__", [](RecordIterator& it) -> RecordIterator& { return it; })
         .def("__next__", &RecordIterator::next);
 
-    const auto engine_of = [](const py::object& profile, const std::string& method,
-                              const std::vector<std::string>& region_types,
-                              const std::string& dtype, int threads, const std::string& soft_masked,
-                              std::optional<double> min_posterior, std::optional<int64_t> merge_gap,
-                              std::optional<int64_t> min_length, double high_posterior,
-                              const std::string& criteria, int64_t block_size) {
-        return std::make_shared<Engine>(
-            make_settings(profile, method, region_types, dtype, threads, soft_masked, min_posterior,
-                          merge_gap, min_length, high_posterior, criteria, block_size));
-    };
+    const auto engine_of =
+        [](const py::object& profile, const std::string& method,
+           const std::vector<std::string>& region_types, const std::string& dtype, bool posteriors,
+           int threads, const std::string& soft_masked, std::optional<double> min_posterior,
+           std::optional<int64_t> merge_gap, std::optional<int64_t> min_length,
+           double high_posterior, const std::string& criteria, int64_t block_size) {
+            return std::make_shared<Engine>(make_settings(
+                profile, method, region_types, dtype, posteriors, threads, soft_masked,
+                min_posterior, merge_gap, min_length, high_posterior, criteria, block_size));
+        };
     m.def("_engine", engine_of, py::arg("profile"), py::arg("method"), py::arg("region_types"),
-          py::arg("dtype"), py::arg("threads"), py::arg("soft_masked"), py::arg("min_posterior"),
-          py::arg("merge_gap"), py::arg("min_length"), py::arg("high_posterior"),
-          py::arg("criteria"), py::arg("block_size"));
+          py::arg("dtype"), py::arg("posteriors"), py::arg("threads"), py::arg("soft_masked"),
+          py::arg("min_posterior"), py::arg("merge_gap"), py::arg("min_length"),
+          py::arg("high_posterior"), py::arg("criteria"), py::arg("block_size"));
     m.def(
         "_decode_text",
         [](const std::shared_ptr<Engine>& engine, const py::object& sequence,

@@ -78,7 +78,8 @@ class Decoding:
     """One decoded sequence (a record, a region of one, or an in-memory sequence).
 
     posteriors   numpy array, one row per base and one column per region type in region_types:
-                 P(region | whole sequence) (posterior method), or 0/1 along the Viterbi path
+                 P(region | whole sequence) (posterior method), or 0/1 along the Viterbi path;
+                 None when decoded with dtype=None
     log_likelihood  ln P(sequence | profile) (posterior) or ln P(sequence, best path) (viterbi)
     path         viterbi only: per base, the path's region as an index into path_regions (int16)
     calls        list of Call, as `tidemark scan` calls them with the same options
@@ -130,15 +131,18 @@ def _engine(profile, method, region_types, dtype, threads, soft_masked, min_post
             min_length, high_posterior, criteria, block_size):
     if isinstance(region_types, str):
         region_types = [region_types]
-    return _tidemark._engine(profile, method, list(region_types or []), str(dtype), threads, soft_masked,
-                             min_posterior, merge_gap, min_length, high_posterior, criteria, block_size)
+    posteriors = dtype is not None
+    return _tidemark._engine(profile, method, list(region_types or []), str(dtype or "float64"), posteriors,
+                             threads, soft_masked, min_posterior, merge_gap, min_length, high_posterior,
+                             criteria, block_size)
 
 
 _DECODE_OPTIONS = """
     profile         built-in name, profile file or Profile [cpg-island]
     method          'posterior' (exact posteriors) or 'viterbi' (best path), as scan --decode
     region_types    columns of posteriors: region type names [the profile's reported ones]
-    dtype           'float64' or 'float32'
+    dtype           'float64', 'float32', or None: no posterior array (calls, log-likelihood and
+                    Viterbi path only; what a whole genome's calls need)
     threads         decoding threads for long sequences (0 = every core); results never depend on it
     soft_masked     lowercase bases: 'base' or 'unknown', as scan --soft-masked
     min_posterior, merge_gap, min_length   calling options [the profile's defaults]

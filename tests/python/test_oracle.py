@@ -80,6 +80,8 @@ def test_threads_dtype_and_text_input_agree(tmp_path):
     f32 = tidemark.decode(contig.sequence, dtype="float32", threads=1, block_size=4096)
     assert f32.posteriors.dtype == np.float32
     assert np.array_equal(f32.posteriors, one.posteriors.astype(np.float32)), "numpy astype(float32)"
+    bare = tidemark.decode(contig.sequence, threads=1, block_size=4096, dtype=None, name=contig.name)
+    assert bare.posteriors is None and bare.bed() == one.bed() and bare.log_likelihood == one.log_likelihood
     path = tmp_path / "one.fa"
     path.write_text(f">{contig.name}\n" + "\n".join(contig.sequence[i:i + 70]
                                                     for i in range(0, len(contig.sequence), 70)) + "\n")
