@@ -183,6 +183,10 @@ def test_fit_equals_cli(cli, tmp_path):
         doc["provenance"].pop("command_line")
     assert got == expected, "tidemark fit --max-iter 3 (command line), provenance's command line aside"
     assert fitted.provenance["iterations"] == 3
+    # a Profile object as the start gives the same fit as its name
+    again = json.loads(tidemark.fit(LAMBDA, tidemark.load_profile("cpg-island-2state"), max_iter=3).to_json())
+    again["provenance"].pop("command_line")
+    assert again == expected, "tidemark fit --max-iter 3 (command line), from a Profile object"
 
 
 def test_profiles_match_cli(cli):
