@@ -42,7 +42,27 @@ def enumerate_paths(t, seq):
     return math.log(total), [[m / total for m in row] for row in marginal]
 
 
-def check_consumer(checks, cmake, prefix, source, binary, workdir):
+def cache_value(build, name):
+    """A variable of BUILD/CMakeCache.txt ('' when absent)."""
+    with open(os.path.join(build, "CMakeCache.txt"), encoding="utf-8") as f:
+        for line in f:
+            if line.startswith(name + ":"):
+                return line.split("=", 1)[1].strip()
+    return ""
+
+
+def sanitized(build):
+    """The sanitizer build (scripts/test.sh, build-asan): what a program that links its library
+    needs, and what python3 needs to load its module (the ASan runtime first)."""
+    if cache_value(build, "TIDEMARK_SANITIZE").upper() not in ("ON", "TRUE", "1"):
+        return [], {}
+    flags = "-fsanitize=address,undefined"
+    libasan = run([cache_value(build, "CMAKE_CXX_COMPILER"), "-print-file-name=libasan.so"]).stdout.strip()
+    return ([f"-DCMAKE_CXX_FLAGS={flags}", f"-DCMAKE_EXE_LINKER_FLAGS={flags}"],
+            {"LD_PRELOAD": libasan, "ASAN_OPTIONS": "detect_leaks=0"})
+
+
+def check_consumer(checks, cmake, prefix, source, binary, workdir, build):
     for path in ("include/tidemark/decode.hpp", "include/tidemark/profile.hpp"):
         checks.check(os.path.isfile(os.path.join(prefix, path)), f"installed {path}", "CMake install")
     libs = [d for d in os.listdir(prefix) if d.startswith("lib")]
@@ -52,19 +72,20 @@ def check_consumer(checks, cmake, prefix, source, binary, workdir):
     checks.equal(sorted(os.path.basename(f) for f in found),
                  ["libtidemark.a", "tidemarkConfig.cmake", "tidemarkConfigVersion.cmake", "tidemarkTargets.cmake"],
                  "installed library and CMake package files", "CMake install(EXPORT), CMakePackageConfigHelpers")
-    build = os.path.join(workdir, "consumer-build")
-    r = run([cmake, "-S", os.path.join(source, "tests", "install", "consumer"), "-B", build,
-             f"-DCMAKE_PREFIX_PATH={prefix}", "-DCMAKE_BUILD_TYPE=Release"])
+    flags, _ = sanitized(build)
+    consumer = os.path.join(workdir, "consumer-build")
+    r = run([cmake, "-S", os.path.join(source, "tests", "install", "consumer"), "-B", consumer,
+             f"-DCMAKE_PREFIX_PATH={prefix}", "-DCMAKE_BUILD_TYPE=Release", *flags])
     if not checks.check(r.returncode == 0, "a project outside the tree configures with find_package(tidemark)",
                         "CMake find_package", (r.stdout + r.stderr)[-1500:]):
         return
-    r = run([cmake, "--build", build])
+    r = run([cmake, "--build", consumer])
     if not checks.check(r.returncode == 0, "the consumer links tidemark::tidemark", "CMake target_link_libraries",
                         (r.stdout + r.stderr)[-1500:]):
         return
     seq = "ACGCGCGTTAAT"  # 2^12 paths of the two-state profile
     t = Tables(json.loads(run([binary, "profiles", "show", "cpg-island-2state"]).stdout))
-    r = run([os.path.join(build, "consumer"), "cpg-island-2state", seq])
+    r = run([os.path.join(consumer, "consumer"), "cpg-island-2state", seq])
     if not checks.check(r.returncode == 0, "the consumer decodes", "consumer exit status", r.stderr):
         return
     lines = r.stdout.split("\n")
@@ -75,7 +96,7 @@ def check_consumer(checks, cmake, prefix, source, binary, workdir):
                    f"consumer log-likelihood {loglik:.15f} vs {expected_ll:.15f}, relative", ENUMERATION)
     diff = max(abs(a - b) for row, erow in zip(got, expected) for a, b in zip(row, erow))
     checks.at_most(diff, 1e-12, f"consumer posteriors of {len(seq)} bases, max abs difference", ENUMERATION)
-    r = run([os.path.join(build, "consumer"), "cpg-island-2state", "ACGU"])
+    r = run([os.path.join(consumer, "consumer"), "cpg-island-2state", "ACGU"])
     checks.check(r.returncode == 1 and "illegal character 'U'" in r.stderr,
                  "the consumer gets the library's InputError for a bad base", "tidemark error.hpp", r.stderr)
 
@@ -195,7 +216,7 @@ def body(checks, cmake, build, source):
                      "completion skips an option's value", "bash complete -F")
 
         with tempfile.TemporaryDirectory(prefix="tidemark-consumer-") as workdir:
-            check_consumer(checks, cmake, prefix, source, binary, workdir)
+            check_consumer(checks, cmake, prefix, source, binary, workdir, build)
 
         # A build with the Python module (-DTIDEMARK_BUILD_PYTHON=ON) installs the package where
         # Debian's python3 looks under the prefix; it imports from there, away from the build tree.
@@ -204,7 +225,7 @@ def body(checks, cmake, build, source):
         if os.path.isdir(os.path.join(site, "tidemark")):
             code = ("import tidemark; d = tidemark.decode('ACGCGCGTTAAT', 'cpg-island-2state', threads=1); "
                     "print(tidemark.__file__); print(repr(d.log_likelihood))")
-            r = run([sys.executable, "-c", code], cwd="/", env=dict(os.environ, PYTHONPATH=site))
+            r = run([sys.executable, "-c", code], cwd="/", env=dict(os.environ, PYTHONPATH=site, **sanitized(build)[1]))
             lines = r.stdout.split()
             checks.check(r.returncode == 0 and lines[0].startswith(site), "the installed Python package imports",
                          "python3 -c 'import tidemark'", r.stderr[-800:])
