@@ -57,9 +57,10 @@ def sanitized(build):
     if cache_value(build, "TIDEMARK_SANITIZE").upper() not in ("ON", "TRUE", "1"):
         return [], {}
     flags = "-fsanitize=address,undefined"
-    libasan = run([cache_value(build, "CMAKE_CXX_COMPILER"), "-print-file-name=libasan.so"]).stdout.strip()
+    compiler = cache_value(build, "CMAKE_CXX_COMPILER")
+    preload = [run([compiler, f"-print-file-name={lib}"]).stdout.strip() for lib in ("libasan.so", "libstdc++.so.6")]
     return ([f"-DCMAKE_CXX_FLAGS={flags}", f"-DCMAKE_EXE_LINKER_FLAGS={flags}"],
-            {"LD_PRELOAD": libasan, "ASAN_OPTIONS": "detect_leaks=0"})
+            {"LD_PRELOAD": " ".join(preload), "ASAN_OPTIONS": "detect_leaks=0"})
 
 
 def check_consumer(checks, cmake, prefix, source, binary, workdir, build):
