@@ -81,8 +81,13 @@ if [ ! -x /usr/bin/time ] || [ ! -x /usr/bin/python3 ]; then
     "$ROOT/scripts/install-deps.sh"
 fi
 log "building tidemark (Release) in $BUILD"
-cmake -S "$ROOT" -B "$BUILD" -DCMAKE_BUILD_TYPE=Release >/dev/null
-cmake --build "$BUILD" -j2 --target tidemark_cli >/dev/null
+# With pybind11 (scripts/install-deps.sh) the Python module is built too, for the comparison of
+# its decoding with the command line's; the library is then compiled as position-independent code
+# for both.
+PYTHON_MODULE=0
+[ -r /usr/lib/cmake/pybind11/pybind11Config.cmake ] && PYTHON_MODULE=1
+cmake -S "$ROOT" -B "$BUILD" -DCMAKE_BUILD_TYPE=Release -DTIDEMARK_BUILD_PYTHON=$([ $PYTHON_MODULE -eq 1 ] && echo ON || echo OFF) >/dev/null
+cmake --build "$BUILD" -j2 --target tidemark_cli $([ $PYTHON_MODULE -eq 1 ] && echo tidemark_python) >/dev/null
 log "building the generator and the baseline in $BUILD/bench-tools"
 cmake -S "$ROOT/scripts/bench" -B "$BUILD/bench-tools" -DCMAKE_BUILD_TYPE=Release >/dev/null
 cmake --build "$BUILD/bench-tools" -j2 >/dev/null
@@ -380,6 +385,37 @@ if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ] && [ -r "$CHRX" ]; then
     otarget "$(ratio 3) <= 1.2" "bgzip bedGraph $(ratio 3)x BED only (<= 1.2x)"
 fi
 
+# --- Python module vs command line: chrX from the file, one thread ----------------------------
+# tidemark.decode_file with the posteriors as float64 (the default), float32 and none (calls and
+# log-likelihood only), each run alternating with tidemark scan; the target is on float64.
+declare -a PROWS=()
+if [ $THREADS_ONLY -eq 0 ] && [ $SHAPES_ONLY -eq 0 ] && [ $OUTPUTS_ONLY -eq 0 ] && [ $PYTHON_MODULE -eq 1 ] && [ -r "$CHRX" ]; then
+    chrx_bases=${chrx_bases:-$(gzip -dc "$CHRX" | grep -v '>' | tr -d '\n' | wc -c)}
+    for dtype in float64 float32 none; do
+        log "timing tidemark.decode_file (posteriors $dtype) against tidemark scan on chrX, 1 thread ($REPEATS runs each)"
+        cli_best="" py_best="" cli_rss=0 py_rss=0 cli_cpu="" py_cpu=""
+        for ((r = 1; r <= REPEATS; r++)); do
+            best_of chrx 1 "$TM" scan -q -t 1 -p cpg-island "$CHRX" -o "$DATA/python.cli.bed"
+            if [ -z "$cli_best" ] || awk "BEGIN{exit !($BEST < $cli_best)}"; then cli_best=$BEST; cli_cpu=$BEST_CPU; fi
+            [ "$PEAK" -gt "$cli_rss" ] && cli_rss=$PEAK
+            best_of chrx 1 env PYTHONPATH="$BUILD/python" /usr/bin/python3 "$ROOT/scripts/bench/python_decode.py" \
+                cpg-island "$CHRX" "$dtype"
+            if [ -z "$py_best" ] || awk "BEGIN{exit !($BEST < $py_best)}"; then py_best=$BEST; py_cpu=$BEST_CPU; fi
+            [ "$PEAK" -gt "$py_rss" ] && py_rss=$PEAK
+        done
+        cli_calls=$(grep -vc '^#' "$DATA/python.cli.bed" || true)
+        py_calls=$(PYTHONPATH="$BUILD/python" /usr/bin/python3 "$ROOT/scripts/bench/python_decode.py" cpg-island "$CHRX" none | cut -d' ' -f1)
+        [ "$cli_calls" = "$py_calls" ] || { log "Python made $py_calls calls, the command line $cli_calls"; FAILED=1; }
+        PROWS+=("$(awk -v n="$chrx_bases" -v c="$cli_best" -v p="$py_best" -v rc="$cli_rss" -v rp="$py_rss" \
+                       -v cc="$cli_cpu" -v pc="$py_cpu" -v dt="$dtype" 'BEGIN {
+            printf "| human chrX 1-70 Mb, .fa.gz | %s | %.0f | %.2f | %.2f | %.0f | %.2f | %.2f | %.0f | **%.2fx** | %.2fx |",
+                dt, n / 1e6, c, cc, rc / 1048576, p, pc, rp / 1048576, c / p, (pc > 0 ? cc / pc : 0) }')")
+        if [ "$dtype" = float64 ]; then
+            target "$cli_best / $py_best >= 0.9" "Python decode of chrX from the file (float64 posteriors) at $(awk "BEGIN{printf \"%.2f\", $cli_best / $py_best}")x the command line's speed, 1 thread (>= 0.9x)"
+        fi
+    done
+fi
+
 # --- report ------------------------------------------------------------------------------
 declare -a ROWS=()
 for raw in "${RAW[@]}"; do
@@ -458,6 +494,22 @@ if [ ${#OROWS[@]} -gt 0 ]; then
     printf '%s\n' "${OROWS[@]}"
     echo
     printf '%s\n' "${ONOTES[@]}"
+    echo
+fi
+if [ ${#PROWS[@]} -gt 0 ]; then
+    echo "### tidemark.decode_file (Python) vs tidemark scan, one thread"
+    echo
+    echo "$(date -u '+%Y-%m-%d %H:%M UTC'); fastest of $REPEATS runs each, alternating; -p cpg-island."\
+         "Command line: BED calls to a file. Python (scripts/bench/python_decode.py): the record's"\
+         "P(cpg_island) per base as a numpy array (float64 8 B/base, float32 4 B/base, in the peak RSS;"\
+         "none: calls and log-likelihood only) and its calls."\
+         "Wall time and peak RSS of the whole process (interpreter start and numpy import included)."
+    echo
+    echo "| input | posteriors | Mbp | CLI s | CLI CPU s | CLI RSS MiB | Python s | Python CPU s | Python RSS MiB | Python speed / CLI | CPU ratio |"
+    echo "|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|"
+    printf '%s\n' "${PROWS[@]}"
+    echo
+    printf '%s\n' "${SNOTES[@]}" | grep -F 'Python decode' || true
     echo
 fi
     echo "Command: scripts/bench.sh$([ $QUICK -eq 1 ] && echo ' --quick') --repeats $REPEATS$([ $REAL -eq 1 ] || echo ' --no-real')$([ $THREADS_ONLY -eq 1 ] && echo ' --threads-only')$([ $SHAPES_ONLY -eq 1 ] && echo ' --shapes-only')$([ $OUTPUTS_ONLY -eq 1 ] && echo ' --outputs-only')$([ -n "$COMPARE" ] && echo " --compare $COMPARE")"

@@ -2,6 +2,8 @@
 # Installs the Debian 12 packages tidemark needs; idempotent.
 #   install-deps.sh          everything: build, run, test, benchmark (scripts/test.sh, CI)
 #   install-deps.sh --tool   only what building and running the tool needs (scripts/demo.sh)
+#   install-deps.sh --python the tool's packages and those of the Python module (import tidemark;
+#                            scripts/install-python.sh)
 set -euo pipefail
 
 # Building and running the tool (see README "Dependencies").
@@ -9,6 +11,11 @@ tool_packages=(
   build-essential cmake pkg-config
   libhts-dev zlib1g-dev libeigen3-dev libboost-iostreams-dev libcli11-dev
   nlohmann-json3-dev libfmt-dev libbigwig-dev libcurl4-gnutls-dev libisal-dev libzstd-dev libdeflate-dev
+)
+# The Python module (-DTIDEMARK_BUILD_PYTHON=ON): pybind11 and Python's headers to build it, numpy to
+# use it; pandas for Decoding.calls_frame() (optional at run time).
+python_packages=(
+  python3 python3-dev pybind11-dev python3-pybind11 python3-numpy python3-pandas
 )
 # Tests, sanitizer and fuzzing builds, benchmarks and the scale-out workflow.
 test_packages=(
@@ -29,6 +36,8 @@ test_packages=(
   nodejs npm
   # the install test renders the man page (man -l, groff)
   man-db groff-base
+  # the Python module's tests (tests/python, CTest label python)
+  python3-pytest
   # benchmarks (scripts/bench.sh, scripts/bench-fit.sh: wall time and peak RSS)
   time
   # scale-out workflow (scripts/workflow/Snakefile) and its test (CTest label workflow)
@@ -37,8 +46,9 @@ test_packages=(
 
 case "${1:-}" in
   --tool) packages=("${tool_packages[@]}") ;;
-  "") packages=("${tool_packages[@]}" "${test_packages[@]}") ;;
-  *) echo "usage: install-deps.sh [--tool]" >&2; exit 2 ;;
+  --python) packages=("${tool_packages[@]}" "${python_packages[@]}") ;;
+  "") packages=("${tool_packages[@]}" "${python_packages[@]}" "${test_packages[@]}") ;;
+  *) echo "usage: install-deps.sh [--tool | --python]" >&2; exit 2 ;;
 esac
 
 missing=()

@@ -2,6 +2,7 @@
 // file/record/line.
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <array>
 #include <limits>
 #include <memory>
@@ -206,6 +207,35 @@ private:
 };
 
 }  // namespace
+
+void contig_from_text(std::string_view text, Contig& contig, SoftMasked soft) {
+    std::string name = std::move(contig.name);
+    contig.clear();
+    contig.name = std::move(name);
+    const auto& codes = detail::sequence_codes(soft);
+    const auto& classes = detail::byte_classes();
+    std::vector<uint8_t> run;
+    run.reserve(std::min<size_t>(text.size(), size_t{1} << 16));
+    const auto flush = [&] {
+        contig.append(run.data(), static_cast<int64_t>(run.size()));
+        run.clear();
+    };
+    for (size_t i = 0; i < text.size(); ++i) {
+        const auto ch = static_cast<unsigned char>(text[i]);
+        const uint8_t code = codes[ch];
+        if (code != detail::not_a_base) {
+            run.push_back(code & 7);
+            contig.soft_masked += (code & detail::lowercase_flag) ? 1 : 0;
+            if (run.size() == run.capacity()) flush();
+        } else if (classes[ch] != detail::byte_space && ch != '\n' && ch != '\r') {
+            throw InputError(
+                fmt::format("sequence '{}': illegal character {} at position {} "
+                            "(expected A, C, G, T, N or an IUPAC ambiguity code)",
+                            contig.name, detail::describe_byte(ch), i + 1));
+        }
+    }
+    flush();
+}
 
 std::unique_ptr<SequenceSource> open_fasta(const std::string& path) {
     return std::make_unique<FastaStream>(path);

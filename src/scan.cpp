@@ -406,24 +406,6 @@ void ScanOutputs::finish(ScanJob& job) {
     summary.add(s);
     if (keep_summaries) kept.push_back(s);
 }
-// The calling options: the profile's, overridden by the command line.
-CallOptions calling_options(const ScanOptions& o, const Profile& profile, const Model& model) {
-    if (o.criteria != IslandCriteria::none &&
-        std::find(model.region_names.begin(), model.region_names.end(), island_region_name) ==
-            model.region_names.end())
-        throw UsageError(fmt::format(
-            "--island-criteria judges calls of the region type '{}', which profile '{}' does "
-            "not have; drop the option (its regions: {})",
-            island_region_name, model.name, join_words(model.region_names)));
-    CallOptions call_options;
-    call_options.min_posterior = o.min_posterior.value_or(profile.calling.min_posterior);
-    call_options.merge_gap = o.merge_gap.value_or(profile.calling.merge_gap);
-    call_options.min_length = o.min_length.value_or(profile.calling.min_length);
-    call_options.high_posterior = o.high_posterior;
-    call_options.criteria = o.criteria;
-    return call_options;
-}
-
 std::vector<Decoder> make_decoders(const ScanOptions& o, const Model& decoding_model,
                                    const DecoderOptions& options, int threads) {
     std::vector<Decoder> decoders(static_cast<size_t>(threads));
@@ -478,6 +460,23 @@ void write_run_documents(ScanOutputs& run, const RunInfo& info, const Profile& p
 }
 
 }  // namespace
+
+CallOptions calling_options(const ScanOptions& o, const Profile& profile, const Model& model) {
+    if (o.criteria != IslandCriteria::none &&
+        std::find(model.region_names.begin(), model.region_names.end(), island_region_name) ==
+            model.region_names.end())
+        throw UsageError(fmt::format(
+            "--island-criteria judges calls of the region type '{}', which profile '{}' does "
+            "not have; drop the option (its regions: {})",
+            island_region_name, model.name, join_words(model.region_names)));
+    CallOptions call_options;
+    call_options.min_posterior = o.min_posterior.value_or(profile.calling.min_posterior);
+    call_options.merge_gap = o.merge_gap.value_or(profile.calling.merge_gap);
+    call_options.min_length = o.min_length.value_or(profile.calling.min_length);
+    call_options.high_posterior = o.high_posterior;
+    call_options.criteria = o.criteria;
+    return call_options;
+}
 
 void run_scan(const ScanOptions& o, const Logger& log) {
     const Stopwatch clock;

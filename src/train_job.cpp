@@ -7,6 +7,7 @@
 #include <limits>
 #include <nlohmann/json.hpp>
 #include <numeric>
+#include <optional>
 
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
@@ -214,7 +215,9 @@ namespace {
 // iterations, converged or not, final log-likelihood.
 void log_fit_outcome(const FitJobOptions& o, const std::string& method, const FitResult& result,
                      const Logger& log) {
-    const std::string where = o.output == "-" ? "standard output" : o.output;
+    const std::string where = o.output == "-"    ? "standard output"
+                              : o.output.empty() ? "no file (the caller keeps the profile)"
+                                                 : o.output;
     if (method != "baum-welch") {
         log.info(
             fmt::format("fit: wrote {}: labelled counts (no iterations), log-likelihood {:.6f}",
@@ -255,8 +258,9 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     if (!o.emit_stats.empty() || !o.emit_seams.empty()) return emit_statistics(o, log);
     FastaTrainingData data(o.inputs, o.regions, o.regions_bed, o.soft_masked);
     // Open the output before the long work so that an unwritable path fails at once; it is
-    // committed only at the end.
-    OutputFile out(o.output);
+    // committed only at the end. No output: the caller takes the profile from the result.
+    std::optional<OutputFile> out;
+    if (!o.output.empty()) out.emplace(o.output);
 
     FitResult result;
     Selection selection;
@@ -439,8 +443,10 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
     // The written text must be a valid profile like any other.
     const std::string text = to_json(p);
     parse_profile(text, "fitted profile");
-    out.write(text);
-    out.commit();
+    if (out) {
+        out->write(text);
+        out->commit();
+    }
     log_fit_outcome(o, method, result, log);
     return result;
 }

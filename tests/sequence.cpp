@@ -414,3 +414,27 @@ TEST_CASE("composition and the observed/expected CpG ratio", "[sequence]") {
     CHECK(composition(c, 1, 4).cpg == 1);
     CHECK(std::isnan(composition(test::contig_from("AATT"), 0, 4).cpg_obs_exp()));
 }
+
+TEST_CASE("contig_from_text reads text as the FASTA reader reads a record's lines", "[sequence]") {
+    const std::string text = "ACgt NNry\tACGT\r\nswkmbdhv\nGGCC";
+    // The reference: the same bases as one FASTA record (line ends inside the text become line
+    // ends of the file), read by open_fasta.
+    TempFile f(">same\n" + text + "\n");
+    auto src = open_fasta(f.path());
+    Contig expected;
+    REQUIRE(src->next(expected));
+    Contig c;
+    c.name = "same";
+    c.offset = 7;
+    contig_from_text(text, c);
+    CHECK(c.name == "same");
+    CHECK(c.offset == 0);
+    CHECK(decode(c) == decode(expected));
+    CHECK(c.soft_masked == expected.soft_masked);
+    CHECK(c.unknown_count() == expected.unknown_count());
+    contig_from_text("acgT", c, SoftMasked::unknown);
+    CHECK(decode(c) == "NNNT");
+    CHECK(error_of([&] { contig_from_text("ACG>T", c); }) ==
+          "sequence 'same': illegal character '>' (byte 0x3E) at position 4 (expected A, C, G, T, "
+          "N or an IUPAC ambiguity code)");
+}

@@ -56,6 +56,11 @@ std::string recorded_command_line(const std::string& command_line);
 /// Validates option combinations; throws UsageError naming the conflict.
 void validate(const ScanOptions& options);
 
+/// The calling options of a scan: the profile's calling defaults, overridden where `options`
+/// sets them. model is the one the sinks see (region_view for window profiles). Throws
+/// UsageError for island criteria on a profile without the region they judge.
+CallOptions calling_options(const ScanOptions& options, const Profile& profile, const Model& model);
+
 /// Runs the whole scan. File outputs appear only when the whole run succeeds.
 void run_scan(const ScanOptions& options, const Logger& log);
 

@@ -7,6 +7,7 @@
 #include <functional>
 #include <memory>
 #include <string>
+#include <string_view>
 #include <utility>
 #include <vector>
 
@@ -156,6 +157,14 @@ protected:
     std::function<void(const Contig&)> growth_hook_;
     int64_t growth_step_ = 0;
 };
+
+/// Replaces the bases of `contig` (its name is kept; offset, lengths and counts are reset) by a
+/// sequence held in memory, read as the FASTA reader reads a record's lines: A, C, G, T in either
+/// case, N and the IUPAC ambiguity codes as unknown bases, lowercase counted in soft_masked (and
+/// unknown with SoftMasked::unknown); spaces, tabs and line ends are skipped. For programs and
+/// bindings that hold sequences as text. Throws InputError naming the contig, the character and
+/// its 1-based position in `text` for any other byte.
+void contig_from_text(std::string_view text, Contig& contig, SoftMasked soft = SoftMasked::base);
 
 /// Streams every record of a FASTA file. path "-" is stdin. Plain, gzip and bgzip are read
 /// through htslib; xz, bzip2 and zstd (by their magic bytes) through Boost.Iostreams.

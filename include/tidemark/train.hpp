@@ -379,7 +379,7 @@ struct FitJobOptions {
     SeedOptions seed;
     std::string labels;          ///< labelled BED: supervised counting instead of EM
     std::string default_region;  ///< region of unlabelled bases ("" = the only unreported one)
-    std::string output = "-";    ///< profile JSON
+    std::string output = "-";    ///< profile JSON ("" = none: run_fit's result holds it)
     std::string name;            ///< name of the output profile ("" = derived)
     FitOptions fit;
     ShardSpec shard;             ///< with emit_stats: only this shard's records (shard_spec.hpp)

@@ -1,12 +1,18 @@
 """Install test: `cmake --install BUILD --prefix TMP` puts the binary, the man page, the bash
 completion, the built-in profiles' JSON and the plotting scripts in place; the man page renders
 with man-db (`man -l`) and groff, and it and the completion name every subcommand and option that
-`--help` lists.
+`--help` lists. The library, its headers and its CMake package are installed too: a project
+outside the tree (tests/install/consumer) finds them with find_package(tidemark), links
+tidemark::tidemark, and decodes a short sequence whose posteriors and log-likelihood are checked
+against an exhaustive enumeration of every state path.
 
 Usage: test_install.py CMAKE BUILD_DIR SOURCE_DIR
 """
 
 import glob
+import itertools
+import json
+import math
 import os
 import re
 import subprocess
@@ -15,6 +21,86 @@ import tempfile
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "oracle"))
 import tmtest  # noqa: E402  (Checks only; the binary comes from the install)
+from test_pomegranate import Tables  # noqa: E402  (profile JSON -> numpy tables, context rule)
+
+ENUMERATION = "exhaustive enumeration of all state paths (Python)"
+
+
+def enumerate_paths(t, seq):
+    """Log-likelihood and per-position state posteriors by summing P(path, seq) over every state
+    path: independent of any recursion (order <= 1 emissions, the mean row at the start)."""
+    codes = ["ACGT".index(c) for c in seq]
+    S, n = len(t.states), len(codes)
+    total = 0.0
+    marginal = [[0.0] * S for _ in range(n)]
+    for path in itertools.product(range(S), repeat=n):
+        p = t.initial[path[0]] * t.emission(path[0], None, codes[0])
+        for i in range(1, n):
+            p *= t.trans[path[i - 1], path[i]] * t.emission(path[i], codes[i - 1], codes[i])
+        total += p
+        for i, s in enumerate(path):
+            marginal[i][s] += p
+    return math.log(total), [[m / total for m in row] for row in marginal]
+
+
+def cache_value(build, name):
+    """A variable of BUILD/CMakeCache.txt ('' when absent)."""
+    with open(os.path.join(build, "CMakeCache.txt"), encoding="utf-8") as f:
+        for line in f:
+            if line.startswith(name + ":"):
+                return line.split("=", 1)[1].strip()
+    return ""
+
+
+def sanitized(build):
+    """The sanitizer build (scripts/test.sh, build-asan): what a program that links its library
+    needs, and what python3 needs to load its module (the ASan runtime first)."""
+    if cache_value(build, "TIDEMARK_SANITIZE").upper() not in ("ON", "TRUE", "1"):
+        return [], {}
+    flags = "-fsanitize=address,undefined"
+    compiler = cache_value(build, "CMAKE_CXX_COMPILER")
+    preload = [run([compiler, f"-print-file-name={lib}"]).stdout.strip() for lib in ("libasan.so", "libstdc++.so.6")]
+    return ([f"-DCMAKE_CXX_FLAGS={flags}", f"-DCMAKE_EXE_LINKER_FLAGS={flags}"],
+            {"LD_PRELOAD": " ".join(preload), "ASAN_OPTIONS": "detect_leaks=0"})
+
+
+def check_consumer(checks, cmake, prefix, source, binary, workdir, build):
+    for path in ("include/tidemark/decode.hpp", "include/tidemark/profile.hpp"):
+        checks.check(os.path.isfile(os.path.join(prefix, path)), f"installed {path}", "CMake install")
+    libs = [d for d in os.listdir(prefix) if d.startswith("lib")]
+    found = [os.path.join(root, f) for d in libs for root, _, files in os.walk(os.path.join(prefix, d))
+             for f in files if f in ("libtidemark.a", "tidemarkConfig.cmake", "tidemarkConfigVersion.cmake",
+                                     "tidemarkTargets.cmake")]
+    checks.equal(sorted(os.path.basename(f) for f in found),
+                 ["libtidemark.a", "tidemarkConfig.cmake", "tidemarkConfigVersion.cmake", "tidemarkTargets.cmake"],
+                 "installed library and CMake package files", "CMake install(EXPORT), CMakePackageConfigHelpers")
+    flags, _ = sanitized(build)
+    consumer = os.path.join(workdir, "consumer-build")
+    r = run([cmake, "-S", os.path.join(source, "tests", "install", "consumer"), "-B", consumer,
+             f"-DCMAKE_PREFIX_PATH={prefix}", "-DCMAKE_BUILD_TYPE=Release", *flags])
+    if not checks.check(r.returncode == 0, "a project outside the tree configures with find_package(tidemark)",
+                        "CMake find_package", (r.stdout + r.stderr)[-1500:]):
+        return
+    r = run([cmake, "--build", consumer])
+    if not checks.check(r.returncode == 0, "the consumer links tidemark::tidemark", "CMake target_link_libraries",
+                        (r.stdout + r.stderr)[-1500:]):
+        return
+    seq = "ACGCGCGTTAAT"  # 2^12 paths of the two-state profile
+    t = Tables(json.loads(run([binary, "profiles", "show", "cpg-island-2state"]).stdout))
+    r = run([os.path.join(consumer, "consumer"), "cpg-island-2state", seq])
+    if not checks.check(r.returncode == 0, "the consumer decodes", "consumer exit status", r.stderr):
+        return
+    lines = r.stdout.split("\n")
+    loglik = float(lines[0])
+    got = [[float(x) for x in line.split("\t")] for line in lines[1:1 + len(seq)]]
+    expected_ll, expected = enumerate_paths(t, seq)
+    checks.at_most(abs(loglik - expected_ll) / abs(expected_ll), 1e-12,
+                   f"consumer log-likelihood {loglik:.15f} vs {expected_ll:.15f}, relative", ENUMERATION)
+    diff = max(abs(a - b) for row, erow in zip(got, expected) for a, b in zip(row, erow))
+    checks.at_most(diff, 1e-12, f"consumer posteriors of {len(seq)} bases, max abs difference", ENUMERATION)
+    r = run([os.path.join(consumer, "consumer"), "cpg-island-2state", "ACGU"])
+    checks.check(r.returncode == 1 and "illegal character 'U'" in r.stderr,
+                 "the consumer gets the library's InputError for a bad base", "tidemark error.hpp", r.stderr)
 
 
 def run(args, **kw):
@@ -161,6 +247,26 @@ def body(checks, cmake, build, source):
                      "completion of -p offers built-in profiles", "tidemark profiles")
         checks.check(complete(completion, ["tidemark", "scan", "-p", "x.json"], "--bgz") == ["--bgzip"],
                      "completion skips an option's value", "bash complete -F")
+
+        with tempfile.TemporaryDirectory(prefix="tidemark-consumer-") as workdir:
+            check_consumer(checks, cmake, prefix, source, binary, workdir, build)
+
+        # A build with the Python module (-DTIDEMARK_BUILD_PYTHON=ON) installs the package where
+        # Debian's python3 looks under the prefix; it imports from there, away from the build tree.
+        site = os.path.join(prefix, "lib", f"python{sys.version_info.major}.{sys.version_info.minor}",
+                            "dist-packages")
+        if os.path.isdir(os.path.join(site, "tidemark")):
+            code = ("import tidemark; d = tidemark.decode('ACGCGCGTTAAT', 'cpg-island-2state', threads=1); "
+                    "print(tidemark.__file__); print(repr(d.log_likelihood))")
+            r = run([sys.executable, "-c", code], cwd="/", env=dict(os.environ, PYTHONPATH=site, **sanitized(build)[1]))
+            lines = r.stdout.split()
+            checks.check(r.returncode == 0 and lines[0].startswith(site), "the installed Python package imports",
+                         "python3 -c 'import tidemark'", r.stderr[-800:])
+            if r.returncode == 0:
+                t = Tables(json.loads(run([binary, "profiles", "show", "cpg-island-2state"]).stdout))
+                expected_ll, _ = enumerate_paths(t, "ACGCGCGTTAAT")
+                checks.at_most(abs(float(lines[1]) - expected_ll) / abs(expected_ll), 1e-12,
+                               "installed Python package: log-likelihood, relative", ENUMERATION)
 
 
 if __name__ == "__main__":

@@ -1,0 +1,118 @@
+"""The Python module against independent implementations: pomegranate 0.14's HMMs on the profiles
+the oracle tests use (tests/oracle/test_pomegranate.py: the built-in first-order CpG-island
+profiles expanded over (state, base) pairs, and a random order-0 profile), numpy for threads and
+dtypes. Tolerances as in that test."""
+
+import numpy as np
+import pytest
+
+import tidemark
+from test_pomegranate import (LOGLIK_TOL, POMEGRANATE, POSTERIOR_TOL, Tables, discrete_hmm,
+                              expanded_hmm, random_cpg_contigs, sample_path, to_text, unknown_contig)
+
+
+def oracle_compare(t, model, state_of, name, seq, profile):
+    """Posteriors, log-likelihood and Viterbi path of one in-memory sequence against pomegranate."""
+    symbols = list(seq)
+    post = model.predict_proba(symbols)
+    logp = model.log_probability(symbols)
+    vit_logp, vit_path = model.viterbi(symbols)
+    vit_states = state_of[np.array([i for i, _ in vit_path[1:]])]
+    region_of_state = np.array(t.region_of)
+    d = tidemark.decode(seq, profile, name=name, region_types=t.regions, threads=1)
+    assert d.region_types == t.regions
+    assert abs(d.log_likelihood - logp) / abs(logp) <= LOGLIK_TOL, f"{name}: {POMEGRANATE} log-likelihood"
+    for ri, _ in enumerate(t.regions):
+        expected = post[:, region_of_state[state_of] == ri].sum(axis=1)
+        diff = float(np.max(np.abs(d.posteriors[:, ri] - expected)))
+        assert diff <= POSTERIOR_TOL, f"{name}: {POMEGRANATE} posteriors of {t.regions[ri]}, max abs {diff:.3g}"
+    v = tidemark.decode(seq, profile, name=name, method="viterbi", threads=1)
+    assert abs(v.log_likelihood - vit_logp) / abs(vit_logp) <= LOGLIK_TOL, f"{name}: {POMEGRANATE} Viterbi score"
+    assert v.path_regions == t.regions
+    assert np.array_equal(v.path, region_of_state[vit_states]), f"{name}: {POMEGRANATE} Viterbi path"
+    return float(d.posteriors[:, t.regions.index("cpg_island")].max()) if "cpg_island" in t.regions else None
+
+
+@pytest.mark.parametrize("profile", ["cpg-island", "cpg-island-2state"])
+def test_cpg_profiles_against_pomegranate(profile):
+    rng = np.random.default_rng(20240611)
+    t = Tables(__import__("json").loads(tidemark.load_profile(profile).to_json()))
+    model, state_of = expanded_hmm(t)
+    contigs = random_cpg_contigs(rng, t)[:2] + [("with_n", unknown_contig(rng, t))]
+    tops = [oracle_compare(t, model, state_of, name, seq[:20_000], profile) for name, seq in contigs]
+    assert max(tops) > 0.9, "test design: posteriors reach 0.9 somewhere"
+
+
+def test_random_order0_profile_against_pomegranate(tmp_path):
+    rng = np.random.default_rng(7)
+    S = 3
+    names, regions = ["a1", "a2", "b1"], ["alpha", "alpha", "beta"]
+    initial = rng.dirichlet(np.ones(S))
+    trans = 0.9 * np.eye(S) + 0.1 * rng.dirichlet(np.ones(S), size=S)
+    emis = rng.dirichlet(np.ones(4), size=S)
+    doc = {
+        "format": "tidemark-profile/1", "name": "random-order0",
+        "description": "random three-state order-0 profile for the pomegranate oracle test",
+        "regions": [{"name": "alpha", "report": True}, {"name": "beta", "report": True}],
+        "states": [{"name": names[s], "region": regions[s], "order": 0, "emissions": [list(emis[s])]}
+                   for s in range(S)],
+        "initial": {names[s]: float(initial[s]) for s in range(S)},
+        "transitions": {names[i]: {names[j]: float(trans[i, j]) for j in range(S)} for i in range(S)},
+        "calling": {"min_posterior": 0.5, "min_length": 1, "merge_gap": 0},
+    }
+    import json
+    profile = tidemark.Profile.from_json(json.dumps(doc))
+    assert profile.name == "random-order0" and [r["name"] for r in profile.regions] == ["alpha", "beta"]
+    t = Tables(doc)
+    model, state_of = discrete_hmm(t)
+    for k, n in enumerate((2_000, 5_000)):
+        oracle_compare(t, model, state_of, f"sampled{k}", to_text(sample_path(rng, t, n)), profile)
+
+
+def test_threads_dtype_and_text_input_agree(tmp_path):
+    """Segmented decoding on two threads, float32 and str/bytes/file input give the same numbers
+    (numpy: array_equal, and float32 = float64 rounded by numpy's astype)."""
+    contig = tidemark.simulate("cpg-island", 400_000, seed=4, gap_fraction=0.01)[0]
+    one = tidemark.decode(contig.sequence, threads=1, block_size=4096, name=contig.name)
+    two = tidemark.decode(contig.sequence.encode(), threads=2, block_size=4096, name=contig.name)
+    assert np.array_equal(one.posteriors, two.posteriors), "numpy array_equal: threads never change results"
+    assert one.bed() == two.bed()
+    f32 = tidemark.decode(contig.sequence, dtype="float32", threads=1, block_size=4096)
+    assert f32.posteriors.dtype == np.float32
+    assert np.array_equal(f32.posteriors, one.posteriors.astype(np.float32)), "numpy astype(float32)"
+    bare = tidemark.decode(contig.sequence, threads=1, block_size=4096, dtype=None, name=contig.name)
+    assert bare.posteriors is None and bare.bed() == one.bed() and bare.log_likelihood == one.log_likelihood
+    path = tmp_path / "one.fa"
+    path.write_text(f">{contig.name}\n" + "\n".join(contig.sequence[i:i + 70]
+                                                    for i in range(0, len(contig.sequence), 70)) + "\n")
+    from_file = next(tidemark.decode_file(path, threads=1, block_size=4096))
+    assert np.array_equal(from_file.posteriors, one.posteriors)
+    assert from_file.log_likelihood == one.log_likelihood
+    assert one.posteriors.flags["C_CONTIGUOUS"] and one.posteriors.shape == (len(contig.sequence), 1)
+
+
+def test_records_iterate_one_at_a_time(tmp_path):
+    contigs = tidemark.simulate("cpg-island-2state", [3000, 10, 2500], seed=9)
+    path = tmp_path / "three.fa"
+    path.write_text("".join(f">{c.name}\n{c.sequence}\n" for c in contigs))
+    it = tidemark.decode_file(path, "cpg-island-2state")
+    first = next(it)
+    assert first.name == contigs[0].name and first.length == 3000
+    rest = list(it)
+    assert [d.name for d in rest] == [c.name for c in contigs[1:]]
+    for d, c in zip([first] + rest, contigs):
+        alone = tidemark.decode(c.sequence, "cpg-island-2state", name=c.name)
+        assert np.array_equal(d.posteriors, alone.posteriors)
+
+
+def test_calls_frame():
+    pandas = pytest.importorskip("pandas")
+    contig = tidemark.simulate("cpg-island", 150_000, seed=8)[0]
+    d = tidemark.decode(contig.sequence, name=contig.name)
+    frame = d.calls_frame()
+    assert isinstance(frame, pandas.DataFrame) and len(frame) == len(d.calls) > 0
+    assert list(frame.columns) == list(tidemark.Call._fields)
+    # BED columns 2, 3 and 7 (mean posterior, 4 decimals) of the formatted lines
+    rows = [line.split("\t") for line in d.bed().splitlines()]
+    assert frame["start"].tolist() == [int(r[1]) for r in rows]
+    assert [f"{x:.4f}" for x in frame["mean_posterior"]] == [r[6] for r in rows]
