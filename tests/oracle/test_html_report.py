@@ -250,7 +250,12 @@ def body(checks, tm, work):
                        *[(-(-r.get("min_length", 1) // window) * window if window else r.get("min_length", 1))
                          for r in prof["regions"] if r["report"]])
         gap = prof["calling"]["merge_gap"]
-        tmtest.run(tm, ["scan", "sim3.fa", "-q", "-p", name, "-o", "/dev/null", "--html", f"{name}.html"], cwd=work)
+        scanned = name
+        if prof.pop("template", False):  # scan refuses a template: its classes as a plain profile
+            scanned = os.path.join(work, f"{name}-model.json")
+            with open(scanned, "w") as f:
+                json.dump(prof, f)
+        tmtest.run(tm, ["scan", "sim3.fa", "-q", "-p", scanned, "-o", "/dev/null", "--html", f"{name}.html"], cwd=work)
         ptree = parse_strict(os.path.join(work, f"{name}.html"))
         line = next("".join(tr.find(XHTML + "td").itertext()) for tr in section(ptree, "run").iter(XHTML + "tr")
                     if tr.find(XHTML + "th") is not None and tr.find(XHTML + "th").text == "calling")
@@ -277,7 +282,9 @@ def body(checks, tm, work):
     checks.check("warnings" not in [el.get("id") for el in tree.iter(XHTML + "section")] if tree is not None else True,
                  "a run without warnings has no warning box", "demo run: no warning on stderr")
 
-    # Many warnings (one per empty record): the box lists the first 100 and says how many there were.
+    # Many warnings (one per empty record): stderr folds them after the first 5 into one count line
+    #    (README: repeated warnings), and the box lists exactly what stderr shows, the count line
+    #    included. (The box's own cap of 100 is checked in tests/report_html.cpp.)
     with open(os.path.join(work, "empties.fa"), "w") as f:
         f.write("".join(f">empty{i}\n" for i in range(120)) + ">real\n" + records[0][1][:20000] + "\n")
     proc = subprocess.run([tm, "scan", "empties.fa", "-o", "/dev/null", "--html", "empties.html"], cwd=work,
@@ -286,10 +293,10 @@ def body(checks, tm, work):
     etree_ = parse_strict(os.path.join(work, "empties.html"))
     box = section(etree_, "warnings")
     items = ["".join(li.itertext()) for li in box.iter(XHTML + "li")]
-    checks.check(len(stderr_warnings) == 120 and items == [w[len("tidemark: warning: "):] for w in stderr_warnings[:100]]
-                 and "all 120 are on standard error" in text_of(box),
-                 "120 warnings: the box lists the first 100 and says all 120 are on stderr", "stderr of the same run",
-                 f"{len(stderr_warnings)} on stderr, {len(items)} listed")
+    checks.check(len(stderr_warnings) == 6 and "115 more empty records (120 in all" in stderr_warnings[-1]
+                 and items == [w[len("tidemark: warning: "):] for w in stderr_warnings],
+                 "120 empty records: 5 warnings and a count line, on stderr and in the box alike",
+                 "stderr of the same run", f"{len(stderr_warnings)} on stderr, {len(items)} listed")
 
     # 9. Not with --shard: a usage error (exit 2), and no file.
     proc = subprocess.run([tm, "scan", DEMO, "--shard", "1/2", "-o", "/dev/null", "--html", "shard.html"], cwd=work,
