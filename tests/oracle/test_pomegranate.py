@@ -189,6 +189,28 @@ def unknown_contig(rng, t):
 # ---------------------------------------------------------------------------------------------
 # Comparison
 
+def random_order0_profile(rng):
+    """A random three-state order-0 profile in two reported regions (alpha: a1, a2; beta: b1),
+    drawn from rng: initial, transitions (0.9 on the diagonal), emissions."""
+    S = 3
+    initial = rng.dirichlet(np.ones(S))
+    trans = 0.9 * np.eye(S) + 0.1 * rng.dirichlet(np.ones(S), size=S)
+    emis = rng.dirichlet(np.ones(4), size=S)
+    names = ["a1", "a2", "b1"]
+    regions = ["alpha", "alpha", "beta"]
+    return {
+        "format": "tidemark-profile/1",
+        "name": "random-order0",
+        "description": "random three-state order-0 profile for the pomegranate oracle test",
+        "regions": [{"name": "alpha", "report": True}, {"name": "beta", "report": True}],
+        "states": [{"name": names[s], "region": regions[s], "order": 0, "emissions": [list(emis[s])]}
+                   for s in range(S)],
+        "initial": {names[s]: float(initial[s]) for s in range(S)},
+        "transitions": {names[i]: {names[j]: float(trans[i, j]) for j in range(S)} for i in range(S)},
+        "calling": {"min_posterior": 0.5, "min_length": 1, "merge_gap": 0},
+    }
+
+
 def scan(binary, workdir, tag, fasta, profile, decode, block=0):
     prefix = os.path.join(workdir, tag)
     args = ["scan", fasta, "--profile", profile, "--decode", decode, "--posteriors", prefix,
@@ -295,23 +317,7 @@ def body(checks, binary, workdir):
         compare(checks, binary, workdir, f"{name}.unknown", cpg, n_contigs, name, expanded_hmm)
 
     # --- a random order-0 profile with three states in two reported regions
-    S = 3
-    initial = rng.dirichlet(np.ones(S))
-    trans = 0.9 * np.eye(S) + 0.1 * rng.dirichlet(np.ones(S), size=S)
-    emis = rng.dirichlet(np.ones(4), size=S)
-    names = ["a1", "a2", "b1"]
-    regions = ["alpha", "alpha", "beta"]
-    profile = {
-        "format": "tidemark-profile/1",
-        "name": "random-order0",
-        "description": "random three-state order-0 profile for the pomegranate oracle test",
-        "regions": [{"name": "alpha", "report": True}, {"name": "beta", "report": True}],
-        "states": [{"name": names[s], "region": regions[s], "order": 0, "emissions": [list(emis[s])]}
-                   for s in range(S)],
-        "initial": {names[s]: float(initial[s]) for s in range(S)},
-        "transitions": {names[i]: {names[j]: float(trans[i, j]) for j in range(S)} for i in range(S)},
-        "calling": {"min_posterior": 0.5, "min_length": 1, "merge_gap": 0},
-    }
+    profile = random_order0_profile(rng)
     path = os.path.join(workdir, "random-order0.json")
     with open(path, "w", encoding="utf-8") as f:
         json.dump(profile, f)

@@ -8,7 +8,8 @@ import pytest
 
 import tidemark
 from test_pomegranate import (LOGLIK_TOL, POMEGRANATE, POSTERIOR_TOL, Tables, discrete_hmm,
-                              expanded_hmm, random_cpg_contigs, sample_path, to_text, unknown_contig)
+                              expanded_hmm, random_cpg_contigs, random_order0_profile, sample_path, to_text,
+                              unknown_contig)
 
 
 def oracle_compare(t, model, state_of, name, seq, profile):
@@ -45,21 +46,7 @@ def test_cpg_profiles_against_pomegranate(profile):
 
 def test_random_order0_profile_against_pomegranate(tmp_path):
     rng = np.random.default_rng(7)
-    S = 3
-    names, regions = ["a1", "a2", "b1"], ["alpha", "alpha", "beta"]
-    initial = rng.dirichlet(np.ones(S))
-    trans = 0.9 * np.eye(S) + 0.1 * rng.dirichlet(np.ones(S), size=S)
-    emis = rng.dirichlet(np.ones(4), size=S)
-    doc = {
-        "format": "tidemark-profile/1", "name": "random-order0",
-        "description": "random three-state order-0 profile for the pomegranate oracle test",
-        "regions": [{"name": "alpha", "report": True}, {"name": "beta", "report": True}],
-        "states": [{"name": names[s], "region": regions[s], "order": 0, "emissions": [list(emis[s])]}
-                   for s in range(S)],
-        "initial": {names[s]: float(initial[s]) for s in range(S)},
-        "transitions": {names[i]: {names[j]: float(trans[i, j]) for j in range(S)} for i in range(S)},
-        "calling": {"min_posterior": 0.5, "min_length": 1, "merge_gap": 0},
-    }
+    doc = random_order0_profile(rng)
     import json
     profile = tidemark.Profile.from_json(json.dumps(doc))
     assert profile.name == "random-order0" and [r["name"] for r in profile.regions] == ["alpha", "beta"]
