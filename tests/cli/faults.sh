@@ -2,18 +2,7 @@
 # Faults and reproducibility, end to end: a run killed by SIGTERM or SIGINT leaves no partial
 # file and the previous outputs untouched; repeated runs give byte-identical data outputs.
 # Usage: faults.sh TIDEMARK_BINARY TESTS_SOURCE_DIR
-set -u
-tm=$(readlink -f "$1")
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-cd "$work" || exit 1
-pass=0
-fail=0
-check() {  # check NAME COMMAND...
-  local name=$1
-  shift
-  if "$@"; then pass=$((pass + 1)); else echo "FAIL $name"; fail=$((fail + 1)); fi
-}
+. "$(dirname "$0")/harness.bash" "$1"
 
 # A genome large enough that a scan is still running when the signal arrives.
 "$tm" simulate -p cpg-island --contigs 4 --length 5000000 --seed 9 -o big.fa 2>/dev/null ||
@@ -54,5 +43,4 @@ done
 strip() { python3 -c "import json,sys; d=json.load(open(sys.argv[1])); d.pop('resources'); print(json.dumps(d))" "$1"; }
 check "reports differ only in resources" test "$(strip r1/report.json)" = "$(strip r2/report.json)"
 
-echo "$pass passed, $fail failed"
-[ "$fail" -eq 0 ]
+finish

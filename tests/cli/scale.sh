@@ -2,18 +2,7 @@
 # A 250 Mbp synthetic chromosome with assembly gaps: decoding stays finite (no NaN or infinity
 # in any output), the length is kept, and peak memory stays within 0.3 bytes per base + 64 MiB.
 # Usage: scale.sh TIDEMARK_BINARY TESTS_SOURCE_DIR
-set -u
-tm=$(readlink -f "$1")
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-cd "$work" || exit 1
-pass=0
-fail=0
-check() {
-  local name=$1
-  shift
-  if "$@"; then pass=$((pass + 1)); else echo "FAIL $name"; fail=$((fail + 1)); fi
-}
+. "$(dirname "$0")/harness.bash" "$1"
 length=250000000
 "$tm" simulate -p cpg-island --lengths "$length" --gaps 0.01 --gap-length 50000 --seed 250 \
   --line-width 0 -o big.fa -q
@@ -34,5 +23,4 @@ print(f"length {c['length']}, log-likelihood {c['log_likelihood']:.6g}, peak RSS
 sys.exit(0 if ok and (0 < rss <= limit or "ASAN_OPTIONS" in os.environ) else 1)
 PY
 [ $? -eq 0 ] && pass=$((pass + 1))
-echo "$pass passed, $fail failed"
-[ "$fail" -eq 0 ]
+finish

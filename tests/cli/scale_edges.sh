@@ -5,18 +5,7 @@
 # with a hand-written .fai (the faidx format: NAME, LENGTH, OFFSET, LINEBASES, LINEWIDTH), real
 # bases only where a region is read, so the test writes a few kilobytes.
 # Usage: scale_edges.sh TIDEMARK_BINARY TESTS_SOURCE_DIR
-set -u
-tm=$(readlink -f "$1")
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-cd "$work" || exit 1
-pass=0
-fail=0
-check() {  # check NAME COMMAND...
-  local name=$1
-  shift
-  if "$@"; then pass=$((pass + 1)); else echo "FAIL $name"; fail=$((fail + 1)); fi
-}
+. "$(dirname "$0")/harness.bash" "$1"
 fails_with() {  # fails_with NAME FRAGMENT COMMAND...: exit 1 and FRAGMENT on stderr
   local name=$1 fragment=$2
   shift 2
@@ -231,5 +220,4 @@ for extra in "" "-q" "-t 2" "--shard 1/1"; do
     grep -qF "55 more empty records (60 in all; only the first 5 are listed)" warn.txt
 done
 
-echo "$pass passed, $fail failed"
-[ "$fail" -eq 0 ]
+finish
