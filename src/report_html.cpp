@@ -176,7 +176,8 @@ struct Page {
 
     void genome_section(const ContigSummary& g) {
         // Shares of known bases, as in the summary: gaps hold no calls and no expectation.
-        const double len = g.length > g.unknown ? static_cast<double>(g.length - g.unknown) : 1.0;
+        const double len =
+            g.composition.known() > 0 ? static_cast<double>(g.composition.known()) : 1.0;
         out +=
             "<section "
             "id=\"genome\">\n<h2>Genome-wide</h2>\n<table>\n<tr><th>sequences</th><th>length "
@@ -847,8 +848,9 @@ struct Page {
                 esc(model.region_names[static_cast<size_t>(r)]));
         out += "</tr>\n";
         const auto row = [&](const ContigSummary& c, const std::string& index, bool total) {
+            // Shares of known bases, as in the summary (see the genome-wide table).
             const double len =
-                c.length > c.unknown ? static_cast<double>(c.length - c.unknown) : 1.0;
+                c.composition.known() > 0 ? static_cast<double>(c.composition.known()) : 1.0;
             std::string name = esc(c.name);
             if (c.offset)
                 name += fmt::format(" <span class=\"dim\">{}\u2013{}</span>", grouped(c.offset + 1),
