@@ -92,6 +92,27 @@ def test_records_iterate_one_at_a_time(tmp_path):
         assert np.array_equal(d.posteriors, alone.posteriors)
 
 
+def test_records_hold_one_record_in_memory(cli, tmp_path):
+    """Iterating over 12 records of 1.5 Mbp (float64 arrays of 12 MB each), keeping only the
+    current Decoding: the process's peak RSS (getrusage ru_maxrss) once the second record is out
+    (two arrays alive: the loop variable's and the next) grows by less than one array over the
+    ten records after it, where keeping them would add 120 MB."""
+    import os
+    import resource
+    if "libasan" in os.environ.get("LD_PRELOAD", ""):
+        pytest.skip("AddressSanitizer keeps freed memory in quarantine")
+    fasta = tmp_path / "twelve.fa"
+    cli.run("simulate", "-q", "-p", "cpg-island", "--contigs", "12", "--length", "1500000", "--seed", "6",
+            "-o", fasta)
+    peaks = []
+    for d in tidemark.decode_file(fasta, threads=1):
+        assert d.posteriors.nbytes == 12_000_000
+        peaks.append(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
+    assert len(peaks) == 12
+    grown = peaks[-1] - peaks[1]
+    assert grown < 12_000_000, f"peak RSS grew by {grown / 1e6:.0f} MB over records 3 to 12"
+
+
 def test_calls_frame():
     pandas = pytest.importorskip("pandas")
     contig = tidemark.simulate("cpg-island", 150_000, seed=8)[0]
@@ -103,3 +124,44 @@ def test_calls_frame():
     rows = [line.split("\t") for line in d.bed().splitlines()]
     assert frame["start"].tolist() == [int(r[1]) for r in rows]
     assert [f"{x:.4f}" for x in frame["mean_posterior"]] == [r[6] for r in rows]
+
+
+GIL_SCRIPT = r"""
+import os, sys, threading
+import numpy as np
+import tidemark
+fifo = sys.argv[1]
+seq = tidemark.simulate("cpg-island", 200_000, seed=3)[0].sequence
+os.mkfifo(fifo)
+got = {}
+def read_pipe():
+    got["pipe"] = next(tidemark.decode_file(fifo, threads=1))
+def decode_text():
+    got["text"] = tidemark.decode(seq, name="s", threads=1)
+reader, other = threading.Thread(target=read_pipe), threading.Thread(target=decode_text)
+reader.start()
+other.start()
+with open(fifo, "w") as f:  # runs only if the reader waits for the pipe without the GIL
+    f.write(">s\n" + seq + "\n")
+reader.join()
+other.join()
+alone = tidemark.decode(seq, name="s", threads=1)
+for d in got.values():
+    assert np.array_equal(d.posteriors, alone.posteriors) and d.bed() == alone.bed()
+print("ok")
+"""
+
+
+def test_decoding_releases_the_gil(tmp_path):
+    """decode_file opens and reads a named pipe with the GIL released, so that the Python thread
+    writing the pipe runs meanwhile (holding the GIL, the reader would wait for a writer that can
+    never run: the script runs in a child process with a time-out), while a third thread decodes
+    text; both threads' results equal a sequential decoding's (numpy array_equal, BED text)."""
+    import subprocess
+    import sys
+    try:
+        proc = subprocess.run([sys.executable, "-c", GIL_SCRIPT, str(tmp_path / "pipe")], capture_output=True,
+                              text=True, timeout=90)
+    except subprocess.TimeoutExpired:
+        pytest.fail("decode_file on a named pipe did not finish in 90 s: is the GIL held while reading?")
+    assert proc.returncode == 0 and proc.stdout == "ok\n", proc.stderr
