@@ -76,6 +76,8 @@ def test_threads_dtype_and_text_input_agree(tmp_path):
     assert np.array_equal(from_file.posteriors, one.posteriors)
     assert from_file.log_likelihood == one.log_likelihood
     assert one.posteriors.flags["C_CONTIGUOUS"] and one.posteriors.shape == (len(contig.sequence), 1)
+    # numpy's flags: the array is a view of the buffer the decoder wrote (no copy), kept by its base
+    assert not one.posteriors.flags["OWNDATA"] and one.posteriors.base is not None
 
 
 def test_records_iterate_one_at_a_time(tmp_path):
