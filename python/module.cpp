@@ -318,7 +318,8 @@ public:
         std::vector<PageCommitter::Span> spans;
         if (r.posterior64) spans.push_back({r.posterior64.get(), cells * sizeof(double)});
         if (r.posterior32) spans.push_back({r.posterior32.get(), cells * sizeof(float)});
-        if (r.path) spans.push_back({r.path.get(), static_cast<size_t>(contig.length) * 2});
+        if (r.path)
+            spans.push_back({r.path.get(), static_cast<size_t>(contig.length) * sizeof(int16_t)});
         const PageCommitter committer(std::move(spans));  // ends before r's buffers could be freed
         IntervalCaller caller(model_, call_options_);
         SinkFanout sinks(array ? std::vector<DecodeSink*>{array.get(), &caller}
