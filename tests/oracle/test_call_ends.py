@@ -45,10 +45,22 @@ def genbank_sequence(path):
     return "".join(seq).upper()
 
 
+def first_record(path):
+    """The first record of a gzip FASTA file, upper-cased (the file holds four genomes)."""
+    parts = []
+    with gzip.open(path, "rt") as f:
+        assert f.readline().startswith(">")
+        for line in f:
+            if line.startswith(">"):
+                break
+            parts.append(line.strip())
+    return "".join(parts).upper()
+
+
 def build_chimera(path):
     """Writes the chimera; returns its length and the inserts as (begin, end, donor)."""
     host = tmtest.read_fasta(HOST)[0][1]
-    donors = [("B. japonicum", genbank_sequence(BJAP)), ("S. aureus", tmtest.read_fasta(SAUREUS)[0][1])]
+    donors = [("B. japonicum", genbank_sequence(BJAP)), ("S. aureus", first_record(SAUREUS))]
     rng = np.random.default_rng(SEED)
     lengths = rng.integers(20000, 50001, SEGMENTS)
     # Host positions: one per eleventh of the host, moved by up to 40 kb.
