@@ -6,6 +6,7 @@
 #include <cmath>
 
 #include "tidemark/error.hpp"
+#include "tidemark/window.hpp"
 
 namespace tidemark {
 
@@ -41,6 +42,7 @@ void IntervalCaller::begin_contig(const Contig& contig) {
     ended_ = false;
     calls_.clear();
     lanes_.assign(reported_.size(), Lane{});
+    window_posteriors_.clear();
 }
 
 std::unique_ptr<DecodeSink> IntervalCaller::fork() const {
@@ -104,7 +106,7 @@ void IntervalCaller::meet_gap(Lane& lane, int region) {
 void IntervalCaller::join(DecodeSink& later) {
     auto* other = dynamic_cast<IntervalCaller*>(&later);
     if (!other) throw InternalError("IntervalCaller::join: not a fork of an IntervalCaller");
-    if (other->ended_ || !contig_ || ended_) {  // a whole later contig
+    if (other->ended_ || !contig_ || ended_) {  // a whole later contig (refined at its end)
         // Swapped: a fork reused for a later contig keeps these buffers (pipeline.hpp).
         calls_.swap(other->calls_);
         lanes_.swap(other->lanes_);
@@ -112,6 +114,8 @@ void IntervalCaller::join(DecodeSink& later) {
         ended_ = other->ended_;
         return;
     }
+    if (model_.class_base_scores)  // window models are never decoded in segments
+        throw InternalError("IntervalCaller: a window model's contig joined from segments");
     const int64_t gap_limit = std::max<int64_t>(options_.merge_gap, 1);
     for (size_t k = 0; k < reported_.size(); ++k) {
         const int region = reported_[k];
@@ -176,6 +180,15 @@ void IntervalCaller::block(const BlockView& view) {
     const double threshold = options_.min_posterior;
     const int64_t gap_limit = std::max<int64_t>(options_.merge_gap, 1);
     unknown_runs_in(*contig_, view.begin, view.begin + view.size, assembly_gap_min_length, gaps_);
+    if (model_.class_base_scores) {  // each window's region posteriors, at its first base
+        const int64_t w = model_.class_base_scores->window();
+        for (int64_t t = (w - view.begin % w) % w; t < view.size; t += w) {
+            if ((view.begin + t) / w * S != static_cast<int64_t>(window_posteriors_.size()))
+                throw InternalError("IntervalCaller: window posteriors out of order");
+            window_posteriors_.insert(window_posteriors_.end(), view.posterior + t * S,
+                                      view.posterior + (t + 1) * S);
+        }
+    }
     for (size_t k = 0; k < reported_.size(); ++k) {
         const int region = reported_[k];
         Lane& lane = lanes_[k];
@@ -275,11 +288,16 @@ void IntervalCaller::end_contig(const Contig&, const DecodeResult&) {
         lane = Lane{};
     }
     ended_ = true;
-    std::sort(calls_.begin(), calls_.end(), [](const Call& a, const Call& b) {
+    const auto by_position = [](const Call& a, const Call& b) {
         if (a.begin != b.begin) return a.begin < b.begin;
         if (a.end != b.end) return a.end < b.end;
         return a.region < b.region;
-    });
+    };
+    std::sort(calls_.begin(), calls_.end(), by_position);
+    if (model_.class_base_scores && contig_) {
+        refine_ends();
+        std::sort(calls_.begin(), calls_.end(), by_position);
+    }
 }
 
 }  // namespace tidemark

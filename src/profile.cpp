@@ -457,7 +457,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
 
     if (doc.contains("calling")) {
         const json& c = doc["calling"];
-        v.only_fields(c, "calling", {"min_posterior", "min_length", "merge_gap"});
+        v.only_fields(c, "calling", {"min_posterior", "min_length", "merge_gap", "refine_ends"});
         if (c.contains("min_posterior")) {
             p.calling.min_posterior = v.probability(c["min_posterior"], "calling.min_posterior");
             if (p.calling.min_posterior <= 0) v.fail("calling.min_posterior", "must be above 0");
@@ -466,6 +466,15 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
             p.calling.min_length = v.nonnegative_integer(c["min_length"], "calling.min_length");
         if (c.contains("merge_gap"))
             p.calling.merge_gap = v.nonnegative_integer(c["merge_gap"], "calling.merge_gap");
+        if (c.contains("refine_ends")) {
+            if (!c["refine_ends"].is_boolean())
+                v.fail("calling.refine_ends", "must be true or false");
+            p.calling.refine_ends = c["refine_ends"].get<bool>();
+            if (p.calling.refine_ends && p.window_size == 0)
+                v.fail("calling.refine_ends",
+                       "applies to window profiles (window.size): per-base profiles call at base "
+                       "resolution already");
+        }
     }
     return p;
 }
@@ -522,6 +531,7 @@ std::string to_json(const Profile& p) {
     doc["calling"] = {{"min_posterior", p.calling.min_posterior},
                       {"min_length", p.calling.min_length},
                       {"merge_gap", p.calling.merge_gap}};
+    if (p.calling.refine_ends) doc["calling"]["refine_ends"] = true;
     if (!p.provenance_json.empty()) doc["provenance"] = ordered_json::parse(p.provenance_json);
     return doc.dump(2) + "\n";
 }
@@ -593,6 +603,7 @@ Model compile(const Profile& p) {
     m.emission = std::move(tables);
     m.window = p.window_size;
     m.window_min_known = p.window_min_known;
+    m.refine_ends = p.calling.refine_ends;
     for (int s = 0; s < P; ++s) {
         const StateSpec& st = p.states[s];
         const int L = first[s + 1] - first[s];

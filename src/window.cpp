@@ -109,6 +109,45 @@ double fill_window_emissions(const Model& m, const Contig& contig, int64_t first
     return removed;
 }
 
+ClassBaseScores::ClassBaseScores(const Model& m)
+    : window_(m.window), regions_(static_cast<int>(m.region_names.size())) {
+    if (m.window <= 0 || m.gc_alpha.size() != static_cast<size_t>(m.states))
+        throw InternalError("ClassBaseScores needs a window model");
+    log_base_.assign(static_cast<size_t>(regions_) * 4, 0.0);
+    for (int r = 0; r < regions_; ++r) {
+        // Mean of the GC means of the region's distinct profile states (chain copies of one
+        // profile state count once).
+        double sum = 0;
+        int count = 0;
+        for (int s = 0; s < m.states; ++s) {
+            if (m.region_of_state[s] != r ||
+                (s > 0 && m.profile_state[s] == m.profile_state[s - 1]))
+                continue;
+            sum += m.gc_alpha[s] / (m.gc_alpha[s] + m.gc_beta[s]);
+            ++count;
+        }
+        if (count == 0) continue;  // a region without states is never a neighbour
+        const double gc = sum / count;
+        double* row = log_base_.data() + static_cast<size_t>(r) * 4;
+        row[0] = row[3] = std::log((1 - gc) / 2);  // A, T
+        row[1] = row[2] = std::log(gc / 2);        // C, G
+    }
+}
+
+void ClassBaseScores::difference(const Contig& contig, int64_t begin, int64_t end, int left,
+                                 int right, double* out) const {
+    const int64_t n = end - begin;
+    std::vector<uint8_t> bases(static_cast<size_t>(n));
+    contig.unpack(begin, n, bases.data());
+    double by_base[5];
+    for (uint8_t b = 0; b < 4; ++b) by_base[b] = score(left, b) - score(right, b);
+    by_base[4] = 0;
+    for (int64_t i = 0; i < n; ++i) {
+        const uint8_t b = bases[static_cast<size_t>(i)];
+        out[i] = by_base[b < 4 ? b : 4];
+    }
+}
+
 Model region_view(const Model& m) {
     Model v;
     const int R = static_cast<int>(m.region_names.size());
@@ -125,6 +164,7 @@ Model region_view(const Model& m) {
         v.chain_copy.push_back(1);
         v.chain_length.push_back(1);
     }
+    if (m.refine_ends) v.class_base_scores = std::make_shared<const ClassBaseScores>(m);
     return v;
 }
 

@@ -61,6 +61,13 @@ struct Call {
     }
 };
 
+/// The most likely change point of n bases whose left part belongs to one class and right part
+/// to another, given diff[i] = the left class's per-base log-score minus the right one's: the
+/// split k in [0, n] (bases [0, k) left, [k, n) right) that maximises the log-likelihood, i.e.
+/// the prefix sum diff[0] + ... + diff[k-1] (summed in that order; k = 0 gives 0). Among equal
+/// sums, the k nearest to `prefer`, then the smaller. O(n), one pass.
+int64_t best_change_point(const double* diff, int64_t n, int64_t prefer);
+
 /// Sums state posteriors into region posteriors and calls intervals for every reportable
 /// region. Calls of one contig are available after end_contig, sorted by start, end, region.
 /// Assembly gaps (sequence.hpp: runs of at least assembly_gap_min_length unknown bases) split
@@ -76,6 +83,23 @@ struct Call {
 /// before the seam with the first after it when the gap between them is short, so the calls
 /// are those of one sequential pass (means may differ in the last bits: sums are added in
 /// another order).
+///
+/// Ends refined at base resolution (window models with calling.refine_ends: the model carries
+/// ClassBaseScores, window.hpp): at end_contig, every call end on the window grid that lies
+/// between two classes, with known bases on both sides (not a contig end, not beside an
+/// unknown base, so never an end made by an assembly gap), moves to the best_change_point
+/// between the class on its left and the class on its right, searched over the window before
+/// and the window after it (stopping at assembly gaps and halfway to the next call end, so
+/// calls keep their order and at least one base). The class outside a call is the call of
+/// another region that meets it there, else the other region most probable in the window just
+/// outside. The calls of one contig are refined together from its own bases and window
+/// posteriors, after the whole contig is decoded, so they do not depend on threads or shards
+/// (window models are never split). A moved call's posterior columns give each base its
+/// window's posterior, as the posterior tracks do: mean_posterior is the mean over the call's
+/// bases, bases of a partial window counting with their window's value; confident_bases counts
+/// the bases whose window is at or above both levels; the core spans the first to the last
+/// such base inside the call; min_length and the island criteria judged the call before it
+/// moved.
 class IntervalCaller final : public DecodeSink {
 public:
     IntervalCaller(const Model& model, CallOptions options);
@@ -121,6 +145,10 @@ private:
     /// The lane meets an assembly gap: the open group ends before it, nothing merges across.
     void meet_gap(Lane& lane, int region);
     void finish(const Group& group, int region);  ///< a final group: filter, then a call
+    /// Moves the contig's call ends onto bases (see the class comment); call_ends.cpp.
+    void refine_ends();
+    /// A moved call's posterior columns from window_posteriors_.
+    void posterior_columns(Call& call) const;
 
     const Model& model_;
     CallOptions options_;
@@ -130,6 +158,9 @@ private:
     std::vector<Lane> lanes_;
     std::vector<Call> calls_;
     std::vector<std::pair<int64_t, int64_t>> gaps_;  ///< of the current block
+    /// With refined ends: every region's posterior per window of the contig so far
+    /// ([window * regions + region]), read at each window's first base.
+    std::vector<double> window_posteriors_;
     CompositionSource composition_source_;
 };
 

@@ -4,6 +4,7 @@
 
 #include <array>
 #include <cstdint>
+#include <memory>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -11,6 +12,8 @@
 #include "tidemark/sequence.hpp"
 
 namespace tidemark {
+
+class ClassBaseScores;  // window.hpp
 
 inline constexpr const char* profile_format = "tidemark-profile/1";
 inline constexpr int max_emission_order = 5;
@@ -73,6 +76,10 @@ struct CallingDefaults {
     double min_posterior = 0.5;
     int64_t min_length = 1;
     int64_t merge_gap = 0;
+    /// Window profiles: a call's ends between two classes are moved from the window grid to the
+    /// base where the change from one class to the other is most likely (calling.refine_ends;
+    /// IntervalCaller, call.hpp). Off by default: isochores are domains of the window scale.
+    bool refine_ends = false;
 };
 
 /// A validated profile as written in its file.
@@ -190,6 +197,11 @@ struct Model {
     int64_t window = 0;
     /// Window profiles: windows with fewer known bases emit 1 (Profile::window_min_known).
     int64_t window_min_known = 1;
+    /// Window profiles: calls' ends are refined at base resolution (CallingDefaults::refine_ends).
+    bool refine_ends = false;
+    /// Set on region_view(model) of a window model whose calls' ends are refined: each region's
+    /// per-base score (window.hpp), with which the caller places ends inside windows.
+    std::shared_ptr<const ClassBaseScores> class_base_scores;
     /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
     /// lbeta(alpha, beta) (the normaliser, precomputed).
     std::vector<double> gc_alpha, gc_beta, gc_lbeta;

@@ -22,16 +22,20 @@ struct BedColumn {
 /// tidemark's. The browser style puts thickStart, thickEnd and itemRgb after the sixth.
 inline constexpr BedColumn bed_columns[] = {
     {"chrom", "record name"},
-    {"start", "first base of the call, 0-based"},
-    {"end", "one past the last base"},
+    {"start",
+     "first base of the call, 0-based (window profiles with calling.refine_ends: refined from the "
+     "window grid to a base)"},
+    {"end", "one past the last base (likewise)"},
     {"name", "region type (e.g. cpg_island)"},
     {"score", "round(1000 x mean_posterior), 0-1000"},
     {"strand", "always '.' (composition regions have no strand)"},
     {"mean_posterior",
-     "mean of P(region | whole sequence) over the call's bases, merged gaps included"},
+     "mean of P(region | whole sequence) over the call's bases, merged gaps included (window "
+     "profiles: each base has its window's posterior, also in a window the call covers in part)"},
     {"confident_fraction",
      "share of the call's bases with P(region) >= --core-posterior (0.95): how much of the call "
-     "is confidently of its type, as against its uncertain edges and merged stretches"},
+     "is confidently of its type, as against its uncertain edges and merged stretches (window "
+     "profiles: the bases whose window's posterior is at that level)"},
     {"gc_fraction", "(C+G)/(A+C+G+T) over the known bases of the call"},
     {"cpg_obs_exp",
      "observed/expected CpG = N(CpG) x L / (N(C) x N(G)), L = known bases (Gardiner-Garden & "

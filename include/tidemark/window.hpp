@@ -52,8 +52,36 @@ void fill_window_log_emissions(const Model& model, const Contig& contig, int64_t
 double fill_window_emissions(const Model& model, const Contig& contig, int64_t first, int64_t count,
                              uint8_t* known, double* emission);
 
+/// How well single bases fit each region of a window model: the one definition the caller uses
+/// to move a call's end from the window grid to a base (calling.refine_ends; IntervalCaller in
+/// call.hpp). A window emission scores a window's counts; this scores a base under the same
+/// class, so that the most likely change point between two classes can be found base by base.
+/// Today's term is the G+C one: log P(base) under independent bases with the region's GC mean
+/// (P(C) = P(G) = gc/2, P(A) = P(T) = (1 - gc)/2; the beta-binomial's overdispersion describes
+/// windows, not bases, and is left out). A region of several profile states takes the mean of
+/// their GC means. Another window emission kind adds its per-base term in difference().
+class ClassBaseScores {
+public:
+    explicit ClassBaseScores(const Model& window_model);
+    int64_t window() const { return window_; }
+    int regions() const { return regions_; }
+    /// out[i] = score(left, base) - score(right, base) for the bases [begin, end) of the contig
+    /// (the log-likelihood ratio of the base under class `left` against class `right`); 0 for
+    /// an unknown base, which emits 1 in every class.
+    void difference(const Contig& contig, int64_t begin, int64_t end, int left, int right,
+                    double* out) const;
+    /// The score of one known base (0..3) under region r (natural log).
+    double score(int r, uint8_t base) const { return log_base_[static_cast<size_t>(r) * 4 + base]; }
+
+private:
+    int64_t window_ = 0;
+    int regions_ = 0;
+    std::vector<double> log_base_;  ///< [region * 4 + base]
+};
+
 /// The model that base-level sinks see for a window model: one state per region (the region's
-/// posterior), with the window model's names, colours and report flags.
+/// posterior), with the window model's names, colours and report flags; with the regions'
+/// ClassBaseScores when the model's calls have their ends refined (Model::refine_ends).
 Model region_view(const Model& model);
 
 /// Receives a window model's blocks (one position per window) and hands the base-level sink the
