@@ -190,6 +190,9 @@ struct Model {
     int64_t window = 0;
     /// Window profiles: windows with fewer known bases emit 1 (Profile::window_min_known).
     int64_t window_min_known = 1;
+    /// Region views of window profiles (window.hpp: region_view), whose positions are bases: the
+    /// window size of the model they view (0 otherwise); window_min_known is the viewed one's.
+    int64_t viewed_window = 0;
     /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
     /// lbeta(alpha, beta) (the normaliser, precomputed).
     std::vector<double> gc_alpha, gc_beta, gc_lbeta;
