@@ -28,6 +28,8 @@ test_packages=(
   python3 python3-numpy python3-scipy python3-pomegranate python3-pybigwig python3-matplotlib
   tabix bedtools genometools gzip xz-utils bzip2 zstd
   bowtie2-examples smalt-examples bowtie-examples cct-examples sibelia-examples ragout-examples
+  # four Klebsiella genomes of the islands benchmark panel (scripts/island-panel.py)
+  kleborate-examples
   # the HTML report (scan --html): rendered by a real browser, validated by two HTML parsers
   chromium python3-pil python3-html5lib tidy
   # the browser-client test (tests/oracle/test_browser_client.py): node runs igv.js and

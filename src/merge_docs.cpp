@@ -103,13 +103,19 @@ void warn_on_commands(const std::vector<ShardDoc>& docs, const Logger& log) {
         }
 }
 
-// The parts of a Model the summary writer reads: region names and which are reported.
+// The parts of a Model the summary writer reads: region names and which are reported, and for
+// contig screening (ForeignContigRule) a window profile's min_known, which the shard summaries
+// record with their (empty or partial) foreign_contigs lists.
 Model region_model(const ordered_json& doc) {
     Model m;
     m.name = doc.value("profile", "");
     for (const auto& [name, r] : doc["genome"]["regions"].items()) {
         m.region_names.push_back(name);
         m.region_report.push_back(r.value("reported", false));
+    }
+    if (doc.contains("foreign_contigs")) {
+        m.window_min_known = doc["foreign_contigs"].value("min_known_bases", int64_t{1});
+        m.viewed_window = m.window_min_known;  // any positive size: a window profile's view
     }
     return m;
 }

@@ -224,6 +224,68 @@ struct Page {
             "call = its mean posterior.</p>\n</section>\n";
     }
 
+    // Contig screening (ForeignContigRule): the contigs whose composition is foreign to the
+    // assembly, in input order, up to max_rows (the summary lists them all). Only for profiles
+    // the rule applies to, so that other reports stay as they were.
+    void foreign_section() {
+        if (!ForeignContigRule::applies(model)) return;
+        constexpr size_t max_rows = 200;
+        std::vector<const ContigSummary*> foreign;
+        int64_t bases = 0;
+        for (const auto& c : *in.contigs)
+            if (ForeignContigRule::foreign(model, c)) {
+                foreign.push_back(&c);
+                bases += c.length;
+            }
+        std::string atypical;
+        for (const int r : reported)
+            atypical +=
+                (atypical.empty() ? "" : ", ") + esc(model.region_names[static_cast<size_t>(r)]);
+        out += "<section id=\"foreign\">\n<h2>Contigs of foreign composition</h2>\n";
+        out += fmt::format(
+            "<p class=\"note\">A contig is listed when it has at least {} known bases (enough for "
+            "one window that carries evidence) and its mean posterior of the atypical regions "
+            "({}) over its known bases, P(atypical), is at least {}.</p>\n",
+            grouped(ForeignContigRule::min_known(model)), atypical,
+            num(ForeignContigRule::min_atypical, 1));
+        if (foreign.empty()) {
+            out += "<p>No contig is foreign to the assembly by this rule.</p>\n</section>\n";
+            return;
+        }
+        out += fmt::format(
+            "<p>{} of {} sequences, {} bp{}.</p>\n", grouped(static_cast<int64_t>(foreign.size())),
+            grouped(static_cast<int64_t>(in.contigs->size())), grouped(bases),
+            foreign.size() > max_rows
+                ? fmt::format("; the first {} listed, the summary lists all", max_rows)
+                : std::string());
+        out +=
+            "<div class=\"wide\"><table>\n<tr><th>#</th><th>sequence</th><th>length "
+            "(bp)</th><th>known (bp)</th><th>GC</th><th>P(atypical)</th>";
+        for (const int r : reported)
+            out += fmt::format(
+                "<th><b class=\"sw\" style=\"color:{}\">\u25a0</b>{}<br>expected "
+                "%</th>",
+                rgb(model, r), esc(model.region_names[static_cast<size_t>(r)]));
+        out += "</tr>\n";
+        for (size_t i = 0; i < foreign.size() && i < max_rows; ++i) {
+            const ContigSummary& c = *foreign[i];
+            const auto known = static_cast<double>(c.composition.known());
+            out += fmt::format(
+                "<tr class=\"num\"><td>{}</td><td class=\"txt\">{}</td><td>{}</td><td>{}</td>"
+                "<td>{}</td><td>{}</td>",
+                c.input_index + 1, esc(c.name), grouped(c.length), grouped(c.composition.known()),
+                num(c.composition.gc_fraction(), 4),
+                num(ForeignContigRule::atypical_fraction(model, c), 4));
+            for (const int r : reported) {
+                const auto ri = static_cast<size_t>(r);
+                const double e = ri < c.expected_bases.size() ? c.expected_bases[ri] : 0.0;
+                out += fmt::format("<td>{}</td>", num(100.0 * e / known, 3));
+            }
+            out += "</tr>\n";
+        }
+        out += "</table></div>\n</section>\n";
+    }
+
     // The shown sequences longest first (ties: input order): on a draft the figure and the
     // table start with the contigs that hold most of the assembly.
     std::vector<const SequenceSketch*> by_length() const {
@@ -912,6 +974,7 @@ std::string format_html_report(const HtmlReportInput& in) {
     page.warnings_box();
     page.run_section();
     page.genome_section(g);
+    page.foreign_section();
     page.along_section();
     page.windows_section();
     page.calls_list_section();

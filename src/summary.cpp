@@ -188,6 +188,9 @@ ordered_json contig_json(const Model& model, const ContigSummary& c, bool report
     o["gc_fraction"] = c.composition.gc_fraction();
     o["cpg_obs_exp"] = number_or_null(c.composition.cpg_obs_exp());
     o["log_likelihood"] = c.log_likelihood;
+    // Only where the screening rule applies, so that other profiles' summaries stay as they were.
+    if (ForeignContigRule::applies(model))
+        o["atypical_fraction"] = ForeignContigRule::atypical_fraction(model, c);
     ordered_json regions = ordered_json::object();
     for (size_t r = 0; r < model.region_names.size(); ++r) {
         const double expected = r < c.expected_bases.size() ? c.expected_bases[r] : 0.0;
@@ -211,6 +214,64 @@ ordered_json contig_json(const Model& model, const ContigSummary& c, bool report
     }
     o["regions"] = regions;
     return o;
+}
+
+}  // namespace
+
+bool ForeignContigRule::applies(const Model& model) {
+    const auto& report = model.region_report;
+    return (model.window > 0 || model.viewed_window > 0) &&
+           std::find(report.begin(), report.end(), true) != report.end() &&
+           std::find(report.begin(), report.end(), false) != report.end();
+}
+
+double ForeignContigRule::atypical_fraction(const Model& model, const ContigSummary& c) {
+    double atypical = 0;
+    for (size_t r = 0; r < model.region_names.size() && r < c.expected_bases.size(); ++r)
+        if (model.region_report[r]) atypical += c.expected_bases[r];
+    return known_share(atypical, c);
+}
+
+bool ForeignContigRule::foreign(const Model& model, const ContigSummary& c) {
+    return applies(model) && c.composition.known() >= min_known(model) &&
+           atypical_fraction(model, c) >= min_atypical;
+}
+
+namespace {
+
+// The regions on one side of the screening rule, by name.
+std::vector<std::string> regions_reported(const Model& model, bool reported) {
+    std::vector<std::string> names;
+    for (size_t r = 0; r < model.region_names.size(); ++r)
+        if (model.region_report[r] == reported) names.push_back(model.region_names[r]);
+    return names;
+}
+
+std::string joined(const std::vector<std::string>& names) {
+    std::string out;
+    for (const auto& n : names) out += (out.empty() ? "" : ", ") + n;
+    return out;
+}
+
+ordered_json foreign_contigs_json(const Model& model, const std::vector<ContigSummary>& foreign) {
+    ordered_json list = ordered_json::array();
+    int64_t bases = 0;
+    for (const auto& c : foreign) {
+        bases += c.length;
+        list.push_back({{"name", c.name},
+                        {"input_index", c.input_index},
+                        {"length", c.length},
+                        {"known_bases", c.composition.known()},
+                        {"gc_fraction", c.composition.gc_fraction()},
+                        {"atypical_fraction", ForeignContigRule::atypical_fraction(model, c)}});
+    }
+    return {{"atypical_regions", regions_reported(model, true)},
+            {"background_regions", regions_reported(model, false)},
+            {"min_known_bases", ForeignContigRule::min_known(model)},
+            {"min_atypical_fraction", ForeignContigRule::min_atypical},
+            {"count", static_cast<int64_t>(foreign.size())},
+            {"bases", bases},
+            {"contigs", list}};
 }
 
 }  // namespace
@@ -445,6 +506,16 @@ void SummaryBuilder::add(const ContigSummary& c) {
         named.composition = c.composition;
         undepleted_.push_back(std::move(named));
     }
+    if (ForeignContigRule::foreign(model_, c)) {
+        ContigSummary named;
+        named.name = c.name;
+        named.input_index = c.input_index;
+        named.offset = c.offset;
+        named.length = c.length;
+        named.composition = c.composition;
+        named.expected_bases = c.expected_bases;
+        foreign_.push_back(std::move(named));
+    }
 }
 
 std::vector<DepletionWarning> SummaryBuilder::depletion_warnings() const {
@@ -502,6 +573,8 @@ void SummaryBuilder::write_document(const char* format, const RunInfo& info, boo
             if (model_.region_report[r])
                 doc["genome"]["regions"][model_.region_names[r]].update(call_histograms(total_, r));
     doc["genome"]["contigs"] = contigs_;
+    if (ForeignContigRule::applies(model_))
+        doc["foreign_contigs"] = foreign_contigs_json(model_, foreign_);
     // The entries are spooled: a placeholder marks where they go.
     static const std::string placeholder = "tidemark: contig entries";
     doc["contigs"] = placeholder;
@@ -586,6 +659,26 @@ std::string SummaryBuilder::genome_table(const ResourceUsage& usage) const {
             100.0 * known_share(static_cast<double>(g.called_bases[r]), g),
             100.0 * known_share(g.expected_bases[r], g), ls.min, ls.median, ls.max,
             g.calls[r] > 0 ? g.confidence_sum[r] / static_cast<double>(g.calls[r]) : 0.0);
+    }
+    if (ForeignContigRule::applies(model_)) {
+        // The list itself is in the summary; a terminal gets the first names.
+        constexpr size_t named = 10;
+        int64_t bases = 0;
+        for (const auto& c : foreign_) bases += c.length;
+        out += fmt::format(
+            "tidemark: foreign contigs (P(atypical) >= {} over >= {} known bases; atypical: "
+            "{}): {} of {}, {} bp{}\n",
+            ForeignContigRule::min_atypical, ForeignContigRule::min_known(model_),
+            joined(regions_reported(model_, true)), foreign_.size(), contigs_, bases,
+            foreign_.empty() ? "" : ":");
+        for (size_t i = 0; i < foreign_.size() && i < named; ++i)
+            out += fmt::format("tidemark:   {} ({} bp, GC {:.4f}, P(atypical) {:.4f})\n",
+                               foreign_[i].name, foreign_[i].length,
+                               foreign_[i].composition.gc_fraction(),
+                               ForeignContigRule::atypical_fraction(model_, foreign_[i]));
+        if (foreign_.size() > named)
+            out += fmt::format("tidemark:   and {} more (--summary lists them all)\n",
+                               foreign_.size() - named);
     }
     out += fmt::format(
         "tidemark: {:.2f} s wall, {:.2f} s CPU, {:.2f} Mbp/s, peak memory {:.1f} MiB\n",

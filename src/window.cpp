@@ -156,6 +156,8 @@ Model region_view(const Model& m) {
     v.region_names = m.region_names;
     v.region_report = m.region_report;
     v.region_colors = m.region_colors;
+    v.viewed_window = m.window;  // the evidence rule, for contig screening (summary.hpp)
+    v.window_min_known = m.window_min_known;
     for (int r = 0; r < R; ++r) {
         v.state_names.push_back(m.region_names[r]);
         v.region_of_state.push_back(r);

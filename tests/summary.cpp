@@ -139,3 +139,56 @@ TEST_CASE("expected bases sum the posteriors over known bases only", "[summary]"
     CHECK(totals.expected_bases()[island] == Approx(1.4));
     CHECK(totals.expected_bases()[1 - island] == Approx(4 - 1.4));
 }
+
+// The screening rule by hand: gc-shift's reported regions are at_shifted and gc_shifted, its
+// background typical; min_known 2500 (data/profiles/gc-shift.json).
+TEST_CASE("foreign contigs: P(atypical) >= 0.5 over at least window.min_known known bases",
+          "[summary]") {
+    Profile profile = load_profile("gc-shift");
+    profile.is_template = false;  // its placeholder classes are fine for counting
+    const Model model = compile(profile);
+    REQUIRE(ForeignContigRule::applies(model));
+    REQUIRE(ForeignContigRule::min_known(model) == 2500);
+    CHECK_FALSE(ForeignContigRule::applies(compile(load_profile("cpg-island"))));
+    CHECK_FALSE(ForeignContigRule::applies(compile(load_profile("isochore"))));  // no background
+    const auto region = [&](const std::string& name) {
+        return static_cast<size_t>(
+            std::find(model.region_names.begin(), model.region_names.end(), name) -
+            model.region_names.begin());
+    };
+    const auto contig = [&](const std::string& name, int64_t known, double at, double gc) {
+        ContigSummary c;
+        c.name = name;
+        c.length = known + 100;
+        c.unknown = 100;
+        c.composition.a = known / 2;
+        c.composition.t = known - known / 2;
+        c.composition.unknown = 100;
+        c.expected_bases.assign(model.region_names.size(), 0.0);
+        c.expected_bases[region("at_shifted")] = at * static_cast<double>(known);
+        c.expected_bases[region("gc_shifted")] = gc * static_cast<double>(known);
+        c.expected_bases[region("typical")] = (1 - at - gc) * static_cast<double>(known);
+        return c;
+    };
+    // 0.3 + 0.2 = 0.5 of 2,500 known bases: foreign (both atypical regions count).
+    CHECK(ForeignContigRule::foreign(model, contig("edge", 2500, 0.3, 0.2)));
+    CHECK(ForeignContigRule::atypical_fraction(model, contig("edge", 2500, 0.3, 0.2)) ==
+          Approx(0.5));
+    CHECK_FALSE(ForeignContigRule::foreign(model, contig("short", 2499, 1.0, 0.0)));
+    CHECK_FALSE(ForeignContigRule::foreign(model, contig("typical", 10000, 0.2, 0.2)));
+    SummaryBuilder b(model, false, {true, false, false});
+    b.add(contig("edge", 2500, 0.3, 0.2));
+    b.add(contig("short", 56, 1.0, 0.0));
+    b.add(contig("long", 50000, 0.9, 0.0));
+    RunInfo info;
+    const ordered_json doc = ordered_json::parse(streamed(b, info, false));
+    const auto& f = doc["foreign_contigs"];
+    CHECK(f["count"] == 2);
+    CHECK(f["bases"] == 2600 + 50100);
+    CHECK(f["min_known_bases"] == 2500);
+    CHECK(f["contigs"][0]["name"] == "edge");
+    CHECK(f["contigs"][1]["name"] == "long");
+    CHECK(f["contigs"][1]["atypical_fraction"].get<double>() == Approx(0.9));
+    CHECK(doc["contigs"][1]["atypical_fraction"].get<double>() == Approx(1.0));
+    CHECK(f["background_regions"] == ordered_json::array({"typical"}));
+}

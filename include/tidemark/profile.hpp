@@ -202,6 +202,9 @@ struct Model {
     /// Set on region_view(model) of a window model whose calls' ends are refined: each region's
     /// per-base score (window.hpp), with which the caller places ends inside windows.
     std::shared_ptr<const ClassBaseScores> class_base_scores;
+    /// Region views of window profiles (window.hpp: region_view), whose positions are bases: the
+    /// window size of the model they view (0 otherwise); window_min_known is the viewed one's.
+    int64_t viewed_window = 0;
     /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
     /// lbeta(alpha, beta) (the normaliser, precomputed).
     std::vector<double> gc_alpha, gc_beta, gc_lbeta;

@@ -2,6 +2,7 @@
 // totals and call statistics, as JSON (--summary, --report) and as readable tables.
 #pragma once
 
+#include <algorithm>
 #include <cstdint>
 #include <functional>
 #include <memory>
@@ -136,6 +137,31 @@ struct DepletionWarning {
 std::vector<DepletionWarning> depletion_warnings(const Model& model,
                                                  const std::vector<ContigSummary>& contigs);
 
+/// Contig screening: which contigs of an assembly have a composition foreign to it. It applies
+/// to window profiles with a background (the regions the profile does not report, such as
+/// gc-shift's `typical`) and at least one reported region; the reported regions are then the
+/// atypical ones. A contig's P(atypical) is the mean posterior of the atypical regions over its
+/// known bases (the summary's `atypical_fraction`, the sum of their `expected_fraction`). A
+/// contig is foreign when it carries evidence, at least window.min_known known bases (fewer
+/// cannot fill one window that counts, the evidence rule of the profile format), and its
+/// P(atypical) is at least 0.5: more of its bases are atypical than typical (tidemark's rule;
+/// screening drafts for foreign contigs is a standard step before submission, common practice).
+struct ForeignContigRule {
+    static constexpr double min_atypical = 0.5;
+    /// True when the model has a background and an atypical region and is a window profile (or
+    /// the region view of one, as the sinks see it).
+    static bool applies(const Model& model);
+    /// The known bases a contig needs: the model's window.min_known.
+    static int64_t min_known(const Model& model) {
+        return std::max<int64_t>(1, model.window_min_known);
+    }
+    /// Mean posterior of the atypical (reported) regions over the contig's known bases (0 when
+    /// none is known).
+    static double atypical_fraction(const Model& model, const ContigSummary& contig);
+    /// The rule above (false when it does not apply to the model).
+    static bool foreign(const Model& model, const ContigSummary& contig);
+};
+
 /// Genome-wide totals of the contigs (name "(all)"; call lengths and confidences of all contigs).
 ContigSummary genome_total(const Model& model, const std::vector<ContigSummary>& contigs);
 
@@ -159,6 +185,9 @@ public:
     int64_t contigs() const { return contigs_; }
     const ContigSummary& total() const { return total_; }
     std::vector<DepletionWarning> depletion_warnings() const;
+    /// The contigs ForeignContigRule flags, in input order (name, input index, length and
+    /// composition kept; expected bases as given).
+    const std::vector<ContigSummary>& foreign_contigs() const { return foreign_; }
 
     /// Receives a document piece by piece.
     using Writer = std::function<void(std::string_view)>;
@@ -179,6 +208,7 @@ private:
     int64_t contigs_ = 0;
     ContigSummary total_;
     std::vector<ContigSummary> undepleted_;  ///< contigs the guard names (name, composition)
+    std::vector<ContigSummary> foreign_;     ///< contigs ForeignContigRule flags
     std::unique_ptr<Spool> summary_entries_, report_entries_, table_rows_;
 };
 
