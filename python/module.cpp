@@ -66,8 +66,14 @@ py::list states_of(const Profile& p) {
         d["name"] = s.name;
         d["region"] = p.regions[static_cast<size_t>(s.region)].name;
         if (p.windowed()) {
-            d["gc_mean"] = s.gc.mean;
-            d["gc_dispersion"] = s.gc.dispersion;
+            if (s.has_gc) {
+                d["gc_mean"] = s.gc.mean;
+                d["gc_dispersion"] = s.gc.dispersion;
+            }
+            if (s.signature.present()) {
+                d["signature_k"] = s.signature.k;
+                d["signature_concentration"] = s.signature.concentration;
+            }
         } else {
             d["order"] = s.order;
             py::array_t<double> rows(

@@ -106,6 +106,119 @@ private:
     std::string origin_;
 };
 
+// states[].signature: k, per-context concentration (a number applies to every context) and mean
+// rows; positive entries (a Dirichlet parameter of 0 is no distribution).
+WindowSignature parse_signature(const Validator& v, const json& sig, const std::string& where) {
+    v.only_fields(sig, where, {"k", "concentration", "mean", "concentration_below"});
+    WindowSignature out;
+    const json& k = v.field(sig, "k", where);
+    if (!k.is_number_integer() || k.get<int64_t>() < 1 || k.get<int64_t>() > max_signature_k)
+        v.fail(where + ".k", fmt::format("must be an integer from 1 to {}", max_signature_k));
+    out.k = k.get<int>();
+    const size_t contexts = size_t{1} << (2 * (out.k - 1));
+    const auto positive = [&](const json& x, const std::string& at) {
+        if (!x.is_number()) v.fail(at, "must be a number");
+        const double value = x.get<double>();
+        if (!(std::isfinite(value) && value > 0))
+            v.fail(at, fmt::format("must be positive and finite, not {}", value));
+        return value;
+    };
+    const json& conc = v.field(sig, "concentration", where);
+    if (conc.is_array()) {
+        if (conc.size() != contexts)
+            v.fail(where + ".concentration",
+                   fmt::format("must be one number or an array of {} (4^(k-1)) numbers", contexts));
+        for (size_t c = 0; c < contexts; ++c)
+            out.concentration.push_back(
+                positive(conc[c], fmt::format("{}.concentration[{}]", where, c)));
+    } else {
+        out.concentration.assign(contexts, positive(conc, where + ".concentration"));
+    }
+    const json& rows = v.field(sig, "mean", where);
+    if (!rows.is_array() || rows.size() != contexts)
+        v.fail(where + ".mean",
+               fmt::format("must be an array of {} rows (4^(k-1)) of 4 probabilities", contexts));
+    for (size_t c = 0; c < contexts; ++c) {
+        const std::string rw = fmt::format("{}.mean[{}]", where, c);
+        if (!rows[c].is_array() || rows[c].size() != 4)
+            v.fail(rw, "must be 4 probabilities P(A), P(C), P(G), P(T) after the context");
+        std::array<double, 4> row{};
+        double sum = 0;
+        for (int b = 0; b < 4; ++b) {
+            row[b] = v.probability(rows[c][b], fmt::format("{}[{}]", rw, b));
+            if (!(row[b] > 0)) v.fail(fmt::format("{}[{}]", rw, b), "must be above 0");
+            sum += row[b];
+        }
+        v.sums_to_one(sum, rw);
+        out.mean.push_back(row);
+        // alpha = concentration * mean must stay a positive finite Dirichlet parameter.
+        for (int b = 0; b < 4; ++b)
+            if (!(out.concentration[c] * row[b] > 0) ||
+                !std::isfinite(out.concentration[c] * row[b]))
+                v.fail(rw, fmt::format("concentration {} times mean {} is no Dirichlet parameter",
+                                       out.concentration[c], row[b]));
+    }
+    if (sig.contains("concentration_below")) {
+        out.concentration_reference = v.string_field(sig, "concentration_below", where);
+        if (out.concentration_reference.empty())
+            v.fail(where + ".concentration_below", "must not be empty (omit the field instead)");
+    }
+    return out;
+}
+
+// The emission kinds of a window profile: every state carries the same ones (gc, signature, or
+// both; one k), since a G+C count's probability and a sequence's are not comparable evidence;
+// signature.concentration_below names another unconstrained, untied state with a signature and
+// holds already (training keeps it but must start there).
+void check_window_kinds(const Profile& p, const Validator& v) {
+    if (p.window_size <= 0) return;
+    const StateSpec& first = p.states.front();
+    for (size_t i = 0; i < p.states.size(); ++i) {
+        const StateSpec& s = p.states[i];
+        const std::string where = fmt::format("states[{}] ('{}')", i, s.name);
+        if (s.has_gc != first.has_gc)
+            v.fail(where, fmt::format("{} 'gc' but states[0] ('{}') {}: every state of a window "
+                                      "profile carries the same emission kinds",
+                                      s.has_gc ? "has" : "has no", first.name,
+                                      first.has_gc ? "has" : "has not"));
+        if (s.signature.k != first.signature.k)
+            v.fail(
+                where + ".signature",
+                fmt::format("{} but states[0] ('{}') {}: every state of a window profile "
+                            "carries the same emission kinds (and one k)",
+                            s.signature.present() ? fmt::format("k is {}", s.signature.k)
+                                                  : std::string("is missing"),
+                            first.name,
+                            first.signature.present() ? fmt::format("has k {}", first.signature.k)
+                                                      : std::string("has none")));
+    }
+    for (size_t i = 0; i < p.states.size(); ++i) {
+        const StateSpec& s = p.states[i];
+        const std::string where = fmt::format("states[{}] ('{}')", i, s.name);
+        const std::string& ref_name = s.signature.concentration_reference;
+        if (ref_name.empty()) continue;
+        const std::string at = where + ".signature.concentration_below";
+        const int r = p.state_index(ref_name);
+        if (r < 0) v.fail(at, "names unknown state '" + ref_name + "'");
+        if (r == static_cast<int>(i)) v.fail(at, "names the state itself");
+        const StateSpec& ref = p.states[r];
+        if (!ref.signature.concentration_reference.empty())
+            v.fail(at, fmt::format("names '{}', which is constrained itself; a reference must "
+                                   "be unconstrained",
+                                   ref.name));
+        if (!s.tie.empty() || !ref.tie.empty())
+            v.fail(at, "a constrained state and its reference cannot be tied");
+        if (ref.signature.k != s.signature.k)
+            v.fail(at, fmt::format("names '{}', whose signature differs in k", ref.name));
+        for (size_t c = 0; c < s.signature.concentration.size(); ++c)
+            if (s.signature.concentration[c] > ref.signature.concentration[c])
+                v.fail(at, fmt::format("concentration[{}] {} is above the concentration {} of "
+                                       "'{}'",
+                                       c, s.signature.concentration[c],
+                                       ref.signature.concentration[c], ref.name));
+    }
+}
+
 // gc.below / gc.above: the reference exists, is another unconstrained and untied state, the mean
 // is on its side already (training keeps it there but must start there), and one reference
 // orders at most max_gc_ordered states (the M-step tries every subset of them tied to it).
@@ -155,6 +268,12 @@ void check_ties(const Profile& p, const Validator& v) {
                 std::abs(a.gc.dispersion - b.gc.dispersion) > tie_tolerance)
                 v.fail(where + ".tie",
                        fmt::format("tie group '{}': gc differs from '{}'; tied states must "
+                                   "carry identical emissions",
+                                   a.tie, b.name));
+            if (a.signature.k != b.signature.k || a.signature.mean != b.signature.mean ||
+                a.signature.concentration != b.signature.concentration)
+                v.fail(where + ".tie",
+                       fmt::format("tie group '{}': signature differs from '{}'; tied states must "
                                    "carry identical emissions",
                                    a.tie, b.name));
             for (size_t r = 0; r < a.emissions.size(); ++r)
@@ -332,14 +451,17 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
             for (const char* key : {"order", "emissions"})
                 if (states[i].contains(key))
                     v.fail(fmt::format("{}.{}", where, key),
-                           "a window profile (window.size is set) gives each state 'gc', not "
-                           "'order' and 'emissions'");
-            v.only_fields(states[i], where, {"name", "region", "gc", "description", "tie"});
+                           "a window profile (window.size is set) gives each state 'gc' and/or "
+                           "'signature', not 'order' and 'emissions'");
+            v.only_fields(states[i], where,
+                          {"name", "region", "gc", "signature", "description", "tie"});
         } else {
-            if (states[i].contains("gc"))
-                v.fail(where + ".gc",
-                       "'gc' emissions need a window profile (set window.size), per-base "
-                       "states give 'order' and 'emissions'");
+            for (const char* key : {"gc", "signature"})
+                if (states[i].contains(key))
+                    v.fail(fmt::format("{}.{}", where, key),
+                           fmt::format("'{}' emissions need a window profile (set window.size), "
+                                       "per-base states give 'order' and 'emissions'",
+                                       key));
             v.only_fields(states[i], where,
                           {"name", "region", "order", "emissions", "description", "tie"});
         }
@@ -351,7 +473,13 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         const std::string region = v.string_field(states[i], "region", where);
         s.region = p.region_index(region);
         if (s.region < 0) v.fail(where + ".region", "names unknown region '" + region + "'");
-        if (p.window_size > 0) {
+        if (p.window_size > 0 && states[i].contains("signature"))
+            s.signature = parse_signature(v, states[i]["signature"], where + ".signature");
+        if (p.window_size > 0 && !states[i].contains("gc")) {
+            if (!s.signature.present())
+                v.fail(where, "missing required field 'gc' (or 'signature')");
+            s.has_gc = false;
+        } else if (p.window_size > 0) {
             const json& gc = v.field(states[i], "gc", where);
             v.only_fields(gc, where + ".gc", {"mean", "dispersion", "below", "above"});
             if (gc.contains("below") && gc.contains("above"))
@@ -415,6 +543,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         p.states.push_back(std::move(s));
     }
     check_ties(p, v);
+    check_window_kinds(p, v);
     check_gc_order(p, v);
     for (size_t r = 0; r < p.regions.size(); ++r)
         if (std::none_of(p.states.begin(), p.states.end(),
@@ -505,9 +634,24 @@ std::string to_json(const Profile& p) {
         o["region"] = p.regions[s.region].name;
         if (p.window_size > 0) {
             if (!s.tie.empty()) o["tie"] = s.tie;
-            o["gc"] = {{"mean", s.gc.mean}, {"dispersion", s.gc.dispersion}};
-            if (!s.gc_reference.empty())
-                o["gc"][s.gc_side < 0 ? "below" : "above"] = s.gc_reference;
+            if (s.has_gc) {
+                o["gc"] = {{"mean", s.gc.mean}, {"dispersion", s.gc.dispersion}};
+                if (!s.gc_reference.empty())
+                    o["gc"][s.gc_side < 0 ? "below" : "above"] = s.gc_reference;
+            }
+            if (s.signature.present()) {
+                ordered_json sig;
+                sig["k"] = s.signature.k;
+                const auto& conc = s.signature.concentration;
+                if (std::all_of(conc.begin(), conc.end(), [&](double x) { return x == conc[0]; }))
+                    sig["concentration"] = conc[0];
+                else
+                    sig["concentration"] = conc;
+                sig["mean"] = s.signature.mean;
+                if (!s.signature.concentration_reference.empty())
+                    sig["concentration_below"] = s.signature.concentration_reference;
+                o["signature"] = sig;
+            }
             doc["states"].push_back(o);
             continue;
         }
@@ -604,6 +748,10 @@ Model compile(const Profile& p) {
     m.window = p.window_size;
     m.window_min_known = p.window_min_known;
     m.refine_ends = p.calling.refine_ends;
+    if (p.window_size > 0) {
+        m.window_gc = p.states.front().has_gc;
+        m.signature_k = p.states.front().signature.k;
+    }
     for (int s = 0; s < P; ++s) {
         const StateSpec& st = p.states[s];
         const int L = first[s + 1] - first[s];
@@ -620,6 +768,11 @@ Model compile(const Profile& p) {
             m.chain_copy.push_back(c);
             m.chain_length.push_back(L);
             m.emission_offset.push_back(table_offset[s]);
+            if (p.window_size > 0 && st.signature.present())
+                for (size_t ctx = 0; ctx < st.signature.mean.size(); ++ctx)
+                    for (int b = 0; b < 4; ++b)
+                        m.sig_alpha.push_back(st.signature.concentration[ctx] *
+                                              st.signature.mean[ctx][b]);
             if (p.window_size > 0) {
                 const double total = 1.0 / st.gc.dispersion - 1.0;
                 const double a = st.gc.mean * total, b = (1.0 - st.gc.mean) * total;

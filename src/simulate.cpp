@@ -3,6 +3,7 @@
 
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <cmath>
 #include <memory>
 
@@ -68,6 +69,56 @@ GapChain build_gap_chain(const SimulateOptions& o) {
     return g;
 }
 
+// The bases of one window of a signature state, exactly from the model (profile.hpp,
+// WindowSignature): a fair coin picks the strand; on the reverse strand the chain runs over the
+// window's known/unknown pattern reversed and the result is reverse-complemented into place.
+// Along the chain, the transition rows drawn once per window from their Dirichlet are integrated
+// out by Polya's urn: base b after context c has probability (a_cb + n_cb) / (A_c + n_c) with n
+// the window's counts so far (Minka 2000, "Estimating a Dirichlet distribution", on the Polya
+// distribution), which gives exactly the Dirichlet-Markov window probability; a base with fewer
+// than k-1 known predecessors is uniform. Only additions and divisions (correctly rounded) feed
+// the categorical thresholds, so draws are the same on every machine. On entry bases[i] is
+// base_unknown for an unknown position and anything else for a known one.
+void draw_signature_window(const Model& m, int state, detail::Xoshiro256ss& rng,
+                           std::vector<uint8_t>& bases) {
+    const int k = m.signature_k;
+    const size_t K = size_t{1} << (2 * k);
+    const uint32_t contexts = static_cast<uint32_t>(K / 4);
+    const double* alpha = m.sig_alpha.data() + static_cast<size_t>(state) * K;
+    const bool reverse = (rng.next53() >> 52) != 0;
+    if (reverse) std::reverse(bases.begin(), bases.end());
+    std::vector<double> n(K, 0.0);
+    uint32_t code = 0;
+    int run = 0;
+    double p[4];
+    uint64_t thresholds[4];
+    for (uint8_t& base : bases) {
+        if (base == base_unknown) {
+            run = 0;
+            code = 0;
+            continue;
+        }
+        int b;
+        if (run >= k - 1) {
+            const uint32_t c = code & (contexts - 1);
+            for (int x = 0; x < 4; ++x) p[x] = alpha[c * 4 + x] + n[c * 4 + x];
+            detail::categorical_thresholds(p, 4, thresholds);
+            b = detail::sample_categorical(thresholds, 4, rng.next53());
+            n[c * 4 + b] += 1;
+        } else {
+            b = static_cast<int>(rng.next() >> 62);  // uniform
+        }
+        base = static_cast<uint8_t>(b);
+        code = (code << 2) | static_cast<uint32_t>(b);
+        ++run;
+    }
+    if (reverse) {
+        std::reverse(bases.begin(), bases.end());
+        for (uint8_t& base : bases)
+            if (base != base_unknown) base = static_cast<uint8_t>(3 - base);
+    }
+}
+
 }  // namespace
 
 void validate(const SimulateOptions& o) {
@@ -94,6 +145,13 @@ void validate(const SimulateOptions& o) {
 
 void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
     validate(o);
+    const bool signature = m.signature_k > 0;
+    if (signature && m.window_gc)
+        throw ProfileError(fmt::format(
+            "profile '{}' multiplies a gc and a signature emission, which is no generative model "
+            "to draw from; simulate draws from profiles with one of the two",
+            m.name));
+    std::vector<uint8_t> window_bases;  // signature models: the current window, drawn whole
     const SamplingTables tables = build_tables(m);
     const GapChain gaps = build_gap_chain(o);
     detail::Xoshiro256ss rng(o.seed);
@@ -110,6 +168,40 @@ void simulate(const Model& m, const SimulateOptions& o, SimulationSink& sink) {
         for (int64_t start = 0; start < length; start += block_positions) {
             const int64_t n = std::min(block_positions, length - start);
             for (int64_t t = 0; t < n; ++t) {
+                if (signature) {
+                    // Signature models draw a window at its first base (gaps of the whole
+                    // window, state, then its bases: draw_signature_window).
+                    if ((start + t) % m.window == 0) {
+                        const int64_t size = std::min(m.window, length - (start + t));
+                        window_bases.assign(static_cast<size_t>(size), 0);
+                        for (int64_t i = 0; i < size; ++i) {
+                            if (gaps.enabled) {
+                                const uint64_t r = rng.next53();
+                                if (start + t + i == 0)
+                                    in_gap = r < gaps.start_gap;
+                                else if (in_gap)
+                                    in_gap = !(r < gaps.leave_gap);
+                                else
+                                    in_gap = r < gaps.enter_gap;
+                            }
+                            window_bases[static_cast<size_t>(i)] = in_gap ? base_unknown : 0;
+                        }
+                        if (state < 0) {
+                            state = detail::sample_categorical(tables.initial.data(), m.states,
+                                                               rng.next53());
+                        } else {
+                            const int b = m.out_begin[state];
+                            const int k = detail::sample_categorical(tables.transition.data() + b,
+                                                                     m.out_begin[state + 1] - b,
+                                                                     rng.next53());
+                            state = m.out_to[b + k];
+                        }
+                        draw_signature_window(m, state, rng, window_bases);
+                    }
+                    states[t] = state;
+                    bases[t] = window_bases[static_cast<size_t>((start + t) % m.window)];
+                    continue;
+                }
                 // Draw order per position (part of the seed's meaning): gap, state, base.
                 if (gaps.enabled) {
                     const uint64_t r = rng.next53();

@@ -116,6 +116,7 @@ Profile perturb(const Profile& start, const FreezeMask& freeze, uint64_t seed, i
         if (leader != s) {
             p.states[s].emissions = p.states[leader].emissions;
             p.states[s].gc = p.states[leader].gc;
+            p.states[s].signature = p.states[leader].signature;
             continue;
         }
         if (p.windowed()) {  // mean on the logit scale, dispersion on the log scale

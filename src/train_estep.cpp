@@ -138,10 +138,10 @@ void CountAccumulator::add_window_emissions(const BlockView& v) {
         const double* post = v.posterior + t * S;
         if (v.begin + t == 0)
             for (int s = 0; s < S; ++s) counts_.initial[m.profile_state[s]] += post[s];
-        const WindowCount w = window_count(m, *contig_, v.begin + t);
+        WindowCount w = window_count(m, *contig_, v.begin + t);
         counts_.known += w.known;
         if (!window_has_evidence(m, w)) continue;  // it emitted 1: nothing to learn from it
-        WindowTally tally{w.gc, w.known, std::vector<double>(P, 0.0)};
+        WindowTally tally{w.gc, w.known, std::vector<double>(P, 0.0), std::move(w.kmers)};
         for (int s = 0; s < S; ++s) tally.weight[m.profile_state[s]] += post[s];
         counts_.windows.push_back(std::move(tally));
     }

@@ -11,6 +11,12 @@ namespace tidemark {
 
 double state_gc(const StateSpec& s) {
     const size_t rows = s.emissions.size();
+    if (rows == 0 && !s.has_gc && s.signature.present()) {
+        // A signature-only window state: the GC of its mean chain.
+        StateSpec chain;
+        chain.emissions = s.signature.mean;
+        return state_gc(chain);
+    }
     if (rows == 0) return s.gc.mean;  // a window state
     if (rows == 1) return s.emissions[0][base_c] + s.emissions[0][base_g];
     // Stationary distribution over contexts by power iteration on the lazy chain (I + P) / 2,

@@ -17,6 +17,15 @@ namespace tidemark {
 
 namespace {
 
+// The median over contexts of a signature's concentration: how closely a typical window's
+// transition rows follow the mean (high) or scatter away from it (low).
+double median_concentration(const WindowSignature& sig) {
+    std::vector<double> c = sig.concentration;
+    std::sort(c.begin(), c.end());
+    const size_t n = c.size();
+    return n % 2 ? c[n / 2] : (c[n / 2 - 1] + c[n / 2]) / 2;
+}
+
 // What a fit of a window profile learned, one line per state: GC, dispersion and the mean length
 // of its segments (the min_length chain plus the geometric tail, in bases).
 std::string learned_classes(const Profile& p) {
@@ -28,16 +37,21 @@ std::string learned_classes(const Profile& p) {
             if (p.states[u].region == st.region) stay += p.transitions[s][u];
         const double windows =
             static_cast<double>(p.chain_length(st.region) - 1) + 1 / std::max(1e-300, 1 - stay);
-        out += fmt::format("\n  {:<12} GC {:.4f}  dispersion {:.3g}  mean segment {:.1f} kb",
-                           st.name, st.gc.mean, st.gc.dispersion,
+        out += fmt::format("\n  {:<12} GC {:.4f}", st.name, state_gc(st));
+        if (st.has_gc) out += fmt::format("  dispersion {:.3g}", st.gc.dispersion);
+        if (st.signature.present())
+            out +=
+                fmt::format("  signature concentration {:.4g}", median_concentration(st.signature));
+        out += fmt::format("  mean segment {:.1f} kb",
                            windows * static_cast<double>(p.window_size) / 1000);
     }
     return out;
 }
 
 bool has_ordered_classes(const Profile& p) {
-    return std::any_of(p.states.begin(), p.states.end(),
-                       [](const StateSpec& s) { return !s.gc_reference.empty(); });
+    return std::any_of(p.states.begin(), p.states.end(), [](const StateSpec& s) {
+        return !s.gc_reference.empty() || !s.signature.concentration_reference.empty();
+    });
 }
 
 // A fitted profile's regions say what was fitted, not what the template hoped for: each region
@@ -52,12 +66,21 @@ void describe_fitted_classes(Profile& p) {
             }
         if (count != 1) continue;
         const StateSpec& st = p.states[only];
-        std::string text = fmt::format("G+C {:.3f}", st.gc.mean);
+        std::string text = fmt::format("G+C {:.3f}", state_gc(st));
         if (!st.gc_reference.empty())
             text += fmt::format(" ({} {:.3f})", st.gc_reference,
                                 p.states[p.state_index(st.gc_reference)].gc.mean);
-        p.regions[r].description =
-            text + fmt::format(", dispersion {:.3g}: fitted by tidemark fit", st.gc.dispersion);
+        if (st.has_gc) text += fmt::format(", dispersion {:.3g}", st.gc.dispersion);
+        if (st.signature.present()) {
+            text += fmt::format(", {}-mer signature concentration {:.4g}", st.signature.k,
+                                median_concentration(st.signature));
+            const std::string& ref = st.signature.concentration_reference;
+            if (!ref.empty())
+                text += fmt::format(" ({} {:.4g})", ref,
+                                    median_concentration(p.states[p.state_index(ref)].signature));
+            text += " (median over contexts)";
+        }
+        p.regions[r].description = text + ": fitted by tidemark fit";
     }
 }
 

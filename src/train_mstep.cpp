@@ -10,9 +10,30 @@
 #include "tidemark/error.hpp"
 #include "tidemark/train.hpp"
 #include "tidemark/window.hpp"
+#include "train_signature.hpp"
 
 namespace tidemark {
+namespace detail {
+
+// Digamma function: the recurrence psi(x) = psi(x + 1) - 1/x up to x >= 6, then the asymptotic
+// series (Abramowitz & Stegun 1964, Handbook of Mathematical Functions, 6.3.18); absolute error
+// below 1e-13 there.
+double digamma(double x) {
+    double shift = 0;
+    while (x < 6) {
+        shift -= 1 / x;
+        x += 1;
+    }
+    const double r = 1 / (x * x);
+    return shift + std::log(x) - 0.5 / x -
+           r * (1.0 / 12 - r * (1.0 / 120 - r * (1.0 / 252 - r * (1.0 / 240 - r * (1.0 / 132)))));
+}
+
+}  // namespace detail
+
 namespace {
+
+using detail::digamma;
 
 // A chain's in-chain steps divide by the in-region mass, so it must stay positive.
 constexpr double min_stay = 1e-12;
@@ -30,20 +51,6 @@ std::vector<int> tie_leaders(const Profile& p) {
             }
     }
     return leader;
-}
-
-// Digamma function: the recurrence psi(x) = psi(x + 1) - 1/x up to x >= 6, then the asymptotic
-// series (Abramowitz & Stegun 1964, Handbook of Mathematical Functions, 6.3.18); absolute error
-// below 1e-13 there.
-double digamma(double x) {
-    double shift = 0;
-    while (x < 6) {
-        shift -= 1 / x;
-        x += 1;
-    }
-    const double r = 1 / (x * x);
-    return shift + std::log(x) - 0.5 / x -
-           r * (1.0 / 12 - r * (1.0 / 120 - r * (1.0 / 252 - r * (1.0 / 240 - r * (1.0 / 132)))));
 }
 
 // Beta-binomial maximum likelihood from weighted windows by Minka's (2000) fixed point for the
@@ -404,6 +411,8 @@ Profile maximise(const Profile& structure, const Profile& current, const Trainin
 
     const std::vector<int> leader = tie_leaders(structure);
     if (structure.windowed()) {
+        detail::maximise_signatures(structure, current, counts, freeze, leader, out);
+        if (!structure.states.front().has_gc) return out;
         std::vector<WindowGC> unconstrained(P);
         for (size_t s = 0; s < P; ++s) {
             unconstrained[s] = current.states[s].gc;
@@ -486,7 +495,10 @@ int64_t free_parameters(const Profile& structure, const FreezeMask& freeze) {
     const std::vector<int> leader = tie_leaders(structure);
     for (size_t s = 0; s < P; ++s) {
         if (leader[s] != static_cast<int>(s) || freeze.emissions[s]) continue;
-        if (structure.windowed()) k += 2;  // the beta-binomial's mean and dispersion
+        if (structure.windowed() && structure.states[s].has_gc)
+            k += 2;  // the beta-binomial's mean and dispersion
+        // the signature's Dirichlet parameters: 4 per context
+        k += 4 * static_cast<int64_t>(structure.states[s].signature.mean.size());
         for (const auto& row : structure.states[s].emissions) k += dims(row.begin(), row.end());
     }
     return k;

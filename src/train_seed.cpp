@@ -177,22 +177,59 @@ namespace {
 // dispersion the method-of-moments value of the beta-binomial, rho = (V / (m (1 - m)) - 1/n) /
 // (1 - 1/n) with V the variance of the windows' GC fractions and n their mean size (common
 // practice for a starting value; Baum-Welch then fits both).
+// Signature states: every state's mean rows become the genome's own transition frequencies,
+// from the k-mers of its usable windows on both strands (plus 1/2 per k-mer, so that no mean is
+// 0); the concentrations stay the template's, which fix the classes' roles (high: typical, low:
+// atypical). Baum-Welch then fits both (tidemark's design: the typical class starts as the
+// genome's own signature, see data/profiles/composition-shift.json).
+void seed_signatures(Profile& q, const std::vector<uint32_t>& pooled) {
+    const int k = q.states.front().signature.k;
+    std::vector<double> both(pooled.size());
+    for (size_t code = 0; code < pooled.size(); ++code)
+        both[code] =
+            0.5 + pooled[code] + pooled[reverse_complement_kmer(static_cast<uint32_t>(code), k)];
+    std::vector<std::array<double, 4>> mean(pooled.size() / 4);
+    for (size_t c = 0; c < mean.size(); ++c) {
+        const double total = both[c * 4] + both[c * 4 + 1] + both[c * 4 + 2] + both[c * 4 + 3];
+        for (int b = 0; b < 4; ++b) mean[c][b] = both[c * 4 + b] / total;
+    }
+    for (StateSpec& st : q.states) st.signature.mean = mean;
+}
+
 Profile seed_window_profile(const Profile& profile, TrainingData& data) {
     const size_t P = profile.states.size();
     const int64_t W = profile.window_size;
+    const int sig_k = profile.states.front().signature.k;
     std::vector<WindowCount> counts;
+    std::vector<uint32_t> pooled(sig_k > 0 ? size_t{1} << (2 * sig_k) : 0, 0);
+    std::vector<uint8_t> bases;
     Windows w;
     for_each_window(data, W, [&](const Contig& c, int64_t b, int64_t e, bool usable) {
         if (!usable) return;
         const Composition comp = composition(c, b, e);
-        counts.push_back({comp.c + comp.g, comp.known()});
+        counts.push_back({comp.c + comp.g, comp.known(), {}});
         w.gc.push_back(comp.gc_fraction());
+        if (sig_k > 0) {
+            bases.resize(static_cast<size_t>(e - b));
+            c.unpack(b, e - b, bases.data());
+            count_kmers(bases.data(), e - b, sig_k, pooled.data());
+        }
     });
     if (w.gc.size() < 2 * P)
         throw InputError(fmt::format(
             "too little sequence to seed the {} states of profile '{}': {} window(s) of {} "
             "bases with at least half of their bases known (at least {} needed)",
             P, profile.name, w.gc.size(), W, 2 * P));
+    if (!profile.states.front().has_gc) {  // signature only
+        Profile q = profile;
+        seed_signatures(q, pooled);
+        q.sources.push_back(fmt::format(
+            "signature means reseeded from the training sequences by tidemark fit: the k-mers "
+            "of the profile's windows of {} bases on both strands; then fitted as recorded "
+            "under provenance.",
+            W));
+        return q;
+    }
     std::vector<size_t> rank(P);
     std::iota(rank.begin(), rank.end(), size_t{0});
     std::stable_sort(rank.begin(), rank.end(), [&](size_t a, size_t b) {
@@ -221,6 +258,7 @@ Profile seed_window_profile(const Profile& profile, TrainingData& data) {
         gc.dispersion = std::clamp(
             (variance / (gc.mean * (1 - gc.mean)) - 1 / size) / (1 - 1 / size), 1e-6, 0.5);
     }
+    if (sig_k > 0) seed_signatures(q, pooled);
     // Tied states share one distribution: the first member's.
     for (size_t s = 0; s < P; ++s)
         if (!q.states[s].tie.empty())

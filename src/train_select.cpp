@@ -39,8 +39,11 @@ Profile without_state(const Profile& p, int s) {
     const size_t P = p.states.size();
     if (s < 0 || static_cast<size_t>(s) >= P || P < 2)
         throw InternalError("without_state: no such state, or the last one");
-    const int heir =
-        p.states[s].gc_reference.empty() ? -1 : p.state_index(p.states[s].gc_reference);
+    // A constrained class's heir is its reference (gc.below/above, signature.concentration_below).
+    const std::string& reference = p.states[s].gc_reference.empty()
+                                       ? p.states[s].signature.concentration_reference
+                                       : p.states[s].gc_reference;
+    const int heir = reference.empty() ? -1 : p.state_index(reference);
     Profile q = p;
     // Mass into s moves to its heir (or stays in the row's own state), before s is removed.
     for (size_t u = 0; u < P; ++u) {
@@ -83,7 +86,9 @@ FitResult drop_unsupported_classes(FitResult fitted, TrainingData& data, const F
         const Profile& p = fitted.profile;
         std::vector<int> ordered;
         for (size_t s = 0; s < p.states.size(); ++s)
-            if (!p.states[s].gc_reference.empty()) ordered.push_back(static_cast<int>(s));
+            if (!p.states[s].gc_reference.empty() ||
+                !p.states[s].signature.concentration_reference.empty())
+                ordered.push_back(static_cast<int>(s));
         if (ordered.empty()) break;
         const double full = bic(fitted);
         int drop = -1;
@@ -91,6 +96,7 @@ FitResult drop_unsupported_classes(FitResult fitted, TrainingData& data, const F
         FitResult kept;
         for (int s : ordered) {
             const StateSpec& st = p.states[s];
+            if (st.gc_reference.empty()) continue;  // signature-constrained: BIC only
             const StateSpec& ref = p.states[p.state_index(st.gc_reference)];
             if (st.gc.mean != ref.gc.mean) continue;
             drop = s;
@@ -118,7 +124,7 @@ FitResult drop_unsupported_classes(FitResult fitted, TrainingData& data, const F
         }
         if (drop < 0) break;
         const std::string note = fmt::format("class '{}' (GC {:.4f}) dropped: {}",
-                                             p.states[drop].name, p.states[drop].gc.mean, why);
+                                             p.states[drop].name, state_gc(p.states[drop]), why);
         log.info("fit: " + note);
         std::vector<std::string> dropped = std::move(fitted.dropped);
         dropped.push_back(note);

@@ -115,7 +115,11 @@ std::string counts_to_json(const TrainingCounts& c) {
     o["emissions"] = em;
     if (!c.windows.empty()) {
         ordered_json windows = ordered_json::array();
-        for (const auto& t : c.windows) windows.push_back({t.gc, t.known, t.weight});
+        for (const auto& t : c.windows) {
+            ordered_json row = {t.gc, t.known, t.weight};
+            if (!t.kmers.empty()) row.push_back(t.kmers);  // signature profiles
+            windows.push_back(std::move(row));
+        }
         o["windows"] = windows;
     }
     o["log_likelihood"] = c.log_likelihood;
@@ -159,9 +163,15 @@ TrainingCounts counts_from_json(const std::string& text, const Profile& profile,
         }
         if (j.contains("windows"))
             for (const auto& t : j.at("windows")) {
-                WindowTally tally{t.at(0).get<int64_t>(), t.at(1).get<int64_t>(),
-                                  t.at(2).get<std::vector<double>>()};
+                WindowTally tally{t.at(0).get<int64_t>(),
+                                  t.at(1).get<int64_t>(),
+                                  t.at(2).get<std::vector<double>>(),
+                                  {}};
                 if (tally.weight.size() != P) throw bad("window weights");
+                const int k = profile.states.front().signature.k;
+                if (t.size() > 3) tally.kmers = t.at(3).get<std::vector<uint32_t>>();
+                if (tally.kmers.size() != (k > 0 ? size_t{1} << (2 * k) : 0))
+                    throw bad("window k-mer counts");
                 c.windows.push_back(std::move(tally));
             }
         c.log_likelihood = j.at("log_likelihood").get<double>();

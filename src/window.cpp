@@ -49,13 +49,100 @@ double large_kernel(double a, double b, double k, double n) {
            (stirling_tail(total + n) - stirling_tail(total));
 }
 
+// One context of the signature: log of prod_b Gamma(a_b + n_b) / Gamma(a_b) times
+// Gamma(A) / Gamma(A + n). For large parameters (a high concentration) the lgamma differences
+// cancel to a few nats out of terms near n log A, so, as in large_kernel, each difference is
+// taken from Stirling's series with the j log(x + j) parts combined into logs of ratios.
+double polya_context(const double* a, const uint32_t* n) {
+    double total_a = 0, total_n = 0;
+    bool large = true;
+    for (int b = 0; b < 4; ++b) {
+        total_a += a[b];
+        total_n += n[b];
+        large = large && a[b] >= stirling_from;
+    }
+    if (total_n == 0) return 0;
+    if (!large) {
+        double v = std::lgamma(total_a) - std::lgamma(total_a + total_n);
+        for (int b = 0; b < 4; ++b)
+            if (n[b] > 0) v += std::lgamma(a[b] + n[b]) - std::lgamma(a[b]);
+        return v;
+    }
+    double v = -(total_a - 0.5) * std::log1p(total_n / total_a) -
+               (stirling_tail(total_a + total_n) - stirling_tail(total_a));
+    for (int b = 0; b < 4; ++b) {
+        if (n[b] == 0) continue;
+        const double x = n[b];
+        v += (a[b] - 0.5) * std::log1p(x / a[b]) + x * std::log((a[b] + x) / (total_a + total_n)) +
+             (stirling_tail(a[b] + x) - stirling_tail(a[b]));
+    }
+    return v;
+}
+
 }  // namespace
+
+void count_kmers(const uint8_t* bases, int64_t n, int k, uint32_t* counts) {
+    const uint32_t mask = (1u << (2 * k)) - 1;
+    uint32_t code = 0;
+    int run = 0;
+    for (int64_t i = 0; i < n; ++i) {
+        if (bases[i] == base_unknown) {
+            run = 0;
+            code = 0;
+            continue;
+        }
+        code = ((code << 2) | bases[i]) & mask;
+        if (++run >= k) ++counts[code];
+    }
+}
+
+uint32_t reverse_complement_kmer(uint32_t code, int k) {
+    uint32_t out = 0;
+    for (int i = 0; i < k; ++i) {
+        out = (out << 2) | (3 - (code & 3));
+        code >>= 2;
+    }
+    return out;
+}
+
+double signature_log_kernel(const double* alpha, int k, const uint32_t* counts) {
+    const size_t contexts = size_t{1} << (2 * (k - 1));
+    double v = 0;
+    for (size_t c = 0; c < contexts; ++c) v += polya_context(alpha + c * 4, counts + c * 4);
+    return v;
+}
+
+double signature_log_probability(const Model& m, int s, const WindowCount& w) {
+    const int k = m.signature_k;
+    const size_t kmers = size_t{1} << (2 * k);
+    const double* alpha = m.sig_alpha.data() + static_cast<size_t>(s) * kmers;
+    std::vector<uint32_t> reverse(kmers);
+    int64_t chained = 0;
+    for (size_t code = 0; code < kmers; ++code) {
+        reverse[reverse_complement_kmer(static_cast<uint32_t>(code), k)] = w.kmers[code];
+        chained += w.kmers[code];
+    }
+    const double forward = signature_log_kernel(alpha, k, w.kmers.data());
+    const double backward = signature_log_kernel(alpha, k, reverse.data());
+    const double top = std::max(forward, backward);
+    // ln((e^f + e^r) / 2), written so that neither exponential underflows to 0 alone.
+    const double strands =
+        top + std::log1p(std::exp(std::min(forward, backward) - top)) - std::log(2.0);
+    return strands - static_cast<double>(w.known - chained) * std::log(4.0);
+}
 
 WindowCount window_count(const Model& m, const Contig& contig, int64_t pos) {
     const int64_t begin = pos * m.window;
     const int64_t end = std::min(contig.length, begin + m.window);
     const Composition c = composition(contig, begin, end);
-    return {c.c + c.g, c.known()};
+    WindowCount w{c.c + c.g, c.known(), {}};
+    if (m.signature_k > 0) {
+        w.kmers.assign(size_t{1} << (2 * m.signature_k), 0);
+        std::vector<uint8_t> bases(static_cast<size_t>(end - begin));
+        contig.unpack(begin, end - begin, bases.data());
+        count_kmers(bases.data(), end - begin, m.signature_k, w.kmers.data());
+    }
+    return w;
 }
 
 double beta_binomial_log_kernel(double a, double b, int64_t k, int64_t n) {
@@ -87,11 +174,16 @@ void fill_window_log_emissions(const Model& m, const Contig& contig, int64_t fir
         const bool evidence = window_has_evidence(m, w);
         known[t] = evidence ? 0 : base_unknown;
         // Chain copies share their profile state's distribution: compute each distinct one once.
-        for (int s = 0; s < S; ++s)
-            row[s] = !evidence ? 0.0
-                     : (s > 0 && m.profile_state[s] == m.profile_state[s - 1])
-                         ? row[s - 1]
-                         : window_log_probability(m, s, w.gc, w.known);
+        for (int s = 0; s < S; ++s) {
+            if (!evidence) {
+                row[s] = 0.0;
+            } else if (s > 0 && m.profile_state[s] == m.profile_state[s - 1]) {
+                row[s] = row[s - 1];
+            } else {
+                row[s] = (m.window_gc ? window_log_probability(m, s, w.gc, w.known) : 0.0) +
+                         (m.signature_k > 0 ? signature_log_probability(m, s, w) : 0.0);
+            }
+        }
     }
 }
 

@@ -289,7 +289,7 @@ TEST_CASE("window counts and scaled emission rows", "[window]") {
         "NNNNNNN"
         "ccRNtaS"
         "GG");
-    const std::vector<WindowCount> want = {{3, 7}, {0, 0}, {2, 4}, {2, 2}};
+    const std::vector<WindowCount> want = {{3, 7, {}}, {0, 0, {}}, {2, 4, {}}, {2, 2, {}}};
     REQUIRE(m.positions(c.length) == 4);
     for (int64_t t = 0; t < 4; ++t) {
         INFO("window " << t);

@@ -50,6 +50,33 @@ struct WindowGC {
     double dispersion = 0.01;  ///< rho, in (0, 1)
 };
 
+/// Largest k-mer length of a window signature (an order k-1 Markov chain; 4^k counts per window).
+inline constexpr int max_signature_k = 4;
+
+/// Window-level composition signature of a state (profiles with a window size; optional, alone
+/// or with WindowGC, the two multiplied): a Dirichlet-Markov chain. The window's known bases
+/// follow an order-(k-1) Markov chain whose transition row for each context c (the k-1 preceding
+/// bases, oldest most significant, A<C<G<T) is drawn once per window from
+/// Dirichlet(concentration[c] * mean[c]). Integrating the rows out gives the Polya sequence
+/// probability per context, prod_c Gamma(A_c) / Gamma(A_c + n_c) prod_b Gamma(a_cb + n_cb) /
+/// Gamma(a_cb) (a_cb = concentration[c] mean[c][b], A_c = concentration[c], n_cb the window's
+/// count of k-mer cb), with no multinomial coefficient: it is the probability of the sequence.
+/// Bases without k-1 known predecessors (a contig's or window's start, just after an unknown
+/// base) are uniform, 1/4 in every state. Strands: the window is read on a strand drawn with
+/// probability 1/2 each (the likelihood averages the forward counts and the reverse-complement
+/// counts), so an island looks alike on either strand. Low concentration lets a window's rows
+/// depart far from the mean: the signature of atypical (foreign) DNA.
+struct WindowSignature {
+    int k = 0;                                ///< 0: no signature; else 1..max_signature_k
+    std::vector<double> concentration;        ///< 4^(k-1) values, each > 0
+    std::vector<std::array<double, 4>> mean;  ///< 4^(k-1) rows, each summing to 1, entries > 0
+    /// The state whose concentration this state's stays at or below, context by context
+    /// (signature.concentration_below; "" = unconstrained): an atypical class stays more diverse
+    /// than the typical one through training (train.hpp, maximise).
+    std::string concentration_reference;
+    bool present() const { return k > 0; }
+};
+
 /// A hidden state. Per-base profiles: an order-k context model, emissions[ctx][base] =
 /// P(base | k preceding bases), ctx indexing the k preceding bases with A<C<G<T and the oldest
 /// most significant. Window profiles (Profile::window_size > 0): a WindowGC distribution; order
@@ -60,6 +87,10 @@ struct StateSpec {
     int order = 0;                                 ///< 0..max_emission_order
     std::vector<std::array<double, 4>> emissions;  ///< 4^order rows, each summing to 1
     WindowGC gc;                                   ///< window profiles only
+    /// Window profiles: whether the state has a "gc" emission. A window profile's states all
+    /// carry the same kinds: gc, signature, or both.
+    bool has_gc = true;
+    WindowSignature signature;  ///< window profiles only (signature.k == 0: none)
     /// Tie group: states that name the same non-empty group share one emission table (same
     /// order, identical rows), and training estimates it from their pooled counts.
     std::string tie;
@@ -208,6 +239,13 @@ struct Model {
     /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
     /// lbeta(alpha, beta) (the normaliser, precomputed).
     std::vector<double> gc_alpha, gc_beta, gc_lbeta;
+    /// Window profiles: whether the states emit the G+C count (false: signature only).
+    bool window_gc = true;
+    /// Window profiles with a signature: its k (0 = none), and per compiled state the Dirichlet
+    /// parameters sig_alpha[s * 4^k + code] of k-mer `code` (context * 4 + next base), so that
+    /// context c's row starts at (s * 4^(k-1) + c) * 4.
+    int signature_k = 0;
+    std::vector<double> sig_alpha;
     std::string name;
     std::vector<std::string> state_names;  ///< chain copies are named "state[c/L]"
     std::vector<std::string> region_names;

@@ -96,6 +96,8 @@ struct WindowTally {
     int64_t gc = 0;
     int64_t known = 0;
     std::vector<double> weight;  ///< per profile state
+    /// Signature profiles: the window's k-mer counts (WindowCount::kmers); empty otherwise.
+    std::vector<uint32_t> kmers;
 };
 
 /// Expected (or, from labels, observed) counts at the level of the profile's parameters.

@@ -12,14 +12,35 @@
 
 namespace tidemark {
 
-/// What a window holds: its G+C count and its known (A, C, G, T) bases.
+/// What a window holds: its G+C count, its known (A, C, G, T) bases and, for models with a
+/// signature, the counts of its k-mers (4^k, indexed by code, oldest base most significant).
 struct WindowCount {
     int64_t gc = 0;
     int64_t known = 0;
+    std::vector<uint32_t> kmers;  ///< empty when the model has no signature
 };
 
-/// Counts of window `pos` of a contig under a window model (bases [pos w, min((pos+1) w, L))).
+/// Counts of window `pos` of a contig under a window model (bases [pos w, min((pos+1) w, L))),
+/// k-mers included when the model has a signature.
 WindowCount window_count(const Model& model, const Contig& contig, int64_t pos);
+
+/// Adds the k-mers of bases[0, n) made of k consecutive known bases to counts (4^k entries): the
+/// chain of a window starts at the window's first base and restarts after an unknown base.
+void count_kmers(const uint8_t* bases, int64_t n, int k, uint32_t* counts);
+
+/// The code of the reverse complement of k-mer `code` (2 bits per base, A<C<G<T).
+uint32_t reverse_complement_kmer(uint32_t code, int k);
+
+/// Natural log of the Polya (Dirichlet-multinomial) probability of the window's sequence on one
+/// strand given its k-mer counts, summed over the contexts: sum_c [lgamma(A_c) -
+/// lgamma(A_c + n_c) + sum_b (lgamma(a_cb + n_cb) - lgamma(a_cb))], alpha as Model::sig_alpha
+/// (4^k values). The bases that start a chain are not included (see signature_log_probability).
+double signature_log_kernel(const double* alpha, int k, const uint32_t* counts);
+
+/// Natural log of the probability of a window's known bases under state s's signature: the
+/// average of the forward and reverse-complement kernels (the strand is a fair coin), plus
+/// ln(1/4) for each known base that starts a chain (known - sum of the k-mer counts).
+double signature_log_probability(const Model& model, int s, const WindowCount& w);
 
 /// True when a window's counts are evidence under the model: at least one known base and at
 /// least model.window_min_known of them. Other windows emit 1 in every state (decoding) and add
