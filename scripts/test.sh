@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Installs the dependencies, builds tidemark and runs the whole test suite (unit, oracle,
 # command-line and fuzz-corpus tests); then the same suite again built with AddressSanitizer and
-# UndefinedBehaviorSanitizer, and each libFuzzer target for a short fixed time.
+# UndefinedBehaviorSanitizer, the threaded tests built with ThreadSanitizer, and each libFuzzer
+# target for a short fixed time.
 # Used by CI (.ci/run). TIDEMARK_QUICK=1 runs only the first pass; TIDEMARK_FUZZ_SECONDS sets the
 # fuzzing time per target (default 30).
 set -euo pipefail
@@ -29,6 +30,16 @@ cmake --build build-asan -j"$jobs"
 # would take most of CI's time and cover no code path the other tests do not.
 ASAN_OPTIONS=detect_leaks=1:abort_on_error=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
   ctest --test-dir build-asan --output-on-failure --no-tests=error -j"$jobs" -LE genome
+
+echo "== test: ThreadSanitizer build (unit tests; thread, early-sweep and writer-thread tests)" >&2
+# The decoders' pool, the early sweeps of a record still being read, and the writers' threads
+# (BGZF compression and indexing with -t 2..4, tracks joined as segments finish, bigWig) under
+# ThreadSanitizer; the other tests run no code on more than one thread that these do not.
+cmake -S . -B build-tsan -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTIDEMARK_TSAN=ON -DTIDEMARK_WERROR=ON
+cmake --build build-tsan -j"$jobs" --target tidemark_cli tidemark_tests
+TSAN_OPTIONS=halt_on_error=1:second_deadlock_stack=1 \
+  ctest --test-dir build-tsan --output-on-failure --no-tests=error -j"$jobs" \
+  -R '^(unit|oracle\.test_threads|cli\.writer_threads)$'
 
 echo "== test: fuzzing each target for ${TIDEMARK_FUZZ_SECONDS:-30} s" >&2
 bash scripts/fuzz.sh "${TIDEMARK_FUZZ_SECONDS:-30}"

@@ -25,7 +25,9 @@ public:
     virtual ~PipelineJob() = default;
     /// Decodes `contig` with worker `worker`'s decoder. `segments` is the whole pool when the
     /// contig is decoded alone in parallel segments, else nullptr (segments, if any, then run
-    /// one after another on this worker: the results are the same).
+    /// one after another on this worker: the results are the same). With `segments`, decode
+    /// runs on the queuing thread after every job queued before it was finished, and finish()
+    /// follows before any later job's, so it may write into the run's sinks itself.
     virtual void decode(int worker, TaskPool* segments) = 0;
     /// Starts work on the bases read so far, on the whole pool, while the rest of the record is
     /// read (records decoded alone only); decode(0, pool) takes it over. Default: nothing.

@@ -337,8 +337,16 @@ public:
         if (run_.html) html = run_.html->fork();
     }
     void decode(int worker, TaskPool* segments) override {
+        // A record decoded alone (over the whole pool) is decoded on the queuing thread after
+        // every earlier record was finished (pipeline.hpp), so its segments are joined straight
+        // into the run's tracks, and their lines reach the files (and the BGZF compression
+        // threads) while later segments decode, instead of all at the record's end.
+        direct_tracks = segments != nullptr && run_.tracks;
         std::vector<DecodeSink*> sinks = {caller.get(), totals.get()};
-        if (tracks) sinks.push_back(tracks.get());
+        if (direct_tracks)
+            sinks.push_back(run_.tracks.get());
+        else if (tracks)
+            sinks.push_back(tracks.get());
         if (progress) sinks.push_back(progress.get());
         if (html) sinks.push_back(html.get());
         SinkFanout fanout(sinks);
@@ -353,6 +361,7 @@ public:
     const std::string* input = nullptr;  ///< the file the record comes from
     int64_t input_index = 0;
     std::unique_ptr<DecodeSink> caller, totals, tracks, progress, html;
+    bool direct_tracks = false;  ///< decoded into the run's tracks: nothing to join
     DecodeResult result;
 
 private:
@@ -365,7 +374,7 @@ void ScanOutputs::finish(ScanJob& job) {
     const Contig& contig = job.contig;
     caller.join(*job.caller);
     totals.join(*job.totals);
-    if (tracks) tracks->join(*job.tracks);
+    if (tracks && !job.direct_tracks) tracks->join(*job.tracks);
     if (html) {
         html->join(*job.html);
         html->finish_sequence(contig, caller.calls());

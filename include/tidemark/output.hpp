@@ -2,6 +2,7 @@
 // every write and the final close are checked.
 #pragma once
 
+#include <cstdint>
 #include <cstdio>
 #include <memory>
 #include <string>
@@ -18,8 +19,9 @@ struct OutputFormat {
     /// the .tbi limit of 2^29; needs bgzip, a regular file
     bool tabix = false;
     int skip_lines = 0;  ///< leading lines the index must skip (a browser `track` line)
-    /// bgzip: threads that compress BGZF blocks (and read them back for the index); the bytes
-    /// written are the same for any count, since blocks are cut and compressed alike
+    /// bgzip: threads that compress BGZF blocks (and inflate them when an unusual file's index
+    /// is read back); the bytes written are the same for any count, since blocks are cut and
+    /// compressed alike
     int threads = 1;
 };
 
@@ -48,7 +50,8 @@ private:
 };
 
 /// An output file ("-" = stdout). Data goes to a temporary file in the target's folder;
-/// commit() flushes, closes and renames it over the target (with its tabix index, built before
+/// commit() flushes, closes and renames it over the target (with its tabix index, built while
+/// the lines are written, or from the finished file when they are unusual, and written before
 /// either is renamed, so that a failed index leaves the earlier files as they were). If commit() is
 /// never reached (an exception, or SIGINT/SIGTERM with install_output_signal_handlers()), the
 /// temporary file is removed and an existing target is left untouched. A target that is a device or
@@ -68,6 +71,10 @@ public:
     bool is_stdout() const { return stdout_; }
 
 private:
+    struct LineIndex;
+    void write_indexed(std::string_view data);
+    void index_line(std::string_view line);
+    std::unique_ptr<StagedPath> save_index(uint64_t end_offset);
     std::unique_ptr<StagedPath> build_index() const;
 
     std::string path_;
@@ -77,7 +84,8 @@ private:
     BGZF* bgzf_ = nullptr;
     bool stdout_ = false;
     bool committed_ = false;
-    bool direct_ = false;  ///< target is a device or FIFO: written in place
+    bool direct_ = false;               ///< target is a device or FIFO: written in place
+    std::unique_ptr<LineIndex> index_;  ///< tabix: the index built as lines are written
 };
 
 /// A BGZF output (--bgzip) must be named FILE.gz or FILE.bgz, the endings by which browsers,
