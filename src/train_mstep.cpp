@@ -149,38 +149,13 @@ double window_q(const WindowGroups& g, const std::vector<double>& w, const Windo
     return window_q(g, w, gc.mean, 1 / gc.dispersion - 1);
 }
 
-// Golden-section search for the maximum of f on [lo, hi] (unimodal f), to width tol.
-template <class F>
-double golden_max(F f, double lo, double hi, double tol) {
-    const double r = (std::sqrt(5.0) - 1) / 2;
-    double a = lo, b = hi;
-    double x1 = b - r * (b - a), x2 = a + r * (b - a);
-    double f1 = f(x1), f2 = f(x2);
-    while (b - a > tol) {
-        if (f1 < f2) {
-            a = x1;
-            x1 = x2;
-            f1 = f2;
-            x2 = a + r * (b - a);
-            f2 = f(x2);
-        } else {
-            b = x2;
-            x2 = x1;
-            f2 = f1;
-            x1 = b - r * (b - a);
-            f1 = f(x1);
-        }
-    }
-    return f1 < f2 ? x2 : x1;
-}
-
 // The range of alpha + beta the M-step keeps (rho from 1e-12 to 1 - 1e-6), as fit_window_gc.
 constexpr double min_total = 1e-6, max_total = 1e12;
 
 // The dispersion that maximises Q_s at a fixed mean (on the log scale of alpha + beta).
 WindowGC best_dispersion(const WindowGroups& g, const std::vector<double>& w, double mean) {
-    const double u = golden_max([&](double x) { return window_q(g, w, mean, std::exp(x)); },
-                                std::log(min_total), std::log(max_total), 1e-9);
+    const double u = detail::golden_max([&](double x) { return window_q(g, w, mean, std::exp(x)); },
+                                        std::log(min_total), std::log(max_total), 1e-9);
     return WindowGC{mean, 1 / (std::exp(u) + 1)};
 }
 
@@ -266,7 +241,7 @@ void maximise_ordered_window_states(const Profile& structure, const Profile& cur
                         lo = std::min(lo, own[m].mean);
                         hi = std::max(hi, own[m].mean);
                     }
-                    if (hi > lo) mean = golden_max(block_q, lo, hi, 1e-10);
+                    if (hi > lo) mean = detail::golden_max(block_q, lo, hi, 1e-10);
                     gc[0] = best_dispersion(wg, w[0], mean);
                 }
                 for (size_t m : tied) gc[m] = best_dispersion(wg, w[m], mean);

@@ -150,31 +150,6 @@ Alpha with_concentration(const Alpha& a, double total) {
     return out;
 }
 
-// Golden-section search for the maximum of f on [lo, hi] (unimodal f), to width tol.
-template <class F>
-double golden_max(F f, double lo, double hi, double tol) {
-    const double r = (std::sqrt(5.0) - 1) / 2;
-    double a = lo, b = hi;
-    double x1 = b - r * (b - a), x2 = a + r * (b - a);
-    double f1 = f(x1), f2 = f(x2);
-    while (b - a > tol) {
-        if (f1 < f2) {
-            a = x1;
-            x1 = x2;
-            f1 = f2;
-            x2 = a + r * (b - a);
-            f2 = f(x2);
-        } else {
-            b = x2;
-            x2 = x1;
-            f2 = f1;
-            x1 = b - r * (b - a);
-            f1 = f(x1);
-        }
-    }
-    return f1 < f2 ? x2 : x1;
-}
-
 std::vector<Alpha> alphas_of(const WindowSignature& sig) {
     std::vector<Alpha> out(sig.mean.size());
     for (size_t c = 0; c < out.size(); ++c)
