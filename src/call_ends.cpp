@@ -73,7 +73,6 @@ void IntervalCaller::refine_ends() {
     }
     bounds.resize(kept);
 
-    std::vector<double> diff;
     std::vector<std::pair<int64_t, int64_t>> gaps;
     for (size_t i = 0; i < bounds.size(); ++i) {
         Boundary& b = bounds[i];
@@ -97,9 +96,7 @@ void IntervalCaller::refine_ends() {
             if (gap_end <= at) lo = std::max(lo, gap_end);
             if (gap_begin >= at) hi = std::min(hi, gap_begin);
         }
-        diff.resize(static_cast<size_t>(hi - lo));
-        scores.difference(contig, lo, hi, b.left, b.right, diff.data());
-        b.moved_to = lo + best_change_point(diff.data(), hi - lo, at - lo);
+        b.moved_to = lo + scores.change_point(contig, lo, hi, b.left, b.right, at - lo);
     }
 
     const auto moved = [&](int64_t at) {

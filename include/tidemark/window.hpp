@@ -80,7 +80,17 @@ double fill_window_emissions(const Model& model, const Contig& contig, int64_t f
 /// Today's term is the G+C one: log P(base) under independent bases with the region's GC mean
 /// (P(C) = P(G) = gc/2, P(A) = P(T) = (1 - gc)/2; the beta-binomial's overdispersion describes
 /// windows, not bases, and is left out). A region of several profile states takes the mean of
-/// their GC means. Another window emission kind adds its per-base term in difference().
+/// their GC means.
+/// A signature (states[].signature) is not scored base by base: its states differ mostly in
+/// their concentration, not their mean (the atypical class is the genome's mean with a low
+/// concentration), so under the mean chain a base tells the classes apart hardly at all. The
+/// two stretches on either side of a split are scored as window emissions are: each stretch's
+/// k-mers (those ending in it whose k - 1 predecessors are known, the context taken from the
+/// contig) as one Polya draw per strand, the strand a fair coin per stretch, times the
+/// stretch's beta-binomial G+C sequence probability when the states have a G+C term; bases
+/// that start a chain score ln(1/4) under every class and are left out. A region of several
+/// states scores the equal mixture of their stretch likelihoods, ln(mean_s e^L_s) (the window
+/// posterior says which of its states holds a window, not which holds the stretch).
 class ClassBaseScores {
 public:
     explicit ClassBaseScores(const Model& window_model);
@@ -93,11 +103,32 @@ public:
                     double* out) const;
     /// The score of one known base (0..3) under region r (natural log).
     double score(int r, uint8_t base) const { return log_base_[static_cast<size_t>(r) * 4 + base]; }
+    /// The signature's k (0: the G+C term only).
+    int signature_k() const { return k_; }
+    /// Models with a signature: out[j] (j = 0..end-begin) = the log-likelihood of bases
+    /// [begin, begin + j) as one stretch of class `left` plus that of [begin + j, end) as one of
+    /// class `right`, each stretch scored as a window emission is (below).
+    void split_scores(const Contig& contig, int64_t begin, int64_t end, int left, int right,
+                      double* out) const;
+    /// The split of bases [begin, end) between class `left` and class `right` (offset from
+    /// begin, 0..end-begin) that the calls' ends move to: without a signature,
+    /// best_change_point over difference(); with one, the largest split_scores (among equals,
+    /// the nearest to `prefer`, then the smaller).
+    int64_t change_point(const Contig& contig, int64_t begin, int64_t end, int left, int right,
+                         int64_t prefer) const;
 
 private:
+    struct Member {  // one profile state of a region (models with a signature)
+        double gc_alpha = 0, gc_beta = 0;
+        std::vector<double> alpha;          ///< 4^k Dirichlet parameters (Model::sig_alpha)
+        std::vector<double> context_total;  ///< 4^(k-1) sums of a context's parameters
+    };
     int64_t window_ = 0;
     int regions_ = 0;
+    int k_ = 0;
+    bool gc_ = true;
     std::vector<double> log_base_;  ///< [region * 4 + base]
+    std::vector<std::vector<Member>> members_;
 };
 
 /// The model that base-level sinks see for a window model: one state per region (the region's
