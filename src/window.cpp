@@ -260,16 +260,19 @@ void ClassBaseScores::difference(const Contig& contig, int64_t begin, int64_t en
 }
 
 void ClassBaseScores::split_scores(const Contig& contig, int64_t begin, int64_t end, int left,
-                                   int right, double* out) const {
+                                   int right, double* out, int64_t left_from,
+                                   int64_t right_to) const {
     if (k_ == 0) throw InternalError("ClassBaseScores::split_scores needs a signature");
-    const int64_t n = end - begin;
-    std::vector<uint8_t> bases(static_cast<size_t>(n));
-    contig.unpack(begin, n, bases.data());
+    if (left_from < 0) left_from = begin;
+    if (right_to < 0) right_to = end;
+    const int64_t n = end - begin, span = right_to - left_from, off = begin - left_from;
+    std::vector<uint8_t> bases(static_cast<size_t>(span));
+    contig.unpack(left_from, span, bases.data());
     // The k-mer ending at each base (-1: fewer than k - 1 known bases before it, or unknown).
-    std::vector<int32_t> kmer(static_cast<size_t>(n), -1);
+    std::vector<int32_t> kmer(static_cast<size_t>(span), -1);
     const int order = k_ - 1;
-    RollingContext context = context_before(contig, begin, order);
-    for (int64_t i = 0; i < n; ++i) {
+    RollingContext context = context_before(contig, left_from, order);
+    for (int64_t i = 0; i < span; ++i) {
         const uint8_t b = bases[static_cast<size_t>(i)];
         if (b < 4 && context.complete(order))
             kmer[static_cast<size_t>(i)] = static_cast<int32_t>((context.row(order) << 2) | b);
@@ -279,29 +282,29 @@ void ClassBaseScores::split_scores(const Contig& contig, int64_t begin, int64_t 
     std::vector<uint32_t> reverse(kmers);
     for (uint32_t code = 0; code < kmers; ++code) reverse[code] = reverse_complement_kmer(code, k_);
 
-    // One side's log-likelihood for every split, adding bases in `step` direction from `from`
-    // (the Polya probability is exchangeable: the order of adding does not change it).
-    std::vector<double> side(static_cast<size_t>(n + 1));
-    const auto sweep = [&](int region, int64_t from, int64_t step, double* score) {
+    // One side's log-likelihood as it grows base by base from `from` in direction `step`
+    // (the Polya probability is exchangeable: the order of adding does not change it);
+    // record(stretch end or start, value) after every base and before the first.
+    const auto sweep = [&](int region, int64_t from, int64_t to, int64_t step, auto record) {
         const std::vector<Member>& states = members_[static_cast<size_t>(region)];
         const size_t S = states.size();
         std::vector<double> forward(S, 0.0), backward(S, 0.0), gc_part(S, 0.0);
+        std::vector<double> state_total(S, 0.0);
         std::vector<uint32_t> count(kmers, 0), context_count(kmers / 4, 0);
         std::vector<uint32_t> rc_count(kmers, 0), rc_context_count(kmers / 4, 0);
         int64_t gc = 0, at = 0;
-        std::vector<double> state_total(S);
-        score[from] = 0;
-        for (int64_t i = from, filled = from; filled != from + step * n; i += step) {
-            const int64_t base_at = step > 0 ? i : i - 1;  // the base added at this step
-            const uint8_t b = bases[static_cast<size_t>(base_at)];
-            const int32_t code = kmer[static_cast<size_t>(base_at)];
+        record(from, 0.0);
+        for (int64_t filled = from; filled != to;) {
+            const int64_t i = step > 0 ? filled : filled - 1;  // the base added at this step
+            const uint8_t b = bases[static_cast<size_t>(i)];
+            const int32_t code = kmer[static_cast<size_t>(i)];
             for (size_t s = 0; s < S; ++s) {
                 const Member& st = states[s];
                 if (b < 4 && gc_) {
                     const bool strong = b == 1 || b == 2;
                     gc_part[s] +=
-                        std::log(((strong ? st.gc_alpha + static_cast<double>(gc)
-                                          : st.gc_beta + static_cast<double>(at))) /
+                        std::log((strong ? st.gc_alpha + static_cast<double>(gc)
+                                         : st.gc_beta + static_cast<double>(at)) /
                                  (st.gc_alpha + st.gc_beta + static_cast<double>(gc + at)));
                 }
                 if (code >= 0) {
@@ -311,7 +314,7 @@ void ClassBaseScores::split_scores(const Contig& contig, int64_t begin, int64_t 
                     backward[s] += std::log((st.alpha[r] + rc_count[r]) /
                                             (st.context_total[r >> 2] + rc_context_count[r >> 2]));
                 }
-                // ln((e^f + e^r) / 2): the strand is a fair coin for the whole side.
+                // ln((e^f + e^r) / 2): the strand is a fair coin for the whole stretch.
                 const double top = std::max(forward[s], backward[s]);
                 state_total[s] = top +
                                  std::log1p(std::exp(std::min(forward[s], backward[s]) - top)) -
@@ -330,16 +333,22 @@ void ClassBaseScores::split_scores(const Contig& contig, int64_t begin, int64_t 
             double sum = 0;
             for (size_t s = 0; s < S; ++s) sum += std::exp(state_total[s] - top);
             filled += step;
-            score[filled] = top + std::log(sum / static_cast<double>(S));
+            record(filled, top + std::log(sum / static_cast<double>(S)));
         }
     };
-    sweep(left, 0, 1, out);
-    sweep(right, n, -1, side.data());
+    sweep(left, 0, off + n, 1, [&](int64_t filled, double v) {
+        if (filled >= off) out[filled - off] = v;
+    });
+    std::vector<double> side(static_cast<size_t>(n + 1));
+    sweep(right, span, off, -1, [&](int64_t filled, double v) {
+        if (filled <= off + n) side[static_cast<size_t>(filled - off)] = v;
+    });
     for (int64_t k = 0; k <= n; ++k) out[k] += side[static_cast<size_t>(k)];
 }
 
 int64_t ClassBaseScores::change_point(const Contig& contig, int64_t begin, int64_t end, int left,
-                                      int right, int64_t prefer) const {
+                                      int right, int64_t prefer, int64_t left_from,
+                                      int64_t right_to) const {
     const int64_t n = end - begin;
     if (k_ == 0) {
         std::vector<double> diff(static_cast<size_t>(n));
@@ -347,7 +356,7 @@ int64_t ClassBaseScores::change_point(const Contig& contig, int64_t begin, int64
         return best_change_point(diff.data(), n, prefer);
     }
     std::vector<double> total(static_cast<size_t>(n + 1));
-    split_scores(contig, begin, end, left, right, total.data());
+    split_scores(contig, begin, end, left, right, total.data(), left_from, right_to);
     int64_t at = 0;
     for (int64_t k = 1; k <= n; ++k) {
         const double v = total[static_cast<size_t>(k)], best = total[static_cast<size_t>(at)];

@@ -7,6 +7,7 @@
 #include <cmath>
 #include <functional>
 #include <nlohmann/json.hpp>
+#include <tuple>
 
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
@@ -461,7 +462,8 @@ long double stretch_log(const std::vector<int>& x, int64_t a, int64_t b, int k, 
 TEST_CASE("refined ends of signature models: split scores equal the urn on each side",
           "[window][signature][call_ends]") {
     // Random sequences with an unknown base; a region of two states (the equal mixture of their
-    // stretch likelihoods) against one of one state; k = 1..3, with and without a G+C term:
+    // stretch likelihoods) against one of one state; k = 1..3, with and without a G+C term, the
+    // stretches inside the search range or reaching beyond it:
     // ClassBaseScores::split_scores against stretch_log (independent, long double) at every
     // split to 1e-12 relative, and change_point at the largest of them.
     test::TestRandom rng(21);
@@ -489,9 +491,12 @@ TEST_CASE("refined ends of signature models: split scores equal the urn on each 
             x[70] = 4;
             const Contig c = test::contig_from(letters(x));
             const int64_t begin = 30, end = 150, n = end - begin;
-            for (const auto& [left, right] : {std::pair{0, 1}, std::pair{1, 0}}) {
+            // The stretches reach out to 10 and 160 (left_from, right_to) or stay inside.
+            for (const auto& [left, right, from, to] :
+                 {std::tuple{0, 1, begin, end}, std::tuple{1, 0, begin, end},
+                  std::tuple{0, 1, int64_t{10}, int64_t{160}}}) {
                 std::vector<double> got(static_cast<size_t>(n + 1));
-                scores.split_scores(c, begin, end, left, right, got.data());
+                scores.split_scores(c, begin, end, left, right, got.data(), from, to);
                 double worst = 0;
                 int64_t best = 0;
                 for (int64_t j = 0; j <= n; ++j) {
@@ -504,14 +509,15 @@ TEST_CASE("refined ends of signature models: split scores equal the urn on each 
                         return top + std::log((std::exp(u - top) + std::exp(v - top)) / 2);
                     };
                     const long double want =
-                        region_log(left, begin, begin + j) + region_log(right, begin + j, end);
+                        region_log(left, from, begin + j) + region_log(right, begin + j, to);
                     worst = std::max(worst,
                                      static_cast<double>(std::abs(got[j] - want) / std::abs(want)));
                     if (got[j] > got[best]) best = j;
                 }
-                INFO("k " << k << ", G+C term " << with_gc << ", left " << left);
+                INFO("k " << k << ", G+C term " << with_gc << ", left " << left << ", from "
+                          << from);
                 CHECK(worst <= 1e-12);
-                CHECK(scores.change_point(c, begin, end, left, right, 0) == best);
+                CHECK(scores.change_point(c, begin, end, left, right, 0, from, to) == best);
             }
         }
 }

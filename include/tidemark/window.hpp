@@ -109,13 +109,13 @@ public:
     /// [begin, begin + j) as one stretch of class `left` plus that of [begin + j, end) as one of
     /// class `right`, each stretch scored as a window emission is (below).
     void split_scores(const Contig& contig, int64_t begin, int64_t end, int left, int right,
-                      double* out) const;
+                      double* out, int64_t left_from = -1, int64_t right_to = -1) const;
     /// The split of bases [begin, end) between class `left` and class `right` (offset from
     /// begin, 0..end-begin) that the calls' ends move to: without a signature,
     /// best_change_point over difference(); with one, the largest split_scores (among equals,
     /// the nearest to `prefer`, then the smaller).
     int64_t change_point(const Contig& contig, int64_t begin, int64_t end, int left, int right,
-                         int64_t prefer) const;
+                         int64_t prefer, int64_t left_from = -1, int64_t right_to = -1) const;
 
 private:
     struct Member {  // one profile state of a region (models with a signature)
