@@ -1,0 +1,96 @@
+"""Oracle: call ends at base resolution for signature models (calling.refine_ends in
+composition-shift). Real segments of another genus with the host's G+C inserted into a real host
+genome (scripts/gc-matched-chimera.py: E. coli K-12 MG1655 with 8 segments of 20-50 kb within 1
+point of its G+C; here from V. cholerae N16961, not the O395 segments the template's settings and
+the stretches' reach were chosen on). The documented recipe (fit composition-shift to the
+chimera, scan) must place the call ends within 1 kb of the inserts' ends (median), closer than
+on the window grid, without lowering the inserts' coverage. The truth is where the segments were
+inserted, fixed before anything runs."""
+
+import importlib.util
+import json
+import os
+import sys
+from pathlib import Path
+
+import numpy as np
+
+sys.dont_write_bytecode = True  # keep __pycache__ out of the source tree
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import tmtest  # noqa: E402
+
+SCRIPT = Path(__file__).resolve().parents[2] / "scripts" / "gc-matched-chimera.py"
+# Debian ragout-examples: V. cholerae O1 biovar El Tor N16961 (the panel's vc_n16961).
+DONOR = Path("/usr/share/doc/ragout/examples/V.Cholerae/references/O1_biovar.fasta.gz")
+
+TRUTH = "the inserted segments' coordinates in the chimera (set before any run)"
+ISSUE = "acceptance bound of issue 21 (boundaries finer than the window grid: median error <= 1 kb)"
+
+
+def build_chimera(work):
+    """The script's chimera with N16961 as the donor; returns the inserts as (begin, end)."""
+    spec = importlib.util.spec_from_file_location("gc_matched_chimera", SCRIPT)
+    chimera = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(chimera)
+    chimera.DONOR = DONOR
+    _, truth, _ = chimera.build(Path(work))
+    return [(b, e) for b, e, _ in truth]
+
+
+def boundary_errors(calls, inserts):
+    """Distance from each insert end to the nearest call end (start or end of any call)."""
+    ends = np.array(sorted({c[0] for c in calls} | {c[1] for c in calls}))
+    return np.array([np.abs(ends - x).min() for b, e in inserts for x in (b, e)])
+
+
+def coverage(calls, inserts):
+    return np.array([sum(max(0, min(ce, e) - max(cb, b)) for cb, ce in calls) / (e - b) for b, e in inserts])
+
+
+def scan(binary, work, profile, out, extra=()):
+    tmtest.run_in(binary, work, ["scan", "chimera.fa", "-p", profile, "-o", out, "-q", *extra])
+    return [(int(r[1]), int(r[2])) for r in tmtest.read_bed(os.path.join(work, out))]
+
+
+def body(checks, binary, work):
+    inserts = build_chimera(work)
+    checks.equal(len(inserts), 8, "GC-matched segments inserted", "scripts/gc-matched-chimera.py")
+    tmtest.run_in(binary, work, ["fit", "chimera.fa", "-p", "composition-shift", "-o", "P.json", "-t", "2", "-q"])
+    fitted = tmtest.read_json(os.path.join(work, "P.json"))
+    checks.equal(fitted["calling"].get("refine_ends"), True, "the fitted composition-shift profile refines call "
+                 "ends", "data/profiles/composition-shift.json (sources: calling.refine_ends)")
+    on_grid = json.loads(json.dumps(fitted))
+    del on_grid["calling"]["refine_ends"]
+    with open(os.path.join(work, "grid.json"), "w") as f:
+        json.dump(on_grid, f)
+
+    grid = scan(binary, work, "grid.json", "grid.bed")
+    refined = scan(binary, work, "P.json", "refined.bed")
+    checks.check(all(b % 5000 == 0 for b, _ in grid), "without refinement, call starts lie on the 5-kb window grid",
+                 "README (window profiles)")
+    before, after = boundary_errors(grid, inserts), boundary_errors(refined, inserts)
+    print(f"# {len(inserts)} inserts, {len(grid)} calls on the grid, {len(refined)} refined; boundary error "
+          f"median {np.median(before):.0f} bp on the grid, {np.median(after):.0f} bp refined", flush=True)
+    print("# errors on the grid: " + " ".join(str(int(x)) for x in before), flush=True)
+    print("# errors refined:     " + " ".join(str(int(x)) for x in after), flush=True)
+    checks.at_most(np.median(after), 1000, "median distance from an insert end to the nearest call end", ISSUE)
+    checks.check(np.median(after) < np.median(before), "refined ends lie closer to the inserts' ends than the "
+                 "window grid's (median)", TRUTH, f"{np.median(after):.0f} vs {np.median(before):.0f} bp")
+
+    share_before, share_after = coverage(grid, inserts), coverage(refined, inserts)
+    print("# insert coverage grid/refined: " + " ".join(f"{x:.2f}/{y:.2f}" for x, y in zip(share_before,
+                                                                                          share_after)), flush=True)
+    checks.check((share_after >= 0.5).sum() >= (share_before >= 0.5).sum(),
+                 "refinement keeps every insert that was at least half covered", TRUTH,
+                 f"{(share_after >= 0.5).sum()} vs {(share_before >= 0.5).sum()} of {len(inserts)}")
+
+    # The header's second line is the command line (which names the output); the rest must match.
+    scan(binary, work, "P.json", "refined.t1.bed", ["-t", "1"])
+    one, many = (tmtest.read_bytes(os.path.join(work, name)).split(b"\n", 2)[2]
+                 for name in ("refined.t1.bed", "refined.bed"))
+    checks.check(one == many, "refined calls are the same with -t 1 and the default threads",
+                 "the same run, byte for byte", f"{len(one)} and {len(many)} bytes")
+
+
+if __name__ == "__main__":
+    tmtest.main("call ends at base resolution for a signature model on GC-matched inserts", body)
