@@ -4,6 +4,7 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdlib>
+#include <limits>
 
 #include "tidemark/call.hpp"
 #include "tidemark/error.hpp"
@@ -203,6 +204,67 @@ double fill_window_emissions(const Model& m, const Contig& contig, int64_t first
     return removed;
 }
 
+DinucleotideCounts& DinucleotideCounts::operator+=(const DinucleotideCounts& o) {
+    for (size_t i = 0; i < bases.size(); ++i) bases[i] += o.bases[i];
+    for (size_t i = 0; i < pairs.size(); ++i) pairs[i] += o.pairs[i];
+    return *this;
+}
+
+DinucleotideCounts dinucleotide_counts(const Contig& contig, int64_t begin, int64_t end) {
+    DinucleotideCounts out;
+    std::vector<uint8_t> bases(static_cast<size_t>(std::min<int64_t>(end - begin, expand_block)));
+    uint8_t previous = base_unknown;
+    for (int64_t from = begin; from < end;) {
+        const int64_t n = std::min(end - from, expand_block);
+        contig.unpack(from, n, bases.data());
+        for (int64_t i = 0; i < n; ++i) {
+            const uint8_t b = bases[static_cast<size_t>(i)];
+            if (b < 4) {
+                ++out.bases[b];
+                if (previous < 4) ++out.pairs[previous * 4 + b];
+            }
+            previous = b;
+        }
+        from += n;
+    }
+    return out;
+}
+
+namespace {
+
+// rho*_XY of a stretch and its reverse complement together (signature_distance); false when
+// undefined.
+bool relative_abundance(const DinucleotideCounts& c, std::array<double, 16>& rho) {
+    int64_t known = 0, pairs = 0;
+    for (const int64_t n : c.bases) known += n;
+    for (const int64_t n : c.pairs) pairs += n;
+    if (pairs == 0) return false;
+    std::array<double, 4> f{};
+    for (int x = 0; x < 4; ++x)
+        f[x] =
+            static_cast<double>(c.bases[x] + c.bases[3 - x]) / (2.0 * static_cast<double>(known));
+    for (int x = 0; x < 4; ++x) {
+        if (f[x] == 0) return false;
+        for (int y = 0; y < 4; ++y) {
+            const int64_t both = c.pairs[x * 4 + y] + c.pairs[(3 - y) * 4 + (3 - x)];
+            rho[x * 4 + y] =
+                static_cast<double>(both) / (2.0 * static_cast<double>(pairs)) / (f[x] * f[y]);
+        }
+    }
+    return true;
+}
+
+}  // namespace
+
+double signature_distance(const DinucleotideCounts& a, const DinucleotideCounts& b) {
+    std::array<double, 16> ra{}, rb{};
+    if (!relative_abundance(a, ra) || !relative_abundance(b, rb))
+        return std::numeric_limits<double>::quiet_NaN();
+    double sum = 0;
+    for (size_t i = 0; i < 16; ++i) sum += std::abs(ra[i] - rb[i]);
+    return sum / 16;
+}
+
 ClassBaseScores::ClassBaseScores(const Model& m)
     : window_(m.window),
       regions_(static_cast<int>(m.region_names.size())),
@@ -384,6 +446,7 @@ Model region_view(const Model& m) {
         v.chain_length.push_back(1);
     }
     if (m.refine_ends) v.class_base_scores = std::make_shared<const ClassBaseScores>(m);
+    v.signature_evidence = m.signature_k > 0;
     return v;
 }
 

@@ -521,3 +521,26 @@ TEST_CASE("refined ends of signature models: split scores equal the urn on each 
             }
         }
 }
+
+TEST_CASE("signature_distance: delta* of a hand-computed pair", "[window][signature]") {
+    // delta* as defined by Karlin & Burge (1995), Trends Genet. 11:283-290, worked by hand.
+    // AACC with its reverse complement GGTT: every base 2 of 8 (f* = 1/4); pairs AA, AC, CC, GG,
+    // GT, TT once each of 6, so rho* = (1/6) / (1/16) = 8/3 for those, 0 for the others. ACGT is
+    // its own reverse complement: pairs AC, CG, GT twice each of 6, rho* = (1/3) / (1/16) = 16/3.
+    // |differences|: AA, CC, GG, TT 8/3 each; AC, GT |8/3 - 16/3| = 8/3 each; CG 16/3; the rest 0.
+    // delta* = (6 x 8/3 + 16/3) / 16 = 4/3.
+    const Contig a = test::contig_from("AACC"), b = test::contig_from("ACGT");
+    const DinucleotideCounts ca = dinucleotide_counts(a, 0, 4), cb = dinucleotide_counts(b, 0, 4);
+    CHECK(signature_distance(ca, cb) == Approx(4.0 / 3).epsilon(1e-15));
+    CHECK(signature_distance(cb, ca) == Approx(4.0 / 3).epsilon(1e-15));
+    CHECK(signature_distance(ca, ca) == 0);
+    // A pair needs two adjacent known bases; a stretch without pairs, or without A and T, has no
+    // rho*: NaN.
+    const Contig gapped = test::contig_from("ACNGT");
+    const DinucleotideCounts cg = dinucleotide_counts(gapped, 0, 5);
+    CHECK(cg.pairs[0 * 4 + 1] == 1);  // AC
+    CHECK(cg.pairs[2 * 4 + 3] == 1);  // GT
+    CHECK(cg.pairs[1 * 4 + 2] == 0);  // no CG across the unknown base
+    CHECK(std::isnan(signature_distance(dinucleotide_counts(gapped, 1, 3), ca)));  // "CN"
+    CHECK(std::isnan(signature_distance(dinucleotide_counts(test::contig_from("CCGG"), 0, 4), ca)));
+}

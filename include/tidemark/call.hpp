@@ -6,6 +6,7 @@
 
 #include <cstdint>
 #include <functional>
+#include <limits>
 #include <optional>
 #include <string>
 #include <vector>
@@ -52,6 +53,10 @@ struct Call {
     int64_t core_begin = 0;       ///< first base with P >= high_posterior (= begin when none)
     int64_t core_end = 0;         ///< one past the last such base (= begin when none)
     Composition composition;
+    /// Window profiles with a signature (Model::signature_evidence): delta*, the dinucleotide
+    /// relative-abundance distance (window.hpp: signature_distance) between the call's bases
+    /// and those of its whole record, both strands; NaN otherwise or where undefined.
+    double signature_distance = std::numeric_limits<double>::quiet_NaN();
 
     /// Share of the call's bases at or above the core level (high_posterior): how much of the
     /// call is confidently of its region type (BED column `confident_fraction`).

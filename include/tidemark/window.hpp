@@ -2,6 +2,7 @@
 // size), and the adapter that maps window posteriors onto bases for the base-level sinks.
 #pragma once
 
+#include <array>
 #include <cstdint>
 #include <memory>
 #include <vector>
@@ -72,6 +73,26 @@ void fill_window_log_emissions(const Model& model, const Contig& contig, int64_t
 /// natural log of the factors divided out (add it to the log-likelihood).
 double fill_window_emissions(const Model& model, const Contig& contig, int64_t first, int64_t count,
                              uint8_t* known, double* emission);
+
+/// The counts behind a dinucleotide signature: the known bases and the pairs of adjacent known
+/// bases of a stretch (index 4 x first + second, A<C<G<T), on the given strand.
+struct DinucleotideCounts {
+    std::array<int64_t, 4> bases{};
+    std::array<int64_t, 16> pairs{};
+    DinucleotideCounts& operator+=(const DinucleotideCounts& o);
+};
+
+/// Counts of bases [begin, end) of a contig (a pair needs both its bases inside the stretch).
+DinucleotideCounts dinucleotide_counts(const Contig& contig, int64_t begin, int64_t end);
+
+/// The distance between two stretches' dinucleotide relative abundances, delta* of Karlin &
+/// Burge (1995), "Dinucleotide relative abundance extremes: a genomic signature", Trends Genet.
+/// 11:283-290: (1/16) sum over the 16 dinucleotides XY of |rho*_XY(a) - rho*_XY(b)|, where
+/// rho*_XY = f*_XY / (f*_X f*_Y) with the frequencies f* of the stretch and its reverse
+/// complement together (both strands: f*_X = (n_X + n_X') / 2N, f*_XY = (n_XY + n_Y'X') / 2M,
+/// ' the complement, N known bases, M pairs). NaN when a stretch has no pair or lacks a base
+/// together with its complement (rho* undefined).
+double signature_distance(const DinucleotideCounts& a, const DinucleotideCounts& b);
 
 /// How well single bases fit each region of a window model: the one definition the caller uses
 /// to move a call's end from the window grid to a base (calling.refine_ends; IntervalCaller in

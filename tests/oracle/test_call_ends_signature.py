@@ -52,6 +52,47 @@ def scan(binary, work, profile, out, extra=()):
     return [(int(r[1]), int(r[2])) for r in tmtest.read_bed(os.path.join(work, out))]
 
 
+def delta_star(seq):
+    """rho*_XY of a sequence and its reverse complement together, in numpy (Karlin & Burge 1995,
+    Trends Genet. 11:283-290): an independent route to the signature_distance attribute."""
+    code = np.frombuffer(seq.encode(), np.uint8)
+    lut = np.full(256, 4, np.int64)
+    for i, b in enumerate(b"ACGT"):
+        lut[b] = i
+    x = lut[code]
+    both = np.concatenate([x, [4], (3 - x[::-1]) % 8])  # the reverse complement, after a break
+    known = both[both < 4]
+    f = np.bincount(known, minlength=4) / len(known)
+    a, b = both[:-1], both[1:]
+    ok = (a < 4) & (b < 4)
+    pairs = np.bincount(a[ok] * 4 + b[ok], minlength=16).reshape(4, 4) / ok.sum()
+    return pairs / np.outer(f, f)
+
+
+def check_evidence(checks, work):
+    """gc_fraction and signature_distance of every GFF3 feature against numpy over the FASTA."""
+    seq = tmtest.read_fasta(os.path.join(work, "chimera.fa"))[0][1]
+    genome = delta_star(seq)
+    worst_gc = worst_delta = 0.0
+    count = 0
+    with open(os.path.join(work, "refined.gff3")) as f:
+        for line in f:
+            if line.startswith("#"):
+                continue
+            cols = line.rstrip("\n").split("\t")
+            attrs = dict(kv.split("=", 1) for kv in cols[8].split(";"))
+            part = seq[int(cols[3]) - 1:int(cols[4])]
+            gc = sum(part.count(b) for b in "GC") / sum(part.count(b) for b in "ACGT")
+            delta = np.abs(delta_star(part) - genome).mean()
+            worst_gc = max(worst_gc, abs(float(attrs["gc_fraction"]) - gc))
+            worst_delta = max(worst_delta, abs(float(attrs["signature_distance"]) - delta))
+            count += 1
+    checks.check(count > 0, "GFF3 features to check", "the refined scan")
+    checks.at_most(worst_gc, 5e-5 + 1e-12, f"GFF3 gc_fraction of {count} calls (4 decimals)", "numpy over the FASTA")
+    checks.at_most(worst_delta, 5e-5 + 1e-12, f"GFF3 signature_distance of {count} calls: delta* from the record, "
+                   "both strands (4 decimals)", "numpy over the FASTA (Karlin & Burge 1995, delta*)")
+
+
 def body(checks, binary, work):
     inserts = build_chimera(work)
     checks.equal(len(inserts), 8, "GC-matched segments inserted", "scripts/gc-matched-chimera.py")
@@ -65,7 +106,7 @@ def body(checks, binary, work):
         json.dump(on_grid, f)
 
     grid = scan(binary, work, "grid.json", "grid.bed")
-    refined = scan(binary, work, "P.json", "refined.bed")
+    refined = scan(binary, work, "P.json", "refined.bed", ["--gff3", "refined.gff3"])
     checks.check(all(b % 5000 == 0 for b, _ in grid), "without refinement, call starts lie on the 5-kb window grid",
                  "README (window profiles)")
     before, after = boundary_errors(grid, inserts), boundary_errors(refined, inserts)
@@ -83,6 +124,8 @@ def body(checks, binary, work):
     checks.check((share_after >= 0.5).sum() >= (share_before >= 0.5).sum(),
                  "refinement keeps every insert that was at least half covered", TRUTH,
                  f"{(share_after >= 0.5).sum()} vs {(share_before >= 0.5).sum()} of {len(inserts)}")
+
+    check_evidence(checks, work)
 
     # The header's second line is the command line (which names the output); the rest must match.
     scan(binary, work, "P.json", "refined.t1.bed", ["-t", "1"])
