@@ -93,6 +93,40 @@ def check_evidence(checks, work):
                    "both strands (4 decimals)", "numpy over the FASTA (Karlin & Burge 1995, delta*)")
 
 
+def chain_gc(mean):
+    """G+C of the stationary composition of an order-2 chain (16 context rows), in numpy."""
+    rows = np.array(mean)
+    step = np.zeros((16, 16))
+    for c in range(16):
+        for b in range(4):
+            step[c, (c * 4 + b) % 16] += rows[c, b]
+    values, vectors = np.linalg.eig(step.T)
+    pi = np.real(vectors[:, np.argmin(np.abs(values - 1))])
+    pi /= pi.sum()
+    last = np.array([pi[[c for c in range(16) if c % 4 == b]].sum() for b in range(4)])
+    return last[1] + last[2]
+
+
+def check_descriptions(checks, fitted):
+    """A region of several states states each one's fitted G+C and concentration (issue 21)."""
+    states = {s["name"]: s for s in fitted["states"]}
+    for region in fitted["regions"]:
+        members = [s for s in fitted["states"] if s["region"] == region["name"]]
+        if len(members) < 2:
+            continue
+        text = region.get("description", "")
+        for s in members:
+            sig = s["signature"]
+            want = (f"{s['name']}: G+C {chain_gc(sig['mean']):.3f}, {sig['k']}-mer signature concentration "
+                    f"{np.median(sig['concentration']):.4g}")
+            if "concentration_below" in sig:
+                ref = states[sig["concentration_below"]]["signature"]["concentration"]
+                want += f" ({sig['concentration_below']} {np.median(ref):.4g})"
+            checks.check(want in text, f"fitted region {region['name']} describes its state {s['name']}",
+                         "numpy over the fitted profile (stationary G+C of the mean chain, median "
+                         "concentration)", f"want '{want}' in '{text}'")
+
+
 def body(checks, binary, work):
     inserts = build_chimera(work)
     checks.equal(len(inserts), 8, "GC-matched segments inserted", "scripts/gc-matched-chimera.py")
@@ -100,6 +134,7 @@ def body(checks, binary, work):
     fitted = tmtest.read_json(os.path.join(work, "P.json"))
     checks.equal(fitted["calling"].get("refine_ends"), True, "the fitted composition-shift profile refines call "
                  "ends", "data/profiles/composition-shift.json (sources: calling.refine_ends)")
+    check_descriptions(checks, fitted)
     on_grid = json.loads(json.dumps(fitted))
     del on_grid["calling"]["refine_ends"]
     with open(os.path.join(work, "grid.json"), "w") as f:
