@@ -325,6 +325,8 @@ void ClassBaseScores::split_scores(const Contig& contig, int64_t begin, int64_t 
                                    int right, double* out, int64_t left_from,
                                    int64_t right_to) const {
     if (k_ == 0) throw InternalError("ClassBaseScores::split_scores needs a signature");
+    if (members_[static_cast<size_t>(left)].empty() || members_[static_cast<size_t>(right)].empty())
+        throw InternalError("ClassBaseScores::split_scores: a region without states");
     if (left_from < 0) left_from = begin;
     if (right_to < 0) right_to = end;
     const int64_t n = end - begin, span = right_to - left_from, off = begin - left_from;
@@ -417,6 +419,8 @@ int64_t ClassBaseScores::change_point(const Contig& contig, int64_t begin, int64
         difference(contig, begin, end, left, right, diff.data());
         return best_change_point(diff.data(), n, prefer);
     }
+    if (members_[static_cast<size_t>(left)].empty() || members_[static_cast<size_t>(right)].empty())
+        return prefer;  // a region without states has no score: the end stays
     std::vector<double> total(static_cast<size_t>(n + 1));
     split_scores(contig, begin, end, left, right, total.data(), left_from, right_to);
     int64_t at = 0;
