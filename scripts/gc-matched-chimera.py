@@ -78,7 +78,7 @@ def build(workdir):
         f.write(">chimera\n")
         for i in range(0, len(chimera), 80):
             f.write(chimera[i:i + 80] + "\n")
-    print(f"host G+C {host_gc:.4f}; {len(truth)} inserts from V. cholerae O395:")
+    print(f"host G+C {host_gc:.4f}; {len(truth)} inserts from {DONOR.name}:")
     for b, e, g in truth:
         print(f"  {b}-{e} ({(e - b) / 1000:.1f} kb, G+C {g:.4f})")
     return fa, truth, len(chimera)

@@ -298,6 +298,13 @@ void IntervalCaller::end_contig(const Contig&, const DecodeResult&) {
         refine_ends();
         std::sort(calls_.begin(), calls_.end(), by_position);
     }
+    if (model_.signature_evidence && contig_ && !calls_.empty()) {
+        // Window models are never split, so the caller holds the whole record here.
+        const DinucleotideCounts record = dinucleotide_counts(*contig_, 0, contig_->length);
+        for (Call& c : calls_)
+            c.signature_distance =
+                signature_distance(dinucleotide_counts(*contig_, c.begin, c.end), record);
+    }
 }
 
 }  // namespace tidemark

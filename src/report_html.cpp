@@ -826,6 +826,7 @@ struct Page {
                                1),
                            c.composition.known() ? num(c.composition.gc_fraction(), 3) : "NA");
         if (cpg) out += "<td>" + num(c.composition.cpg_obs_exp(), 3) + "</td>";
+        if (model.signature_evidence) out += "<td>" + num(c.signature_distance, 4) + "</td>";
         out += "</tr>\n";
     }
 
@@ -837,6 +838,10 @@ struct Page {
         if (regions) out += "<th>region</th>";
         out += "<th>confidence</th><th>core %</th><th>GC</th>";
         if (cpg) out += "<th>CpG o/e</th>";
+        if (model.signature_evidence)
+            out +=
+                "<th title=\"dinucleotide relative-abundance distance from the call's "
+                "sequence, both strands (Karlin &amp; Burge 1995)\">signature \u03b4*</th>";
         out += "</tr>\n";
         int64_t i = 0;
         for (const auto& l : calls) call_row(l, numbered ? ++i : -1, cpg, regions);

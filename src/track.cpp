@@ -144,6 +144,8 @@ std::string format_gff3_feature(const Model& model, const Contig& contig, const 
         gff3_escape(region, false), serial, island ? "SO:0000307" : "SO:0000001",
         call.mean_posterior, call.confident_fraction(), call.composition.gc_fraction());
     if (!std::isnan(oe)) attributes += fmt::format(";cpg_obs_exp={:.4f}", oe);
+    if (!std::isnan(call.signature_distance))
+        attributes += fmt::format(";signature_distance={:.4f}", call.signature_distance);
     if (call.core_end > call.core_begin)
         attributes += fmt::format(";core_start={};core_end={}", contig.offset + call.core_begin + 1,
                                   contig.offset + call.core_end);

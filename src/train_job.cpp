@@ -54,31 +54,41 @@ bool has_ordered_classes(const Profile& p) {
     });
 }
 
-// A fitted profile's regions say what was fitted, not what the template hoped for: each region
-// of one window state gets its fitted G+C (and its reference's, for an ordered class).
+// What a fit learned for one window state, for its region's description: its fitted G+C (and
+// its reference's, for an ordered class), dispersion and signature concentration.
+std::string fitted_values(const Profile& p, const StateSpec& st) {
+    std::string text = fmt::format("G+C {:.3f}", state_gc(st));
+    if (!st.gc_reference.empty())
+        text += fmt::format(" ({} {:.3f})", st.gc_reference,
+                            p.states[p.state_index(st.gc_reference)].gc.mean);
+    if (st.has_gc) text += fmt::format(", dispersion {:.3g}", st.gc.dispersion);
+    if (st.signature.present()) {
+        text += fmt::format(", {}-mer signature concentration {:.4g}", st.signature.k,
+                            median_concentration(st.signature));
+        const std::string& ref = st.signature.concentration_reference;
+        if (!ref.empty())
+            text += fmt::format(" ({} {:.4g})", ref,
+                                median_concentration(p.states[p.state_index(ref)].signature));
+        text += " (median over contexts)";
+    }
+    return text;
+}
+
+// A fitted profile's regions say what was fitted, not what the template hoped for: a region of
+// one window state gets that state's fitted values; a region of several, each state's, named
+// ("typical: G+C ...; typical_broad: G+C ...").
 void describe_fitted_classes(Profile& p) {
     for (size_t r = 0; r < p.regions.size(); ++r) {
-        int only = -1, count = 0;
-        for (size_t s = 0; s < p.states.size(); ++s)
-            if (p.states[s].region == static_cast<int>(r)) {
-                only = static_cast<int>(s);
-                ++count;
-            }
-        if (count != 1) continue;
-        const StateSpec& st = p.states[only];
-        std::string text = fmt::format("G+C {:.3f}", state_gc(st));
-        if (!st.gc_reference.empty())
-            text += fmt::format(" ({} {:.3f})", st.gc_reference,
-                                p.states[p.state_index(st.gc_reference)].gc.mean);
-        if (st.has_gc) text += fmt::format(", dispersion {:.3g}", st.gc.dispersion);
-        if (st.signature.present()) {
-            text += fmt::format(", {}-mer signature concentration {:.4g}", st.signature.k,
-                                median_concentration(st.signature));
-            const std::string& ref = st.signature.concentration_reference;
-            if (!ref.empty())
-                text += fmt::format(" ({} {:.4g})", ref,
-                                    median_concentration(p.states[p.state_index(ref)].signature));
-            text += " (median over contexts)";
+        std::vector<const StateSpec*> members;
+        for (const StateSpec& st : p.states)
+            if (st.region == static_cast<int>(r)) members.push_back(&st);
+        if (members.empty()) continue;
+        std::string text;
+        if (members.size() == 1) {
+            text = fitted_values(p, *members.front());
+        } else {
+            for (const StateSpec* st : members)
+                text += (text.empty() ? "" : "; ") + st->name + ": " + fitted_values(p, *st);
         }
         p.regions[r].description = text + ": fitted by tidemark fit";
     }

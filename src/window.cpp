@@ -3,7 +3,10 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdlib>
+#include <limits>
 
+#include "tidemark/call.hpp"
 #include "tidemark/error.hpp"
 
 namespace tidemark {
@@ -201,11 +204,89 @@ double fill_window_emissions(const Model& m, const Contig& contig, int64_t first
     return removed;
 }
 
+DinucleotideCounts& DinucleotideCounts::operator+=(const DinucleotideCounts& o) {
+    for (size_t i = 0; i < bases.size(); ++i) bases[i] += o.bases[i];
+    for (size_t i = 0; i < pairs.size(); ++i) pairs[i] += o.pairs[i];
+    return *this;
+}
+
+DinucleotideCounts dinucleotide_counts(const Contig& contig, int64_t begin, int64_t end) {
+    DinucleotideCounts out;
+    std::vector<uint8_t> bases(static_cast<size_t>(std::min<int64_t>(end - begin, expand_block)));
+    uint8_t previous = base_unknown;
+    for (int64_t from = begin; from < end;) {
+        const int64_t n = std::min(end - from, expand_block);
+        contig.unpack(from, n, bases.data());
+        for (int64_t i = 0; i < n; ++i) {
+            const uint8_t b = bases[static_cast<size_t>(i)];
+            if (b < 4) {
+                ++out.bases[b];
+                if (previous < 4) ++out.pairs[previous * 4 + b];
+            }
+            previous = b;
+        }
+        from += n;
+    }
+    return out;
+}
+
+namespace {
+
+// rho*_XY of a stretch and its reverse complement together (signature_distance); false when
+// undefined.
+bool relative_abundance(const DinucleotideCounts& c, std::array<double, 16>& rho) {
+    int64_t known = 0, pairs = 0;
+    for (const int64_t n : c.bases) known += n;
+    for (const int64_t n : c.pairs) pairs += n;
+    if (pairs == 0) return false;
+    std::array<double, 4> f{};
+    for (int x = 0; x < 4; ++x)
+        f[x] =
+            static_cast<double>(c.bases[x] + c.bases[3 - x]) / (2.0 * static_cast<double>(known));
+    for (int x = 0; x < 4; ++x) {
+        if (f[x] == 0) return false;
+        for (int y = 0; y < 4; ++y) {
+            const int64_t both = c.pairs[x * 4 + y] + c.pairs[(3 - y) * 4 + (3 - x)];
+            rho[x * 4 + y] =
+                static_cast<double>(both) / (2.0 * static_cast<double>(pairs)) / (f[x] * f[y]);
+        }
+    }
+    return true;
+}
+
+}  // namespace
+
+double signature_distance(const DinucleotideCounts& a, const DinucleotideCounts& b) {
+    std::array<double, 16> ra{}, rb{};
+    if (!relative_abundance(a, ra) || !relative_abundance(b, rb))
+        return std::numeric_limits<double>::quiet_NaN();
+    double sum = 0;
+    for (size_t i = 0; i < 16; ++i) sum += std::abs(ra[i] - rb[i]);
+    return sum / 16;
+}
+
 ClassBaseScores::ClassBaseScores(const Model& m)
-    : window_(m.window), regions_(static_cast<int>(m.region_names.size())) {
+    : window_(m.window),
+      regions_(static_cast<int>(m.region_names.size())),
+      k_(m.signature_k),
+      gc_(m.window_gc) {
     if (m.window <= 0 || m.gc_alpha.size() != static_cast<size_t>(m.states))
         throw InternalError("ClassBaseScores needs a window model");
     log_base_.assign(static_cast<size_t>(regions_) * 4, 0.0);
+    members_.resize(static_cast<size_t>(regions_));
+    if (k_ > 0) {
+        const size_t kmers = size_t{1} << (2 * k_);
+        for (int s = 0; s < m.states; ++s) {
+            if (s > 0 && m.profile_state[s] == m.profile_state[s - 1]) continue;  // chain copies
+            Member member{m.gc_alpha[s], m.gc_beta[s], {}, {}};
+            const double* a = m.sig_alpha.data() + static_cast<size_t>(s) * kmers;
+            member.alpha.assign(a, a + kmers);
+            for (size_t c = 0; c < kmers / 4; ++c)
+                member.context_total.push_back(a[c * 4] + a[c * 4 + 1] + a[c * 4 + 2] +
+                                               a[c * 4 + 3]);
+            members_[static_cast<size_t>(m.region_of_state[s])].push_back(std::move(member));
+        }
+    }
     for (int r = 0; r < regions_; ++r) {
         // Mean of the GC means of the region's distinct profile states (chain copies of one
         // profile state count once).
@@ -240,6 +321,116 @@ void ClassBaseScores::difference(const Contig& contig, int64_t begin, int64_t en
     }
 }
 
+void ClassBaseScores::split_scores(const Contig& contig, int64_t begin, int64_t end, int left,
+                                   int right, double* out, int64_t left_from,
+                                   int64_t right_to) const {
+    if (k_ == 0) throw InternalError("ClassBaseScores::split_scores needs a signature");
+    if (members_[static_cast<size_t>(left)].empty() || members_[static_cast<size_t>(right)].empty())
+        throw InternalError("ClassBaseScores::split_scores: a region without states");
+    if (left_from < 0) left_from = begin;
+    if (right_to < 0) right_to = end;
+    const int64_t n = end - begin, span = right_to - left_from, off = begin - left_from;
+    std::vector<uint8_t> bases(static_cast<size_t>(span));
+    contig.unpack(left_from, span, bases.data());
+    // The k-mer ending at each base (-1: fewer than k - 1 known bases before it, or unknown).
+    std::vector<int32_t> kmer(static_cast<size_t>(span), -1);
+    const int order = k_ - 1;
+    RollingContext context = context_before(contig, left_from, order);
+    for (int64_t i = 0; i < span; ++i) {
+        const uint8_t b = bases[static_cast<size_t>(i)];
+        if (b < 4 && context.complete(order))
+            kmer[static_cast<size_t>(i)] = static_cast<int32_t>((context.row(order) << 2) | b);
+        context.push(b);
+    }
+    const size_t kmers = size_t{1} << (2 * k_);
+    std::vector<uint32_t> reverse(kmers);
+    for (uint32_t code = 0; code < kmers; ++code) reverse[code] = reverse_complement_kmer(code, k_);
+
+    // One side's log-likelihood as it grows base by base from `from` in direction `step`
+    // (the Polya probability is exchangeable: the order of adding does not change it);
+    // record(stretch end or start, value) after every base and before the first.
+    const auto sweep = [&](int region, int64_t from, int64_t to, int64_t step, auto record) {
+        const std::vector<Member>& states = members_[static_cast<size_t>(region)];
+        const size_t S = states.size();
+        std::vector<double> forward(S, 0.0), backward(S, 0.0), gc_part(S, 0.0);
+        std::vector<double> state_total(S, 0.0);
+        std::vector<uint32_t> count(kmers, 0), context_count(kmers / 4, 0);
+        std::vector<uint32_t> rc_count(kmers, 0), rc_context_count(kmers / 4, 0);
+        int64_t gc = 0, at = 0;
+        record(from, 0.0);
+        for (int64_t filled = from; filled != to;) {
+            const int64_t i = step > 0 ? filled : filled - 1;  // the base added at this step
+            const uint8_t b = bases[static_cast<size_t>(i)];
+            const int32_t code = kmer[static_cast<size_t>(i)];
+            for (size_t s = 0; s < S; ++s) {
+                const Member& st = states[s];
+                if (b < 4 && gc_) {
+                    const bool strong = b == 1 || b == 2;
+                    gc_part[s] +=
+                        std::log((strong ? st.gc_alpha + static_cast<double>(gc)
+                                         : st.gc_beta + static_cast<double>(at)) /
+                                 (st.gc_alpha + st.gc_beta + static_cast<double>(gc + at)));
+                }
+                if (code >= 0) {
+                    const uint32_t c = static_cast<uint32_t>(code), r = reverse[c];
+                    forward[s] += std::log((st.alpha[c] + count[c]) /
+                                           (st.context_total[c >> 2] + context_count[c >> 2]));
+                    backward[s] += std::log((st.alpha[r] + rc_count[r]) /
+                                            (st.context_total[r >> 2] + rc_context_count[r >> 2]));
+                }
+                // ln((e^f + e^r) / 2): the strand is a fair coin for the whole stretch.
+                const double top = std::max(forward[s], backward[s]);
+                state_total[s] = top +
+                                 std::log1p(std::exp(std::min(forward[s], backward[s]) - top)) -
+                                 std::log(2.0) + gc_part[s];
+            }
+            if (b < 4) (b == 1 || b == 2 ? gc : at) += 1;
+            if (code >= 0) {
+                const uint32_t c = static_cast<uint32_t>(code), r = reverse[c];
+                ++count[c];
+                ++context_count[c >> 2];
+                ++rc_count[r];
+                ++rc_context_count[r >> 2];
+            }
+            // The region: the equal mixture of its states, ln(mean_s e^total_s).
+            const double top = *std::max_element(state_total.begin(), state_total.end());
+            double sum = 0;
+            for (size_t s = 0; s < S; ++s) sum += std::exp(state_total[s] - top);
+            filled += step;
+            record(filled, top + std::log(sum / static_cast<double>(S)));
+        }
+    };
+    sweep(left, 0, off + n, 1, [&](int64_t filled, double v) {
+        if (filled >= off) out[filled - off] = v;
+    });
+    std::vector<double> side(static_cast<size_t>(n + 1));
+    sweep(right, span, off, -1, [&](int64_t filled, double v) {
+        if (filled <= off + n) side[static_cast<size_t>(filled - off)] = v;
+    });
+    for (int64_t k = 0; k <= n; ++k) out[k] += side[static_cast<size_t>(k)];
+}
+
+int64_t ClassBaseScores::change_point(const Contig& contig, int64_t begin, int64_t end, int left,
+                                      int right, int64_t prefer, int64_t left_from,
+                                      int64_t right_to) const {
+    const int64_t n = end - begin;
+    if (k_ == 0) {
+        std::vector<double> diff(static_cast<size_t>(n));
+        difference(contig, begin, end, left, right, diff.data());
+        return best_change_point(diff.data(), n, prefer);
+    }
+    if (members_[static_cast<size_t>(left)].empty() || members_[static_cast<size_t>(right)].empty())
+        return prefer;  // a region without states has no score: the end stays
+    std::vector<double> total(static_cast<size_t>(n + 1));
+    split_scores(contig, begin, end, left, right, total.data(), left_from, right_to);
+    int64_t at = 0;
+    for (int64_t k = 1; k <= n; ++k) {
+        const double v = total[static_cast<size_t>(k)], best = total[static_cast<size_t>(at)];
+        if (v > best || (v == best && std::llabs(k - prefer) < std::llabs(at - prefer))) at = k;
+    }
+    return at;
+}
+
 Model region_view(const Model& m) {
     Model v;
     const int R = static_cast<int>(m.region_names.size());
@@ -259,6 +450,7 @@ Model region_view(const Model& m) {
         v.chain_length.push_back(1);
     }
     if (m.refine_ends) v.class_base_scores = std::make_shared<const ClassBaseScores>(m);
+    v.signature_evidence = m.signature_k > 0;
     return v;
 }
 

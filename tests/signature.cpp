@@ -7,6 +7,7 @@
 #include <cmath>
 #include <functional>
 #include <nlohmann/json.hpp>
+#include <tuple>
 
 #include "test_util.hpp"
 #include "tidemark/error.hpp"
@@ -393,4 +394,153 @@ TEST_CASE("simulate draws signature windows with the model's moments", "[simulat
     const Model joint =
         compile(parse_profile(signature_profile(2, 100, 5, 50, true).dump(), "s.json"));
     CHECK_THROWS_AS(simulate(joint, o, sink), ProfileError);
+}
+
+namespace {
+
+// One stretch [a, b) of x under one state, independently of window.cpp: the k-mers ending in the
+// stretch whose k - 1 predecessors (taken from the whole sequence) are known, drawn through the
+// Polya urn (see urn_log) on each strand, the reverse strand read backwards (reverse complement
+// k-mers from b down to a: the urn's exchangeability is part of what is checked), mixed with a
+// fair coin, times the stretch's G+C bases drawn through the beta-binomial urn ((alpha + g) /
+// (alpha + beta + n) for G or C after g of them among n); long double.
+long double stretch_log(const std::vector<int>& x, int64_t a, int64_t b, int k, const StateSpec& st,
+                        bool with_gc) {
+    const size_t contexts = size_t{1} << (2 * (k - 1));
+    const auto kmer_at = [&](int64_t i) -> long {
+        if (x[static_cast<size_t>(i)] == 4 || i < k - 1) return -1;
+        long code = 0;
+        for (int64_t j = i - k + 1; j <= i; ++j) {
+            if (x[static_cast<size_t>(j)] == 4) return -1;
+            code = code * 4 + x[static_cast<size_t>(j)];
+        }
+        return code;
+    };
+    const auto draw = [&](std::vector<std::array<long double, 4>>& n, long code) {
+        const size_t c = static_cast<size_t>(code / 4);
+        const int base = static_cast<int>(code % 4);
+        long double total = 0;
+        for (int j = 0; j < 4; ++j) total += n[c][j];
+        const long double conc = st.signature.concentration[c];
+        const long double p =
+            (conc * static_cast<long double>(st.signature.mean[c][base]) + n[c][base]) /
+            (conc + total);
+        n[c][base] += 1;
+        return std::log(p);
+    };
+    std::vector<std::array<long double, 4>> nf(contexts, std::array<long double, 4>{}),
+        nr(contexts, std::array<long double, 4>{});
+    long double f = 0, r = 0;
+    for (int64_t i = a; i < b; ++i)
+        if (const long code = kmer_at(i); code >= 0) f += draw(nf, code);
+    for (int64_t i = b - 1; i >= a; --i)
+        if (const long code = kmer_at(i); code >= 0) {
+            long rc = 0, v = code;
+            for (int j = 0; j < k; ++j, v /= 4) rc = rc * 4 + (3 - v % 4);
+            r += draw(nr, rc);
+        }
+    const long double top = std::max(f, r);
+    long double lp = top + std::log((std::exp(f - top) + std::exp(r - top)) / 2);
+    if (with_gc) {
+        const long double total = 1 / static_cast<long double>(st.gc.dispersion) - 1;
+        const long double alpha = st.gc.mean * total, beta = total - alpha;
+        long double g = 0, n = 0;
+        for (int64_t i = a; i < b; ++i) {
+            const int base = x[static_cast<size_t>(i)];
+            if (base == 4) continue;
+            const bool strong = base == 1 || base == 2;
+            lp += std::log((strong ? alpha + g : beta + (n - g)) / (alpha + beta + n));
+            g += strong;
+            n += 1;
+        }
+    }
+    return lp;
+}
+
+}  // namespace
+
+TEST_CASE("refined ends of signature models: split scores equal the urn on each side",
+          "[window][signature][call_ends]") {
+    // Random sequences with an unknown base; a region of two states (the equal mixture of their
+    // stretch likelihoods) against one of one state; k = 1..3, with and without a G+C term, the
+    // stretches inside the search range or reaching beyond it:
+    // ClassBaseScores::split_scores against stretch_log (independent, long double) at every
+    // split to 1e-12 relative, and change_point at the largest of them.
+    test::TestRandom rng(21);
+    for (int k = 1; k <= 3; ++k)
+        for (bool with_gc : {false, true}) {
+            json doc = signature_profile(k, 100, 3, 40, with_gc);
+            json broad = doc["states"][1];
+            broad["name"] = "typical_broad";
+            broad["signature"]["mean"] = mean_rows(k, 2);
+            broad["signature"]["concentration"] = 8;
+            broad["signature"]["concentration_below"] = "typical";
+            if (with_gc) broad["gc"] = {{"mean", 0.6}, {"dispersion", 0.02}};
+            doc["states"].push_back(broad);
+            doc["initial"] = {{"atypical", 0.2}, {"typical", 0.4}, {"typical_broad", 0.4}};
+            doc["transitions"] = {
+                {"atypical", {{"atypical", 0.7}, {"typical", 0.2}, {"typical_broad", 0.1}}},
+                {"typical", {{"atypical", 0.1}, {"typical", 0.8}, {"typical_broad", 0.1}}},
+                {"typical_broad", {{"atypical", 0.1}, {"typical", 0.1}, {"typical_broad", 0.8}}}};
+            doc["calling"] = {{"refine_ends", true}};
+            const Profile p = parse_profile(doc.dump(), "s.json");
+            const Model m = compile(p);
+            const ClassBaseScores scores(m);
+            std::vector<int> x(160);
+            for (int& b : x) b = static_cast<int>(rng.next() % 4);
+            x[70] = 4;
+            const Contig c = test::contig_from(letters(x));
+            const int64_t begin = 30, end = 150, n = end - begin;
+            // The stretches reach out to 10 and 160 (left_from, right_to) or stay inside.
+            for (const auto& [left, right, from, to] :
+                 {std::tuple{0, 1, begin, end}, std::tuple{1, 0, begin, end},
+                  std::tuple{0, 1, int64_t{10}, int64_t{160}}}) {
+                std::vector<double> got(static_cast<size_t>(n + 1));
+                scores.split_scores(c, begin, end, left, right, got.data(), from, to);
+                double worst = 0;
+                int64_t best = 0;
+                for (int64_t j = 0; j <= n; ++j) {
+                    // region 0: atypical (state 0); region 1: typical (states 1 and 2, mixed).
+                    const auto region_log = [&](int region, int64_t a, int64_t b) {
+                        if (region == 0) return stretch_log(x, a, b, k, p.states[0], with_gc);
+                        const long double u = stretch_log(x, a, b, k, p.states[1], with_gc),
+                                          v = stretch_log(x, a, b, k, p.states[2], with_gc);
+                        const long double top = std::max(u, v);
+                        return top + std::log((std::exp(u - top) + std::exp(v - top)) / 2);
+                    };
+                    const long double want =
+                        region_log(left, from, begin + j) + region_log(right, begin + j, to);
+                    worst = std::max(worst,
+                                     static_cast<double>(std::abs(got[j] - want) / std::abs(want)));
+                    if (got[j] > got[best]) best = j;
+                }
+                INFO("k " << k << ", G+C term " << with_gc << ", left " << left << ", from "
+                          << from);
+                CHECK(worst <= 1e-12);
+                CHECK(scores.change_point(c, begin, end, left, right, 0, from, to) == best);
+            }
+        }
+}
+
+TEST_CASE("signature_distance: delta* of a hand-computed pair", "[window][signature]") {
+    // delta* as defined by Karlin & Burge (1995), Trends Genet. 11:283-290, worked by hand.
+    // AACC with its reverse complement GGTT: every base 2 of 8 (f* = 1/4); pairs AA, AC, CC, GG,
+    // GT, TT once each of 6, so rho* = (1/6) / (1/16) = 8/3 for those, 0 for the others. ACGT is
+    // its own reverse complement: pairs AC, CG, GT twice each of 6, rho* = (1/3) / (1/16) = 16/3.
+    // |differences|: AA, CC, GG, TT 8/3 each; AC, GT |8/3 - 16/3| = 8/3 each; CG 16/3; the rest 0.
+    // delta* = (6 x 8/3 + 16/3) / 16 = 4/3.
+    const Contig a = test::contig_from("AACC"), b = test::contig_from("ACGT");
+    const DinucleotideCounts ca = dinucleotide_counts(a, 0, 4), cb = dinucleotide_counts(b, 0, 4);
+    CHECK(signature_distance(ca, cb) == Approx(4.0 / 3).epsilon(1e-15));
+    CHECK(signature_distance(cb, ca) == Approx(4.0 / 3).epsilon(1e-15));
+    CHECK(signature_distance(ca, ca) == 0);
+    // A pair needs two adjacent known bases; a stretch without pairs, or without A and T, has no
+    // rho*: NaN.
+    const Contig gapped = test::contig_from("ACNGT");
+    const DinucleotideCounts cg = dinucleotide_counts(gapped, 0, 5);
+    CHECK(cg.pairs[0 * 4 + 1] == 1);  // AC
+    CHECK(cg.pairs[2 * 4 + 3] == 1);  // GT
+    CHECK(cg.pairs[1 * 4 + 2] == 0);  // no CG across the unknown base
+    CHECK(std::isnan(signature_distance(dinucleotide_counts(gapped, 1, 3), ca)));  // "CN"
+    CHECK(std::isnan(signature_distance(dinucleotide_counts(test::contig_from("CCGG"), 0, 4), ca)));
 }

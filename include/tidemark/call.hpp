@@ -6,6 +6,7 @@
 
 #include <cstdint>
 #include <functional>
+#include <limits>
 #include <optional>
 #include <string>
 #include <vector>
@@ -52,6 +53,10 @@ struct Call {
     int64_t core_begin = 0;       ///< first base with P >= high_posterior (= begin when none)
     int64_t core_end = 0;         ///< one past the last such base (= begin when none)
     Composition composition;
+    /// Window profiles with a signature (Model::signature_evidence): delta*, the dinucleotide
+    /// relative-abundance distance (window.hpp: signature_distance) between the call's bases
+    /// and those of its whole record, both strands; NaN otherwise or where undefined.
+    double signature_distance = std::numeric_limits<double>::quiet_NaN();
 
     /// Share of the call's bases at or above the core level (high_posterior): how much of the
     /// call is confidently of its region type (BED column `confident_fraction`).
@@ -90,7 +95,9 @@ int64_t best_change_point(const double* diff, int64_t n, int64_t prefer);
 /// unknown base, so never an end made by an assembly gap), moves to the best_change_point
 /// between the class on its left and the class on its right, searched over the window before
 /// and the window after it (stopping at assembly gaps and halfway to the next call end, so
-/// calls keep their order and at least one base). The class outside a call is the call of
+/// calls keep their order and at least one base; with a signature, the stretch each side of a
+/// split is scored as one draw that reaches 4 windows further, within the same limits, see
+/// ClassBaseScores::split_scores). The class outside a call is the call of
 /// another region that meets it there, else the other region most probable in the window just
 /// outside. The calls of one contig are refined together from its own bases and window
 /// posteriors, after the whole contig is decoded, so they do not depend on threads or shards

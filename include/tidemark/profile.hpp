@@ -236,6 +236,9 @@ struct Model {
     /// Region views of window profiles (window.hpp: region_view), whose positions are bases: the
     /// window size of the model they view (0 otherwise); window_min_known is the viewed one's.
     int64_t viewed_window = 0;
+    /// Region views of window profiles with a signature: calls carry their signature distance
+    /// from their record (Call::signature_distance).
+    bool signature_evidence = false;
     /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
     /// lbeta(alpha, beta) (the normaliser, precomputed).
     std::vector<double> gc_alpha, gc_beta, gc_lbeta;

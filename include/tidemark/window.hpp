@@ -2,6 +2,7 @@
 // size), and the adapter that maps window posteriors onto bases for the base-level sinks.
 #pragma once
 
+#include <array>
 #include <cstdint>
 #include <memory>
 #include <vector>
@@ -73,6 +74,26 @@ void fill_window_log_emissions(const Model& model, const Contig& contig, int64_t
 double fill_window_emissions(const Model& model, const Contig& contig, int64_t first, int64_t count,
                              uint8_t* known, double* emission);
 
+/// The counts behind a dinucleotide signature: the known bases and the pairs of adjacent known
+/// bases of a stretch (index 4 x first + second, A<C<G<T), on the given strand.
+struct DinucleotideCounts {
+    std::array<int64_t, 4> bases{};
+    std::array<int64_t, 16> pairs{};
+    DinucleotideCounts& operator+=(const DinucleotideCounts& o);
+};
+
+/// Counts of bases [begin, end) of a contig (a pair needs both its bases inside the stretch).
+DinucleotideCounts dinucleotide_counts(const Contig& contig, int64_t begin, int64_t end);
+
+/// The distance between two stretches' dinucleotide relative abundances, delta* of Karlin &
+/// Burge (1995), "Dinucleotide relative abundance extremes: a genomic signature", Trends Genet.
+/// 11:283-290: (1/16) sum over the 16 dinucleotides XY of |rho*_XY(a) - rho*_XY(b)|, where
+/// rho*_XY = f*_XY / (f*_X f*_Y) with the frequencies f* of the stretch and its reverse
+/// complement together (both strands: f*_X = (n_X + n_X') / 2N, f*_XY = (n_XY + n_Y'X') / 2M,
+/// ' the complement, N known bases, M pairs). NaN when a stretch has no pair or lacks a base
+/// together with its complement (rho* undefined).
+double signature_distance(const DinucleotideCounts& a, const DinucleotideCounts& b);
+
 /// How well single bases fit each region of a window model: the one definition the caller uses
 /// to move a call's end from the window grid to a base (calling.refine_ends; IntervalCaller in
 /// call.hpp). A window emission scores a window's counts; this scores a base under the same
@@ -80,7 +101,17 @@ double fill_window_emissions(const Model& model, const Contig& contig, int64_t f
 /// Today's term is the G+C one: log P(base) under independent bases with the region's GC mean
 /// (P(C) = P(G) = gc/2, P(A) = P(T) = (1 - gc)/2; the beta-binomial's overdispersion describes
 /// windows, not bases, and is left out). A region of several profile states takes the mean of
-/// their GC means. Another window emission kind adds its per-base term in difference().
+/// their GC means.
+/// A signature (states[].signature) is not scored base by base: its states differ mostly in
+/// their concentration, not their mean (the atypical class is the genome's mean with a low
+/// concentration), so under the mean chain a base tells the classes apart hardly at all. The
+/// two stretches on either side of a split are scored as window emissions are: each stretch's
+/// k-mers (those ending in it whose k - 1 predecessors are known, the context taken from the
+/// contig) as one Polya draw per strand, the strand a fair coin per stretch, times the
+/// stretch's beta-binomial G+C sequence probability when the states have a G+C term; bases
+/// that start a chain score ln(1/4) under every class and are left out. A region of several
+/// states scores the equal mixture of their stretch likelihoods, ln(mean_s e^L_s) (the window
+/// posterior says which of its states holds a window, not which holds the stretch).
 class ClassBaseScores {
 public:
     explicit ClassBaseScores(const Model& window_model);
@@ -93,11 +124,32 @@ public:
                     double* out) const;
     /// The score of one known base (0..3) under region r (natural log).
     double score(int r, uint8_t base) const { return log_base_[static_cast<size_t>(r) * 4 + base]; }
+    /// The signature's k (0: the G+C term only).
+    int signature_k() const { return k_; }
+    /// Models with a signature: out[j] (j = 0..end-begin) = the log-likelihood of bases
+    /// [begin, begin + j) as one stretch of class `left` plus that of [begin + j, end) as one of
+    /// class `right`, each stretch scored as a window emission is (below).
+    void split_scores(const Contig& contig, int64_t begin, int64_t end, int left, int right,
+                      double* out, int64_t left_from = -1, int64_t right_to = -1) const;
+    /// The split of bases [begin, end) between class `left` and class `right` (offset from
+    /// begin, 0..end-begin) that the calls' ends move to: without a signature,
+    /// best_change_point over difference(); with one, the largest split_scores (among equals,
+    /// the nearest to `prefer`, then the smaller).
+    int64_t change_point(const Contig& contig, int64_t begin, int64_t end, int left, int right,
+                         int64_t prefer, int64_t left_from = -1, int64_t right_to = -1) const;
 
 private:
+    struct Member {  // one profile state of a region (models with a signature)
+        double gc_alpha = 0, gc_beta = 0;
+        std::vector<double> alpha;          ///< 4^k Dirichlet parameters (Model::sig_alpha)
+        std::vector<double> context_total;  ///< 4^(k-1) sums of a context's parameters
+    };
     int64_t window_ = 0;
     int regions_ = 0;
+    int k_ = 0;
+    bool gc_ = true;
     std::vector<double> log_base_;  ///< [region * 4 + base]
+    std::vector<std::vector<Member>> members_;
 };
 
 /// The model that base-level sinks see for a window model: one state per region (the region's

@@ -1,0 +1,174 @@
+"""Oracle: call ends at base resolution for signature models (calling.refine_ends in
+composition-shift). Real segments of another genus with the host's G+C inserted into a real host
+genome (scripts/gc-matched-chimera.py: E. coli K-12 MG1655 with 8 segments of 20-50 kb within 1
+point of its G+C; here from V. cholerae N16961, not the O395 segments the template's settings and
+the stretches' reach were chosen on). The documented recipe (fit composition-shift to the
+chimera, scan) must place the call ends within 1 kb of the inserts' ends (median), closer than
+on the window grid, without lowering the inserts' coverage. The truth is where the segments were
+inserted, fixed before anything runs."""
+
+import importlib.util
+import json
+import os
+import sys
+from pathlib import Path
+
+import numpy as np
+
+sys.dont_write_bytecode = True  # keep __pycache__ out of the source tree
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import tmtest  # noqa: E402
+
+SCRIPT = Path(__file__).resolve().parents[2] / "scripts" / "gc-matched-chimera.py"
+# Debian ragout-examples: V. cholerae O1 biovar El Tor N16961 (the panel's vc_n16961).
+DONOR = Path("/usr/share/doc/ragout/examples/V.Cholerae/references/O1_biovar.fasta.gz")
+
+TRUTH = "the inserted segments' coordinates in the chimera (set before any run)"
+ISSUE = "acceptance bound of issue 21 (boundaries finer than the window grid: median error <= 1 kb)"
+
+
+def build_chimera(work):
+    """The script's chimera with N16961 as the donor; returns the inserts as (begin, end)."""
+    spec = importlib.util.spec_from_file_location("gc_matched_chimera", SCRIPT)
+    chimera = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(chimera)
+    chimera.DONOR = DONOR
+    _, truth, _ = chimera.build(Path(work))
+    return [(b, e) for b, e, _ in truth]
+
+
+def boundary_errors(calls, inserts):
+    """Distance from each insert end to the nearest call end (start or end of any call)."""
+    ends = np.array(sorted({c[0] for c in calls} | {c[1] for c in calls}))
+    return np.array([np.abs(ends - x).min() for b, e in inserts for x in (b, e)])
+
+
+def coverage(calls, inserts):
+    return np.array([sum(max(0, min(ce, e) - max(cb, b)) for cb, ce in calls) / (e - b) for b, e in inserts])
+
+
+def scan(binary, work, profile, out, extra=()):
+    tmtest.run_in(binary, work, ["scan", "chimera.fa", "-p", profile, "-o", out, "-q", *extra])
+    return [(int(r[1]), int(r[2])) for r in tmtest.read_bed(os.path.join(work, out))]
+
+
+def delta_star(seq):
+    """rho*_XY of a sequence and its reverse complement together, in numpy (Karlin & Burge 1995,
+    Trends Genet. 11:283-290): an independent route to the signature_distance attribute."""
+    code = np.frombuffer(seq.encode(), np.uint8)
+    lut = np.full(256, 4, np.int64)
+    for i, b in enumerate(b"ACGT"):
+        lut[b] = i
+    x = lut[code]
+    both = np.concatenate([x, [4], (3 - x[::-1]) % 8])  # the reverse complement, after a break
+    known = both[both < 4]
+    f = np.bincount(known, minlength=4) / len(known)
+    a, b = both[:-1], both[1:]
+    ok = (a < 4) & (b < 4)
+    pairs = np.bincount(a[ok] * 4 + b[ok], minlength=16).reshape(4, 4) / ok.sum()
+    return pairs / np.outer(f, f)
+
+
+def check_evidence(checks, work):
+    """gc_fraction and signature_distance of every GFF3 feature against numpy over the FASTA."""
+    seq = tmtest.read_fasta(os.path.join(work, "chimera.fa"))[0][1]
+    genome = delta_star(seq)
+    worst_gc = worst_delta = 0.0
+    count = 0
+    with open(os.path.join(work, "refined.gff3")) as f:
+        for line in f:
+            if line.startswith("#"):
+                continue
+            cols = line.rstrip("\n").split("\t")
+            attrs = dict(kv.split("=", 1) for kv in cols[8].split(";"))
+            part = seq[int(cols[3]) - 1:int(cols[4])]
+            gc = sum(part.count(b) for b in "GC") / sum(part.count(b) for b in "ACGT")
+            delta = np.abs(delta_star(part) - genome).mean()
+            worst_gc = max(worst_gc, abs(float(attrs["gc_fraction"]) - gc))
+            worst_delta = max(worst_delta, abs(float(attrs["signature_distance"]) - delta))
+            count += 1
+    checks.check(count > 0, "GFF3 features to check", "the refined scan")
+    checks.at_most(worst_gc, 5e-5 + 1e-12, f"GFF3 gc_fraction of {count} calls (4 decimals)", "numpy over the FASTA")
+    checks.at_most(worst_delta, 5e-5 + 1e-12, f"GFF3 signature_distance of {count} calls: delta* from the record, "
+                   "both strands (4 decimals)", "numpy over the FASTA (Karlin & Burge 1995, delta*)")
+
+
+def chain_gc(mean):
+    """G+C of the stationary composition of an order-2 chain (16 context rows), in numpy."""
+    rows = np.array(mean)
+    step = np.zeros((16, 16))
+    for c in range(16):
+        for b in range(4):
+            step[c, (c * 4 + b) % 16] += rows[c, b]
+    values, vectors = np.linalg.eig(step.T)
+    pi = np.real(vectors[:, np.argmin(np.abs(values - 1))])
+    pi /= pi.sum()
+    last = np.array([pi[[c for c in range(16) if c % 4 == b]].sum() for b in range(4)])
+    return last[1] + last[2]
+
+
+def check_descriptions(checks, fitted):
+    """A region of several states states each one's fitted G+C and concentration (issue 21)."""
+    states = {s["name"]: s for s in fitted["states"]}
+    for region in fitted["regions"]:
+        members = [s for s in fitted["states"] if s["region"] == region["name"]]
+        if len(members) < 2:
+            continue
+        text = region.get("description", "")
+        for s in members:
+            sig = s["signature"]
+            want = (f"{s['name']}: G+C {chain_gc(sig['mean']):.3f}, {sig['k']}-mer signature concentration "
+                    f"{np.median(sig['concentration']):.4g}")
+            if "concentration_below" in sig:
+                ref = states[sig["concentration_below"]]["signature"]["concentration"]
+                want += f" ({sig['concentration_below']} {np.median(ref):.4g})"
+            checks.check(want in text, f"fitted region {region['name']} describes its state {s['name']}",
+                         "numpy over the fitted profile (stationary G+C of the mean chain, median "
+                         "concentration)", f"want '{want}' in '{text}'")
+
+
+def body(checks, binary, work):
+    inserts = build_chimera(work)
+    checks.equal(len(inserts), 8, "GC-matched segments inserted", "scripts/gc-matched-chimera.py")
+    tmtest.run_in(binary, work, ["fit", "chimera.fa", "-p", "composition-shift", "-o", "P.json", "-t", "2", "-q"])
+    fitted = tmtest.read_json(os.path.join(work, "P.json"))
+    checks.equal(fitted["calling"].get("refine_ends"), True, "the fitted composition-shift profile refines call "
+                 "ends", "data/profiles/composition-shift.json (sources: calling.refine_ends)")
+    check_descriptions(checks, fitted)
+    on_grid = json.loads(json.dumps(fitted))
+    del on_grid["calling"]["refine_ends"]
+    with open(os.path.join(work, "grid.json"), "w") as f:
+        json.dump(on_grid, f)
+
+    grid = scan(binary, work, "grid.json", "grid.bed")
+    refined = scan(binary, work, "P.json", "refined.bed", ["--gff3", "refined.gff3"])
+    checks.check(all(b % 5000 == 0 for b, _ in grid), "without refinement, call starts lie on the 5-kb window grid",
+                 "README (window profiles)")
+    before, after = boundary_errors(grid, inserts), boundary_errors(refined, inserts)
+    print(f"# {len(inserts)} inserts, {len(grid)} calls on the grid, {len(refined)} refined; boundary error "
+          f"median {np.median(before):.0f} bp on the grid, {np.median(after):.0f} bp refined", flush=True)
+    print("# errors on the grid: " + " ".join(str(int(x)) for x in before), flush=True)
+    print("# errors refined:     " + " ".join(str(int(x)) for x in after), flush=True)
+    checks.at_most(np.median(after), 1000, "median distance from an insert end to the nearest call end", ISSUE)
+    checks.check(np.median(after) < np.median(before), "refined ends lie closer to the inserts' ends than the "
+                 "window grid's (median)", TRUTH, f"{np.median(after):.0f} vs {np.median(before):.0f} bp")
+
+    share_before, share_after = coverage(grid, inserts), coverage(refined, inserts)
+    print("# insert coverage grid/refined: " + " ".join(f"{x:.2f}/{y:.2f}" for x, y in zip(share_before,
+                                                                                          share_after)), flush=True)
+    checks.check((share_after >= 0.5).sum() >= (share_before >= 0.5).sum(),
+                 "refinement keeps every insert that was at least half covered", TRUTH,
+                 f"{(share_after >= 0.5).sum()} vs {(share_before >= 0.5).sum()} of {len(inserts)}")
+
+    check_evidence(checks, work)
+
+    # The header's second line is the command line (which names the output); the rest must match.
+    scan(binary, work, "P.json", "refined.t1.bed", ["-t", "1"])
+    one, many = (tmtest.read_bytes(os.path.join(work, name)).split(b"\n", 2)[2]
+                 for name in ("refined.t1.bed", "refined.bed"))
+    checks.check(one == many, "refined calls are the same with -t 1 and the default threads",
+                 "the same run, byte for byte", f"{len(one)} and {len(many)} bytes")
+
+
+if __name__ == "__main__":
+    tmtest.main("call ends at base resolution for a signature model on GC-matched inserts", body)
