@@ -71,21 +71,22 @@ GENOMES = {
     "kp_1084": f"{KLEB}/Klebs_Kp1084.fna.xz",
 }
 
-# Comparative panel: (label, query, comparison genomes, note). The comparisons are strains of the
-# query's species. E. coli K-12 has one: DH1 is itself a K-12 strain, so it shares K-12's own
-# islands and would hide them. V. cholerae N16961 has one too: against O395 and the two other El
-# Tor strains of the package no 8-kb window is absent from all three. H. pylori strains differ at
-# so many positions that few windows are 'present' by 25-mers: the row shows the method's limit.
+# Comparative panel: (label, query, comparison genomes, remark on the truth). The comparisons are
+# strains of the query's species. E. coli K-12 has one: DH1 is itself a K-12 strain, so it shares
+# K-12's own islands and would hide them. V. cholerae N16961 has one too: against O395 and the two
+# other El Tor strains of the package no 8-kb window is absent from all three. H. pylori strains
+# differ at so many positions that few windows are 'present' by 25-mers: the row shows the
+# method's limit. Whether a row is held out is the template's to say (template_notes).
 COMPARATIVE = [
-    ("E. coli K-12 MG1655", "ecoli_k12", ["ecoli_536"], "held out; one comparison (DH1 is a K-12 strain)"),
-    ("E. coli 536", "ecoli_536", ["ecoli_k12", "ecoli_dh1"], "the template's settings were chosen here"),
+    ("E. coli K-12 MG1655", "ecoli_k12", ["ecoli_536"], "one comparison (DH1 is a K-12 strain)"),
+    ("E. coli 536", "ecoli_536", ["ecoli_k12", "ecoli_dh1"], ""),
     ("V. cholerae N16961", "vc_n16961", ["vc_o395"],
-     "held out; one comparison (the other O1 El Tor strains, Inaba G4222 and H1, share N16961's islands)"),
+     "one comparison (the other O1 El Tor strains, Inaba G4222 and H1, share N16961's islands)"),
     ("H. pylori G27", "hp_g27", ["hp_els37", "hp_gambia", "hp_puno", "hp_sjm180"],
-     "held out; too divergent for 25-mers: almost no core, no island"),
+     "too divergent for 25-mers: almost no core, no island"),
     ("S. aureus USA300", "sa_usa300", ["sa_n315", "sa_rf122"],
-     "held out; COL (CC8, as USA300) and JKD6008 (ST239, partly CC8) left out (lineages from memory)"),
-    ("K. pneumoniae MGH78578", "kp_mgh78578", ["kp_ntuh", "kp_hs11286", "kp_1084"], "held out"),
+     "COL (CC8, as USA300) and JKD6008 (ST239, partly CC8) left out (lineages from memory)"),
+    ("K. pneumoniae MGH78578", "kp_mgh78578", ["kp_ntuh", "kp_hs11286", "kp_1084"], ""),
 ]
 REDUCED = ["E. coli K-12 MG1655"]
 
@@ -530,12 +531,33 @@ def fmt_kb(errors):
     return f"{np.median(errors) / 1000:.1f}" if errors else "–"
 
 
+def template_notes(template):
+    """{row key: note} from the template's provenance.benchmark_panel (row keys: the comparative
+    query genomes, "chimera", "draft"), so that the table says which rows chose the template's
+    settings and which are held out as the template itself records it. A built-in name is read
+    from data/profiles/NAME.json beside this script."""
+    path = template if os.path.exists(template) else os.path.join(
+        os.path.dirname(os.path.abspath(__file__)), "..", "data", "profiles", f"{template}.json")
+    try:
+        with open(path) as f:
+            notes = json.load(f).get("provenance", {}).get("benchmark_panel", {})
+    except OSError:
+        notes = {}
+    return {key: str(text) for key, text in notes.items()}
+
+
+def note_of(notes, key, remark=""):
+    status = notes.get(key, "held out or not: the template's provenance does not say")
+    return f"{status}; {remark}" if remark else status
+
+
 def panel(binary, template, cache_dir, work, threads, reduced=False, log=print,
           parts=("comparative", "chimera", "draft")):
     cache = Cache(cache_dir)
+    notes = template_notes(template)
     rows = []
     chosen = [c for c in COMPARATIVE if (not reduced or c[0] in REDUCED) and "comparative" in parts]
-    for label, query, comparisons, note in chosen:
+    for label, query, comparisons, remark in chosen:
         t0 = time.monotonic()
         truth = cached_comparative(cache, query, comparisons)
         t_truth = time.monotonic() - t0
@@ -551,7 +573,8 @@ def panel(binary, template, cache_dir, work, threads, reduced=False, log=print,
             core_bases += int(cm.sum())
             core_called += int((cm & called[n]).sum())
         wrong = contradictions(calls, seqs, profile, summary)
-        rows.append({"genome": label, "truth": "comparative vs " + ", ".join(comparisons), "note": note,
+        rows.append({"genome": label, "truth": "comparative vs " + ", ".join(comparisons),
+                     "note": note_of(notes, query, remark),
                      "islands": (int(covered), total), "core_called": core_called / max(1, core_bases),
                      "core_bases": core_bases, "boundary_kb": fmt_kb(errors), "boundary": errors,
                      "calls": len(calls), "contradicting": len(wrong), "wrong": wrong[:5],
@@ -561,7 +584,7 @@ def panel(binary, template, cache_dir, work, threads, reduced=False, log=print,
             f"recipe {secs:.1f} s, truth {t_truth:.1f} s")
 
     if "chimera" not in parts:
-        return rows + (draft_row(binary, template, cache, work, threads, log) if "draft" in parts else [])
+        return rows + (draft_row(binary, template, cache, work, threads, log, notes) if "draft" in parts else [])
     # Chimeras.
     t0 = time.monotonic()
     fasta, truth = cached_chimera(cache)
@@ -574,7 +597,7 @@ def panel(binary, template, cache_dir, work, threads, reduced=False, log=print,
     host = ~mask_of(ivs, lengths[truth["record"]])
     wrong = contradictions(calls, seqs, profile, summary)
     rows.append({"genome": "K-12 + 12 GC-matched inserts", "truth": "chimera (V. cholerae, Klebsiella)",
-                 "note": "held out", "islands": (int(covered), total),
+                 "note": note_of(notes, "chimera"), "islands": (int(covered), total),
                  "core_called": float((host & called[truth["record"]]).sum() / host.sum()),
                  "boundary_kb": fmt_kb(errors), "boundary": errors, "calls": len(calls),
                  "contradicting": len(wrong), "wrong": wrong[:5], "seconds": secs, "truth_seconds": t_truth,
@@ -583,11 +606,11 @@ def panel(binary, template, cache_dir, work, threads, reduced=False, log=print,
         f"recipe {secs:.1f} s")
 
     if not reduced and "draft" in parts:
-        rows += draft_row(binary, template, cache, work, threads, log)
+        rows += draft_row(binary, template, cache, work, threads, log, notes)
     return rows
 
 
-def draft_row(binary, template, cache, work, threads, log):
+def draft_row(binary, template, cache, work, threads, log, notes):
     """The planted draft's row."""
     rows = []
     t0 = time.monotonic()
@@ -609,7 +632,7 @@ def draft_row(binary, template, cache, work, threads, log):
     small_called = sum(called[n].any() for n in small)
     wrong = contradictions(calls, seqs, profile, summary)
     rows.append({"genome": "E. coli MG1655 draft + 20 foreign contigs",
-                 "truth": "planted contigs (10 GC-matched)", "note": "held out",
+                 "truth": "planted contigs (10 GC-matched)", "note": note_of(notes, "draft"),
                  "planted": (flagged, half, len(foreign)), "native_big": (big_called, big_listed, len(big)),
                  "native_small": (small_called, len(small)), "calls": len(calls),
                  "contradicting": len(wrong), "wrong": wrong[:5], "seconds": secs, "truth_seconds": t_truth,

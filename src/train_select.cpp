@@ -84,10 +84,14 @@ FitResult drop_unsupported_classes(FitResult fitted, TrainingData& data, const F
     };
     for (;;) {
         const Profile& p = fitted.profile;
+        // Only a reported (shifted or atypical) class is dropped: a constrained state of the
+        // background, such as composition-shift's typical_broad, is the genome's own
+        // heterogeneity, and without it ordinary windows would be left to the atypical class.
         std::vector<int> ordered;
         for (size_t s = 0; s < p.states.size(); ++s)
-            if (!p.states[s].gc_reference.empty() ||
-                !p.states[s].signature.concentration_reference.empty())
+            if ((!p.states[s].gc_reference.empty() ||
+                 !p.states[s].signature.concentration_reference.empty()) &&
+                p.regions[static_cast<size_t>(p.states[s].region)].report)
                 ordered.push_back(static_cast<int>(s));
         if (ordered.empty()) break;
         const double full = bic(fitted);

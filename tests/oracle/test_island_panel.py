@@ -79,6 +79,16 @@ def body(checks, binary, work):
           f"{chim['boundary_kb']} kb, {chim['contradicting']} of {chim['calls']} calls contradict their name")
     checks.check(k12["islands"][1] >= 10, "K-12 against 536: at least 10 comparative islands >= 8 kb to score",
                  "Langille et al. (2008): islands >= 8 kb", str(k12["islands"]))
+    # The note column (held out or not) is the template's own record, for every row of the panel.
+    keys = [c[1] for c in panel.COMPARATIVE] + ["chimera", "draft"]
+    for name in ("gc-shift", "composition-shift"):
+        notes = panel.template_notes(name)
+        checks.check(all(k in notes for k in keys), f"{name}: provenance.benchmark_panel names every panel row",
+                     f"data/profiles/{name}.json", str(sorted(notes)))
+    checks.check(k12["note"].startswith(panel.template_notes(TEMPLATE)["ecoli_k12"])
+                 and chim["note"] == panel.template_notes(TEMPLATE)["chimera"],
+                 "the table's note column is the template's provenance.benchmark_panel",
+                 f"data/profiles/{TEMPLATE}.json", f"{k12['note']} / {chim['note']}")
 
     # Contig screening (README: "Screening the contigs of a draft") with K-12's fitted profile: a
     # 30-kb S. aureus contig (GC about 0.33, another genus) among K-12 contigs is listed; a 2-kb
