@@ -210,6 +210,7 @@ struct SpooledInterval {
 
 struct PosteriorTracks::Track {
     int region = 0;
+    std::vector<int> states;  ///< the states of region, ascending: the order of the sum
     std::unique_ptr<OutputFile> file;
     std::unique_ptr<BigWigWriter> bigwig;
     std::unique_ptr<Spool> spool;  ///< a fork's output
@@ -240,6 +241,8 @@ PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options, bool 
         if (!model.region_report[r]) continue;
         auto t = std::make_unique<Track>();
         t->region = static_cast<int>(r);
+        for (size_t st = 0; st < model.region_of_state.size(); ++st)
+            if (model.region_of_state[st] == t->region) t->states.push_back(static_cast<int>(st));
         const std::string base = options_.prefix + "." + model.region_names[r];
         t->path = base + (options_.format == TrackFormat::bigwig ? ".bw"
                           : options_.bgzip                       ? ".bedgraph.gz"
@@ -438,6 +441,56 @@ void PosteriorTracks::end_bin(Track& t, int64_t end) {
     t.bin_sum = 0;
 }
 
+// One value per base (no bins): add_value for every base outside long gaps, flush_run at each
+// gap, with the same sums and roundings. The values of a stretch are worked out first, each on
+// its own (no branch on the open run between them, so the processor overlaps their roundings),
+// and the runs are then found by comparing integers: this was a tenth to a fifth of a run's CPU
+// time with tracks when it was done base by base.
+void PosteriorTracks::per_base_values(Track& t, const BlockView& view) {
+    constexpr int64_t chunk = 1024;
+    int64_t quantised[chunk];
+    const int S = view.states;
+    const int* const states = t.states.data();
+    const auto region_states = static_cast<int>(t.states.size());
+    const auto known_stretch = [&](int64_t from, int64_t to) {  // no gap in [from, to)
+        for (int64_t at = from; at < to; at += chunk) {
+            const int64_t n = std::min(chunk, to - at);
+            const double* row = view.posterior + at * S;
+            for (int64_t i = 0; i < n; ++i, row += S) {
+                double p = 0;
+                for (int k = 0; k < region_states; ++k) p += row[states[k]];
+                quantised[i] = round_half_up(std::clamp(p, 0.0, 1.0) * scale_);
+            }
+            for (int64_t i = 0; i < n;) {
+                const int64_t q = quantised[i];
+                const int64_t pos = view.begin + at + i;
+                if (q != t.run_value) {
+                    flush_run(t);
+                    t.run_value = q;
+                    t.run_begin = pos;
+                }
+                ++i;
+                while (i < n && quantised[i] == q) ++i;
+                t.run_end = view.begin + at + i;
+            }
+        }
+    };
+    size_t gap = 0;
+    for (int64_t i = 0; i < view.size;) {
+        const int64_t pos = view.begin + i;
+        while (gap < gaps_.size() && gaps_[gap].second <= pos) ++gap;
+        if (gap < gaps_.size() && gaps_[gap].first <= pos) {
+            flush_run(t);  // the run before the gap ends; the one after starts anew
+            i = std::min(view.size, gaps_[gap].second - view.begin);
+            continue;
+        }
+        const int64_t stop =
+            gap < gaps_.size() ? std::min(view.size, gaps_[gap].first - view.begin) : view.size;
+        known_stretch(i, stop);
+        i = stop;
+    }
+}
+
 void PosteriorTracks::block(const BlockView& view) {
     const int S = view.states;
     if (!started_) {
@@ -451,22 +504,15 @@ void PosteriorTracks::block(const BlockView& view) {
     unknown_runs_in(*contig_, view.begin, view.begin + view.size, assembly_gap_min_length, gaps_);
     for (auto& tp : tracks_) {
         Track& t = *tp;
+        if (options_.bin == 1) {
+            per_base_values(t, view);
+            continue;
+        }
         size_t gap = 0;
         for (int64_t i = 0; i < view.size; ++i) {
             const int64_t pos = view.begin + i;
             while (gap < gaps_.size() && gaps_[gap].second <= pos) ++gap;
             const bool no_data = gap < gaps_.size() && gaps_[gap].first <= pos;
-            if (options_.bin == 1) {
-                if (no_data) {
-                    flush_run(t);  // the run before the gap ends; the one after starts anew
-                    continue;
-                }
-                double p = 0;
-                for (int s = 0; s < S; ++s)
-                    if (model_.region_of_state[s] == t.region) p += view.posterior[i * S + s];
-                add_value(t, pos, pos + 1, p);
-                continue;
-            }
             if (t.bin_fill == 0) t.bin_begin = pos;
             if (!no_data) {
                 double p = 0;
