@@ -31,7 +31,7 @@ extern "C" {
 // bytes differ from zlib's. Nothing else in tidemark calls compress().
 extern "C" int compress(Bytef* dest, uLongf* dest_length, const Bytef* source,
                         uLong source_length) {
-    constexpr int zlib_default_level = 6;
+    constexpr int zlib_default_level = 1;
     thread_local std::unique_ptr<libdeflate_compressor, void (*)(libdeflate_compressor*)>
         compressor(libdeflate_alloc_compressor(zlib_default_level), libdeflate_free_compressor);
     if (!compressor) return Z_MEM_ERROR;
