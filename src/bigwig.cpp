@@ -42,6 +42,28 @@ extern "C" int compress(Bytef* dest, uLongf* dest_length, const Bytef* source,
     return Z_OK;
 }
 
+// libBigWig reads its data blocks back with zlib's uncompress() when it builds the zoom levels at
+// close, and when bigWig files are read (merge): libdeflate inflates the same zlib streams about
+// three times as fast. Same results and codes as zlib's for complete streams; any damaged stream
+// is Z_DATA_ERROR. Nothing else in tidemark calls uncompress().
+extern "C" int uncompress(Bytef* dest, uLongf* dest_length, const Bytef* source,
+                          uLong source_length) {
+    thread_local std::unique_ptr<libdeflate_decompressor, void (*)(libdeflate_decompressor*)>
+        decompressor(libdeflate_alloc_decompressor(), libdeflate_free_decompressor);
+    if (!decompressor) return Z_MEM_ERROR;
+    size_t written = 0;
+    switch (libdeflate_zlib_decompress(decompressor.get(), source, source_length, dest,
+                                       *dest_length, &written)) {
+        case LIBDEFLATE_SUCCESS:
+            *dest_length = written;
+            return Z_OK;
+        case LIBDEFLATE_INSUFFICIENT_SPACE:
+            return Z_BUF_ERROR;
+        default:
+            return Z_DATA_ERROR;
+    }
+}
+
 // libBigWig finds a sequence's number by comparing its name with every name of the list
 // (bwGetTid): once per sequence while intervals are added and again per sequence while the zoom
 // levels are built, so a bigWig of a draft with 300,000 contigs took hours. This definition takes
