@@ -2,6 +2,9 @@
 #include "tidemark/track.hpp"
 
 #include <fmt/format.h>
+#if defined(__x86_64__)
+#include <immintrin.h>
+#endif
 
 #include <algorithm>
 #include <cmath>
@@ -10,6 +13,7 @@
 #include <iterator>
 #include <string_view>
 
+#include "decode_internal.hpp"
 #include "tidemark/error.hpp"
 
 namespace tidemark {
@@ -76,6 +80,61 @@ int64_t round_half_up(double x) {
     if (!(x >= 0 && x < 4503599627370496.0)) return std::llround(x);
     const auto whole = static_cast<int64_t>(x);
     return x - static_cast<double>(whole) >= 0.5 ? whole + 1 : whole;
+}
+
+// round_half_up(clamp(p, 0, 1) * scale) for p = row[i * stride] (a region of one state), as a
+// double, or -1 where the product is outside [0, 2^52) (NaN too), which the caller works out with
+// round_half_up itself. Only double operations without a branch, which the compiler turns into
+// vector code: r = (x + 2^52) - 2^52 is x rounded to an integer (exact for 0 <= x < 2^52), one
+// less when above x is x's integer part, and the rest is round_half_up's own arithmetic.
+void quantise_state(const double* row, int64_t stride, int64_t n, double scale, double* out) {
+    constexpr double two52 = 4503599627370496.0;
+    for (int64_t i = 0; i < n; ++i) {
+        const double p = 0.0 + row[i * stride];  // the region's sum, started at 0 as elsewhere
+        const double x = (p < 0.0 ? 0.0 : 1.0 < p ? 1.0 : p) * scale;  // std::clamp(p, 0, 1)
+        const double nearest = (x + two52) - two52;
+        const double whole = nearest > x ? nearest - 1.0 : nearest;
+        const double q = x - whole >= 0.5 ? whole + 1.0 : whole;
+        out[i] = x >= 0.0 && x < two52 ? q : -1.0;
+    }
+}
+
+#if TIDEMARK_AVX2_KERNELS
+// quantise_state four bases at a time, with the same operations in each lane.
+[[gnu::noinline, gnu::target("avx2")]] void quantise_state_avx2(const double* row, int64_t stride,
+                                                                int64_t n, double scale,
+                                                                double* out) {
+    const __m256d zero = _mm256_setzero_pd(), one = _mm256_set1_pd(1.0);
+    const __m256d half = _mm256_set1_pd(0.5), minus_one = _mm256_set1_pd(-1.0);
+    const __m256d two52 = _mm256_set1_pd(4503599627370496.0), times = _mm256_set1_pd(scale);
+    int64_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        const double* r = row + i * stride;
+        const __m256d p =
+            _mm256_add_pd(zero, _mm256_set_pd(r[3 * stride], r[2 * stride], r[stride], r[0]));
+        __m256d c = _mm256_blendv_pd(p, one, _mm256_cmp_pd(one, p, _CMP_LT_OQ));
+        c = _mm256_blendv_pd(c, zero, _mm256_cmp_pd(p, zero, _CMP_LT_OQ));
+        const __m256d x = _mm256_mul_pd(c, times);
+        const __m256d nearest = _mm256_sub_pd(_mm256_add_pd(x, two52), two52);
+        const __m256d whole = _mm256_blendv_pd(nearest, _mm256_sub_pd(nearest, one),
+                                               _mm256_cmp_pd(nearest, x, _CMP_GT_OQ));
+        const __m256d q =
+            _mm256_blendv_pd(whole, _mm256_add_pd(whole, one),
+                             _mm256_cmp_pd(_mm256_sub_pd(x, whole), half, _CMP_GE_OQ));
+        const __m256d in_range =
+            _mm256_and_pd(_mm256_cmp_pd(x, zero, _CMP_GE_OQ), _mm256_cmp_pd(x, two52, _CMP_LT_OQ));
+        _mm256_storeu_pd(out + i, _mm256_blendv_pd(minus_one, q, in_range));
+    }
+    quantise_state(row + i * stride, stride, n - i, scale, out + i);
+}
+#endif
+
+void quantise_state_dispatch(const double* row, int64_t stride, int64_t n, double scale,
+                             double* out) {
+#if TIDEMARK_AVX2_KERNELS
+    if (detail::use_avx2_kernels()) return quantise_state_avx2(row, stride, n, scale, out);
+#endif
+    quantise_state(row, stride, n, scale, out);
 }
 
 }  // namespace
@@ -448,21 +507,30 @@ void PosteriorTracks::end_bin(Track& t, int64_t end) {
 // time with tracks when it was done base by base.
 void PosteriorTracks::per_base_values(Track& t, const BlockView& view) {
     constexpr int64_t chunk = 1024;
-    int64_t quantised[chunk];
+    double quantised[chunk];  // integers below 2^52 as doubles; -1: work it out with round_half_up
     const int S = view.states;
     const int* const states = t.states.data();
     const auto region_states = static_cast<int>(t.states.size());
+    const auto value_of = [&](const double* row) {
+        double p = 0;
+        for (int k = 0; k < region_states; ++k) p += row[states[k]];
+        return round_half_up(std::clamp(p, 0.0, 1.0) * scale_);
+    };
     const auto known_stretch = [&](int64_t from, int64_t to) {  // no gap in [from, to)
         for (int64_t at = from; at < to; at += chunk) {
             const int64_t n = std::min(chunk, to - at);
-            const double* row = view.posterior + at * S;
-            for (int64_t i = 0; i < n; ++i, row += S) {
-                double p = 0;
-                for (int k = 0; k < region_states; ++k) p += row[states[k]];
-                quantised[i] = round_half_up(std::clamp(p, 0.0, 1.0) * scale_);
+            const double* rows = view.posterior + at * S;
+            if (region_states == 1) {
+                quantise_state_dispatch(rows + states[0], S, n, scale_, quantised);
+            } else {
+                for (int64_t i = 0; i < n; ++i) {
+                    const int64_t q = value_of(rows + i * S);
+                    quantised[i] = q >= 0 && q < (int64_t{1} << 52) ? static_cast<double>(q) : -1.0;
+                }
             }
             for (int64_t i = 0; i < n;) {
-                const int64_t q = quantised[i];
+                const double v = quantised[i];
+                const int64_t q = v >= 0 ? static_cast<int64_t>(v) : value_of(rows + i * S);
                 const int64_t pos = view.begin + at + i;
                 if (q != t.run_value) {
                     flush_run(t);
@@ -470,7 +538,8 @@ void PosteriorTracks::per_base_values(Track& t, const BlockView& view) {
                     t.run_begin = pos;
                 }
                 ++i;
-                while (i < n && quantised[i] == q) ++i;
+                if (v >= 0)
+                    while (i < n && quantised[i] == v) ++i;
                 t.run_end = view.begin + at + i;
             }
         }
