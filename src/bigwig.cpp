@@ -127,11 +127,19 @@ struct Record {
 
 struct BigWigWriter::Impl {
     std::string path;
-    std::FILE* spool = nullptr;  // intervals wait here until the sequence list is complete
+    std::FILE* spool = nullptr;   // intervals wait here until the sequence list is complete
+    std::vector<Record> pending;  // the spool's next records, written 64 Ki at a time
     std::vector<std::string> names;
     std::vector<uint32_t> lengths;
     std::map<std::string, int> index;    // name -> place in names
     std::unique_ptr<StagedPath> staged;  // written, not yet committed
+
+    void spill() {
+        if (!pending.empty() &&
+            std::fwrite(pending.data(), sizeof(Record), pending.size(), spool) != pending.size())
+            throw IoError(path + ": cannot write the temporary spool file");
+        pending.clear();
+    }
 };
 
 BigWigWriter::BigWigWriter(std::string path) : impl_(std::make_unique<Impl>()) {
@@ -180,8 +188,8 @@ int BigWigWriter::add_sequence(const std::string& name, int64_t length) {
 void BigWigWriter::add(int sequence, int64_t start, int64_t end, double value) {
     const Record r{static_cast<uint32_t>(sequence), static_cast<uint32_t>(start),
                    static_cast<uint32_t>(end), static_cast<float>(value)};
-    if (std::fwrite(&r, sizeof r, 1, impl_->spool) != 1)
-        throw IoError(impl_->path + ": cannot write the temporary spool file");
+    impl_->pending.push_back(r);
+    if (impl_->pending.size() == size_t{1} << 16) impl_->spill();
 }
 
 void BigWigWriter::close() {
@@ -224,6 +232,7 @@ void BigWigWriter::write() {
         bwCreateChromList(names.data(), impl_->lengths.data(), static_cast<int64_t>(names.size()));
     if (!bw->cl || bwWriteHdr(bw) != 0) fail("sequence list");
 
+    impl_->spill();
     std::rewind(impl_->spool);
     constexpr size_t batch = 1 << 16;
     std::vector<Record> records(batch);
