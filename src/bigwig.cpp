@@ -26,20 +26,43 @@ extern "C" {
 
 // libBigWig compresses each data block and zoom block with zlib's compress() (level 6) on the
 // thread that closes the file: a quarter of a chrX run with bigWig tracks. This definition
-// takes zlib's place as bwGetTid's does below and writes the same zlib format with libdeflate
-// at the same level, several times as fast; readers inflate the same values, the compressed
-// bytes differ from zlib's. Nothing else in tidemark calls compress().
+// takes zlib's place as bwGetTid's does below and writes the same zlib format with libdeflate at
+// level 1 (zlib's default is 6): on chrX half of libdeflate's level-6 time for a file 5% larger,
+// and level 6 was already several times as fast as zlib. Readers inflate the same values; the
+// compressed bytes differ from zlib's. Nothing else in tidemark calls compress().
 extern "C" int compress(Bytef* dest, uLongf* dest_length, const Bytef* source,
                         uLong source_length) {
-    constexpr int zlib_default_level = 6;
+    constexpr int level = 1;
     thread_local std::unique_ptr<libdeflate_compressor, void (*)(libdeflate_compressor*)>
-        compressor(libdeflate_alloc_compressor(zlib_default_level), libdeflate_free_compressor);
+        compressor(libdeflate_alloc_compressor(level), libdeflate_free_compressor);
     if (!compressor) return Z_MEM_ERROR;
     const size_t written =
         libdeflate_zlib_compress(compressor.get(), source, source_length, dest, *dest_length);
     if (written == 0) return Z_BUF_ERROR;
     *dest_length = written;
     return Z_OK;
+}
+
+// libBigWig reads its data blocks back with zlib's uncompress() when it builds the zoom levels at
+// close, and when bigWig files are read (merge): libdeflate inflates the same zlib streams about
+// three times as fast. Same results and codes as zlib's for complete streams; any damaged stream
+// is Z_DATA_ERROR. Nothing else in tidemark calls uncompress().
+extern "C" int uncompress(Bytef* dest, uLongf* dest_length, const Bytef* source,
+                          uLong source_length) {
+    thread_local std::unique_ptr<libdeflate_decompressor, void (*)(libdeflate_decompressor*)>
+        decompressor(libdeflate_alloc_decompressor(), libdeflate_free_decompressor);
+    if (!decompressor) return Z_MEM_ERROR;
+    size_t written = 0;
+    switch (libdeflate_zlib_decompress(decompressor.get(), source, source_length, dest,
+                                       *dest_length, &written)) {
+        case LIBDEFLATE_SUCCESS:
+            *dest_length = written;
+            return Z_OK;
+        case LIBDEFLATE_INSUFFICIENT_SPACE:
+            return Z_BUF_ERROR;
+        default:
+            return Z_DATA_ERROR;
+    }
 }
 
 // libBigWig finds a sequence's number by comparing its name with every name of the list
@@ -105,11 +128,19 @@ struct Record {
 
 struct BigWigWriter::Impl {
     std::string path;
-    std::FILE* spool = nullptr;  // intervals wait here until the sequence list is complete
+    std::FILE* spool = nullptr;   // intervals wait here until the sequence list is complete
+    std::vector<Record> pending;  // the spool's next records, written 64 Ki at a time
     std::vector<std::string> names;
     std::vector<uint32_t> lengths;
     std::map<std::string, int> index;    // name -> place in names
     std::unique_ptr<StagedPath> staged;  // written, not yet committed
+
+    void spill() {
+        if (!pending.empty() &&
+            std::fwrite(pending.data(), sizeof(Record), pending.size(), spool) != pending.size())
+            throw IoError(path + ": cannot write the temporary spool file");
+        pending.clear();
+    }
 };
 
 BigWigWriter::BigWigWriter(std::string path) : impl_(std::make_unique<Impl>()) {
@@ -158,8 +189,8 @@ int BigWigWriter::add_sequence(const std::string& name, int64_t length) {
 void BigWigWriter::add(int sequence, int64_t start, int64_t end, double value) {
     const Record r{static_cast<uint32_t>(sequence), static_cast<uint32_t>(start),
                    static_cast<uint32_t>(end), static_cast<float>(value)};
-    if (std::fwrite(&r, sizeof r, 1, impl_->spool) != 1)
-        throw IoError(impl_->path + ": cannot write the temporary spool file");
+    impl_->pending.push_back(r);
+    if (impl_->pending.size() == size_t{1} << 16) impl_->spill();
 }
 
 void BigWigWriter::close() {
@@ -202,6 +233,7 @@ void BigWigWriter::write() {
         bwCreateChromList(names.data(), impl_->lengths.data(), static_cast<int64_t>(names.size()));
     if (!bw->cl || bwWriteHdr(bw) != 0) fail("sequence list");
 
+    impl_->spill();
     std::rewind(impl_->spool);
     constexpr size_t batch = 1 << 16;
     std::vector<Record> records(batch);

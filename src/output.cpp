@@ -168,7 +168,12 @@ OutputFile::OutputFile(std::string path, OutputFormat format)
     }
     if (format_.tabix && !format_.bgzip) throw InternalError("tabix index without bgzip");
     if (format_.bgzip) {
-        bgzf_ = bgzf_dopen(fd, "w");
+        // Level 1 (libdeflate's fastest, through htslib): on a chrX bedGraph track it compresses
+        // 11 times as fast as the default level 6 for a file 3% larger (0.11 s against 1.23 s of
+        // CPU for 33 MB of text, bgzip -l 1 and -l 6), and compression was the largest cost
+        // of a --bgzip run. Blocks hold the same text, so the decompressed file and what its
+        // index covers are the same at any level.
+        bgzf_ = bgzf_dopen(fd, "w1");
         if (!bgzf_) {
             close(fd);
             throw IoError(path_ + ": cannot open compressed output");

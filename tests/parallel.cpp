@@ -1,6 +1,7 @@
 // Parallel decoding: segmented decoding of long contigs against exhaustive enumeration and
 // against the sequential engine, sinks split at every position against one sequential pass
 // (whose values the hand-computed tests in call.cpp fix), and thread-count independence.
+#include <algorithm>
 #include <catch2/catch.hpp>
 #include <cmath>
 #include <fstream>
@@ -439,6 +440,55 @@ TEST_CASE("bedGraph tracks are the same when the contig is split at every positi
             INFO("cuts " << i << " " << j);
             REQUIRE(slurp(opt.prefix + ".isle.bedgraph") == want);
         }
+    }
+}
+
+TEST_CASE("bedGraph values are llround's and printf's beside every rounding edge", "[parallel]") {
+    // Oracle: std::llround of the value clamped to [0, 1] times 10^digits, printed by snprintf
+    // "%.*f" (the rule track.hpp documents), for values on, just below and just above the
+    // multiples and half-multiples of 10^-digits, and outside [0, 1]. Blocks of 1001 bases run
+    // the four-lane path and its scalar tail.
+    const Model m = two_region_model();
+    std::mt19937_64 rng(2511);
+    for (int digits : {0, 1, 3, 6, 12}) {
+        const double scale = std::pow(10.0, digits);
+        std::vector<double> p = {0.0, -0.0, 1.0, -1e-300, -0.25, 1.0000001, 2.0, 0.5, 0.05};
+        std::uniform_int_distribution<int64_t> units(0, static_cast<int64_t>(scale));
+        for (int k = 0; k < 2000; ++k) {
+            const auto u = static_cast<double>(units(rng));
+            for (const double edge : {u / scale, (u + 0.5) / scale})
+                for (const double v :
+                     {edge, std::nextafter(edge, -1.0), std::nextafter(edge, 2.0), edge, edge})
+                    p.push_back(v);
+        }
+        std::string want;
+        const auto rounded = [&](double v) {
+            return std::llround(std::clamp(v, 0.0, 1.0) * scale);
+        };
+        for (size_t i = 0; i < p.size();) {
+            const long long q = rounded(p[i]);
+            size_t j = i + 1;
+            while (j < p.size() && rounded(p[j]) == q) ++j;
+            char line[128];
+            std::snprintf(line, sizeof line, "chrT\t%zu\t%zu\t%.*f\n", i, j, digits,
+                          static_cast<double>(q) / scale);
+            want += line;
+            i = j;
+        }
+        const auto post = as_rows(p);
+        const auto n = static_cast<int64_t>(p.size());
+        const Contig c = test::contig_from(std::string(p.size(), 'G'), "chrT");
+        test::TempFile dir("");
+        TrackOptions opt;
+        opt.prefix = dir.dir() + "/t";
+        opt.digits = digits;
+        PosteriorTracks tracks(m, opt);
+        tracks.begin_contig(c);
+        feed(tracks, post, 0, n, 1001);
+        tracks.end_contig(c, DecodeResult{});
+        tracks.close();
+        INFO("digits " << digits);
+        REQUIRE(slurp(opt.prefix + ".isle.bedgraph") == want);
     }
 }
 
