@@ -94,16 +94,18 @@ def check_evidence(checks, work):
 
 
 def chain_gc(mean):
-    """G+C of the stationary composition of an order-2 chain (16 context rows), in numpy."""
+    """G+C of the stationary composition of an order-(k-1) chain (4^(k-1) context rows, the
+    context's last base in its lowest two bits), in numpy."""
     rows = np.array(mean)
-    step = np.zeros((16, 16))
-    for c in range(16):
+    n = len(rows)
+    step = np.zeros((n, n))
+    for c in range(n):
         for b in range(4):
-            step[c, (c * 4 + b) % 16] += rows[c, b]
+            step[c, (c * 4 + b) % n] += rows[c, b]
     values, vectors = np.linalg.eig(step.T)
     pi = np.real(vectors[:, np.argmin(np.abs(values - 1))])
     pi /= pi.sum()
-    last = np.array([pi[[c for c in range(16) if c % 4 == b]].sum() for b in range(4)])
+    last = np.array([pi[[c for c in range(n) if c % 4 == b]].sum() for b in range(4)])
     return last[1] + last[2]
 
 
