@@ -148,12 +148,9 @@ def body(checks, binary, work):
     checks.at_most(worst_confident, 1e-4, "refined calls: confident_fraction = share of the call's bases whose "
                    "track value is >= 0.95", NUMPY + " (README: calls, column confident_fraction)")
 
-    # The header's second line is the command line (which names the output); the rest must match.
     scan(binary, work, "P.json", "refined.t1.bed", ["-t", "1"])
-    one, many = (tmtest.read_bytes(os.path.join(work, name)).split(b"\n", 2)[2]
-                 for name in ("refined.t1.bed", "refined.bed"))
-    checks.check(one == many, "refined calls are the same with -t 1 and the default threads",
-                  "the same run, byte for byte", f"{len(one)} and {len(many)} bytes")
+    tmtest.check_same_calls(checks, os.path.join(work, "refined.t1.bed"), os.path.join(work, "refined.bed"),
+                            "refined calls are the same with -t 1 and the default threads")
 
 
 if __name__ == "__main__":

@@ -85,6 +85,13 @@ def read_bytes(path):
         return f.read()
 
 
+def check_same_calls(checks, one_path, many_path, what):
+    """Two runs' BED files hold the same calls byte for byte, apart from the header's second line
+    (the command line, which names the output)."""
+    one, many = (read_bytes(path).split(b"\n", 2)[2] for path in (one_path, many_path))
+    checks.check(one == many, what, "the same run, byte for byte", f"{len(one)} and {len(many)} bytes")
+
+
 def longest_first(lengths, n):
     """The documented shard rule re-implemented (Graham 1969 LPT): items by decreasing length,
     ties by input order, each to the least-loaded shard, ties by the lower shard."""
