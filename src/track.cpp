@@ -502,6 +502,14 @@ void PosteriorTracks::end_bin(Track& t, int64_t end) {
     t.bin_sum = 0;
 }
 
+// P(region) at one base: its states' posteriors summed in ascending state order from 0, the
+// order every track and the Python arrays use, so that all print the same values.
+double PosteriorTracks::region_posterior(const Track& t, const double* row) {
+    double p = 0;
+    for (const int s : t.states) p += row[s];
+    return p;
+}
+
 // One value per base (no bins): add_value for every base outside long gaps, flush_run at each
 // gap, with the same sums and roundings. The values of a stretch are worked out first, each on
 // its own (no branch on the open run between them, so the processor overlaps their roundings),
@@ -511,19 +519,15 @@ void PosteriorTracks::per_base_values(Track& t, const BlockView& view) {
     constexpr int64_t chunk = 1024;
     double quantised[chunk];  // integers below 2^52 as doubles; -1: work it out with round_half_up
     const int S = view.states;
-    const int* const states = t.states.data();
-    const auto region_states = static_cast<int>(t.states.size());
     const auto value_of = [&](const double* row) {
-        double p = 0;
-        for (int k = 0; k < region_states; ++k) p += row[states[k]];
-        return round_half_up(std::clamp(p, 0.0, 1.0) * scale_);
+        return round_half_up(std::clamp(region_posterior(t, row), 0.0, 1.0) * scale_);
     };
     const auto known_stretch = [&](int64_t from, int64_t to) {  // no gap in [from, to)
         for (int64_t at = from; at < to; at += chunk) {
             const int64_t n = std::min(chunk, to - at);
             const double* rows = view.posterior + at * S;
-            if (region_states == 1) {
-                quantise_state_dispatch(rows + states[0], S, n, scale_, quantised);
+            if (t.states.size() == 1) {
+                quantise_state_dispatch(rows + t.states[0], S, n, scale_, quantised);
             } else {
                 for (int64_t i = 0; i < n; ++i) {
                     const int64_t q = value_of(rows + i * S);
@@ -586,10 +590,7 @@ void PosteriorTracks::block(const BlockView& view) {
             const bool no_data = gap < gaps_.size() && gaps_[gap].first <= pos;
             if (t.bin_fill == 0) t.bin_begin = pos;
             if (!no_data) {
-                double p = 0;
-                for (int s = 0; s < S; ++s)
-                    if (model_.region_of_state[s] == t.region) p += view.posterior[i * S + s];
-                t.bin_sum += p;
+                t.bin_sum += region_posterior(t, view.posterior + i * S);
                 ++t.bin_known;
             }
             if (++t.bin_fill == options_.bin) end_bin(t, pos + 1);

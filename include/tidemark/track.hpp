@@ -179,6 +179,7 @@ private:
     PosteriorTracks(const Model& model, TrackOptions options, bool forked);
     void add_value(Track& track, int64_t begin, int64_t end, double p);
     void per_base_values(Track& track, const BlockView& view);
+    static double region_posterior(const Track& track, const double* row);
     void end_bin(Track& track, int64_t end);
     /// The parts of [begin, end) inside unknown runs of at least track_gap_min_length bases.
     void flush_run(Track& track);
