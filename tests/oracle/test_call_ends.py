@@ -81,16 +81,6 @@ def build_chimera(path):
     return len(chimera), inserts
 
 
-def call_ends(calls):
-    return np.array(sorted({c[1] for c in calls} | {c[2] for c in calls}))
-
-
-def boundary_errors(calls, inserts):
-    """Distance from each insert end to the nearest call end (start or end of any call)."""
-    ends = call_ends(calls)
-    return np.array([np.abs(ends - x).min() for b, e, _ in inserts for x in (b, e)])
-
-
 def covered(calls, begin, end):
     return sum(max(0, min(c[2], end) - max(c[1], begin)) for c in calls)
 
@@ -117,12 +107,8 @@ def body(checks, binary, work):
     checks.check(all(c[1] % 5000 == 0 or c[1] == 0 for c in grid), "without refinement, call starts lie on the "
                  "5-kb window grid", "README (window profiles)")
 
-    before, after = boundary_errors(grid, inserts), boundary_errors(refined, inserts)
-    print(f"# {len(inserts)} inserts, {len(grid)} calls on the grid, {len(refined)} refined; boundary error "
-          f"median {np.median(before):.0f} bp on the grid, {np.median(after):.0f} bp refined", flush=True)
-    print("# errors on the grid: " + " ".join(str(int(x)) for x in before), flush=True)
-    print("# errors refined:     " + " ".join(str(int(x)) for x in after), flush=True)
-    checks.at_most(np.median(after), 1000, "median distance from an insert end to the nearest call end", ISSUE)
+    tmtest.check_refined_ends(checks, [c[1:3] for c in grid], [c[1:3] for c in refined],
+                              [(b, e) for b, e, _ in inserts], 1000, ISSUE)
 
     share_before = np.array([covered(grid, b, e) / (e - b) for b, e, _ in inserts])
     share_after = np.array([covered(refined, b, e) / (e - b) for b, e, _ in inserts])

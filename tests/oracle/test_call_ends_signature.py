@@ -37,12 +37,6 @@ def build_chimera(work):
     return [(b, e) for b, e, _ in truth]
 
 
-def boundary_errors(calls, inserts):
-    """Distance from each insert end to the nearest call end (start or end of any call)."""
-    ends = np.array(sorted({c[0] for c in calls} | {c[1] for c in calls}))
-    return np.array([np.abs(ends - x).min() for b, e in inserts for x in (b, e)])
-
-
 def coverage(calls, inserts):
     return np.array([sum(max(0, min(ce, e) - max(cb, b)) for cb, ce in calls) / (e - b) for b, e in inserts])
 
@@ -146,12 +140,7 @@ def body(checks, binary, work):
     refined = scan(binary, work, "P.json", "refined.bed", ["--gff3", "refined.gff3"])
     checks.check(all(b % 5000 == 0 for b, _ in grid), "without refinement, call starts lie on the 5-kb window grid",
                  "README (window profiles)")
-    before, after = boundary_errors(grid, inserts), boundary_errors(refined, inserts)
-    print(f"# {len(inserts)} inserts, {len(grid)} calls on the grid, {len(refined)} refined; boundary error "
-          f"median {np.median(before):.0f} bp on the grid, {np.median(after):.0f} bp refined", flush=True)
-    print("# errors on the grid: " + " ".join(str(int(x)) for x in before), flush=True)
-    print("# errors refined:     " + " ".join(str(int(x)) for x in after), flush=True)
-    checks.at_most(np.median(after), 1000, "median distance from an insert end to the nearest call end", ISSUE)
+    before, after = tmtest.check_refined_ends(checks, grid, refined, inserts, 1000, ISSUE)
     checks.check(np.median(after) < np.median(before), "refined ends lie closer to the inserts' ends than the "
                  "window grid's (median)", TRUTH, f"{np.median(after):.0f} vs {np.median(before):.0f} bp")
 

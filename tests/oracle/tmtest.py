@@ -92,6 +92,25 @@ def check_same_calls(checks, one_path, many_path, what):
     checks.check(one == many, what, "the same run, byte for byte", f"{len(one)} and {len(many)} bytes")
 
 
+def nearest_end_distances(calls, truth):
+    """Distance from each end of each true interval to the nearest end (start or end) of any call;
+    both lists of (begin, end) pairs."""
+    ends = np.array(sorted({b for b, _ in calls} | {e for _, e in calls}))
+    return np.array([np.abs(ends - x).min() for b, e in truth for x in (b, e)])
+
+
+def check_refined_ends(checks, grid, refined, truth, limit, source):
+    """Boundary errors of calls on the window grid and refined (lists of (begin, end)) against the
+    true intervals: prints both, checks the refined median against limit; returns both arrays."""
+    before, after = nearest_end_distances(grid, truth), nearest_end_distances(refined, truth)
+    print(f"# {len(truth)} inserts, {len(grid)} calls on the grid, {len(refined)} refined; boundary error "
+          f"median {np.median(before):.0f} bp on the grid, {np.median(after):.0f} bp refined", flush=True)
+    print("# errors on the grid: " + " ".join(str(int(x)) for x in before), flush=True)
+    print("# errors refined:     " + " ".join(str(int(x)) for x in after), flush=True)
+    checks.at_most(np.median(after), limit, "median distance from an insert end to the nearest call end", source)
+    return before, after
+
+
 def longest_first(lengths, n):
     """The documented shard rule re-implemented (Graham 1969 LPT): items by decreasing length,
     ties by input order, each to the least-loaded shard, ties by the lower shard."""
