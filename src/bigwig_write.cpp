@@ -14,6 +14,7 @@
 // Compressed bytes depend only on the block contents, so files are identical for any thread
 // count.
 #include <libdeflate.h>
+#include <unistd.h>
 
 #include <algorithm>
 #include <chrono>
@@ -650,8 +651,12 @@ void BigWigWriter::write() {
     head.put(static_cast<uint64_t>(m.blocks.size()));
 
     auto staged_path = std::make_unique<StagedPath>(m.path);
-    std::FILE* out = fdopen(staged_path->release_fd(), "wb");
-    if (!out) throw IoError(m.path + ": cannot open the temporary output file");
+    const int fd = staged_path->release_fd();
+    std::FILE* out = fdopen(fd, "wb");
+    if (!out) {
+        ::close(fd);
+        throw IoError(m.path + ": cannot open the temporary output file");
+    }
     const auto put = [&](const std::string& s) {
         if (std::fwrite(s.data(), 1, s.size(), out) != s.size()) {
             std::fclose(out);

@@ -125,6 +125,60 @@ def stats_or_error(bw, name, kind, bins):
         return str(e)
 
 
+def write_reference(text, order, lengths, path):
+    """libBigWig writes the bedGraph's intervals, one call per sequence, as tidemark did before."""
+    import pyBigWig
+
+    ref = pyBigWig.open(path, "w")
+    ref.addHeader([(n, lengths[n]) for n in order], maxZooms=10)
+    for n in order:
+        if n in text:
+            iv = text[n]
+            ref.addEntries([n] * len(iv), [s for s, _, _ in iv], ends=[e for _, e, _ in iv],
+                           values=[v for _, _, v in iv])
+    ref.close()
+
+
+def edge_cases(checks, tm, work):
+    """A record shorter than the first zoom level, one of unknown bases only (no intervals), a
+    short one; default 3 digits."""
+    import pyBigWig
+
+    rng = random.Random(5)
+    records = [("tiny", "ACGTA"), ("gap", "N" * 300), ("short", "".join(rng.choices("ACGT", k=900)))]
+    lengths = {n: len(s) for n, s in records}
+    order = [n for n, _ in records]
+    fa = os.path.join(work, "edge.fa")
+    tmtest.write_fasta(fa, records)
+    tmtest.run(tm, ["scan", fa, "-q", "-o", "/dev/null", "--posteriors", "edge", "--track-format", "bigwig"], cwd=work)
+    tmtest.run(tm, ["scan", fa, "-q", "-o", "/dev/null", "--posteriors", "edge"], cwd=work)
+    ref_path = os.path.join(work, "edge-reference.bw")
+    write_reference(read_bedgraph_intervals(os.path.join(work, "edge.cpg_island.bedgraph")), order, lengths,
+                    ref_path)
+    bw, rb = pyBigWig.open(os.path.join(work, "edge.cpg_island.bw")), pyBigWig.open(ref_path)
+    checks.equal(bw.chroms(), rb.chroms(), "edge cases: sequence list equals libBigWig's", PYBIGWIG)
+    checks.equal([bw.intervals(n) for n in order], [rb.intervals(n) for n in order],
+                 "edge cases: intervals equal libBigWig's (none for the unknown-only record)", PYBIGWIG)
+    checks.equal([bw.stats(n, nBins=3, type=t) for n in order for t in ("mean", "max", "coverage")],
+                 [rb.stats(n, nBins=3, type=t) for n in order for t in ("mean", "max", "coverage")],
+                 "edge cases: zoom statistics equal libBigWig's", PYBIGWIG)
+    raw, raw_ref = RawBigWig(os.path.join(work, "edge.cpg_island.bw")), RawBigWig(ref_path)
+    checks.equal([z[0] for z in raw.zooms], [z[0] for z in raw_ref.zooms],
+                 "edge cases: zoom levels equal libBigWig's", FORMAT)
+    checks.equal(raw.zoom_records(0), raw_ref.zoom_records(0), "edge cases: zoom records equal libBigWig's", FORMAT)
+    bw.close()
+    rb.close()
+
+    only_gaps = os.path.join(work, "gaps.fa")
+    tmtest.write_fasta(only_gaps, [("gap", "N" * 300)])
+    tmtest.run(tm, ["scan", only_gaps, "-q", "-o", "/dev/null", "--posteriors", "gaps", "--track-format",
+                    "bigwig"], cwd=work)
+    bw = pyBigWig.open(os.path.join(work, "gaps.cpg_island.bw"))
+    checks.equal((bw.chroms(), bw.intervals("gap"), bw.header()["nLevels"]), ({"gap": 300}, None, 0),
+                 "a file without intervals: the sequence, no intervals, no zoom level", PYBIGWIG)
+    bw.close()
+
+
 def body(checks, tm, work):
     import pyBigWig
 
@@ -147,14 +201,7 @@ def body(checks, tm, work):
     # tidemark wrote them before (maxZooms 10).
     text = read_bedgraph_intervals(os.path.join(work, "text.cpg_island.bedgraph"))
     ref_path = os.path.join(work, "reference.bw")
-    ref = pyBigWig.open(ref_path, "w")
-    ref.addHeader([(n, lengths[n]) for n in order], maxZooms=10)
-    for n in order:
-        if n in text:
-            iv = text[n]
-            ref.addEntries([n] * len(iv), [s for s, _, _ in iv], ends=[e for _, e, _ in iv],
-                           values=[v for _, _, v in iv])
-    ref.close()
+    write_reference(text, order, lengths, ref_path)
 
     bw, rb = pyBigWig.open(ours), pyBigWig.open(ref_path)
     checks.check(list(bw.chroms().items()) == [(n, lengths[n]) for n in order],
@@ -214,6 +261,8 @@ def body(checks, tm, work):
         checks.check(ok, f"zoom-level {t} over 1 to 4096 bins equals libBigWig's file", PYBIGWIG)
     bw.close()
     rb.close()
+
+    edge_cases(checks, tm, work)
 
 
 tmtest.main("tidemark's bigWig writer against libBigWig", body)
