@@ -18,7 +18,6 @@
 
 #include <algorithm>
 #include <chrono>
-#include <cmath>
 #include <cstdio>
 #include <cstring>
 #include <deque>
@@ -48,7 +47,7 @@ constexpr uint32_t items_per_block = (block_bytes - data_header_bytes) / item_by
 constexpr uint32_t zoom_record_bytes = 32;
 constexpr uint32_t zoom_records_per_block = block_bytes / zoom_record_bytes - 1;  // 1023
 constexpr uint32_t index_children = 64;
-constexpr uint32_t sequence_tree_children = 256;
+constexpr uint32_t sequence_tree_children = 256;  // UCSC's tools' block size (from memory)
 constexpr int max_zoom_levels = 10;
 constexpr uint64_t header_bytes = 64;
 constexpr uint64_t summary_offset = header_bytes + 24 * max_zoom_levels;
