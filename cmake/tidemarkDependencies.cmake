@@ -25,11 +25,12 @@ function(tidemark_import_library name library header)
                         IMPORTED_LOCATION ${TIDEMARK_${upper}_LIBRARY}
                         INTERFACE_INCLUDE_DIRECTORIES ${TIDEMARK_${upper}_INCLUDE_DIR})
 endfunction()
-# Debian's libbigwig-dev
+# Debian's libbigwig-dev: reads bigWig tracks back (merge); tidemark writes them itself
 tidemark_import_library(BigWig BigWig bigWig.h)
 # Debian's libisal-dev: streaming gzip inflate, several times as fast as zlib's
 tidemark_import_library(isal isal isa-l/igzip_lib.h)
-# Debian's libdeflate-dev: compresses libBigWig's blocks (src/bigwig.cpp)
+# Debian's libdeflate-dev: compresses bigWig blocks (src/bigwig_write.cpp), inflates libBigWig's
+# (src/bigwig.cpp)
 tidemark_import_library(deflate deflate libdeflate.h)
 if(NOT TARGET PkgConfig::ZSTD)
   # Debian's libzstd-dev: zstd input, read with its own calls so that truncation is seen

@@ -311,7 +311,7 @@ PosteriorTracks::PosteriorTracks(const Model& model, TrackOptions options, bool 
         if (forked_) {
             t->spool = std::make_unique<Spool>();
         } else if (options_.format == TrackFormat::bigwig) {
-            t->bigwig = std::make_unique<BigWigWriter>(t->path);
+            t->bigwig = std::make_unique<BigWigWriter>(t->path, options_.threads);
         } else {
             OutputFormat format;
             format.bgzip = options_.bgzip;

@@ -27,7 +27,7 @@ struct OutputFormat {
 
 /// A temporary path beside a target file, registered for removal on SIGINT/SIGTERM/SIGHUP.
 /// commit() renames it over the target; otherwise the destructor removes it. For writers that
-/// open files by name themselves (libBigWig, tabix).
+/// open files by name or descriptor themselves (tabix, the bigWig writer).
 class StagedPath {
 public:
     explicit StagedPath(std::string target);

@@ -75,19 +75,22 @@ constexpr int64_t bigwig_max_length = 0xFFFFFFFF;
 /// as a record's length is known, before it is decoded, when bigWig tracks are asked for.
 void check_bigwig_length(const std::string& name, int64_t length);
 
-/// Collects bedGraph-like intervals and writes a bigWig file with libBigWig at close(); the
-/// sequence list (needed by the bigWig header) grows as sequences are added.
+/// Writes a bigWig file (src/bigwig_write.cpp, after Kent et al. 2010) from bedGraph-like
+/// intervals given in order, sequence by sequence; the sequence list grows as sequences are
+/// added. Data blocks are compressed while intervals arrive, by `threads` threads (1: on the
+/// caller's); the zoom levels are built at write(), one task per level. The file's bytes are the
+/// same for any thread count.
 class BigWigWriter {
 public:
-    explicit BigWigWriter(std::string path);
+    explicit BigWigWriter(std::string path, int threads = 1);
     ~BigWigWriter();
     /// Returns its index. A bigWig lists a name once, so a name added again (several regions of
     /// one sequence) gets its first index; it must be the last name added and have the same
     /// length (InputError otherwise: its intervals would not be in one stretch).
     int add_sequence(const std::string& name, int64_t length);
     void add(int sequence, int64_t start, int64_t end, double value);
-    /// No sequence was added: there is nothing a bigWig file could hold (libBigWig cannot write
-    /// an empty one).
+    /// No sequence was added: there is nothing a bigWig file could hold (a bigWig needs at
+    /// least one sequence).
     bool empty() const;
     void close();   ///< write() then commit(); throws IoError
     void write();   ///< writes the file under a temporary name beside the target; throws IoError
@@ -142,7 +145,7 @@ struct TrackOptions {
     TrackFormat format = TrackFormat::bedgraph;
     bool bgzip = false;       ///< bedGraph only: BGZF-compress and tabix-index
     bool track_line = false;  ///< bedGraph only: start with a browser `track` line
-    int threads = 1;          ///< bgzip: threads compressing each file (OutputFormat::threads)
+    int threads = 1;          ///< threads compressing each file (bgzip: OutputFormat::threads)
 };
 
 /// Writes one posterior track per reportable region: P(region) per base (or bin mean), rounded
