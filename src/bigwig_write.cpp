@@ -228,9 +228,9 @@ std::string sequence_tree(const std::vector<std::string>& names,
 // One zoom level, summarised exactly as libBigWig 0.4.7 did for tidemark (bwWrite.c,
 // addIntervalValue and updateInterval), so that readers' zoom statistics stay the same: a record
 // starts at the first base of an interval that does not overlap the open record's `size` bases
-// and covers at most `size` bases from there; a block holds 1023 records. Like libBigWig, a
-// record gets its sum and sum of squares only when the next record starts, so the last record
-// of each block and of the level keep 0 for both (readers then see a mean of 0 there).
+// and covers at most `size` bases from there; a block holds 1023 records. Unlike libBigWig,
+// the last record of each block and of the level gets its sum and sum of squares too (libBigWig
+// stores them only when the next record starts, so readers saw a mean of 0 there).
 class ZoomLevel {
 public:
     explicit ZoomLevel(uint32_t size) : size_(size) {}
@@ -241,7 +241,6 @@ public:
             uint32_t covered = update(sequence, start, end, value);
             if (covered == 0) {  // the block is full
                 finish_block();
-                sum_ = sum_squares_ = 0;
                 covered = update(sequence, start, end, value);
             }
             start += covered;
@@ -295,6 +294,9 @@ private:
         return covered;
     }
     void finish_block() {
+        records_.back().sum = static_cast<float>(sum_);
+        records_.back().sum_squares = static_cast<float>(sum_squares_);
+        sum_ = sum_squares_ = 0;
         Bytes raw;
         for (const Record& r : records_) {
             raw.put(r.sequence);
