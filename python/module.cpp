@@ -515,12 +515,14 @@ std::string region_text(const std::string& path, const std::string& region) {
 
 py::tuple call_tuple(const Decoded& d, const Call& c) {
     const Model& m = d.engine->model();
-    const double oe = c.composition.cpg_obs_exp();
+    const auto or_none = [](double x) {
+        return std::isnan(x) ? py::object(py::none()) : py::object(py::float_(x));
+    };
     return py::make_tuple(d.name, d.offset + c.begin, d.offset + c.end,
                           m.region_names[static_cast<size_t>(c.region)], c.mean_posterior,
                           c.min_posterior, d.offset + c.core_begin, d.offset + c.core_end,
-                          c.composition.gc_fraction(),
-                          std::isnan(oe) ? py::object(py::none()) : py::object(py::float_(oe)));
+                          c.composition.gc_fraction(), or_none(c.composition.cpg_obs_exp()),
+                          or_none(c.signature_distance));
 }
 
 std::string bed_text(const Decoded& d, const std::string& style) {

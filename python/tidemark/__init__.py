@@ -69,9 +69,15 @@ def _profile_provenance(self):
 Profile.provenance = property(_profile_provenance)
 
 Call = collections.namedtuple(
-    "Call", "chrom start end region mean_posterior min_posterior core_start core_end gc_fraction cpg_obs_exp")
+    "Call",
+    "chrom start end region mean_posterior min_posterior core_start core_end gc_fraction cpg_obs_exp "
+    "signature_distance")
 Call.__doc__ = """One called interval, 0-based half-open on the named sequence (BED coordinates);
-core_start/core_end span its bases with P >= high_posterior; cpg_obs_exp is None when undefined."""
+core_start/core_end span its bases with P >= high_posterior; cpg_obs_exp is None when undefined;
+signature_distance is the dinucleotide relative-abundance distance delta* (Karlin & Burge 1995,
+"Dinucleotide relative abundance extremes: a genomic signature", Trends Genet. 11:283-290) between
+the call's bases and its whole record, both strands, as the GFF3 attribute of that name: for
+profiles whose windows score composition signatures, else None."""
 
 
 class Decoding:

@@ -46,27 +46,10 @@ def scan(binary, work, profile, out, extra=()):
     return [(int(r[1]), int(r[2])) for r in tmtest.read_bed(os.path.join(work, out))]
 
 
-def delta_star(seq):
-    """rho*_XY of a sequence and its reverse complement together, in numpy (Karlin & Burge 1995,
-    Trends Genet. 11:283-290): an independent route to the signature_distance attribute."""
-    code = np.frombuffer(seq.encode(), np.uint8)
-    lut = np.full(256, 4, np.int64)
-    for i, b in enumerate(b"ACGT"):
-        lut[b] = i
-    x = lut[code]
-    both = np.concatenate([x, [4], (3 - x[::-1]) % 8])  # the reverse complement, after a break
-    known = both[both < 4]
-    f = np.bincount(known, minlength=4) / len(known)
-    a, b = both[:-1], both[1:]
-    ok = (a < 4) & (b < 4)
-    pairs = np.bincount(a[ok] * 4 + b[ok], minlength=16).reshape(4, 4) / ok.sum()
-    return pairs / np.outer(f, f)
-
-
 def check_evidence(checks, work):
     """gc_fraction and signature_distance of every GFF3 feature against numpy over the FASTA."""
     seq = tmtest.read_fasta(os.path.join(work, "chimera.fa"))[0][1]
-    genome = delta_star(seq)
+    genome = tmtest.delta_star(seq)
     worst_gc = worst_delta = 0.0
     count = 0
     with open(os.path.join(work, "refined.gff3")) as f:
@@ -77,7 +60,7 @@ def check_evidence(checks, work):
             attrs = dict(kv.split("=", 1) for kv in cols[8].split(";"))
             part = seq[int(cols[3]) - 1:int(cols[4])]
             gc = sum(part.count(b) for b in "GC") / sum(part.count(b) for b in "ACGT")
-            delta = np.abs(delta_star(part) - genome).mean()
+            delta = np.abs(tmtest.delta_star(part) - genome).mean()
             worst_gc = max(worst_gc, abs(float(attrs["gc_fraction"]) - gc))
             worst_delta = max(worst_delta, abs(float(attrs["signature_distance"]) - delta))
             count += 1

@@ -106,6 +106,33 @@ def test_window_profile_calls_equal_cli(cli, inputs, tmp_path):
         assert np.array_equal(quantised(d.posterior(r)), np.rint(printed * 1e12)), CLI_BEDGRAPH + f" ({r})"
 
 
+def test_signature_calls_carry_evidence(cli, tmp_path):
+    """A signature window profile (composition-shift, fitted as the README's recipe says): calls
+    format to the BED, and each call's signature_distance equals the GFF3 attribute and delta*
+    computed by numpy from the FASTA (Karlin & Burge 1995, Trends Genet. 11:283-290)."""
+    sim, fitted = tmp_path / "cs.fa", tmp_path / "cs.json"
+    cli.run("simulate", "-q", "-p", "composition-shift", "--contigs", "1", "--length", "1500000", "--seed", "4",
+            "-o", sim)
+    cli.run("fit", "-q", sim, "-p", "composition-shift", "-o", fitted)
+    bed, gff3 = tmp_path / "cs.bed", tmp_path / "cs.gff3"
+    cli.run("scan", "-q", sim, "-p", fitted, "-o", bed, "--gff3", gff3)
+    d = next(tidemark.decode_file(sim, tidemark.load_profile(str(fitted))))
+    expected = "".join(line for line in open(bed, encoding="utf-8") if not line.startswith("#"))
+    assert d.calls and d.bed() == expected, CLI_BED + " (composition-shift)"
+    attrs = [dict(kv.split("=", 1) for kv in line.rstrip("\n").split("\t")[8].split(";"))
+             for line in open(gff3, encoding="utf-8") if not line.startswith("#")]
+    assert [round(c.signature_distance, 4) for c in d.calls] == [float(a["signature_distance"]) for a in attrs], \
+        "tidemark scan --gff3 signature_distance (command line)"
+    seq = tmtest.read_fasta(str(sim))[0][1]
+    record = tmtest.delta_star(seq)
+    for c in d.calls:
+        assert c.signature_distance == pytest.approx(
+            np.abs(tmtest.delta_star(seq[c.start:c.end]) - record).mean(), rel=1e-9, abs=1e-12), \
+            "numpy delta* (Karlin & Burge 1995)"
+    first = next(tidemark.decode_file(LAMBDA, "cpg-island")).calls
+    assert first and all(c.signature_distance is None for c in first), "no signature evidence without signatures"
+
+
 def test_errors_carry_cli_messages(cli, inputs, tmp_path):
     cases = [
         (["scan", os.path.join(DATA, "bad_char.fa")],
