@@ -246,6 +246,40 @@ public:
             start += covered;
         }
     }
+    // The items of one uncompressed data block. An item inside the open record (the common case
+    // at every level but the finest) is summed in registers; add() handles the rest.
+    void add_items(uint32_t sequence, const char* item, size_t n) {
+        double sum = sum_, sum_squares = sum_squares_;
+        for (size_t i = 0; i < n; ++i, item += item_bytes) {
+            uint32_t start, end;
+            float value;
+            std::memcpy(&start, item, 4);
+            std::memcpy(&end, item + 4, 4);
+            std::memcpy(&value, item + 8, 4);
+            if (!records_.empty() && records_.size() < zoom_records_per_block) {
+                Record& open = records_.back();
+                // start >= open.start: the items of a sequence come sorted
+                if (open.sequence == sequence && start < open.limit && end <= open.limit &&
+                    start <= 0xFFFFFFFFu - size_) {
+                    open.end = end;
+                    open.covered += end - start;
+                    if (open.min > value) open.min = value;
+                    if (open.max < value) open.max = value;
+                    sum += static_cast<double>(static_cast<float>(end - start) * value);
+                    const double v = value;
+                    sum_squares += static_cast<double>(end - start) * (v * v);
+                    continue;
+                }
+            }
+            sum_ = sum;
+            sum_squares_ = sum_squares;
+            add(sequence, start, end, value);
+            sum = sum_;
+            sum_squares = sum_squares_;
+        }
+        sum_ = sum;
+        sum_squares_ = sum_squares;
+    }
     void finish() {
         if (!records_.empty()) finish_block();
     }
@@ -256,6 +290,7 @@ private:
     struct Record {
         uint32_t sequence, start, end, covered;
         float min, max, sum, sum_squares;
+        uint32_t limit;  // start + the level's size; 0 where that overflows (add() then decides)
     };
     static uint32_t overlap(uint32_t seq0, uint32_t start0, uint32_t end0, uint32_t seq1,
                             uint32_t start1, uint32_t end1) {
@@ -289,7 +324,8 @@ private:
         }
         const uint32_t stop = start + size < end ? start + size : end;
         const uint32_t covered = overlap(sequence, start, start + size, sequence, start, end);
-        records_.push_back({sequence, start, stop, covered, value, value, 0.0f, 0.0f});
+        const uint32_t limit = start <= 0xFFFFFFFFu - size_ ? start + size_ : 0;
+        records_.push_back({sequence, start, stop, covered, value, value, 0.0f, 0.0f, limit});
         accumulate(covered, value);
         return covered;
     }
@@ -541,50 +577,50 @@ void BigWigWriter::write() {
     // Zoom levels from the uncompressed blocks, a stretch of blocks at a time, one task per level.
     const uint32_t longest = *std::max_element(m.lengths.begin(), m.lengths.end());
     std::vector<ZoomLevel> levels;
-    for (uint32_t size : zoom_sizes(m.intervals, m.bases, longest)) levels.emplace_back(size);
+    for (uint32_t size : zoom_sizes(m.intervals, m.bases, longest)) {
+        levels.emplace_back(size);
+        // Records of a level start at least `size` bases apart within a sequence until a block
+        // fills, so with fewer than a block's worth possible this level has one block, the next
+        // would have one too, and the levels written stop here (see below): no need to build it.
+        uint64_t most = 0;
+        for (uint32_t length : m.lengths)
+            if (length > 0) most += (length - 1) / size + 1;
+        if (most < zoom_records_per_block) break;
+    }
     if (!levels.empty() && !m.blocks.empty()) {
-        std::rewind(m.raw.file);
-        std::string stretch(size_t{block_bytes} * 64, '\0');
-        size_t got = 0;
-        while ((got = std::fread(stretch.data(), 1, stretch.size(), m.raw.file)) > 0) {
-            // Whole blocks only: one cut at the end of the stretch is read again with the next.
-            size_t whole = 0;
-            while (whole + data_header_bytes <= got) {
-                uint16_t items;
-                std::memcpy(&items, stretch.data() + whole + 22, 2);
-                const size_t size = data_header_bytes + size_t{items} * item_bytes;
-                if (whole + size > got) break;
-                whole += size;
-            }
-            if (whole == 0) throw IoError(m.path + ": a temporary spool file is damaged");
-            if (whole < got && std::fseek(m.raw.file, -static_cast<long>(got - whole), SEEK_CUR))
-                throw IoError(m.path + ": cannot read a temporary spool file");
-            std::vector<std::future<void>> done;
-            for (auto& level : levels)
-                done.push_back(m.pool.submit([&level, &stretch, whole](int) {
+        // Each level reads the spool on its own (pread, from the page cache) and finishes its
+        // blocks, so the levels never wait for each other.
+        const int fd = fileno(m.raw.file);
+        const std::string path = m.path;
+        std::vector<std::future<void>> done;
+        for (auto& level : levels)
+            done.push_back(m.pool.submit([&level, fd, &path](int) {
+                const size_t room = size_t{block_bytes} * 128;
+                const auto stretch = std::make_unique_for_overwrite<char[]>(room);
+                off_t offset = 0;
+                for (;;) {
+                    const ssize_t got = pread(fd, stretch.get(), room, offset);
+                    if (got < 0) throw IoError(path + ": cannot read a temporary spool file");
+                    if (got == 0) break;
+                    const auto have = static_cast<size_t>(got);
+                    // Whole blocks only: a cut block at the end is read again with the next.
                     size_t at = 0;
-                    while (at < whole) {
+                    while (at + data_header_bytes <= have) {
                         uint32_t sequence;
                         uint16_t items;
-                        std::memcpy(&sequence, stretch.data() + at, 4);
-                        std::memcpy(&items, stretch.data() + at + 22, 2);
-                        at += data_header_bytes;
-                        for (uint16_t i = 0; i < items; ++i, at += item_bytes) {
-                            uint32_t s, e;
-                            float v;
-                            std::memcpy(&s, stretch.data() + at, 4);
-                            std::memcpy(&e, stretch.data() + at + 4, 4);
-                            std::memcpy(&v, stretch.data() + at + 8, 4);
-                            level.add(sequence, s, e, v);
-                        }
+                        std::memcpy(&sequence, stretch.get() + at, 4);
+                        std::memcpy(&items, stretch.get() + at + 22, 2);
+                        const size_t size = data_header_bytes + size_t{items} * item_bytes;
+                        if (at + size > have) break;
+                        level.add_items(sequence, stretch.get() + at + data_header_bytes, items);
+                        at += size;
                     }
-                }));
-            for (auto& d : done) d.get();
-        }
-        if (std::ferror(m.raw.file)) throw IoError(m.path + ": cannot read a temporary spool file");
-        std::vector<std::future<void>> done;
-        for (auto& level : levels) done.push_back(m.pool.submit([&level](int) { level.finish(); }));
-        for (auto& d : done) d.get();
+                    if (at == 0) throw IoError(path + ": a temporary spool file is damaged");
+                    offset += static_cast<off_t>(at);
+                }
+                level.finish();
+            }));
+        wait_all(done);
         // libBigWig writes levels while each has another number of blocks than the one before.
         size_t kept = 1;
         while (kept < levels.size() &&

@@ -4,6 +4,7 @@
 
 #include <condition_variable>
 #include <deque>
+#include <exception>
 #include <functional>
 #include <future>
 #include <mutex>
@@ -40,5 +41,19 @@ private:
     bool stop_ = false;
     std::vector<std::thread> workers_;
 };
+
+/// Waits for every future, then rethrows the first failure: tasks still running may use the
+/// caller's data, so no error leaves before all have stopped.
+inline void wait_all(std::vector<std::future<void>>& futures) {
+    std::exception_ptr first;
+    for (auto& f : futures) {
+        try {
+            f.get();
+        } catch (...) {
+            if (!first) first = std::current_exception();
+        }
+    }
+    if (first) std::rethrow_exception(first);
+}
 
 }  // namespace tidemark
