@@ -63,6 +63,12 @@ struct Bytes {
         s.append(b, sizeof(T));
     }
     void zeros(size_t n) { s.append(n, '\0'); }
+    // The head of a node of either tree (R-tree or B+ tree): leaf flag, reserved byte, count.
+    void node_head(bool leaf, size_t count) {
+        put(static_cast<uint8_t>(leaf ? 1 : 0));
+        put(uint8_t{0});
+        put(static_cast<uint16_t>(count));
+    }
 };
 static_assert(__BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__, "bigWig fields are written as stored");
 
@@ -138,9 +144,7 @@ std::string index_section(const std::vector<BlockEntry>& blocks, uint64_t at,
         for (size_t n = 0; n < nodes; ++n) {
             const size_t first = n * index_children;
             const size_t count = std::min<size_t>(index_children, level.size() - first);
-            out.put(static_cast<uint8_t>(h == 0 ? 1 : 0));
-            out.put(uint8_t{0});
-            out.put(static_cast<uint16_t>(count));
+            out.node_head(h == 0, count);
             for (size_t i = first; i < first + count; ++i) {
                 out.put(level[i].a);
                 out.put(level[i].b);
@@ -207,9 +211,7 @@ std::string sequence_tree(const std::vector<std::string>& names,
         for (size_t node = 0; node < nodes_of(h); ++node) {
             const size_t first = node * block;
             const size_t count = std::min<size_t>(block, level.size() - first);
-            out.put(static_cast<uint8_t>(h == 0 ? 1 : 0));
-            out.put(uint8_t{0});
-            out.put(static_cast<uint16_t>(count));
+            out.node_head(h == 0, count);
             for (size_t i = first; i < first + count; ++i) {
                 out.s += key(level[i]);
                 if (h == 0) {
