@@ -30,7 +30,8 @@ namespace {
 // inserted, scripts/gc-matched-chimera.py, after fitting composition-shift: median boundary
 // error 632 bp with the stretches inside the search range, 528 / 237 / 253 / 251 bp reaching
 // 1 / 2 / 4 / 8 windows; 976 bp on the window grid. 4 kept: it also held on N16961 segments,
-// 313 bp, tests/oracle/test_call_ends_signature.py).
+// 313 bp, tests/oracle/test_call_ends_signature.py; all measured before the ends needed
+// ClassBaseScores::move_margin to leave the grid).
 constexpr int64_t signature_reach = 4;
 
 // A position where calls start or end, with the classes on either side (-1: not yet known).
@@ -90,6 +91,11 @@ void IntervalCaller::refine_ends() {
         contig.unpack(at - 1, 2, beside);
         if (beside[0] == base_unknown || beside[1] == base_unknown) continue;
         const int64_t window = at / w;
+        // Which side holds a call (the other side's class, if unknown, is filled in below).
+        const ClassBaseScores::CallSide call = b.left >= 0 && b.right >= 0
+                                                   ? ClassBaseScores::CallSide::both
+                                               : b.left >= 0 ? ClassBaseScores::CallSide::left
+                                                             : ClassBaseScores::CallSide::right;
         if (b.left < 0) b.left = likeliest_other(&window_posteriors_[(window - 1) * R], R, b.right);
         if (b.right < 0) b.right = likeliest_other(&window_posteriors_[window * R], R, b.left);
         if (b.left < 0 || b.right < 0 || b.left == b.right) continue;
@@ -118,7 +124,7 @@ void IntervalCaller::refine_ends() {
             if (gap_begin >= at) to = std::min(to, gap_begin);
         }
         b.moved_to = lo + scores.change_point(contig, lo, hi, b.left, b.right, at - lo,
-                                              std::min(from, lo), std::max(to, hi));
+                                              std::min(from, lo), std::max(to, hi), call);
     }
 
     const auto moved = [&](int64_t at) {

@@ -10,6 +10,7 @@
 #include <tuple>
 
 #include "test_util.hpp"
+#include "tidemark/call.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/profile.hpp"
 #include "tidemark/simulate.hpp"
@@ -520,6 +521,141 @@ TEST_CASE("refined ends of signature models: split scores equal the urn on each 
                 CHECK(scores.change_point(c, begin, end, left, right, 0, from, to) == best);
             }
         }
+}
+
+TEST_CASE("refined ends of signature models: a call's end leaves the grid only on strong evidence",
+          "[window][signature][call_ends]") {
+    // Two classes of k = 1 whose base frequencies differ (typical A .08 C .33 G .17 T .42,
+    // atypical A .18 C .45 G .27 T .09; concentration 1000, near a fixed multinomial), a change
+    // from one to the other at a random base and a random grid end `prefer`. The expected split
+    // is the rule of ClassBaseScores::change_point applied by brute force to stretch_log
+    // (independent, long double) at every split: the best split that does not shorten the call
+    // if it beats prefer by more than move_margin, else prefer; a split that shortens the call
+    // only if it beats that by more than move_margin. Splits are hundreds of bases from the
+    // change or close to it, so the trials hold all three outcomes, among them ends that stay
+    // where the plain maximum (the rule before calls were protected) would shorten the call.
+    const json doc = signature_profile(1, 100, 1000, 1000);
+    const Profile p = parse_profile(doc.dump(), "s.json");
+    const ClassBaseScores scores(compile(p));
+    const double margin = ClassBaseScores::move_margin;
+    test::TestRandom rng(35);
+    const auto draw = [&](const StateSpec& st) {
+        double u = static_cast<double>(rng.next() >> 11) / 9007199254740992.0;
+        for (int b = 0; b < 3; ++b)
+            if ((u -= st.signature.mean[0][static_cast<size_t>(b)]) < 0) return b;
+        return 3;
+    };
+    int stayed = 0, moved_out = 0, moved_in = 0, kept_against_maximum = 0, near_margin = 0;
+    for (int trial = 0; trial < 60; ++trial) {
+        const int left = static_cast<int>(trial % 2), right = 1 - left;  // atypical: region 0
+        const auto call =
+            trial % 4 < 2 ? ClassBaseScores::CallSide::left : ClassBaseScores::CallSide::right;
+        const int64_t length = 600, begin = 100, end = 500, n = end - begin;
+        const int64_t change = begin + static_cast<int64_t>(rng.next() % (n + 1));
+        const int64_t prefer = static_cast<int64_t>(rng.next() % (n + 1));
+        std::vector<int> x(static_cast<size_t>(length));
+        for (int64_t i = 0; i < length; ++i)
+            x[static_cast<size_t>(i)] =
+                draw(p.states[static_cast<size_t>(i < change ? left : right)]);
+        std::vector<long double> want(static_cast<size_t>(n + 1));
+        for (int64_t j = 0; j <= n; ++j)
+            want[static_cast<size_t>(j)] =
+                stretch_log(x, 0, begin + j, 1, p.states[static_cast<size_t>(left)], false) +
+                stretch_log(x, begin + j, length, 1, p.states[static_cast<size_t>(right)], false);
+        const auto best_in = [&](int64_t from, int64_t to) {  // ties: nearest prefer, smaller
+            int64_t at = from;
+            for (int64_t j = from + 1; j <= to; ++j)
+                if (want[static_cast<size_t>(j)] > want[static_cast<size_t>(at)] ||
+                    (want[static_cast<size_t>(j)] == want[static_cast<size_t>(at)] &&
+                     std::llabs(j - prefer) < std::llabs(at - prefer)))
+                    at = j;
+            return at;
+        };
+        bool close = false;
+        const auto beats = [&](int64_t a, int64_t b) {
+            const long double gain = want[static_cast<size_t>(a)] - want[static_cast<size_t>(b)];
+            close = close || std::abs(gain - margin) < 1e-6L;
+            return gain > margin;
+        };
+        const bool call_left = call == ClassBaseScores::CallSide::left;
+        int64_t expected = call_left ? best_in(prefer, n) : best_in(0, prefer);
+        if (!beats(expected, prefer)) expected = prefer;
+        if (call_left ? prefer > 0 : prefer < n) {
+            const int64_t shorter = call_left ? best_in(0, prefer - 1) : best_in(prefer + 1, n);
+            if (beats(shorter, expected)) expected = shorter;
+        }
+        if (close) {  // within rounding of the margin: either answer is right
+            ++near_margin;
+            continue;
+        }
+        const Contig c = test::contig_from(letters(x));
+        INFO("trial " << trial << ", change " << change - begin << ", prefer " << prefer);
+        CHECK(scores.change_point(c, begin, end, left, right, prefer, 0, length, call) == expected);
+        const int64_t maximum = best_in(0, n);
+        const bool shortens = call_left ? maximum < prefer : maximum > prefer;
+        if (expected == prefer) ++stayed;
+        if (expected != prefer && (call_left ? expected > prefer : expected < prefer)) ++moved_out;
+        if (expected != prefer && (call_left ? expected < prefer : expected > prefer)) ++moved_in;
+        if (shortens && expected != maximum) ++kept_against_maximum;
+    }
+    INFO("stayed " << stayed << ", moved out " << moved_out << ", moved in " << moved_in
+                   << ", kept against the maximum " << kept_against_maximum << ", near margin "
+                   << near_margin);
+    CHECK(stayed > 0);
+    CHECK(moved_out > 0);
+    CHECK(moved_in > 0);
+    CHECK(kept_against_maximum > 0);
+    CHECK(near_margin < 3);
+}
+
+TEST_CASE(
+    "refined ends of signature models: a call's grid end stays where the class does not "
+    "change",
+    "[window][signature][call_ends]") {
+    // Windows of 400; the call spans windows 2..5 (800-2400) by its posteriors. Bases follow the
+    // atypical class (the call's) over 600-2400 and the typical class elsewhere (the two k = 1
+    // classes of the test above): the start's window grid end is 200 bases inside the class
+    // change, the end's lies on it. The start moves out to the change (within 40 bases: 200
+    // misplaced bases cost about 0.4 nats each, well over the margin); the end has nothing to
+    // move for and stays on the grid, however the bases around it happen to fall.
+    json doc = signature_profile(1, 400, 1000, 1000);
+    doc["calling"] = {{"refine_ends", true}};
+    const Profile p = parse_profile(doc.dump(), "s.json");
+    const Model m = compile(p);
+    for (uint64_t seed = 1; seed <= 5; ++seed) {
+        test::TestRandom rng(seed);
+        std::string text;
+        for (int64_t i = 0; i < 3200; ++i) {
+            const StateSpec& st = p.states[i >= 600 && i < 2400 ? 0 : 1];
+            double u = static_cast<double>(rng.next() >> 11) / 9007199254740992.0;
+            int b = 0;
+            while (b < 3 && (u -= st.signature.mean[0][static_cast<size_t>(b)]) >= 0) ++b;
+            text += "ACGT"[b];
+        }
+        const Contig c = test::contig_from(text);
+        const Model view = region_view(m);
+        IntervalCaller caller(view, CallOptions{});
+        WindowExpander bases(m, caller);
+        // Region posteriors per window: atypical (region 0, reported), typical (region 1).
+        std::vector<double> rows;
+        for (double q : {0.0, 0.1, 0.9, 1.0, 1.0, 0.8, 0.0, 0.0}) {
+            rows.push_back(q);
+            rows.push_back(1 - q);
+        }
+        BlockView v;
+        v.begin = 0;
+        v.size = 8;
+        v.states = 2;
+        v.posterior = rows.data();
+        v.window = 400;
+        bases.begin_contig(c);
+        bases.block(v);
+        bases.end_contig(c, DecodeResult{});
+        INFO("seed " << seed);
+        REQUIRE(caller.calls().size() == 1);
+        CHECK(std::llabs(caller.calls()[0].begin - 600) <= 40);
+        CHECK(caller.calls()[0].end == 2400);
+    }
 }
 
 TEST_CASE("signature_distance: delta* of a hand-computed pair", "[window][signature]") {

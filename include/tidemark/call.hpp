@@ -97,7 +97,10 @@ int64_t best_change_point(const double* diff, int64_t n, int64_t prefer);
 /// and the window after it (stopping at assembly gaps and halfway to the next call end, so
 /// calls keep their order and at least one base; with a signature, the stretch each side of a
 /// split is scored as one draw that reaches 4 windows further, within the same limits, see
-/// ClassBaseScores::split_scores). The class outside a call is the call of
+/// ClassBaseScores::split_scores, and an end with a call on one side only leaves the grid only
+/// for a split that beats it by more than ClassBaseScores::move_margin, moving into the call
+/// only if that split also beats the best one outside it by as much, see
+/// ClassBaseScores::change_point). The class outside a call is the call of
 /// another region that meets it there, else the other region most probable in the window just
 /// outside. The calls of one contig are refined together from its own bases and window
 /// posteriors, after the whole contig is decoded, so they do not depend on threads or shards

@@ -131,12 +131,26 @@ public:
     /// class `right`, each stretch scored as a window emission is (below).
     void split_scores(const Contig& contig, int64_t begin, int64_t end, int left, int right,
                       double* out, int64_t left_from = -1, int64_t right_to = -1) const;
+    /// Which side of a split holds the call whose end is moved, when only one side does (the
+    /// other is a class outside any call): `left` for a call's end, `right` for its start.
+    enum class CallSide { both, left, right };
+    /// Models with a signature: the log-likelihood (natural log) by which a split must beat
+    /// the window grid's end, `prefer`, for an end of a call to leave it (change_point; how it
+    /// was chosen: window.cpp).
+    static constexpr double move_margin = 35;
     /// The split of bases [begin, end) between class `left` and class `right` (offset from
     /// begin, 0..end-begin) that the calls' ends move to: without a signature,
     /// best_change_point over difference(); with one, the largest split_scores (among equals,
-    /// the nearest to `prefer`, then the smaller).
+    /// the nearest to `prefer`, then the smaller) when calls lie on both sides or `call` is
+    /// `both` (each split lengthens one call as it shortens the other). With a call on one side
+    /// only, the end stays at `prefer` unless the evidence is strong: the best split that does
+    /// not shorten the call (`prefer` itself or one outside the call) is taken if it beats
+    /// `prefer` by more than move_margin; a split that shortens the call (call left: below
+    /// `prefer`; call right: above it) replaces it only if it beats that one by more than
+    /// move_margin in turn.
     int64_t change_point(const Contig& contig, int64_t begin, int64_t end, int left, int right,
-                         int64_t prefer, int64_t left_from = -1, int64_t right_to = -1) const;
+                         int64_t prefer, int64_t left_from = -1, int64_t right_to = -1,
+                         CallSide call = CallSide::both) const;
 
 private:
     struct Member {  // one profile state of a region (models with a signature)
