@@ -260,16 +260,10 @@ public:
             std::memcpy(&value, item + 8, 4);
             if (!records_.empty() && records_.size() < zoom_records_per_block) {
                 Record& open = records_.back();
-                // start >= open.start: the items of a sequence come sorted
-                if (open.sequence == sequence && start < open.limit && end <= open.limit &&
-                    start <= 0xFFFFFFFFu - size_) {
-                    open.end = end;
-                    open.covered += end - start;
-                    if (open.min > value) open.min = value;
-                    if (open.max < value) open.max = value;
-                    sum += static_cast<double>(static_cast<float>(end - start) * value);
-                    const double v = value;
-                    sum_squares += static_cast<double>(end - start) * (v * v);
+                // Inside the open record, with no size to cap: update() would do just this.
+                if (open.sequence == sequence && open.start <= start &&
+                    start <= 0xFFFFFFFFu - size_ && end <= open.start + size_) {
+                    extend(open, start, end - start, value, sum, sum_squares);
                     continue;
                 }
             }
@@ -292,17 +286,25 @@ private:
     struct Record {
         uint32_t sequence, start, end, covered;
         float min, max, sum, sum_squares;
-        uint32_t limit;  // start + the level's size; 0 where that overflows (add() then decides)
     };
     static uint32_t overlap(uint32_t seq0, uint32_t start0, uint32_t end0, uint32_t seq1,
                             uint32_t start1, uint32_t end1) {
         if (seq0 != seq1 || end0 <= start1 || end1 <= start0) return 0;
         return std::min(end0, end1) - std::max(start0, start1);
     }
-    void accumulate(uint32_t covered, float value) {
-        sum_ += static_cast<double>(static_cast<float>(covered) * value);  // float product, as C
+    static void add_sums(uint32_t covered, float value, double& sum, double& sum_squares) {
+        sum += static_cast<double>(static_cast<float>(covered) * value);  // float product, as C
         const double v = value;
-        sum_squares_ += static_cast<double>(covered) * (v * v);
+        sum_squares += static_cast<double>(covered) * (v * v);
+    }
+    // The open record takes `covered` bases of value from `start` on.
+    static void extend(Record& open, uint32_t start, uint32_t covered, float value, double& sum,
+                       double& sum_squares) {
+        open.end = start + covered;
+        open.covered += covered;
+        if (open.min > value) open.min = value;
+        if (open.max < value) open.max = value;
+        add_sums(covered, value, sum, sum_squares);
     }
     uint32_t update(uint32_t sequence, uint32_t start, uint32_t end, float value) {
         if (records_.size() == zoom_records_per_block) return 0;
@@ -313,11 +315,7 @@ private:
             const uint32_t covered =
                 overlap(open.sequence, open.start, open.start + size, sequence, start, end);
             if (covered) {
-                open.end = start + covered;
-                open.covered += covered;
-                if (open.min > value) open.min = value;
-                if (open.max < value) open.max = value;
-                accumulate(covered, value);
+                extend(open, start, covered, value, sum_, sum_squares_);
                 return covered;
             }
             open.sum = static_cast<float>(sum_);
@@ -326,9 +324,8 @@ private:
         }
         const uint32_t stop = start + size < end ? start + size : end;
         const uint32_t covered = overlap(sequence, start, start + size, sequence, start, end);
-        const uint32_t limit = start <= 0xFFFFFFFFu - size_ ? start + size_ : 0;
-        records_.push_back({sequence, start, stop, covered, value, value, 0.0f, 0.0f, limit});
-        accumulate(covered, value);
+        records_.push_back({sequence, start, stop, covered, value, value, 0.0f, 0.0f});
+        add_sums(covered, value, sum_, sum_squares_);
         return covered;
     }
     void finish_block() {
@@ -576,7 +573,7 @@ void BigWigWriter::write() {
     m.write_ready(0);
     if (std::fflush(m.data.file) != 0 || std::fflush(m.raw.file) != 0) throw m.spool_error();
 
-    // Zoom levels from the uncompressed blocks, a stretch of blocks at a time, one task per level.
+    // Zoom levels from the uncompressed blocks, one task per level.
     const uint32_t longest = *std::max_element(m.lengths.begin(), m.lengths.end());
     std::vector<ZoomLevel> levels;
     for (uint32_t size : zoom_sizes(m.intervals, m.bases, longest)) {
