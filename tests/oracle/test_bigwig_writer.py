@@ -46,15 +46,6 @@ def make_records(rng):
     return records
 
 
-def read_bedgraph_intervals(path):
-    out = {}
-    with open(path, encoding="ascii") as f:
-        for line in f:
-            c, s, e, v = line.rstrip("\n").split("\t")
-            out.setdefault(c, []).append((int(s), int(e), float(v)))
-    return out
-
-
 class RawBigWig:
     """The sections of a bigWig file as the format description lays them out."""
 
@@ -198,8 +189,8 @@ def edge_cases(checks, tm, work):
     tmtest.run(tm, ["scan", fa, "-q", "-o", "/dev/null", "--posteriors", "edge", "--track-format", "bigwig"], cwd=work)
     tmtest.run(tm, ["scan", fa, "-q", "-o", "/dev/null", "--posteriors", "edge"], cwd=work)
     ref_path = os.path.join(work, "edge-reference.bw")
-    write_reference(read_bedgraph_intervals(os.path.join(work, "edge.cpg_island.bedgraph")), order, lengths,
-                    ref_path)
+    text = tmtest.read_bedgraph_intervals(os.path.join(work, "edge.cpg_island.bedgraph"))
+    write_reference(text, order, lengths, ref_path)
     bw, rb = pyBigWig.open(os.path.join(work, "edge.cpg_island.bw")), pyBigWig.open(ref_path)
     checks.equal(bw.chroms(), rb.chroms(), "edge cases: sequence list equals libBigWig's", PYBIGWIG)
     checks.check([bw.intervals(n) for n in order] == [rb.intervals(n) for n in order],
@@ -214,7 +205,6 @@ def edge_cases(checks, tm, work):
     checks.check(without_sums(recs, recs_ref) == without_sums(recs_ref, recs_ref),
                  "edge cases: zoom records equal libBigWig's (but for the sums it leaves out)", FORMAT,
                  f"{len(recs)} records")
-    text = read_bedgraph_intervals(os.path.join(work, "edge.cpg_island.bedgraph"))
     check_zoom_sums(checks, recs, text, order, "edge cases")
     bw.close()
     rb.close()
@@ -249,7 +239,7 @@ def body(checks, tm, work):
 
     # The reference: the bedGraph's intervals written by libBigWig, one call per sequence, as
     # tidemark wrote them before (maxZooms 10).
-    text = read_bedgraph_intervals(os.path.join(work, "text.cpg_island.bedgraph"))
+    text = tmtest.read_bedgraph_intervals(os.path.join(work, "text.cpg_island.bedgraph"))
     ref_path = os.path.join(work, "reference.bw")
     write_reference(text, order, lengths, ref_path)
 

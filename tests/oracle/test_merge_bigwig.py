@@ -65,15 +65,6 @@ def chrom_tree(path):
     return count, items
 
 
-def read_bedgraph_lines(path):
-    out = {}
-    with open(path, encoding="utf-8") as f:
-        for line in f:
-            c, s, e, v = line.rstrip("\n").split("\t")
-            out.setdefault(c, []).append((int(s), int(e), float(v)))
-    return out
-
-
 def sequence_names(records, regions):
     """Sequences decoded, in input order, each once: what the bigWig list and chrom sizes hold."""
     if not regions:
@@ -132,7 +123,7 @@ def scenario(checks, binary, work, name, fasta, records, n, scan_args, regions=(
                  f"{name}: merged bigWig's chromosome tree holds each sequence once", LAYOUT)
     bw = pyBigWig.open(bw_path)
     checks.equal(list(bw.chroms().items()), want_list, f"{name}: merged bigWig sequence list (pyBigWig)", FASTA)
-    bedgraph = read_bedgraph_lines(os.path.join(base, "bedgraph", f"post.{REGION}.bedgraph"))
+    bedgraph = tmtest.read_bedgraph_intervals(os.path.join(base, "bedgraph", f"post.{REGION}.bedgraph"))
     for chrom in names:
         got = bw.intervals(chrom) or []
         want = bedgraph.get(chrom, [])

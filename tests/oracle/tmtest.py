@@ -194,6 +194,16 @@ def read_bedgraph(path, lengths):
     return values
 
 
+def read_bedgraph_intervals(path):
+    """A bedGraph without header lines as {name: [(start, end, value), ...]} in file order."""
+    out = {}
+    with open(path, encoding="utf-8") as f:
+        for line in f:
+            c, s, e, v = line.rstrip("\n").split("\t")
+            out.setdefault(c, []).append((int(s), int(e), float(v)))
+    return out
+
+
 def long_unknown_runs(seq, at_least=100):
     """Boolean mask of the bases in runs of at least `at_least` unknown bases (not A, C, G, T in
     either case): what posterior tracks leave out (track_gap_min_length, README)."""
