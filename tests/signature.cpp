@@ -127,6 +127,14 @@ std::string letters(const std::vector<int>& x) {
     return s;
 }
 
+// A base (0..3) drawn from an order-0 state's mean frequencies.
+int draw_base(test::TestRandom& rng, const StateSpec& st) {
+    double u = static_cast<double>(rng.next() >> 11) / 9007199254740992.0;
+    for (int b = 0; b < 3; ++b)
+        if ((u -= st.signature.mean[0][static_cast<size_t>(b)]) < 0) return b;
+    return 3;
+}
+
 }  // namespace
 
 TEST_CASE("signature profiles parse, compile and round-trip", "[window][signature]") {
@@ -539,12 +547,6 @@ TEST_CASE("refined ends of signature models: a call's end leaves the grid only o
     const ClassBaseScores scores(compile(p));
     const double margin = ClassBaseScores::move_margin;
     test::TestRandom rng(35);
-    const auto draw = [&](const StateSpec& st) {
-        double u = static_cast<double>(rng.next() >> 11) / 9007199254740992.0;
-        for (int b = 0; b < 3; ++b)
-            if ((u -= st.signature.mean[0][static_cast<size_t>(b)]) < 0) return b;
-        return 3;
-    };
     int stayed = 0, moved_out = 0, moved_in = 0, kept_against_maximum = 0, near_margin = 0;
     for (int trial = 0; trial < 60; ++trial) {
         const int left = static_cast<int>(trial % 2), right = 1 - left;  // atypical: region 0
@@ -556,7 +558,7 @@ TEST_CASE("refined ends of signature models: a call's end leaves the grid only o
         std::vector<int> x(static_cast<size_t>(length));
         for (int64_t i = 0; i < length; ++i)
             x[static_cast<size_t>(i)] =
-                draw(p.states[static_cast<size_t>(i < change ? left : right)]);
+                draw_base(rng, p.states[static_cast<size_t>(i < change ? left : right)]);
         std::vector<long double> want(static_cast<size_t>(n + 1));
         for (int64_t j = 0; j <= n; ++j)
             want[static_cast<size_t>(j)] =
@@ -626,11 +628,7 @@ TEST_CASE(
         test::TestRandom rng(seed);
         std::string text;
         for (int64_t i = 0; i < 3200; ++i) {
-            const StateSpec& st = p.states[i >= 600 && i < 2400 ? 0 : 1];
-            double u = static_cast<double>(rng.next() >> 11) / 9007199254740992.0;
-            int b = 0;
-            while (b < 3 && (u -= st.signature.mean[0][static_cast<size_t>(b)]) >= 0) ++b;
-            text += "ACGT"[b];
+            text += "ACGT"[draw_base(rng, p.states[i >= 600 && i < 2400 ? 0 : 1])];
         }
         const Contig c = test::contig_from(text);
         const Model view = region_view(m);
