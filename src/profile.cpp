@@ -15,6 +15,7 @@
 #include <set>
 #include <sstream>
 
+#include "tidemark/contig_screen.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/suggest.hpp"
 
@@ -346,6 +347,50 @@ int Profile::region_index(std::string_view region) const {
     return -1;
 }
 
+// contig_screen: centre, precision and limits as fit wrote them (contig_screen.hpp).
+ContigScreen parse_contig_screen(const Validator& v, const json& j) {
+    v.only_fields(j, "contig_screen", {"center", "precision", "limits"});
+    const size_t n = screen_dimensions;
+    const auto finite = [&](const json& x, const std::string& where) {
+        if (!x.is_number() || !std::isfinite(x.get<double>()))
+            v.fail(where, "must be a finite number");
+        return x.get<double>();
+    };
+    ContigScreen out;
+    const json& c = v.field(j, "center", "contig_screen");
+    if (!c.is_array() || c.size() != n)
+        v.fail("contig_screen.center", fmt::format("must be an array of {} numbers", n));
+    for (size_t i = 0; i < n; ++i)
+        out.center.push_back(finite(c[i], fmt::format("contig_screen.center[{}]", i)));
+    const json& p = v.field(j, "precision", "contig_screen");
+    if (!p.is_array() || p.size() != n)
+        v.fail("contig_screen.precision", fmt::format("must be {} rows of {} numbers", n, n));
+    for (size_t i = 0; i < n; ++i) {
+        if (!p[i].is_array() || p[i].size() != n)
+            v.fail(fmt::format("contig_screen.precision[{}]", i),
+                   fmt::format("must be an array of {} numbers", n));
+        for (size_t k = 0; k < n; ++k)
+            out.precision.push_back(
+                finite(p[i][k], fmt::format("contig_screen.precision[{}][{}]", i, k)));
+    }
+    const json& l = v.field(j, "limits", "contig_screen");
+    if (!l.is_array() || l.empty())
+        v.fail("contig_screen.limits", "must be a non-empty array of {known_bases, distance}");
+    for (size_t i = 0; i < l.size(); ++i) {
+        const std::string at = fmt::format("contig_screen.limits[{}]", i);
+        v.only_fields(l[i], at, {"known_bases", "distance"});
+        const int64_t known =
+            v.nonnegative_integer(v.field(l[i], "known_bases", at), at + ".known_bases");
+        const double d = finite(v.field(l[i], "distance", at), at + ".distance");
+        if (known < 1 || (!out.lengths.empty() && known <= out.lengths.back()))
+            v.fail(at + ".known_bases", "must be positive and increase along the list");
+        if (d <= 0) v.fail(at + ".distance", "must be positive");
+        out.lengths.push_back(known);
+        out.limits.push_back(d);
+    }
+    return out;
+}
+
 Profile parse_profile(std::string_view json_text, const std::string& origin) {
     Validator v(origin);
     json doc;
@@ -356,7 +401,7 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
     }
     v.only_fields(doc, "top level",
                   {"format", "name", "description", "sources", "regions", "states", "initial",
-                   "transitions", "calling", "provenance", "window", "template"});
+                   "transitions", "calling", "provenance", "window", "template", "contig_screen"});
     Profile p;
     const std::string format = v.string_field(doc, "format", "top level");
     if (format != profile_format)
@@ -383,6 +428,8 @@ Profile parse_profile(std::string_view json_text, const std::string& origin) {
         if (!doc["template"].is_boolean()) v.fail("template", "must be true or false");
         p.is_template = doc["template"].get<bool>();
     }
+    if (doc.contains("contig_screen"))
+        p.contig_screen = parse_contig_screen(v, doc["contig_screen"]);
     if (doc.contains("window")) {
         const json& w = doc["window"];
         v.only_fields(w, "window", {"size", "min_known"});
@@ -676,6 +723,18 @@ std::string to_json(const Profile& p) {
                       {"min_length", p.calling.min_length},
                       {"merge_gap", p.calling.merge_gap}};
     if (p.calling.refine_ends) doc["calling"]["refine_ends"] = true;
+    if (p.contig_screen.present()) {
+        const ContigScreen& cs = p.contig_screen;
+        const size_t n = cs.center.size();
+        ordered_json rows = ordered_json::array(), limits = ordered_json::array();
+        for (size_t i = 0; i < n; ++i)
+            rows.push_back(
+                std::vector<double>(cs.precision.begin() + static_cast<ptrdiff_t>(i * n),
+                                    cs.precision.begin() + static_cast<ptrdiff_t>((i + 1) * n)));
+        for (size_t i = 0; i < cs.lengths.size(); ++i)
+            limits.push_back({{"known_bases", cs.lengths[i]}, {"distance", cs.limits[i]}});
+        doc["contig_screen"] = {{"center", cs.center}, {"precision", rows}, {"limits", limits}};
+    }
     if (!p.provenance_json.empty()) doc["provenance"] = ordered_json::parse(p.provenance_json);
     return doc.dump(2) + "\n";
 }
@@ -748,6 +807,8 @@ Model compile(const Profile& p) {
     m.window = p.window_size;
     m.window_min_known = p.window_min_known;
     m.refine_ends = p.calling.refine_ends;
+    if (p.contig_screen.present())
+        m.contig_screen = std::make_shared<const ContigScreen>(p.contig_screen);
     if (p.window_size > 0) {
         m.window_gc = p.states.front().has_gc;
         m.signature_k = p.states.front().signature.k;

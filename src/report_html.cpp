@@ -10,6 +10,7 @@
 #include <tuple>
 
 #include "report_html_internal.hpp"
+#include "tidemark/contig_screen.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/track.hpp"
 
@@ -241,13 +242,24 @@ struct Page {
         for (const int r : reported)
             atypical +=
                 (atypical.empty() ? "" : ", ") + esc(model.region_names[static_cast<size_t>(r)]);
+        // Profiles fitted with a contig screen (contig_screen.hpp) give screened contigs a
+        // signature distance; only then the rule and the table say so.
+        const bool screened =
+            std::any_of(in.contigs->begin(), in.contigs->end(),
+                        [](const auto& c) { return !std::isnan(c.composition_distance); });
         out += "<section id=\"foreign\">\n<h2>Contigs of foreign composition</h2>\n";
         out += fmt::format(
             "<p class=\"note\">A contig is listed when it has at least {} known bases (enough for "
             "one window that carries evidence) and its mean posterior of the atypical regions "
-            "({}) over its known bases, P(atypical), is at least {}.</p>\n",
+            "({}) over its known bases, P(atypical), is at least {}{}.</p>\n",
             grouped(ForeignContigRule::min_known(model)), atypical,
-            num(ForeignContigRule::min_atypical, 1));
+            num(ForeignContigRule::min_atypical, 1),
+            screened
+                ? fmt::format("; or when it has at least {} known bases and the distance of its "
+                              "trinucleotide signature from the fitted genome's exceeds the "
+                              "limit of the genome's own stretches of its length",
+                              grouped(ContigScreenRule::min_known))
+                : std::string());
         if (foreign.empty()) {
             out += "<p>No contig is foreign to the assembly by this rule.</p>\n</section>\n";
             return;
@@ -261,6 +273,7 @@ struct Page {
         out +=
             "<div class=\"wide\"><table>\n<tr><th>#</th><th>sequence</th><th>length "
             "(bp)</th><th>known (bp)</th><th>GC</th><th>P(atypical)</th>";
+        if (screened) out += "<th>signature distance</th><th>limit</th>";
         for (const int r : reported)
             out += fmt::format(
                 "<th><b class=\"sw\" style=\"color:{}\">\u25a0</b>{}<br>expected "
@@ -276,6 +289,11 @@ struct Page {
                 c.input_index + 1, esc(c.name), grouped(c.length), grouped(c.composition.known()),
                 num(c.composition.gc_fraction(), 4),
                 num(ForeignContigRule::atypical_fraction(model, c), 4));
+            if (screened)
+                out += std::isnan(c.composition_distance)
+                           ? std::string("<td>\u2013</td><td>\u2013</td>")
+                           : fmt::format("<td>{}</td><td>{}</td>", num(c.composition_distance, 1),
+                                         num(c.composition_limit, 1));
             for (const int r : reported) {
                 const auto ri = static_cast<size_t>(r);
                 const double e = ri < c.expected_bases.size() ? c.expected_bases[ri] : 0.0;

@@ -12,6 +12,7 @@
 #include "name_set.hpp"
 #include "pipeline.hpp"
 #include "thread_pool.hpp"
+#include "tidemark/contig_screen.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/intervals.hpp"
 #include "tidemark/output.hpp"
@@ -392,6 +393,12 @@ void ScanOutputs::finish(ScanJob& job) {
     s.unknown = contig.unknown_count();
     s.soft_masked = contig.soft_masked;
     s.composition = composition(contig, 0, contig.length);
+    s.composition_distance = s.composition_limit = std::numeric_limits<double>::quiet_NaN();
+    if (model.contig_screen && s.composition.known() >= ContigScreenRule::min_known) {
+        const TrinucleotideCounts counts = trinucleotide_counts(contig, 0, contig.length);
+        s.composition_distance = screen_distance(*model.contig_screen, counts);
+        s.composition_limit = screen_limit(*model.contig_screen, counts.known);
+    }
     s.log_likelihood = job.result.log_likelihood;
     s.expected_bases = totals.expected_bases();
     s.reset_calls(model.region_names.size());

@@ -8,6 +8,7 @@
 #include <sys/stat.h>
 
 #include <algorithm>
+#include <cmath>
 #include <numeric>
 #include <unordered_map>
 
@@ -480,6 +481,8 @@ ordered_json contig_to_json(const ContigSummary& c) {
     o["soft_masked"] = c.soft_masked;
     o["composition"] = composition_json(c.composition);
     o["log_likelihood"] = c.log_likelihood;
+    if (!std::isnan(c.composition_distance))
+        o["composition_screen"] = {c.composition_distance, c.composition_limit};
     o["expected_bases"] = vector_json(c.expected_bases);
     o["called_bases"] = c.called_bases;
     o["calls"] = c.calls;
@@ -504,6 +507,10 @@ ContigSummary contig_from_json(const nlohmann::json& j, const std::string& where
         const auto& ll = j.at("log_likelihood");
         c.log_likelihood =
             ll.is_null() ? std::numeric_limits<double>::quiet_NaN() : ll.get<double>();
+        if (j.contains("composition_screen")) {
+            c.composition_distance = j["composition_screen"].at(0).get<double>();
+            c.composition_limit = j["composition_screen"].at(1).get<double>();
+        }
         c.expected_bases = get_vector<double>(j, "expected_bases", where);
         c.called_bases = j.at("called_bases").get<std::vector<int64_t>>();
         c.calls = j.at("calls").get<std::vector<int64_t>>();

@@ -12,6 +12,7 @@
 #include <nlohmann/json.hpp>
 
 #include "summary_internal.hpp"
+#include "tidemark/contig_screen.hpp"
 #include "tidemark/error.hpp"
 
 namespace tidemark {
@@ -189,8 +190,13 @@ ordered_json contig_json(const Model& model, const ContigSummary& c, bool report
     o["cpg_obs_exp"] = number_or_null(c.composition.cpg_obs_exp());
     o["log_likelihood"] = c.log_likelihood;
     // Only where the screening rule applies, so that other profiles' summaries stay as they were.
-    if (ForeignContigRule::applies(model))
+    if (ForeignContigRule::applies(model)) {
         o["atypical_fraction"] = ForeignContigRule::atypical_fraction(model, c);
+        if (!std::isnan(c.composition_distance)) {
+            o["composition_distance"] = c.composition_distance;
+            o["composition_limit"] = c.composition_limit;
+        }
+    }
     ordered_json regions = ordered_json::object();
     for (size_t r = 0; r < model.region_names.size(); ++r) {
         const double expected = r < c.expected_bases.size() ? c.expected_bases[r] : 0.0;
@@ -234,7 +240,7 @@ double ForeignContigRule::atypical_fraction(const Model& model, const ContigSumm
 
 bool ForeignContigRule::foreign(const Model& model, const ContigSummary& c) {
     return applies(model) && c.composition.known() >= min_known(model) &&
-           atypical_fraction(model, c) >= min_atypical;
+           (atypical_fraction(model, c) >= min_atypical || composition_foreign(c));
 }
 
 namespace {
@@ -263,12 +269,19 @@ ordered_json foreign_contigs_json(const Model& model, const std::vector<ContigSu
                         {"length", c.length},
                         {"known_bases", c.composition.known()},
                         {"gc_fraction", c.composition.gc_fraction()},
-                        {"atypical_fraction", ForeignContigRule::atypical_fraction(model, c)}});
+                        {"atypical_fraction", ForeignContigRule::atypical_fraction(model, c)},
+                        {"composition_distance", number_or_null(c.composition_distance)},
+                        {"composition_limit", number_or_null(c.composition_limit)},
+                        {"by_posterior", ForeignContigRule::atypical_fraction(model, c) >=
+                                             ForeignContigRule::min_atypical},
+                        {"by_composition", ForeignContigRule::composition_foreign(c)}});
     }
     return {{"atypical_regions", regions_reported(model, true)},
             {"background_regions", regions_reported(model, false)},
             {"min_known_bases", ForeignContigRule::min_known(model)},
             {"min_atypical_fraction", ForeignContigRule::min_atypical},
+            {"composition_min_known_bases", ContigScreenRule::min_known},
+            {"composition_level", ContigScreenRule::level},
             {"count", static_cast<int64_t>(foreign.size())},
             {"bases", bases},
             {"contigs", list}};
@@ -514,6 +527,8 @@ void SummaryBuilder::add(const ContigSummary& c) {
         named.length = c.length;
         named.composition = c.composition;
         named.expected_bases = c.expected_bases;
+        named.composition_distance = c.composition_distance;
+        named.composition_limit = c.composition_limit;
         foreign_.push_back(std::move(named));
     }
 }
@@ -666,16 +681,21 @@ std::string SummaryBuilder::genome_table(const ResourceUsage& usage) const {
         int64_t bases = 0;
         for (const auto& c : foreign_) bases += c.length;
         out += fmt::format(
-            "tidemark: foreign contigs (P(atypical) >= {} over >= {} known bases; atypical: "
+            "tidemark: foreign contigs (P(atypical) >= {} over >= {} known bases, or a "
+            "trinucleotide signature beyond the fitted genome's own over >= {}; atypical: "
             "{}): {} of {}, {} bp{}\n",
             ForeignContigRule::min_atypical, ForeignContigRule::min_known(model_),
-            joined(regions_reported(model_, true)), foreign_.size(), contigs_, bases,
-            foreign_.empty() ? "" : ":");
+            ContigScreenRule::min_known, joined(regions_reported(model_, true)), foreign_.size(),
+            contigs_, bases, foreign_.empty() ? "" : ":");
         for (size_t i = 0; i < foreign_.size() && i < named; ++i)
-            out += fmt::format("tidemark:   {} ({} bp, GC {:.4f}, P(atypical) {:.4f})\n",
-                               foreign_[i].name, foreign_[i].length,
-                               foreign_[i].composition.gc_fraction(),
-                               ForeignContigRule::atypical_fraction(model_, foreign_[i]));
+            out += fmt::format(
+                "tidemark:   {} ({} bp, GC {:.4f}, P(atypical) {:.4f}{})\n", foreign_[i].name,
+                foreign_[i].length, foreign_[i].composition.gc_fraction(),
+                ForeignContigRule::atypical_fraction(model_, foreign_[i]),
+                ForeignContigRule::composition_foreign(foreign_[i])
+                    ? fmt::format(", signature distance {:.1f} > {:.1f}",
+                                  foreign_[i].composition_distance, foreign_[i].composition_limit)
+                    : "");
         if (foreign_.size() > named)
             out += fmt::format("tidemark:   and {} more (--summary lists them all)\n",
                                foreign_.size() - named);

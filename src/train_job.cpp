@@ -9,8 +9,10 @@
 #include <numeric>
 #include <optional>
 
+#include "tidemark/contig_screen.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
+#include "tidemark/summary.hpp"
 #include "tidemark/train.hpp"
 
 namespace tidemark {
@@ -166,6 +168,25 @@ ordered_json sequences_json(const FastaTrainingData& data) {
         list.push_back(o);
     }
     return list;
+}
+
+// Islands profiles with a signature (the composition-shift template) get the genome's contig
+// screen, so that scanning a draft with the fitted profile lists foreign contigs that match no
+// fitted class (contig_screen.hpp). One more pass over the data.
+void fit_screen(Profile& p, TrainingData& data, const Logger& log) {
+    p.contig_screen = ContigScreen{};
+    const bool signature = p.windowed() && p.states.front().signature.present();
+    if (!signature || !ForeignContigRule::applies(compile(p))) return;
+    p.contig_screen = fit_contig_screen(data);
+    if (p.contig_screen.present())
+        log.info(fmt::format(
+            "fit: contig screen from the genome's own stretches of {} to {} known bases",
+            p.contig_screen.lengths.front(), p.contig_screen.lengths.back()));
+    else
+        log.info(fmt::format(
+            "fit: no contig screen: the genome has too few stretches of {} known bases to "
+            "measure the spread of their trinucleotide signatures (at least {} are needed)",
+            ContigScreenRule::min_known, screen_dimensions + 1));
 }
 
 }  // namespace
@@ -375,6 +396,7 @@ FitResult run_fit(const FitJobOptions& o, const Logger& log) {
             describe_fitted_classes(result.profile);
         }
         if (result.profile.windowed()) log.info(learned_classes(result.profile));
+        fit_screen(result.profile, data, log);
     }
 
     Profile& p = result.profile;

@@ -477,6 +477,7 @@ Model region_view(const Model& m) {
     }
     if (m.refine_ends) v.class_base_scores = std::make_shared<const ClassBaseScores>(m);
     v.signature_evidence = m.signature_k > 0;
+    v.contig_screen = m.contig_screen;
     return v;
 }
 

@@ -102,6 +102,17 @@ struct StateSpec {
     int gc_side = 0;  ///< -1: mean <= the reference's mean (below); +1: mean >= it (above)
 };
 
+/// A fitted genome's screen for foreign contigs (contig_screen.hpp): where the trinucleotide
+/// signatures of the genome's own stretches lie, and how far from there a stretch of each length
+/// still belongs to it. Written by tidemark fit for islands templates; absent otherwise.
+struct ContigScreen {
+    std::vector<double> center;     ///< 32 values (contig_screen.hpp: trinucleotide_signature)
+    std::vector<double> precision;  ///< 32 x 32, row-major: the inverse of the robust covariance
+    std::vector<int64_t> lengths;   ///< known bases, increasing
+    std::vector<double> limits;     ///< per length: the largest distance of the genome's own
+    bool present() const { return !center.empty(); }
+};
+
 /// Interval-calling defaults a profile may carry (overridden by command-line options).
 struct CallingDefaults {
     double min_posterior = 0.5;
@@ -135,6 +146,7 @@ struct Profile {
     /// A template: its emissions only fix the classes' order, and fit reseeds them from the data
     /// before Baum-Welch (as --init-from-data does). Fitted profiles are not templates.
     bool is_template = false;
+    ContigScreen contig_screen;  ///< fitted islands profiles only
 
     bool windowed() const { return window_size > 0; }
     /// Compiled chain length of region r: min_length in bases, or in whole windows.
@@ -239,6 +251,8 @@ struct Model {
     /// Region views of window profiles with a signature: calls carry their signature distance
     /// from their record (Call::signature_distance).
     bool signature_evidence = false;
+    /// The profile's contig screen (shared by a model and its region view); null when absent.
+    std::shared_ptr<const ContigScreen> contig_screen;
     /// Window profiles, per compiled state: the beta-binomial's alpha and beta, and
     /// lbeta(alpha, beta) (the normaliser, precomputed).
     std::vector<double> gc_alpha, gc_beta, gc_lbeta;

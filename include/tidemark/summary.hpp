@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <cstdint>
 #include <functional>
+#include <limits>
 #include <memory>
 #include <nlohmann/json_fwd.hpp>
 #include <optional>
@@ -35,6 +36,11 @@ struct ContigSummary {
     std::vector<std::vector<int64_t>> call_lengths;  ///< per region: length of every call
     std::vector<double> confidence_sum;  ///< per region: sum of the calls' mean posteriors
     std::vector<std::vector<double>> call_confidences;  ///< per region: every call's mean posterior
+    /// Profiles with a contig screen (contig_screen.hpp), contigs of at least its min_known
+    /// known bases: the distance of the contig's trinucleotide signature from the genome's and
+    /// the largest distance of the genome's own stretches of that length; NaN otherwise.
+    double composition_distance = std::numeric_limits<double>::quiet_NaN();
+    double composition_limit = std::numeric_limits<double>::quiet_NaN();
 
     /// Zero call counts and expected bases for `regions` region types (the expected bases
     /// given are kept and padded).
@@ -158,7 +164,14 @@ struct ForeignContigRule {
     /// Mean posterior of the atypical (reported) regions over the contig's known bases (0 when
     /// none is known).
     static double atypical_fraction(const Model& model, const ContigSummary& contig);
-    /// The rule above (false when it does not apply to the model).
+    /// True when the contig was screened and its composition lies beyond the genome's own
+    /// (composition_distance > composition_limit).
+    static bool composition_foreign(const ContigSummary& contig) {
+        return contig.composition_distance > contig.composition_limit;
+    }
+    /// The rule: a window profile's contig with at least min_known known bases whose mean
+    /// posterior of the atypical regions is at least min_atypical, or whose composition the
+    /// screen finds foreign (false when the rule does not apply to the model).
     static bool foreign(const Model& model, const ContigSummary& contig);
 };
 
