@@ -9,7 +9,8 @@ the draft's GC), as scripts/island-panel.py builds it.
   summary's own entries.
 - Against the planted truth (the issue's acceptance): at least 17 of the 20 foreign contigs
   listed, at most 5 % of the native contigs >= 5 kb, no call on a native contig < 1 kb.
-- The summary is byte-identical with 1 or 2 threads and over 3 shards merged."""
+- The summary is byte-identical with 1 or 2 threads and over 3 shards merged, and the distributed
+  fit carries the same screen."""
 
 import importlib.util
 import os
@@ -132,6 +133,18 @@ def body(checks, binary, work):
                    "fit: each length's limit (median distance scaled to the chi-square quantile)", NUMPY)
 
     two = os.path.join(work, "two")
+    # The workflow's distributed fit: seeded once on the whole genome, then E-steps per shard and
+    # an M-step from their statistics; the screen does not depend on the EM.
+    tmtest.run_in(binary, os.path.join(work, "dist"), ["fit", fasta, "-p", "composition-shift", "--max-iter", "0",
+                                                       "-o", "start.json", "-q"])
+    for i in (1, 2):
+        tmtest.run_in(binary, os.path.join(work, "dist"), ["fit", fasta, "-p", "start.json", "--emit-stats",
+                                                           f"stats.{i}.json", "--shard", f"{i}/2", "-q"])
+    tmtest.run_in(binary, os.path.join(work, "dist"), ["fit", "--from-stats", "stats.1.json", "stats.2.json",
+                                                       "-p", "start.json", "-o", "P.json", "-q"])
+    checks.equal(tmtest.read_json(os.path.join(work, "dist", "P.json")).get("contig_screen"), screen,
+                 "the distributed fit (2 shards) carries the same screen as the one-machine fit",
+                 "README: Contig screen (the screen does not depend on the EM)")
     bed, summ = os.path.join(two, "calls.bed"), os.path.join(two, "summary.json")
     tmtest.run_in(binary, two, ["scan", fasta, "-p", profile, "-o", "calls.bed", "--summary", "summary.json",
                                 "-q", "-t", "2"])
