@@ -12,7 +12,6 @@ the draft's GC), as scripts/island-panel.py builds it.
 - The summary is byte-identical with 1 or 2 threads and over 3 shards merged, and the distributed
   fit carries the same screen."""
 
-import importlib.util
 import os
 import sys
 
@@ -23,11 +22,7 @@ sys.dont_write_bytecode = True  # keep __pycache__ out of the source tree
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import tmtest  # noqa: E402
 
-HERE = os.path.dirname(os.path.abspath(__file__))
-SPEC = importlib.util.spec_from_file_location("island_panel",
-                                              os.path.join(HERE, "..", "..", "scripts", "island-panel.py"))
-panel = importlib.util.module_from_spec(SPEC)
-SPEC.loader.exec_module(panel)
+panel = tmtest.island_panel()
 
 NUMPY = "numpy/scipy: an independent implementation of the README's contig screen (np.cov, np.linalg.inv, " \
         "np.median, scipy.stats.chi2)"

@@ -7,7 +7,6 @@ only those today's template meets are asserted, the others are printed in the pa
 
 The truth is cached next to the binary (island-panel-cache), so a second run skips it."""
 
-import importlib.util
 import os
 import sys
 
@@ -15,11 +14,7 @@ sys.dont_write_bytecode = True  # keep __pycache__ out of the source tree
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import tmtest  # noqa: E402
 
-HERE = os.path.dirname(os.path.abspath(__file__))
-SPEC = importlib.util.spec_from_file_location("island_panel",
-                                              os.path.join(HERE, "..", "..", "scripts", "island-panel.py"))
-panel = importlib.util.module_from_spec(SPEC)
-SPEC.loader.exec_module(panel)
+panel = tmtest.island_panel()
 
 TEMPLATE = "gc-shift"  # the default islands template
 INSERTS = "the chimera's construction: segments inserted at known positions (scripts/island-panel.py)"

@@ -1,6 +1,7 @@
 """Shared helpers for tidemark's oracle tests: run the binary, read its outputs, read and write FASTA, tally checks."""
 
 import gzip
+import importlib.util
 import json
 import os
 import subprocess
@@ -137,6 +138,15 @@ def profile_difference(a, b, path=""):
         return abs(a - b) / max(1.0, abs(a), abs(b))
     assert a == b, f"{path}: {a!r} != {b!r}"
     return 0.0
+
+
+def island_panel():
+    """scripts/island-panel.py loaded as a module (its truth builders, cache and scoring)."""
+    path = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", "scripts", "island-panel.py")
+    spec = importlib.util.spec_from_file_location("island_panel", path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
 
 
 def read_json(path):
