@@ -259,32 +259,41 @@ std::string joined(const std::vector<std::string>& names) {
     return out;
 }
 
-ordered_json foreign_contigs_json(const Model& model, const std::vector<ContigSummary>& foreign) {
+// screened: the run's profile has a contig screen (some contig carries a distance); only then
+// the entries and the rule name the screen's part, so that other profiles' lists stay as they were.
+ordered_json foreign_contigs_json(const Model& model, const std::vector<ContigSummary>& foreign,
+                                  bool screened) {
     ordered_json list = ordered_json::array();
     int64_t bases = 0;
     for (const auto& c : foreign) {
         bases += c.length;
-        list.push_back({{"name", c.name},
-                        {"input_index", c.input_index},
-                        {"length", c.length},
-                        {"known_bases", c.composition.known()},
-                        {"gc_fraction", c.composition.gc_fraction()},
-                        {"atypical_fraction", ForeignContigRule::atypical_fraction(model, c)},
-                        {"composition_distance", number_or_null(c.composition_distance)},
-                        {"composition_limit", number_or_null(c.composition_limit)},
-                        {"by_posterior", ForeignContigRule::atypical_fraction(model, c) >=
-                                             ForeignContigRule::min_atypical},
-                        {"by_composition", ForeignContigRule::composition_foreign(c)}});
+        ordered_json o = {{"name", c.name},
+                          {"input_index", c.input_index},
+                          {"length", c.length},
+                          {"known_bases", c.composition.known()},
+                          {"gc_fraction", c.composition.gc_fraction()},
+                          {"atypical_fraction", ForeignContigRule::atypical_fraction(model, c)}};
+        if (screened) {
+            o["composition_distance"] = number_or_null(c.composition_distance);
+            o["composition_limit"] = number_or_null(c.composition_limit);
+            o["by_posterior"] =
+                ForeignContigRule::atypical_fraction(model, c) >= ForeignContigRule::min_atypical;
+            o["by_composition"] = ForeignContigRule::composition_foreign(c);
+        }
+        list.push_back(std::move(o));
     }
-    return {{"atypical_regions", regions_reported(model, true)},
-            {"background_regions", regions_reported(model, false)},
-            {"min_known_bases", ForeignContigRule::min_known(model)},
-            {"min_atypical_fraction", ForeignContigRule::min_atypical},
-            {"composition_min_known_bases", ContigScreenRule::min_known},
-            {"composition_level", ContigScreenRule::level},
-            {"count", static_cast<int64_t>(foreign.size())},
-            {"bases", bases},
-            {"contigs", list}};
+    ordered_json out = {{"atypical_regions", regions_reported(model, true)},
+                        {"background_regions", regions_reported(model, false)},
+                        {"min_known_bases", ForeignContigRule::min_known(model)},
+                        {"min_atypical_fraction", ForeignContigRule::min_atypical}};
+    if (screened) {
+        out["composition_min_known_bases"] = ContigScreenRule::min_known;
+        out["composition_level"] = ContigScreenRule::level;
+    }
+    out["count"] = static_cast<int64_t>(foreign.size());
+    out["bases"] = bases;
+    out["contigs"] = list;
+    return out;
 }
 
 }  // namespace
@@ -506,6 +515,7 @@ void SummaryBuilder::add(const ContigSummary& c) {
     add_to_total(total_, c, model_.region_names.size());
     const bool first = contigs_ == 0;
     ++contigs_;
+    screened_ = screened_ || !std::isnan(c.composition_distance);
     if (parts_.summary)
         summary_entries_->append(array_entry(contig_json(model_, c, false, masked_), first));
     if (parts_.report)
@@ -589,7 +599,7 @@ void SummaryBuilder::write_document(const char* format, const RunInfo& info, boo
                 doc["genome"]["regions"][model_.region_names[r]].update(call_histograms(total_, r));
     doc["genome"]["contigs"] = contigs_;
     if (ForeignContigRule::applies(model_))
-        doc["foreign_contigs"] = foreign_contigs_json(model_, foreign_);
+        doc["foreign_contigs"] = foreign_contigs_json(model_, foreign_, screened_);
     // The entries are spooled: a placeholder marks where they go.
     static const std::string placeholder = "tidemark: contig entries";
     doc["contigs"] = placeholder;
@@ -681,12 +691,15 @@ std::string SummaryBuilder::genome_table(const ResourceUsage& usage) const {
         int64_t bases = 0;
         for (const auto& c : foreign_) bases += c.length;
         out += fmt::format(
-            "tidemark: foreign contigs (P(atypical) >= {} over >= {} known bases, or a "
-            "trinucleotide signature beyond the fitted genome's own over >= {}; atypical: "
+            "tidemark: foreign contigs (P(atypical) >= {} over >= {} known bases{}; atypical: "
             "{}): {} of {}, {} bp{}\n",
             ForeignContigRule::min_atypical, ForeignContigRule::min_known(model_),
-            ContigScreenRule::min_known, joined(regions_reported(model_, true)), foreign_.size(),
-            contigs_, bases, foreign_.empty() ? "" : ":");
+            screened_ ? fmt::format(", or a trinucleotide signature beyond the fitted genome's "
+                                    "own over >= {}",
+                                    ContigScreenRule::min_known)
+                      : std::string(),
+            joined(regions_reported(model_, true)), foreign_.size(), contigs_, bases,
+            foreign_.empty() ? "" : ":");
         for (size_t i = 0; i < foreign_.size() && i < named; ++i)
             out += fmt::format(
                 "tidemark:   {} ({} bp, GC {:.4f}, P(atypical) {:.4f}{})\n", foreign_[i].name,

@@ -222,6 +222,7 @@ private:
     ContigSummary total_;
     std::vector<ContigSummary> undepleted_;  ///< contigs the guard names (name, composition)
     std::vector<ContigSummary> foreign_;     ///< contigs ForeignContigRule flags
+    bool screened_ = false;                  ///< some contig carries a contig-screen distance
     std::unique_ptr<Spool> summary_entries_, report_entries_, table_rows_;
 };
 
