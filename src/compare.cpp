@@ -14,6 +14,7 @@
 #include <unordered_set>
 
 #include "byte_source.hpp"
+#include "median.hpp"
 #include "tidemark/error.hpp"
 #include "tidemark/output.hpp"
 #include "tidemark/progress.hpp"
@@ -152,16 +153,6 @@ Hits hits(const Spans& a, const Spans& b, std::vector<int64_t>* start_offsets,
         }
     }
     return h;
-}
-
-double median(std::vector<int64_t>& v) {
-    if (v.empty()) return nan;
-    const size_t mid = v.size() / 2;
-    std::nth_element(v.begin(), v.begin() + mid, v.end());
-    const auto upper = static_cast<double>(v[mid]);
-    if (v.size() % 2) return upper;
-    const auto lower = static_cast<double>(*std::max_element(v.begin(), v.begin() + mid));
-    return (lower + upper) / 2;
 }
 
 double ratio(int64_t num, int64_t den) {
@@ -339,8 +330,8 @@ Comparison compare_intervals(const IntervalSet& calls, const IntervalSet& truth,
             m.calls_overlapping += h.any;
             m.calls_reciprocal += h.recip;
         }
-        m.median_start_offset = median(starts);
-        m.median_end_offset = median(ends);
+        m.median_start_offset = detail::median_in_place(starts);
+        m.median_end_offset = detail::median_in_place(ends);
         result.types.push_back(std::move(tcmp));
     }
     return result;

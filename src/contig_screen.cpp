@@ -5,6 +5,7 @@
 #include <limits>
 #include <vector>
 
+#include "median.hpp"
 #include "tidemark/train.hpp"
 
 namespace tidemark {
@@ -39,15 +40,6 @@ double mahalanobis(const std::vector<double>& center, const std::vector<double>&
         sum += d[i] * row;
     }
     return sum;
-}
-
-// numpy.median: the mean of the two middle values of an even count.
-double median(std::vector<double> v) {
-    const size_t h = v.size() / 2;
-    std::nth_element(v.begin(), v.begin() + static_cast<ptrdiff_t>(h), v.end());
-    const double upper = v[h];
-    if (v.size() % 2 == 1) return upper;
-    return (*std::max_element(v.begin(), v.begin() + static_cast<ptrdiff_t>(h)) + upper) / 2;
 }
 
 // Inverse of a symmetric positive-definite matrix by Cholesky factorisation; false when it is
@@ -199,7 +191,8 @@ ContigScreen fit_contig_screen(TrainingData& data) {
         if (!invert_spd(cov, n, precision)) return ContigScreen{};
         for (size_t s = 0; s < base.size(); ++s)
             distance[s] = mahalanobis(center, precision, base[s]);
-        const double cut = R::chi2_32_q975 * median(distance) / R::chi2_32_median;
+        std::vector<double> sorted = distance;  // distance keeps the stretches' order
+        const double cut = R::chi2_32_q975 * detail::median_in_place(sorted) / R::chi2_32_median;
         for (size_t s = 0; s < base.size(); ++s) keep[s] = distance[s] <= cut;
     }
     screen.center = center;
@@ -210,7 +203,8 @@ ContigScreen fit_contig_screen(TrainingData& data) {
         d.reserve(stretches[i].size());
         for (const Signature& x : stretches[i]) d.push_back(mahalanobis(center, precision, x));
         screen.lengths.push_back(R::lengths[i]);
-        screen.limits.push_back(median(d) / R::chi2_32_median * R::chi2_32_isf_level);
+        screen.limits.push_back(detail::median_in_place(d) / R::chi2_32_median *
+                                R::chi2_32_isf_level);
     }
     return screen;
 }
