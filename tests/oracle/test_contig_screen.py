@@ -162,12 +162,8 @@ def body(checks, binary, work):
     checks.check(unscreened_ok, "scan: contigs with fewer than 5,000 known bases carry no composition distance",
                  "README: Contig screen")
     listed = [c["name"] for c in doc["foreign_contigs"]["contigs"]]
-    reported = [r["name"] for r in tmtest.read_json(profile)["regions"] if r.get("report")]
-    rule = [c["name"] for c in doc["contigs"]
-            if c["length"] - c["unknown_bases"] >= doc["foreign_contigs"]["min_known_bases"]
-            and (sum(c["regions"][r]["expected_fraction"] for r in reported) >= 0.5
-                 or c.get("composition_distance", 0) > c.get("composition_limit", np.inf))]
-    checks.equal(listed, rule, "the list is the documented rule over the per-contig entries", "README: Contig screen")
+    checks.equal(listed, tmtest.foreign_by_rule(doc, profile), "the list is the documented rule over the "
+                 "per-contig entries", "README: Contig screen")
 
     foreign = [f["name"] for f in truth["foreign"]]
     native = truth["native"]

@@ -102,12 +102,8 @@ def body(checks, binary, work):
     listed = [c["name"] for c in summary["foreign_contigs"]["contigs"]]
     checks.equal(listed, ["sa_30k"], "screening: the S. aureus contig, and only it, is foreign to K-12",
                  "S. aureus GC about 0.33 against E. coli's 0.51 (shared/REFERENCES.md)")
-    reported = {r["name"] for r in tmtest.read_json(profile)["regions"] if r.get("report")}
-    rule = [c["name"] for c in summary["contigs"]
-            if c["length"] - c["unknown_bases"] >= summary["foreign_contigs"]["min_known_bases"]
-            and (sum(c["regions"][r]["expected_fraction"] for r in reported) >= 0.5
-                 or c.get("composition_distance", 0) > c.get("composition_limit", float("inf")))]
-    checks.equal(listed, rule, "screening: the list is the documented rule over the per-contig entries",
+    checks.equal(listed, tmtest.foreign_by_rule(summary, profile),
+                 "screening: the list is the documented rule over the per-contig entries",
                  "README: Screening the contigs of a draft")
     called = {r[0] for r in tmtest.read_bed(os.path.join(work, "screen.bed"))}
     checks.check(not called & {"sa_2k", "polyA"}, "screening: contigs below window.min_known get no call",

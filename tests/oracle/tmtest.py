@@ -149,6 +149,17 @@ def island_panel():
     return module
 
 
+def foreign_by_rule(summary, profile_path):
+    """Names of the contigs the README's screening rule lists, applied to the summary's own
+    per-contig entries: enough known bases and P(atypical) (the reported regions' expected
+    fractions) at least 0.5, or a composition distance beyond its limit (contig screen)."""
+    reported = [r["name"] for r in read_json(profile_path)["regions"] if r.get("report")]
+    return [c["name"] for c in summary["contigs"]
+            if c["length"] - c["unknown_bases"] >= summary["foreign_contigs"]["min_known_bases"]
+            and (sum(c["regions"][r]["expected_fraction"] for r in reported) >= 0.5
+                 or c.get("composition_distance", 0) > c.get("composition_limit", float("inf")))]
+
+
 def read_json(path):
     with open(path, encoding="utf-8") as f:
         return json.load(f)
