@@ -17,6 +17,7 @@
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
+#include <random>
 #include <unordered_set>
 #include <vector>
 
@@ -109,13 +110,32 @@ StagedPath::StagedPath(std::string target) : target_(std::move(target)) {
     const std::string dir = slash == std::string::npos ? "" : target_.substr(0, slash + 1);
     const std::string base = slash == std::string::npos ? target_ : target_.substr(slash + 1);
     if (base.empty()) throw IoError(target_ + ": output path names a folder, not a file");
-    temp_ = dir + "." + base + ".tidemark-XXXXXX";
-    fd_ = mkstemp(temp_.data());
+    // The name is registered for the signal handler before the file exists (as mkstemp would
+    // make it: six random characters, O_RDWR and O_EXCL, mode 0600): a signal between creating and
+    // registering would otherwise leave the file behind. A name taken already is released
+    // before the next is tried.
+    static constexpr char alphabet[] =
+        "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789";
+    std::random_device random;
+    for (int attempt = 0; attempt < 100 && fd_ < 0; ++attempt) {
+        temp_ = dir + "." + base + ".tidemark-";
+        for (int i = 0; i < 6; ++i) temp_ += alphabet[random() % (sizeof alphabet - 1)];
+        slot_ = register_temp(temp_);
+        fd_ = open(temp_.c_str(), O_RDWR | O_CREAT | O_EXCL, 0600);  // as mkstemp opens
+        if (fd_ >= 0 || errno != EEXIST) break;
+        release_temp(slot_);
+        slot_ = -1;
+    }
+    if (fd_ < 0) {
+        const int error = errno;
+        release_temp(slot_);
+        slot_ = -1;
+        errno = error;
+    }
     if (fd_ < 0 && errno == ENOENT)
         throw IoError(target_ + ": cannot create output file: its folder '" +
                       (dir.empty() ? "." : dir) + "' does not exist");
     if (fd_ < 0) throw IoError(target_ + ": cannot create output file: " + error_text());
-    slot_ = register_temp(temp_);
 }
 
 StagedPath::~StagedPath() {
